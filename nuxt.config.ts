@@ -1,0 +1,40 @@
+// Owlshift — Nuxt configuration. Root-level layout (srcDir '.') as in the design card.
+export default defineNuxtConfig({
+  compatibilityDate: '2026-06-01',
+  srcDir: '.',
+  dir: { app: '.' },
+  serverDir: 'server',
+  devtools: { enabled: false },
+  telemetry: false,
+  modules: ['@pinia/nuxt', '@nuxtjs/tailwindcss', 'nuxt-auth-utils'],
+  css: ['~/assets/css/main.css'],
+  tailwindcss: { cssPath: false, configPath: 'tailwind.config.ts', viewer: false },
+  app: {
+    head: {
+      title: 'Owlshift',
+      htmlAttrs: { lang: 'en' },
+      meta: [
+        { name: 'viewport', content: 'width=device-width, initial-scale=1, viewport-fit=cover' },
+        { name: 'description', content: 'Owlshift watches lights-out grinding cells through the night.' },
+        { name: 'theme-color', content: '#0f1720' },
+      ],
+      link: [{ rel: 'icon', type: 'image/svg+xml', href: '/owlshift.svg' }],
+    },
+  },
+  runtimeConfig: {
+    // Every value here can be overridden by NUXT_* variables; server/utils/config.ts
+    // reads the documented plain names (DATABASE_URL, …) and validates them at start.
+    session: {
+      name: 'owlshift-session',
+      password: '',
+      cookie: { secure: true, sameSite: 'lax' },
+      maxAge: 60 * 60 * 12,
+    },
+  },
+  nitro: {
+    experimental: { tasks: false },
+    // @libsql/client ships native bindings; keep it external to the server bundle.
+    externals: { external: ['@libsql/client', 'libsql'] },
+  },
+  typescript: { strict: true },
+})

@@ -1,0 +1,2 @@
+import type { Config } from 'tailwindcss'
+export default { content: [] } satisfies Config
