@@ -1,8 +1,9 @@
+import { fileURLToPath } from 'node:url'
+
 // Owlshift — Nuxt configuration. Root-level layout (srcDir '.') as in the design card.
 export default defineNuxtConfig({
   compatibilityDate: '2026-06-01',
   srcDir: '.',
-  dir: { app: '.' },
   serverDir: 'server',
   devtools: { enabled: false },
   telemetry: false,
@@ -32,6 +33,8 @@ export default defineNuxtConfig({
     },
   },
   nitro: {
+    // Migrations travel inside the built server, so `node .output/server/index.mjs` needs no sources.
+    serverAssets: [{ baseName: 'migrations', dir: fileURLToPath(new URL('./server/database/migrations', import.meta.url)) }],
     experimental: { tasks: false },
     // @libsql/client ships native bindings; keep it external to the server bundle.
     externals: { external: ['@libsql/client', 'libsql'] },

@@ -1,0 +1,31 @@
+import { z } from 'zod'
+import { eq } from 'drizzle-orm'
+
+const bodySchema = z.object({
+  email: z.string().trim().toLowerCase().email('Enter an e-mail address.'),
+  password: z.string('Enter the password.').min(1, 'Enter the password.').max(200),
+})
+
+export default defineEventHandler(async (event) => {
+  allowAnyone(event)
+  const { email, password } = await readValidBody(event, bodySchema)
+  const address = requestOrigin(event)
+  const verdict = await checkThrottle(email, address)
+  if (verdict.blocked) {
+    setResponseHeader(event, 'Retry-After', verdict.retryAfterS)
+    await audit(event, undefined, 'auth.throttled', `email:${email}`, { scope: verdict.scope })
+    throw throttleError(verdict)
+  }
+  const [user] = await useDb().select().from(schema.users).where(eq(schema.users.email, email))
+  const ok = user && !user.disabled && await verifyPassword(user.passwordHash, password)
+  if (!ok) {
+    await recordFailure(email, address)
+    await audit(event, undefined, 'auth.failed', `email:${email}`, { disabled: user?.disabled ?? undefined })
+    throw createError({ statusCode: 401, message: user?.disabled ? 'This account is disabled. Ask an admin.' : 'E-mail or password is wrong.' })
+  }
+  await clearFailures(email)
+  const sessionUser = toSessionUser(user)
+  await startSession(event, sessionUser)
+  await audit(event, sessionUser, 'auth.sign-in', `user:${user.id}`)
+  return sessionUser
+})

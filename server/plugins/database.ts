@@ -1,0 +1,34 @@
+// Opens the database, applies migrations and (for the demo) seeds the shop before any request
+// is served: server/middleware/0.ready.ts waits on `databaseReady`.
+import { useOwlshiftConfig, ConfigError } from '../utils/config'
+import { openDatabase, useDbClient, closeDatabase } from '../utils/db'
+import { applyMigrations, type MigrationFile } from '../database/migrate'
+import { seedDemoShop } from '../database/seed-demo'
+
+let resolveReady!: () => void
+export const databaseReady = new Promise<void>((r) => { resolveReady = r })
+
+async function loadMigrationFiles(): Promise<MigrationFile[]> {
+  const assets = useStorage('assets:migrations')
+  const journal = await assets.getItem<{ entries: { tag: string, when: number }[] }>('meta/_journal.json')
+  if (!journal?.entries) throw new Error('The bundled migrations are missing (server assets "migrations").')
+  return Promise.all(journal.entries.map(async e => ({
+    tag: e.tag, when: e.when, sql: String(await assets.getItemRaw(`${e.tag}.sql`)),
+  })))
+}
+
+export default defineNitroPlugin(async (nitroApp) => {
+  try {
+    const config = useOwlshiftConfig()
+    const db = await openDatabase(config)
+    const applied = await applyMigrations(useDbClient(), await loadMigrationFiles())
+    if (applied) console.info(`[owlshift] applied ${applied} database migration(s)`)
+    if (config.seedDemo && await seedDemoShop(db, hashPassword)) console.info('[owlshift] created the demo shop')
+    resolveReady()
+  }
+  catch (err) {
+    console.error(err instanceof ConfigError ? err.message : `[owlshift] start-up failed: ${(err as Error).stack}`)
+    process.exit(1)
+  }
+  nitroApp.hooks.hook('close', () => closeDatabase())
+})

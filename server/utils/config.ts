@@ -1,0 +1,56 @@
+// Server configuration from the environment, validated once. Every variable is listed in the README.
+import { z } from 'zod'
+import { resolve } from 'node:path'
+
+const bool = z.enum(['true', 'false', '1', '0', 'yes', 'no']).transform(v => ['true', '1', 'yes'].includes(v))
+
+const envSchema = z.object({
+  OWLSHIFT_DATA_DIR: z.string().min(1).default('data'),
+  DATABASE_URL: z.string().min(1).optional(),
+  DATABASE_AUTH_TOKEN: z.string().optional(),
+  OWLSHIFT_SEED_DEMO: bool.default(false),
+  OWLSHIFT_SIGNIN_MAX_PER_ACCOUNT: z.coerce.number().int().min(1).default(5),
+  OWLSHIFT_SIGNIN_MAX_PER_ADDRESS: z.coerce.number().int().min(1).default(20),
+  OWLSHIFT_SIGNIN_WINDOW_MIN: z.coerce.number().min(1).default(15),
+})
+
+export interface OwlshiftConfig {
+  dataDir: string
+  databaseUrl: string
+  databaseAuthToken?: string
+  seedDemo: boolean
+  signIn: { maxPerAccount: number, maxPerAddress: number, windowMs: number }
+}
+
+export class ConfigError extends Error {}
+
+export function parseConfig(env: Record<string, string | undefined>): OwlshiftConfig {
+  const parsed = envSchema.safeParse(Object.fromEntries(Object.entries(env).filter(([, v]) => v !== '')))
+  if (!parsed.success) {
+    const lines = parsed.error.issues.map(i => `  ${i.path.join('.')}: ${i.message}`)
+    throw new ConfigError(`Owlshift cannot start, the environment has invalid settings:\n${lines.join('\n')}`)
+  }
+  const e = parsed.data
+  const dataDir = resolve(e.OWLSHIFT_DATA_DIR)
+  const databaseUrl = e.DATABASE_URL ?? `file:${resolve(dataDir, 'owlshift.db')}`
+  if (!/^(file:|libsql:|https?:|wss?:)/.test(databaseUrl)) {
+    throw new ConfigError(`Owlshift cannot start: DATABASE_URL "${databaseUrl}" is not a libSQL address. Use file:/path/to/owlshift.db for a local file, or libsql://host:port (http://, ws:// also work) for a libSQL server.`)
+  }
+  return {
+    dataDir,
+    databaseUrl,
+    databaseAuthToken: e.DATABASE_AUTH_TOKEN,
+    seedDemo: e.OWLSHIFT_SEED_DEMO,
+    signIn: {
+      maxPerAccount: e.OWLSHIFT_SIGNIN_MAX_PER_ACCOUNT,
+      maxPerAddress: e.OWLSHIFT_SIGNIN_MAX_PER_ADDRESS,
+      windowMs: e.OWLSHIFT_SIGNIN_WINDOW_MIN * 60_000,
+    },
+  }
+}
+
+let cached: OwlshiftConfig | undefined
+export function useOwlshiftConfig(): OwlshiftConfig {
+  cached ??= parseConfig(process.env)
+  return cached
+}

@@ -1,0 +1,68 @@
+// The one database handle. libSQL speaks to a local SQLite file or a libSQL server alike.
+import { createClient, type Client } from '@libsql/client'
+import { drizzle, type LibSQLDatabase } from 'drizzle-orm/libsql'
+import { mkdirSync, accessSync, constants } from 'node:fs'
+import { dirname } from 'node:path'
+import { fileURLToPath } from 'node:url'
+import * as schema from '../database/schema'
+import { ConfigError, type OwlshiftConfig } from './config'
+
+export type Db = LibSQLDatabase<typeof schema>
+export { schema }
+
+let client: Client | undefined
+let db: Db | undefined
+
+/** Path of a file: URL, or undefined for a server URL. */
+export function databaseFilePath(url: string): string | undefined {
+  if (!url.startsWith('file:')) return undefined
+  const rest = url.slice('file:'.length)
+  return rest.startsWith('//') ? fileURLToPath(url) : rest
+}
+
+export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
+  const file = databaseFilePath(config.databaseUrl)
+  for (const dir of new Set([config.dataDir, file ? dirname(file) : undefined].filter(Boolean) as string[])) {
+    try {
+      mkdirSync(dir, { recursive: true })
+      accessSync(dir, constants.W_OK)
+    }
+    catch (err) {
+      throw new ConfigError(`Owlshift cannot start: the data folder "${dir}" is not writable (${(err as Error).message}). Set OWLSHIFT_DATA_DIR to a folder this user may write, or fix its permissions.`)
+    }
+  }
+  const c = createClient({ url: config.databaseUrl, authToken: config.databaseAuthToken })
+  try {
+    if (file) {
+      // WAL lets readers go on while ingest writes; the busy timeout rides out short lock waits.
+      await c.execute('PRAGMA journal_mode = WAL')
+      await c.execute('PRAGMA busy_timeout = 5000')
+      await c.execute('PRAGMA synchronous = NORMAL')
+      await c.execute('PRAGMA foreign_keys = ON')
+    }
+    await c.execute('SELECT 1')
+  }
+  catch (err) {
+    c.close()
+    throw new ConfigError(`Owlshift cannot start: the database at DATABASE_URL "${config.databaseUrl}" cannot be opened (${(err as Error).message}).`)
+  }
+  client = c
+  db = drizzle(c, { schema })
+  return db
+}
+
+export function useDb(): Db {
+  if (!db) throw new Error('The database is not open yet (server/plugins/database.ts opens it at start).')
+  return db
+}
+
+export function useDbClient(): Client {
+  if (!client) throw new Error('The database is not open yet.')
+  return client
+}
+
+export function closeDatabase() {
+  client?.close()
+  client = undefined
+  db = undefined
+}
