@@ -78,14 +78,14 @@ export const faultCodes = [
 ] as const
 export type FaultCode = (typeof faultCodes)[number]
 
-export const jobSchema = z.object({
+export const jobInfoSchema = z.object({
   jobId: z.string().min(1).max(64),
   partNumber: z.string().min(1).max(64),
   nominalMm: z.number().positive('must be > 0 mm').max(1000),
   lowerToleranceUm: micrometres(gaugeRangeUm),
   upperToleranceUm: micrometres(gaugeRangeUm),
 }).refine((j) => j.lowerToleranceUm < j.upperToleranceUm, { message: 'lowerToleranceUm must be below upperToleranceUm', path: ['upperToleranceUm'] })
-export type JobInfo = z.infer<typeof jobSchema>
+export type JobInfo = z.infer<typeof jobInfoSchema>
 
 // ── machine → server ─────────────────────────────────────────────────────────
 export const birthMessageSchema = z.object({
@@ -96,7 +96,7 @@ export const birthMessageSchema = z.object({
   session: z.number().int().min(1),
   adapter: z.object({ name: shortText, version: shortText }),
   machine: z.object({ name: shortText, model: shortText }),
-  job: jobSchema.nullable(),
+  job: jobInfoSchema.nullable(),
   execution: z.enum(executionStates),
   offsetUm: micrometres(gaugeRangeUm),
   pipelineParts: z.number().int().min(0).max(50),
@@ -140,7 +140,7 @@ export const eventMessageSchema = z.discriminatedUnion('type', [
   z.object({ ...eventBase, type: z.literal('wheel_change'), wheelId: shortText, wheelDiameterMm: z.number().positive().max(2000) }),
   z.object({ ...eventBase, type: z.literal('pallet_change'), palletId: shortText, blanks: z.number().int().min(0) }),
   z.object({ ...eventBase, type: z.literal('mastering'), correctionUm: micrometres(gaugeRangeUm) }),
-  z.object({ ...eventBase, type: z.literal('job_change'), job: jobSchema }),
+  z.object({ ...eventBase, type: z.literal('job_change'), job: jobInfoSchema }),
   z.object({ ...eventBase, type: z.literal('fault_raised'), fault: z.enum(faultCodes), message: shortText.optional() }),
   z.object({ ...eventBase, type: z.literal('fault_cleared'), fault: z.enum(faultCodes) }),
 ], { error: (issue) => (issue.code === 'invalid_union' ? 'event type must be one of part_loaded, part_ground, part_gauged, part_unloaded, dress, wheel_change, pallet_change, mastering, job_change, fault_raised, fault_cleared' : undefined) })

@@ -1,0 +1,227 @@
+// The cell simulator without a broker: determinism, numbering, the machine's handling of
+// commands, scenario validation and scenario effects, and the headless closed loop.
+import { describe, it, expect } from 'vitest'
+import { fileURLToPath } from 'node:url'
+import { writeFileSync, mkdtempSync } from 'node:fs'
+import { tmpdir } from 'node:os'
+import { join } from 'node:path'
+import { createCell } from '../../simulator/cell'
+import { runHeadless } from '../../simulator/headless'
+import { loadScenarioFile, parseScenario, machinesFor, type Scenario } from '../../simulator/scenario'
+import type { CommandMessage, SequencedMessage, AckMessage, EventMessage, StateMessage } from '../../shared/utils/contract'
+
+const scenarioPath = (name: string) => fileURLToPath(new URL(`../../simulator/scenarios/${name}.json`, import.meta.url))
+const quiet = loadScenarioFile(scenarioPath('quiet-night'))
+
+function collect(scenario: Scenario, seed: number, hours: number, machines = 4) {
+  const out: [string, SequencedMessage][] = []
+  runHeadless({ scenario, seed, hours, machines, controller: null, onMessage: (id, m) => out.push([id, m]) })
+  return out
+}
+
+/** A cell driven by hand: announce, start, and helpers to send commands and read what came back. */
+function manualCell(overrides: Partial<Scenario> = {}) {
+  const messages: [string, SequencedMessage][] = []
+  const cell = createCell({ scenario: { ...quiet, faultRatesPerHour: {}, ...overrides }, seed: 1, machines: 1, onMessage: (id, m) => messages.push([id, m]) })
+  cell.announce('cg-01', 1)
+  cell.startMachines()
+  let n = 0
+  const command = (type: CommandMessage['type'], fields: Record<string, unknown> = {}, ttlS = 60): CommandMessage => ({
+    kind: 'command', id: `t-${++n}`, issuedAt: cell.isoAt(cell.timeS), expiresAt: cell.isoAt(cell.timeS + ttlS), type, ...fields,
+  } as CommandMessage)
+  const acks = () => messages.map(([, m]) => m).filter((m): m is AckMessage => m.kind === 'ack')
+  const states = () => messages.map(([, m]) => m).filter((m): m is StateMessage => m.kind === 'state').map((m) => m.execution)
+  const events = (type: string) => messages.map(([, m]) => m).filter((m): m is EventMessage => m.kind === 'event' && m.type === type)
+  return { cell, messages, command, acks, states, events }
+}
+
+describe('determinism and numbering', () => {
+  it('same seed and scenario → the same messages; another seed → different', () => {
+    const a = collect(quiet, 7, 2), b = collect(quiet, 7, 2), c = collect(quiet, 8, 2)
+    expect(a.length).toBeGreaterThan(1000)
+    expect(JSON.stringify(b)).toBe(JSON.stringify(a))
+    expect(JSON.stringify(c)).not.toBe(JSON.stringify(a))
+  })
+
+  it('numbers every machine message 1, 2, 3 … with non-decreasing machine time', () => {
+    const last = new Map<string, { seq: number; time: string }>()
+    for (const [id, m] of collect(quiet, 3, 3)) {
+      const prev = last.get(id) ?? { seq: 0, time: '' }
+      expect(m.seq).toBe(prev.seq + 1)
+      expect(m.time >= prev.time).toBe(true)
+      last.set(id, { seq: m.seq, time: m.time })
+    }
+    expect(last.size).toBe(4)
+  })
+
+  it('continues numbering after the last sequence number of an earlier run', () => {
+    const seen: SequencedMessage[] = []
+    const cell = createCell({ scenario: quiet, seed: 1, machines: 1, lastSeq: { 'cg-01': 500 }, onMessage: (_id, m) => seen.push(m) })
+    cell.announce('cg-01', 9)
+    expect(seen[0]).toMatchObject({ kind: 'birth', seq: 501, session: 9 })
+  })
+
+  it('makes up extra machines beyond the scenario with their own ids', () => {
+    const ms = machinesFor(quiet, 12)
+    expect(new Set(ms.map((m) => m.id)).size).toBe(12)
+    expect(ms.slice(0, 4).map((m) => m.id)).toEqual(['cg-01', 'cg-02', 'cg-03', 'cg-04'])
+    expect(() => machinesFor(quiet, 0)).toThrow(/machine count must be a whole number from 1 to 500/)
+  })
+})
+
+describe('the machine answers commands', () => {
+  it('applies an offset after the plant latency and acknowledges the value in force', () => {
+    const { cell, command, acks, messages } = manualCell()
+    cell.advanceTo(600)
+    cell.deliverCommand('cg-01', command('offset', { offsetUm: -1.5 }))
+    expect(acks()).toHaveLength(0) // not yet: the plant's latency (2 s in this scenario's defaults)
+    cell.advanceTo(601.9)
+    expect(acks()).toHaveLength(0)
+    cell.advanceTo(602)
+    expect(acks()[0]).toMatchObject({ commandId: 't-1', command: 'offset', result: 'applied', offsetUm: -1.5, requestedOffsetUm: -1.5 })
+    // parts ground from then on carry the new offset
+    cell.advanceTo(700)
+    const ground = messages.map(([, m]) => m).filter((m): m is Extract<EventMessage, { type: 'part_ground' }> => m.kind === 'event' && m.type === 'part_ground')
+    expect(ground.filter((g) => Date.parse(g.time) > Date.parse(cell.isoAt(602))).every((g) => g.offsetUm === -1.5)).toBe(true)
+  })
+
+  it('rejects offsets beyond its own limits and says why; keeps the offset in force', () => {
+    const { cell, command, acks } = manualCell()
+    cell.advanceTo(100)
+    cell.deliverCommand('cg-01', command('offset', { offsetUm: 60 }))
+    cell.deliverCommand('cg-01', command('offset', { offsetUm: 9 }))
+    expect(acks()[0]).toMatchObject({ result: 'rejected', offsetUm: 0, reason: expect.stringMatching(/beyond the machine's limit of ±40 µm/) })
+    expect(acks()[1]).toMatchObject({ result: 'rejected', offsetUm: 0, reason: expect.stringMatching(/exceeds the machine's maximum step of 8 µm/) })
+  })
+
+  it('acks an expired command as expired and does not apply it', () => {
+    const { cell, acks } = manualCell()
+    cell.advanceTo(1000)
+    cell.deliverCommand('cg-01', { kind: 'command', id: 'old', issuedAt: cell.isoAt(800), expiresAt: cell.isoAt(900), type: 'offset', offsetUm: 2 })
+    cell.advanceTo(1010)
+    expect(acks()).toHaveLength(1)
+    expect(acks()[0]).toMatchObject({ result: 'expired', offsetUm: 0, reason: expect.stringMatching(/after its expiry/) })
+  })
+
+  it('acknowledges a redelivered command id again with the first result, without applying it twice', () => {
+    const { cell, command, acks } = manualCell()
+    cell.advanceTo(100)
+    const c = command('offset', { offsetUm: 1 })
+    cell.deliverCommand('cg-01', c)
+    cell.advanceTo(110)
+    cell.deliverCommand('cg-01', c)
+    expect(acks().map((a) => [a.commandId, a.result, a.offsetUm])).toEqual([['t-1', 'applied', 1], ['t-1', 'applied', 1]])
+    expect(acks()[1]!.seq).toBeGreaterThan(acks()[0]!.seq)
+  })
+
+  it('holds at once, grinds nothing while held, resumes on command', () => {
+    const { cell, command, acks, states, events } = manualCell()
+    cell.advanceTo(300)
+    cell.deliverCommand('cg-01', command('hold'))
+    expect(states()).toEqual(['ACTIVE', 'FEED_HOLD'])
+    const groundBefore = events('part_ground').length
+    cell.advanceTo(3000)
+    expect(events('part_ground').length).toBe(groundBefore)
+    cell.deliverCommand('cg-01', command('resume'))
+    expect(states()).toEqual(['ACTIVE', 'FEED_HOLD', 'ACTIVE'])
+    cell.advanceTo(3100)
+    expect(events('part_ground').length).toBeGreaterThan(groundBefore)
+    expect(acks().map((a) => a.result)).toEqual(['applied', 'applied'])
+    cell.deliverCommand('cg-01', command('resume'))
+    expect(acks()[2]).toMatchObject({ result: 'rejected', reason: 'the machine is not on hold' })
+  })
+
+  it('refuses to resume while a fault is active', () => {
+    const { cell, command, acks, states } = manualCell({ schedule: [{ action: 'fault', atHours: 0.1, machine: 'cg-01', fault: 'coolant_fault', durationMinutes: 30 }] })
+    cell.deliverCommand('cg-01', command('hold'))
+    cell.advanceTo(0.2 * 3600)
+    cell.deliverCommand('cg-01', command('resume', {}, 3600))
+    expect(acks()[1]).toMatchObject({ result: 'rejected', reason: 'fault active: coolant_fault' })
+    expect(states().at(-1)).toBe('INTERRUPTED')
+  })
+
+  it('dresses before the next part on command and acks after the dress', () => {
+    const { cell, command, acks, events } = manualCell()
+    cell.advanceTo(500)
+    cell.deliverCommand('cg-01', command('dress'))
+    expect(acks()).toHaveLength(0)
+    cell.advanceTo(560)
+    expect(events('dress')[0]).toMatchObject({ trigger: 'command', commandId: 't-1' })
+    expect(acks()[0]).toMatchObject({ command: 'dress', result: 'applied' })
+    expect(acks()[0]!.seq).toBeGreaterThan(events('dress')[0]!.seq)
+  })
+})
+
+describe('scenarios', () => {
+  it('every shipped scenario loads', () => {
+    for (const name of ['quiet-night', 'fast-wheel-wear', 'cold-start-after-weekend', 'gauge-going-bad', 'loader-jam-and-empty-pallet', 'fire-alarm']) {
+      expect(loadScenarioFile(scenarioPath(name)).name).toBe(name)
+    }
+  })
+
+  it('explains what is wrong with a bad scenario, field by field', () => {
+    const bad = structuredClone(quiet) as unknown as Record<string, unknown>
+    ;(bad.machines as Record<string, unknown>[])[0]!.physics = { processSigma: 0.3 }
+    bad.schedule = [{ action: 'fault', atHours: 1, machine: 'cg-99', fault: 'loader_jam' }, { action: 'explode', atHours: 1, machine: '*' }]
+    bad.start = '2026-03-02 21:00'
+    let message = ''
+    try { parseScenario(bad, 'test.json') } catch (error) { message = (error as Error).message }
+    expect(message).toMatch(/^test\.json is not a valid scenario/)
+    expect(message).toMatch(/machines\.0\.physics: Unrecognized key: "processSigma"/)
+    expect(message).toMatch(/schedule\.1\.action: action must be one of fault, physics, wheel_change, master, stop/)
+    expect(message).toMatch(/start: must be an ISO-8601 UTC time/)
+    const dir = mkdtempSync(join(tmpdir(), 'owlshift-scn-'))
+    writeFileSync(join(dir, 'a.json'), '{ nope')
+    expect(() => loadScenarioFile(join(dir, 'a.json'))).toThrow(/is not JSON/)
+    expect(() => loadScenarioFile(join(dir, 'missing.json'))).toThrow(/cannot read scenario file/)
+    const unknownMachine = { ...structuredClone(quiet), schedule: [{ action: 'master', atHours: 1, machine: 'cg-99' }] }
+    expect(() => parseScenario(unknownMachine)).toThrow(/schedule\.0\.machine: machine "cg-99" is not in machines/)
+  })
+
+  it('loader jam and empty pallet: Kite starves, Finch stays jammed, Heron recovers', () => {
+    const out = collect(loadScenarioFile(scenarioPath('loader-jam-and-empty-pallet')), 7, 10)
+    const faults = out.filter(([, m]) => m.kind === 'event' && (m.type === 'fault_raised' || m.type === 'fault_cleared'))
+      .map(([id, m]) => `${id} ${(m as EventMessage & { fault: string }).type} ${(m as { fault: string }).fault}`)
+    expect(faults).toContain('cg-01 fault_raised loader_jam')
+    expect(faults).toContain('cg-01 fault_cleared loader_jam')
+    expect(faults).toContain('cg-03 fault_raised empty_pallet')
+    expect(faults).toContain('cg-04 fault_raised loader_jam')
+    expect(faults).not.toContain('cg-04 fault_cleared loader_jam')
+    // Kite: 1 loaded pallet + 3 in stock of 200 blanks → exactly 800 parts loaded
+    const kiteLoads = out.filter(([id, m]) => id === 'cg-03' && m.kind === 'event' && m.type === 'part_loaded').length
+    expect(kiteLoads).toBe(800)
+  })
+
+  it('fire alarm: every machine stops and no part is ground afterwards', () => {
+    const out = collect(loadScenarioFile(scenarioPath('fire-alarm')), 7, 10)
+    const alarmAt = Date.parse('2026-03-06T21:00:00.000Z') + 4.2 * 3600_000
+    const stops = out.filter(([, m]) => m.kind === 'state' && m.execution === 'STOPPED' && m.activeFaults.includes('fire_alarm'))
+    expect(new Set(stops.map(([id]) => id)).size).toBe(4)
+    expect(out.some(([, m]) => m.kind === 'event' && m.type === 'part_ground' && Date.parse(m.time) > alarmAt)).toBe(false)
+  })
+
+  it('gauge going bad: Kite reports gauge fault readings for 90 minutes from hour 6', () => {
+    const scenario = loadScenarioFile(scenarioPath('gauge-going-bad'))
+    const out = collect(scenario, 7, 10)
+    const start = Date.parse(scenario.start)
+    const faulty = out.filter(([id, m]) => id === 'cg-03' && m.kind === 'reading' && m.status === 'fault').map(([, m]) => (Date.parse(m.time) - start) / 3600_000)
+    expect(faulty.length).toBeGreaterThan(300)
+    expect(Math.min(...faulty)).toBeGreaterThanOrEqual(6)
+    expect(Math.max(...faulty)).toBeLessThanOrEqual(7.5 + 0.01)
+    expect(out.some(([id, m]) => id !== 'cg-03' && m.kind === 'reading' && m.status === 'fault')).toBe(false)
+  })
+
+  it('cold start: open-loop sizes follow the warm-up curve A(1 − e^{−t/τ}) on top of the start size', () => {
+    const scenario = loadScenarioFile(scenarioPath('cold-start-after-weekend'))
+    const heron = scenario.machines[0]!.physics
+    const out = collect(scenario, 7, 2, 1)
+    const start = Date.parse(scenario.start)
+    const readings = out.map(([, m]) => m).filter((m) => m.kind === 'reading' && m.status === 'ok') as Extract<SequencedMessage, { kind: 'reading' }>[]
+    // mean of readings within ±5 min of t = 60 min, against the formula (+ wear per part, noise averages out)
+    const near = readings.filter((r) => Math.abs((Date.parse(r.time) - start) / 1000 - 3600) < 300 && !Number.isNaN(r.diameterUm!))
+    const meanMeasured = near.reduce((a, r) => a + r.diameterUm!, 0) / near.length
+    const expected = heron.initialSizeUm! + heron.warmupAmplitudeUm! * (1 - Math.exp(-3600 / heron.warmupTauS!)) + heron.wheelWearUmPerPart! * (3600 / 18)
+    expect(near.length).toBeGreaterThan(20)
+    expect(Math.abs(meanMeasured - expected)).toBeLessThan(0.35)
+  })
+})
