@@ -104,11 +104,10 @@ export const birthMessageSchema = z.object({
   wheelDiameterMm: z.number().positive().max(2000),
 })
 
-/** The will. Fixed at CONNECT time, so it carries no seq of its own; birthSeq names the birth it ends. */
+/** The will. Fixed at CONNECT time, so it carries no seq of its own; `session` names the birth it ends. */
 export const deathMessageSchema = z.object({
   kind: z.literal('death'),
   session: z.number().int().min(1),
-  birthSeq: seq,
   connectedAt: isoTime,
   reason: z.enum(['connection_lost', 'shutdown']),
   /** only on an explicit shutdown (the will cannot know when it fires) */

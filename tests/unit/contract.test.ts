@@ -54,7 +54,7 @@ describe('machine messages', () => {
       const decoded = decodeMachineMessage(`${base}/${kind}`, JSON.stringify(message))
       expect(decoded, kind).toMatchObject({ ok: true, value: { cell: 'cell-a', machine: 'cg-01', kind } })
     }
-    const death = { kind: 'death', session: 3, birthSeq: 17, connectedAt: T, reason: 'connection_lost' }
+    const death = { kind: 'death', session: 3, connectedAt: T, reason: 'connection_lost' }
     expect(decodeMachineMessage(`${base}/presence`, Buffer.from(JSON.stringify(death)))).toMatchObject({ ok: true })
   })
 
