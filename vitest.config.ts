@@ -27,6 +27,7 @@ export default defineConfig({
           testTimeout: 120_000,
           hookTimeout: 300_000,
           fileParallelism: false,
+          globalSetup: ['tests/e2e/global-setup.ts'],
         },
       },
     ],

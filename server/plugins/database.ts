@@ -20,6 +20,9 @@ async function loadMigrationFiles(): Promise<MigrationFile[]> {
 export default defineNitroPlugin(async (nitroApp) => {
   try {
     const config = useOwlshiftConfig()
+    const sessionPassword = useRuntimeConfig().session?.password ?? ''
+    if (sessionPassword.length < 32)
+      throw new ConfigError('Owlshift cannot start: NUXT_SESSION_PASSWORD must be set to a secret of at least 32 characters (it seals the sign-in cookies). `npm run demo` makes one in data/ for you.')
     const db = await openDatabase(config)
     const applied = await applyMigrations(useDbClient(), await loadMigrationFiles())
     if (applied) console.info(`[owlshift] applied ${applied} database migration(s)`)

@@ -1,0 +1,27 @@
+// The declared access table: every file under server/api must appear here with the roles that
+// may call it. role-matrix.test.ts discovers the files and fails on any route missing from this
+// table, so a new route cannot escape the check.
+import type { Role } from '../../shared/types/auth'
+
+export type Access = 'public' | 'signed-in' | readonly Role[]
+
+export interface RouteRule {
+  access: Access
+  /** Sample values for [params] in the path. */
+  params?: Record<string, string>
+  /** Body to send (defaults to {} for writes). Must not succeed in a harmful way. */
+  body?: unknown
+}
+
+export const routeAccess: Record<string, RouteRule> = {
+  'auth/sign-in.post.ts': { access: 'public' },
+  'auth/sign-out.post.ts': { access: 'public' },
+  'me/index.get.ts': { access: 'signed-in' },
+  'me/preferences.patch.ts': { access: 'signed-in' },
+  'machines/index.get.ts': { access: 'signed-in' },
+  'users/index.get.ts': { access: ['admin'] },
+  'users/index.post.ts': { access: ['admin'] },
+  'users/[id]/index.patch.ts': { access: ['admin'], params: { id: '5' } },
+  'users/[id]/password.post.ts': { access: ['admin'], params: { id: '5' } },
+  'audit.get.ts': { access: ['admin'] },
+}
