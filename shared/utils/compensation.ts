@@ -1,0 +1,848 @@
+// The compensation engine: from post-process gauge readings and machine events, decide part by
+// part the next wheel offset, when to dress, when to hold and when to stop. Pure: no I/O, no
+// clock, no randomness; the state is plain JSON. Nothing else in Owlshift computes offsets.
+//
+//   let state = createCompensationState(settings, { offsetUm })
+//   const { state: next, decision } = stepCompensation(state, input)   // input: reading or event
+//
+// Model (design.md "Compensation"): measured deviation y_k = a_k + b·u_k + e_k with a the drifting
+// disturbance, u the axis offset in force when part k was GROUND and b the gain. Each reading is
+// paired with that offset: the engine keeps the offsets in force at the arrival of the last
+// d readings (d = pipeline parts), because a command sent now first reaches the reading d + 1
+// parts later. A reading that carries `offsetInForceUm` (machines that tag parts) uses that value.
+//
+// Strategies: step (average of N, correct a fraction outside the compensation limits, then skip
+// the pipeline), ewma (Ingolfsson & Sachs 1993), drift (level + slope, Holt-type double EWMA,
+// Butler & Stefani 1994; aims at the part d + 1 ahead, so a linear drift leaves no bias).
+import { parseCompensationSettings, type CompensationSettings, type CompensationSettingsInput } from './compensation-settings'
+
+export { compensationSettingsSchema, parseCompensationSettings, COMPENSATION_STRATEGIES } from './compensation-settings'
+export type { CompensationSettings, CompensationSettingsInput, CompensationStrategy } from './compensation-settings'
+
+export const COMPENSATION_STATE_VERSION = 1
+
+// ---------------------------------------------------------------- inputs
+
+export interface CompensationReading {
+  type: 'reading'
+  /** machine's part/message sequence number, increasing */
+  seq: number
+  /** machine time of the measurement (ms since epoch); used for the cycle time only */
+  time?: number
+  /** measured diameter deviation from nominal (µm); null when the gauge gave none */
+  deviationUm: number | null
+  /** gauge status; anything but 'ok' is a gauge fault */
+  status?: string
+  roundnessUm?: number
+  lengthUm?: number
+  /** offset in force when this part was ground (axis µm), if the machine reports it */
+  offsetInForceUm?: number
+}
+
+export type CompensationEvent =
+  | { type: 'offset-applied'; offsetUm: number; time?: number }
+  | { type: 'dress'; offsetUm?: number; time?: number }
+  | { type: 'wheel-change'; offsetUm?: number; time?: number }
+  | { type: 'job-change'; settings?: CompensationSettingsInput; offsetUm?: number; time?: number }
+  | { type: 'mastered'; time?: number }
+  | { type: 'restart'; time?: number }
+
+export type CompensationInput = CompensationReading | CompensationEvent
+
+// ---------------------------------------------------------------- state
+
+type EventKind = 'dress' | 'wheel-change' | 'job-change' | 'restart' | 'mastered'
+
+export interface CompensationState {
+  version: number
+  settings: CompensationSettings
+  /** offset believed in force now (axis µm): our last command, or what the machine reported */
+  offsetUm: number
+  /** offset at the last dress (the budget since dress is measured from it) */
+  offsetAtDressUm: number
+  /** offsets in force at the arrival of the last d readings, oldest first */
+  offsetRing: number[]
+  /** offset the last gauged part was ground with */
+  lastPartOffsetUm: number
+  lastSeq: number | null
+  lastTimeMs: number | null
+  readings: number
+  partsSinceDress: number
+  /** Holt estimate of the disturbance r = y − b·u (µm of diameter) at the last gauged part */
+  level: number | null
+  slope: number
+  /** readings folded into the level since the last reset (start-up weights 1/n) */
+  learnCount: number
+  /** single-EWMA estimate for the ewma strategy */
+  ewmaLevel: number | null
+  /** step strategy: recent deviations and readings still to skip after a correction */
+  stepWindow: number[]
+  stepSkip: number
+  /** recent residuals of accepted readings (robust σ) */
+  residuals: number[]
+  outlierRun: number
+  invalidRun: number
+  outOfToleranceRun: number
+  /** readings of parts ground before the last event: not used */
+  flushRemaining: number
+  holdRemaining: number
+  holdReason: string | null
+  /** the next usable reading resets the level (after an event) */
+  relearnPending: EventKind | null
+  /** learning phase after a start or an event, and its readings (projected to the latest part) */
+  learning: boolean
+  learnSamples: number[]
+  /** learning the size step of a dress: projected pre-dress level at the first post-dress part */
+  dressStepBase: number | null
+  dressStepUm: number | null
+  dressStepCount: number
+  /** disturbance level learnt just after the last dress (start of the wear budget) */
+  levelAtDressUm: number | null
+  cycleTimeS: number
+  roundnessUm: number | null
+}
+
+// ---------------------------------------------------------------- decisions
+
+export type CompensationAlertCode =
+  | 'trend-near-limit'
+  | 'budget-used-up'
+  | 'offset-range-limit'
+  | 'gauge-suspect'
+  | 'consecutive-rejects'
+  | 'dress-due'
+
+export interface CompensationAlert {
+  code: CompensationAlertCode
+  message: string
+}
+
+export interface CompensationCommand {
+  /** diameter correction this command means (µm) = gain × offsetDeltaUm */
+  correctionUm: number
+  /** change of axis offset (µm) */
+  offsetDeltaUm: number
+  /** new total axis offset (µm) — what the machine should set */
+  newOffsetUm: number
+  /** bounds that cut the command short */
+  limitedBy: ('max-step' | 'budget-since-dress' | 'offset-range')[]
+}
+
+export interface CompensationPrediction {
+  /** smoothed size of the last gauged part (µm) */
+  levelUm: number | null
+  slopeUmPerPart: number | null
+  /** predicted size of the next part to be ground, at the offset now in force (µm) */
+  nextPartUm: number | null
+  /** if compensation stopped now: parts / minutes until the trend meets a limit (null: never) */
+  partsToCompLimit: number | null
+  minutesToCompLimit: number | null
+  partsToSpecLimit: number | null
+  minutesToSpecLimit: number | null
+  partsToDress: number | null
+  sigmaUm: number
+  cycleTimeS: number
+}
+
+export interface CompensationDecision {
+  kind: 'reading' | 'event' | 'ignored'
+  seq: number | null
+  command: CompensationCommand | null
+  /** total axis offset in force after this decision */
+  offsetUm: number
+  hold: { reason: string; partsRemaining: number } | null
+  stop: boolean
+  dress: { now: boolean; afterParts: number | null; reason: string | null }
+  alerts: CompensationAlert[]
+  prediction: CompensationPrediction
+  /** one line for people */
+  reason: string
+  /** the figures the decision used */
+  inputs: Record<string, number | string | boolean | null>
+}
+
+// ---------------------------------------------------------------- creation
+
+/** A fresh state. Throws an Error naming every bad settings field. */
+export function createCompensationState(settings: CompensationSettingsInput | CompensationSettings, opts: { offsetUm?: number } = {}): CompensationState {
+  const s = parseCompensationSettings(settings)
+  const offsetUm = opts.offsetUm ?? 0
+  if (!Number.isFinite(offsetUm)) throw new Error(`initial offset must be a finite number of µm, got ${String(offsetUm)}`)
+  return {
+    version: COMPENSATION_STATE_VERSION,
+    settings: s,
+    offsetUm,
+    offsetAtDressUm: offsetUm,
+    offsetRing: Array.from({ length: s.pipelineParts }, () => offsetUm),
+    lastPartOffsetUm: offsetUm,
+    lastSeq: null,
+    lastTimeMs: null,
+    readings: 0,
+    partsSinceDress: 0,
+    level: null,
+    slope: 0,
+    learnCount: 0,
+    ewmaLevel: null,
+    stepWindow: [],
+    stepSkip: 0,
+    residuals: [],
+    outlierRun: 0,
+    invalidRun: 0,
+    outOfToleranceRun: 0,
+    flushRemaining: 0,
+    holdRemaining: 0,
+    holdReason: null,
+    relearnPending: null,
+    learning: false,
+    learnSamples: [],
+    dressStepBase: null,
+    dressStepUm: null,
+    dressStepCount: 0,
+    levelAtDressUm: null,
+    cycleTimeS: s.cycleTimeS,
+    roundnessUm: null,
+  }
+}
+
+/** Restores a state read back from JSON; throws if it is not one of ours. */
+export function restoreCompensationState(json: unknown): CompensationState {
+  const raw = typeof json === 'string' ? JSON.parse(json) : json
+  if (!raw || typeof raw !== 'object') throw new Error('compensation state: expected an object')
+  const st = raw as CompensationState
+  if (st.version !== COMPENSATION_STATE_VERSION) throw new Error(`compensation state: unknown version ${String(st.version)}`)
+  parseCompensationSettings(st.settings)
+  if (!Number.isFinite(st.offsetUm) || !Array.isArray(st.offsetRing)) throw new Error('compensation state: offset fields are missing or not numbers')
+  return structuredClone(st)
+}
+
+// ---------------------------------------------------------------- stepping
+
+/** Feeds one reading or event; returns the new state and the decision. Never mutates `state`. */
+export function stepCompensation(state: CompensationState, input: CompensationInput): { state: CompensationState; decision: CompensationDecision } {
+  const st = structuredClone(state)
+  const type = input && typeof input === 'object' ? (input as { type?: unknown }).type : undefined
+  let decision: CompensationDecision
+  if (type === 'reading') decision = onReading(st, input as CompensationReading)
+  else if (type === 'offset-applied' || type === 'dress' || type === 'wheel-change' || type === 'job-change' || type === 'mastered' || type === 'restart') {
+    const result = onEvent(st, input as CompensationEvent)
+    if (result.kind === 'ignored') return { state, decision: result }
+    decision = result
+  } else {
+    return { state, decision: ignored(state, null, `unknown input type ${JSON.stringify(type ?? null)}: ignored`) }
+  }
+  if (decision.kind === 'ignored') return { state, decision }
+  return { state: tidyZeros(st), decision }
+}
+
+/** Convenience: feed many inputs, keep every decision. */
+export function runCompensation(state: CompensationState, inputs: readonly CompensationInput[]): { state: CompensationState; decisions: CompensationDecision[] } {
+  const decisions: CompensationDecision[] = []
+  let st = state
+  for (const input of inputs) {
+    const r = stepCompensation(st, input)
+    st = r.state
+    decisions.push(r.decision)
+  }
+  return { state: st, decisions }
+}
+
+// ---------------------------------------------------------------- readings
+
+function onReading(st: CompensationState, r: CompensationReading): CompensationDecision {
+  const s = st.settings
+  const seq = r.seq
+  if (typeof seq !== 'number' || !Number.isInteger(seq)) {
+    return ignored(st, null, `reading without a whole-number sequence (${JSON.stringify(seq ?? null)}): ignored`)
+  }
+  if (st.lastSeq !== null && seq <= st.lastSeq) {
+    return ignored(st, seq, `reading ${seq} is not after ${st.lastSeq} (duplicate or out of order): ignored`)
+  }
+  const notes: string[] = []
+
+  // Parts we never heard of were still ground: move the pairing ring and the estimate past them.
+  const missing = st.lastSeq === null ? 0 : Math.min(seq - st.lastSeq - 1, 10_000)
+  if (missing > 0) {
+    notes.push(`${missing} reading(s) missing before ${seq}`)
+    for (let i = 0; i < missing; i++) advancePart(st)
+  }
+  const pairedOffset = advancePart(st)
+  const offsetForPart = typeof r.offsetInForceUm === 'number' && Number.isFinite(r.offsetInForceUm) ? r.offsetInForceUm : pairedOffset
+  updateCycleTime(st, seq, r.time)
+  st.lastSeq = seq
+  st.lastPartOffsetUm = offsetForPart
+
+  const y = r.deviationUm
+  const status = r.status ?? 'ok'
+  let invalid: string | null = null
+  if (status !== 'ok') invalid = `gauge status "${String(status)}"`
+  else if (typeof y !== 'number' || !Number.isFinite(y)) invalid = `no usable size (${String(y)})`
+  else if (Math.abs(y - s.targetUm) > s.plausibleUm) invalid = `implausible size ${fmt(y)} µm (more than ${fmt(s.plausibleUm)} µm from target)`
+
+  const inputs: CompensationDecision['inputs'] = {
+    seq,
+    deviationUm: typeof y === 'number' && Number.isFinite(y) ? y : null,
+    status: String(status),
+    offsetForPartUm: offsetForPart,
+    offsetBeforeUm: st.offsetUm,
+    strategy: s.strategy,
+    gain: s.gain,
+    pipelineParts: s.pipelineParts,
+  }
+
+  if (invalid !== null) {
+    st.invalidRun++
+    st.outlierRun = 0
+    if (st.flushRemaining > 0) st.flushRemaining--
+    timeUpdate(st)
+    consumeHold(st)
+    const alerts: CompensationAlert[] = []
+    if (st.invalidRun >= s.outliers.runForGaugeSuspect) {
+      alerts.push({ code: 'gauge-suspect', message: `${st.invalidRun} unusable readings in a row` })
+    }
+    const d = finish(st, [], alerts)
+    return {
+      ...d,
+      kind: 'reading',
+      seq,
+      hold: { reason: `no command on an unusable reading: ${invalid}`, partsRemaining: st.holdRemaining },
+      reason: `hold: ${invalid}${notes.length ? `; ${notes.join('; ')}` : ''}`,
+      inputs: { ...inputs, invalid },
+    }
+  }
+  const yv = y as number
+  st.invalidRun = 0
+
+  // Stop rule: M consecutive parts out of tolerance (outliers count: the part is a reject either way).
+  const outOfTolerance = yv > s.upperSpecUm || yv < s.lowerSpecUm
+  st.outOfToleranceRun = outOfTolerance ? st.outOfToleranceRun + 1 : 0
+  if (typeof r.roundnessUm === 'number' && Number.isFinite(r.roundnessUm) && r.roundnessUm >= 0) {
+    st.roundnessUm = st.roundnessUm === null ? r.roundnessUm : st.roundnessUm + 0.1 * (r.roundnessUm - st.roundnessUm)
+  }
+
+  const disturbance = yv - s.gain * offsetForPart
+  inputs.disturbanceUm = disturbance
+  let usable = true
+  let outlier = false
+  let estimateNote = ''
+
+  if (st.flushRemaining > 0) {
+    // Ground before the last event: says nothing about the machine as it is now.
+    st.flushRemaining--
+    timeUpdate(st)
+    usable = false
+    estimateNote = 'part ground before the last event, not used'
+  } else if (st.level === null || st.relearnPending !== null || st.learning) {
+    const r = learnReading(st, disturbance)
+    outlier = r.outlier
+    usable = !r.outlier && r.consistent
+    estimateNote = r.note
+    if (r.outlier) st.outlierRun++
+  } else {
+    const predicted = st.level + st.slope
+    const residual = disturbance - predicted
+    const sigma = robustSigma(st)
+    inputs.predictedUm = predicted
+    inputs.residualUm = residual
+    inputs.sigmaUm = sigma
+    if (st.learnCount >= 3 && Math.abs(residual) > s.outliers.k * sigma) {
+      outlier = true
+      usable = false
+      st.outlierRun++
+      st.level = predicted
+      estimateNote = `outlier: ${fmt(residual)} µm from prediction (limit ${fmt(s.outliers.k * sigma)} µm), not used`
+    } else {
+      st.outlierRun = 0
+      st.residuals.push(residual)
+      if (st.residuals.length > s.outliers.window) st.residuals.shift()
+      const n = st.learnCount + 1
+      const { alpha, beta } = holtWeights(s.drift.levelWeight, s.drift.slopeWeight)
+      const newLevel = predicted + alpha * residual
+      st.slope += beta * (newLevel - st.level - st.slope)
+      st.level = newLevel
+      const e = Math.max(s.ewma.lambda, 1 / n)
+      st.ewmaLevel = st.ewmaLevel === null ? disturbance : st.ewmaLevel + e * (disturbance - st.ewmaLevel)
+      st.learnCount = n
+    }
+  }
+  if (!outlier) st.outlierRun = 0
+
+  let holdReason = consumeHold(st)
+  const alerts: CompensationAlert[] = []
+  if (st.outlierRun >= s.outliers.runForGaugeSuspect) {
+    holdReason = `gauge suspect: ${st.outlierRun} readings in a row far from the prediction`
+    alerts.push({ code: 'gauge-suspect', message: holdReason })
+  }
+  if (st.outOfToleranceRun >= 2) {
+    alerts.push({ code: 'consecutive-rejects', message: `${st.outOfToleranceRun} parts in a row out of tolerance` })
+  }
+
+  // Step strategy bookkeeping (it works on the raw deviations and skips the pipeline after a correction).
+  let stepMean: number | null = null
+  if (s.strategy === 'step' && usable) {
+    if (st.stepSkip > 0) st.stepSkip--
+    else {
+      st.stepWindow.push(yv)
+      if (st.stepWindow.length > s.step.window) st.stepWindow.shift()
+      if (st.stepWindow.length === s.step.window) stepMean = st.stepWindow.reduce((p, v) => p + v, 0) / s.step.window
+    }
+  }
+
+  let command: CompensationCommand | null = null
+  let limitedBy: CompensationCommand['limitedBy'] = []
+  let why = ''
+  if (holdReason !== null) {
+    why = `hold: ${holdReason}`
+  } else if (!usable) {
+    why = `no command: ${estimateNote}`
+  } else {
+    const desired = desiredOffset(st, stepMean)
+    if (desired === null) why = s.strategy === 'none' ? 'monitor only (strategy none)' : 'within compensation limits'
+    else {
+      const bounded = boundedCommand(st, desired.offsetUm)
+      const c = bounded.command
+      limitedBy = bounded.limitedBy
+      if (limitedBy.includes('budget-since-dress')) alerts.push({ code: 'budget-used-up', message: `offset budget since dress (${fmt(s.maxSinceDressUm)} µm) used up` })
+      if (limitedBy.includes('offset-range')) alerts.push({ code: 'offset-range-limit', message: `offset at the allowed range [${fmt(s.offsetRange.min)}, ${fmt(s.offsetRange.max)}] µm` })
+      if (c === null) why = `${desired.why}; ${limitedBy.length ? `no room left (${limitedBy.join(', ')})` : `change below ${fmt(s.minStepUm)} µm, not sent`}`
+      else {
+        command = c
+        st.offsetUm = c.newOffsetUm
+        if (s.strategy === 'step') {
+          st.stepWindow = []
+          st.stepSkip = s.pipelineParts
+        }
+        why = `${desired.why} → offset ${fmt(c.newOffsetUm)} µm (Δ ${fmt(c.offsetDeltaUm)})${c.limitedBy.length ? ` limited by ${c.limitedBy.join(', ')}` : ''}`
+      }
+    }
+  }
+  if (estimateNote && holdReason === null && usable) why = `${estimateNote}; ${why}`
+  const stop = st.outOfToleranceRun >= s.stopAfterOutOfTolerance
+  if (stop) why = `STOP: ${st.outOfToleranceRun} consecutive parts out of tolerance; ${why}`
+  if (notes.length) why = `${why}; ${notes.join('; ')}`
+
+  Object.assign(inputs, {
+    levelUm: st.level,
+    slopeUmPerPart: st.slope,
+    ewmaLevelUm: st.ewmaLevel,
+    stepMeanUm: stepMean,
+    outOfTolerance,
+    outlier,
+  })
+  const d = finish(st, limitedBy, alerts)
+  return {
+    ...d,
+    command,
+    kind: 'reading',
+    seq,
+    hold: holdReason !== null ? { reason: holdReason, partsRemaining: Math.max(st.holdRemaining, 0) } : null,
+    stop,
+    reason: why,
+    inputs,
+  }
+}
+
+/** One part passes the gauge: the pairing ring moves on; returns the offset that part was ground with. */
+function advancePart(st: CompensationState): number {
+  st.readings++
+  st.partsSinceDress++
+  st.offsetRing.push(st.offsetUm)
+  return st.offsetRing.shift()!
+}
+
+/** Counts one reading off an event hold; returns the hold reason if this reading is held. */
+function consumeHold(st: CompensationState): string | null {
+  if (st.holdRemaining <= 0) return null
+  const reason = st.holdReason ?? 'hold'
+  st.holdRemaining--
+  if (st.holdRemaining === 0) st.holdReason = null
+  return reason
+}
+
+function desiredOffset(st: CompensationState, stepMean: number | null): { offsetUm: number; why: string } | null {
+  const s = st.settings
+  const d = s.pipelineParts
+  switch (s.strategy) {
+    case 'none':
+      return null
+    case 'step': {
+      if (stepMean === null) return null
+      if (stepMean <= s.upperCompUm && stepMean >= s.lowerCompUm) return null
+      const correction = s.step.fraction * (s.targetUm - stepMean)
+      return { offsetUm: st.offsetUm + correction / s.gain, why: `step: mean of ${s.step.window} is ${fmt(stepMean)} µm, outside compensation limits; correct ${fmt(correction)} µm` }
+    }
+    case 'ewma': {
+      if (st.ewmaLevel === null) return null
+      return { offsetUm: (s.targetUm - st.ewmaLevel) / s.gain, why: `ewma: disturbance ${fmt(st.ewmaLevel)} µm` }
+    }
+    case 'drift': {
+      if (st.level === null) return null
+      const ahead = st.level + (d + 1) * st.slope
+      return { offsetUm: (s.targetUm - ahead) / s.gain, why: `drift: level ${fmt(st.level)} µm, slope ${fmt(st.slope, 4)} µm/part, ${d + 1} parts ahead ${fmt(ahead)} µm` }
+    }
+  }
+}
+
+/**
+ * Applies the bounds (allowed range, budget since dress, max step) and the minimum step.
+ * Returns the command (null when nothing is to be sent) and the bounds that cut the wish short.
+ */
+function boundedCommand(st: CompensationState, desiredUm: number): { command: CompensationCommand | null; limitedBy: CompensationCommand['limitedBy'] } {
+  const s = st.settings
+  if (!Number.isFinite(desiredUm)) return { command: null, limitedBy: [] }
+  const u = st.offsetUm
+  const limitedBy: CompensationCommand['limitedBy'] = []
+  const lo = Math.max(s.offsetRange.min, st.offsetAtDressUm - s.maxSinceDressUm)
+  const hi = Math.min(s.offsetRange.max, st.offsetAtDressUm + s.maxSinceDressUm)
+  let target = desiredUm
+  if (lo > hi) {
+    // The budget window lies outside the allowed range: the range wins, no further movement away.
+    target = Math.min(Math.max(target, s.offsetRange.min), s.offsetRange.max)
+    limitedBy.push('budget-since-dress')
+  } else if (target > hi || target < lo) {
+    const clipped = Math.min(Math.max(target, lo), hi)
+    const byRange = (target > hi && hi === s.offsetRange.max) || (target < lo && lo === s.offsetRange.min)
+    limitedBy.push(byRange ? 'offset-range' : 'budget-since-dress')
+    target = clipped
+  }
+  // Never move further outside a bound we are already beyond (e.g. after a manual offset).
+  if (u > hi && target > u) target = u
+  if (u < lo && target < u) target = u
+  let delta = target - u
+  if (Math.abs(delta) > s.maxStepUm) {
+    delta = Math.sign(delta) * s.maxStepUm
+    limitedBy.push('max-step')
+  }
+  if (!(Math.abs(delta) >= s.minStepUm) || delta === 0) return { command: null, limitedBy }
+  const newOffsetUm = u + delta
+  return { command: { correctionUm: delta * s.gain, offsetDeltaUm: delta, newOffsetUm, limitedBy }, limitedBy }
+}
+
+function robustSigma(st: CompensationState): number {
+  const o = st.settings.outliers
+  if (st.residuals.length < 8) return Math.max(o.sigmaPriorUm, o.sigmaFloorUm)
+  return Math.max(1.4826 * median(st.residuals.map(Math.abs)), o.sigmaFloorUm)
+}
+
+/**
+ * Holt weights whose error dynamics have the poles 1 − λ1 and 1 − λ2, as the double EWMA
+ * (Butler & Stefani 1994) has at ξ = 1: z² + (α + αβ − 2)z + (1 − α) = (z − 1 + λ1)(z − 1 + λ2)
+ * gives α = λ1 + λ2 − λ1λ2 and β = λ1λ2/α.
+ */
+export function compensationHoltWeights(levelWeight: number, slopeWeight: number): { alpha: number; beta: number } {
+  const alpha = levelWeight + slopeWeight - levelWeight * slopeWeight
+  return { alpha, beta: (levelWeight * slopeWeight) / alpha }
+}
+const holtWeights = compensationHoltWeights
+
+/** A part passes without a usable measurement: the estimates move along the slope. */
+function timeUpdate(st: CompensationState): void {
+  if (st.level === null) return
+  st.level += st.slope
+  if (st.learning) {
+    st.learnSamples = st.learnSamples.map((v) => v + st.slope)
+    if (st.dressStepBase !== null) st.dressStepBase += st.slope
+  }
+}
+
+/**
+ * Learning the level after a start or an event: the first readings are averaged, robustly — a
+ * single outlier among them must not set the level (median screen from the third reading, a
+ * disagreeing pair gives no command). The slope is kept (and not updated) meanwhile.
+ */
+function learnReading(st: CompensationState, disturbance: number): { outlier: boolean; consistent: boolean; note: string } {
+  const s = st.settings
+  const sigma = robustSigma(st)
+  const k = s.outliers.k
+  let note: string
+  if (st.level === null || st.relearnPending !== null) {
+    const kind = st.relearnPending
+    st.dressStepBase = kind === 'dress' && st.level !== null ? st.level + st.slope : null
+    st.learnSamples = []
+    st.learning = true
+    st.relearnPending = null
+    st.stepWindow = []
+    st.stepSkip = 0
+    note = kind ? `re-learning the level after ${kind}` : 'first reading: learning the level'
+  } else {
+    timeUpdate(st)
+    note = `learning the level (${st.learnSamples.length + 1} readings)`
+  }
+  if (st.learnSamples.length >= 3) {
+    const med = median(st.learnSamples)
+    if (Math.abs(disturbance - med) > k * sigma) {
+      return { outlier: true, consistent: false, note: `outlier while learning: ${fmt(disturbance - med)} µm from the median, not used` }
+    }
+  }
+  st.learnSamples.push(disturbance)
+  const n = st.learnSamples.length
+  const med = median(st.learnSamples)
+  const kept = n >= 3 ? st.learnSamples.filter((v) => Math.abs(v - med) <= k * sigma) : st.learnSamples
+  st.level = kept.reduce((a, v) => a + v, 0) / kept.length
+  st.ewmaLevel = st.level
+  st.learnCount = n
+  const consistent = n !== 2 || Math.abs(st.learnSamples[0]! - st.learnSamples[1]!) <= k * sigma * Math.SQRT2
+  if (!consistent) note += '; first two readings disagree, waiting for a third'
+  if (n >= learnLength(s)) {
+    st.learning = false
+    st.learnSamples = []
+    if (st.levelAtDressUm === null) st.levelAtDressUm = st.level
+    if (st.dressStepBase !== null) {
+      // Level now vs. where the pre-dress level would have gone: the size step of this dress.
+      const step = st.level - st.dressStepBase
+      st.dressStepUm = st.dressStepUm === null ? step : st.dressStepUm + 0.3 * (step - st.dressStepUm)
+      st.dressStepCount++
+      st.dressStepBase = null
+    }
+  }
+  return { outlier: false, consistent, note }
+}
+
+/** Readings averaged after a start or an event: about one memory length of the strategy's filter. */
+function learnLength(s: CompensationSettings): number {
+  const weight = s.strategy === 'ewma' ? s.ewma.lambda : s.drift.levelWeight
+  return Math.max(3, Math.ceil(1 / weight))
+}
+
+function median(values: readonly number[]): number {
+  const v = [...values].sort((a, b) => a - b)
+  const mid = v.length >> 1
+  return v.length % 2 ? v[mid]! : (v[mid - 1]! + v[mid]!) / 2
+}
+
+function updateCycleTime(st: CompensationState, seq: number, time: number | undefined): void {
+  if (typeof time !== 'number' || !Number.isFinite(time)) return
+  if (st.lastTimeMs !== null && st.lastSeq !== null && time > st.lastTimeMs) {
+    const perPart = (time - st.lastTimeMs) / 1000 / (seq - st.lastSeq)
+    // Intervals over 3× the estimate are stops, not cycles.
+    if (perPart > 0 && perPart < 3 * st.cycleTimeS) st.cycleTimeS += 0.1 * (perPart - st.cycleTimeS)
+  }
+  st.lastTimeMs = time
+}
+
+// ---------------------------------------------------------------- events
+
+function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDecision {
+  const s = st.settings
+  const d = s.pipelineParts
+  const optionalOffset = (ev as { offsetUm?: unknown }).offsetUm
+  if (optionalOffset !== undefined && (typeof optionalOffset !== 'number' || !Number.isFinite(optionalOffset))) {
+    return ignored(st, null, `${ev.type} event with an offset that is not a finite number (${String(optionalOffset)}): ignored`)
+  }
+  const setOffset = (u: number | undefined) => {
+    if (u !== undefined) st.offsetUm = u
+  }
+  const startHold = (kind: EventKind, parts: number, flush: number, reason: string) => {
+    st.flushRemaining = Math.max(st.flushRemaining, flush)
+    st.holdRemaining = Math.max(st.holdRemaining, parts)
+    st.holdReason = reason
+    st.relearnPending = kind
+    st.outlierRun = 0
+    st.invalidRun = 0
+  }
+  let reason: string
+  let command: CompensationCommand | null = null
+  switch (ev.type) {
+    case 'offset-applied': {
+      if (typeof ev.offsetUm !== 'number' || !Number.isFinite(ev.offsetUm)) {
+        return ignored(st, null, `offset-applied without a finite offset (${String(ev.offsetUm)}): ignored`)
+      }
+      const expected = st.offsetUm
+      st.offsetUm = ev.offsetUm
+      reason = Math.abs(expected - ev.offsetUm) > 1e-9
+        ? `machine applied ${fmt(ev.offsetUm)} µm (engine expected ${fmt(expected)} µm): using the machine's value`
+        : `machine confirmed offset ${fmt(ev.offsetUm)} µm`
+      break
+    }
+    case 'dress': {
+      setOffset(ev.offsetUm)
+      const hold = Math.max(s.holdParts.dress, d)
+      startHold('dress', hold, d, `dress: waiting for post-dress parts (${hold} parts)`)
+      st.partsSinceDress = 0
+      st.levelAtDressUm = null
+      st.stepWindow = []
+      st.dressStepBase = null
+      // Pre-correct the dress step learnt from earlier dresses (not for monitor-only or step).
+      if (s.dress.learnStep && st.dressStepUm !== null && (s.strategy === 'ewma' || s.strategy === 'drift')) {
+        st.offsetAtDressUm = st.offsetUm
+        command = boundedCommand(st, st.offsetUm - st.dressStepUm / s.gain).command
+        if (command) st.offsetUm = command.newOffsetUm
+      }
+      st.offsetAtDressUm = st.offsetUm
+      reason = `dress recorded: hold ${hold} parts, then re-learn the level (slope kept)`
+      if (command) reason += `; pre-correct learnt dress step ${fmt(st.dressStepUm!)} µm → offset ${fmt(command.newOffsetUm)} µm`
+      break
+    }
+    case 'wheel-change': {
+      setOffset(ev.offsetUm)
+      const hold = Math.max(s.holdParts.wheelChange, d)
+      startHold('wheel-change', hold, d, `wheel change: waiting for parts of the new wheel (${hold} parts)`)
+      st.partsSinceDress = 0
+      st.levelAtDressUm = null
+      st.offsetAtDressUm = st.offsetUm
+      st.slope = 0
+      st.dressStepBase = null
+      st.dressStepUm = null
+      st.dressStepCount = 0
+      reason = `wheel change recorded: hold ${hold} parts, re-learn level and slope`
+      break
+    }
+    case 'job-change': {
+      if (ev.settings !== undefined) {
+        let next: CompensationSettings
+        try {
+          next = parseCompensationSettings(ev.settings)
+        } catch (err) {
+          return ignored(st, null, `job change refused, settings kept: ${(err as Error).message}`)
+        }
+        st.settings = next
+        st.cycleTimeS = next.cycleTimeS
+      }
+      setOffset(ev.offsetUm)
+      const ns = st.settings
+      const hold = Math.max(ns.holdParts.jobChange, ns.pipelineParts)
+      st.offsetRing = Array.from({ length: ns.pipelineParts }, () => st.offsetUm)
+      startHold('job-change', hold, ns.pipelineParts, `job change: waiting for parts of the new job (${hold} parts)`)
+      st.level = null
+      st.levelAtDressUm = null
+      st.slope = 0
+      st.learnCount = 0
+      st.ewmaLevel = null
+      st.residuals = []
+      st.stepWindow = []
+      st.stepSkip = 0
+      st.outOfToleranceRun = 0
+      st.roundnessUm = null
+      st.dressStepBase = null
+      st.relearnPending = null
+      st.learning = false
+      st.learnSamples = []
+      reason = `job change recorded: estimates reset, hold ${hold} parts`
+      break
+    }
+    case 'mastered': {
+      // Re-zeroed gauge: parts in the pipeline are measured with the new zero, so no flush.
+      const hold = s.holdParts.mastered
+      startHold('mastered', hold, 0, `gauge mastered: re-learning the level (${hold} parts)`)
+      st.dressStepBase = null
+      reason = `gauge mastered: level re-learnt from the next reading, gauge-suspect cleared`
+      break
+    }
+    case 'restart': {
+      const hold = Math.max(s.holdParts.restart, d)
+      startHold('restart', hold, d, `restart after a stop: waiting for fresh parts (${hold} parts)`)
+      st.outOfToleranceRun = 0
+      st.dressStepBase = null
+      reason = `restart recorded: hold ${hold} parts, re-learn the level (slope kept)`
+      break
+    }
+  }
+  const dec = finish(st, [], [])
+  return {
+    ...dec,
+    command,
+    kind: 'event',
+    seq: null,
+    hold: st.holdRemaining > 0 ? { reason: st.holdReason ?? 'hold', partsRemaining: st.holdRemaining } : null,
+    reason,
+    inputs: { event: ev.type, offsetUm: st.offsetUm, holdRemaining: st.holdRemaining, flushRemaining: st.flushRemaining },
+  }
+}
+
+// ---------------------------------------------------------------- predictions and dress
+
+function finish(st: CompensationState, limitedBy: CompensationCommand['limitedBy'], alerts: CompensationAlert[]): CompensationDecision {
+  const s = st.settings
+  const prediction = predict(st)
+  const dress = dressAdvice(st, limitedBy, prediction)
+  if (dress.now) alerts.push({ code: 'dress-due', message: dress.reason ?? 'dress due' })
+  if (prediction.partsToSpecLimit !== null && prediction.partsToSpecLimit <= s.nearLimitParts) {
+    alerts.push({ code: 'trend-near-limit', message: `trend meets a specification limit in ${prediction.partsToSpecLimit} parts (${fmt(prediction.minutesToSpecLimit ?? 0, 1)} min)` })
+  }
+  prediction.partsToDress = dress.afterParts
+  return { kind: 'reading', seq: null, command: null, offsetUm: st.offsetUm, hold: null, stop: false, dress, alerts, prediction, reason: '', inputs: {} }
+}
+
+function predict(st: CompensationState): CompensationPrediction {
+  const s = st.settings
+  const base: CompensationPrediction = {
+    levelUm: null, slopeUmPerPart: null, nextPartUm: null, partsToCompLimit: null, minutesToCompLimit: null,
+    partsToSpecLimit: null, minutesToSpecLimit: null, partsToDress: null, sigmaUm: robustSigma(st), cycleTimeS: st.cycleTimeS,
+  }
+  if (st.level === null || st.relearnPending !== null) return base
+  const next = st.level + (s.pipelineParts + 1) * st.slope + s.gain * st.offsetUm
+  const partsTo = (hi: number, lo: number): number | null => {
+    if (next >= hi || next <= lo) return 0
+    if (Math.abs(st.slope) < 1e-9) return null
+    const n = st.slope > 0 ? (hi - next) / st.slope : (next - lo) / -st.slope
+    return n > 1e7 ? null : Math.ceil(n)
+  }
+  const toComp = partsTo(s.upperCompUm, s.lowerCompUm)
+  const toSpec = partsTo(s.upperSpecUm, s.lowerSpecUm)
+  const minutes = (n: number | null) => (n === null ? null : (n * st.cycleTimeS) / 60)
+  return {
+    ...base,
+    levelUm: st.level + s.gain * st.lastPartOffsetUm,
+    slopeUmPerPart: st.slope,
+    nextPartUm: next,
+    partsToCompLimit: toComp,
+    minutesToCompLimit: minutes(toComp),
+    partsToSpecLimit: toSpec,
+    minutesToSpecLimit: minutes(toSpec),
+  }
+}
+
+function dressAdvice(st: CompensationState, limitedBy: CompensationCommand['limitedBy'], p: CompensationPrediction): CompensationDecision['dress'] {
+  const s = st.settings
+  const ds = s.dress
+  let due: number
+  if (ds.policy === 'fixed') due = ds.intervalParts
+  else {
+    // Adaptive: parts until the drift since the dress uses up the wear budget (and the offset
+    // budget since dress), within min…max. The drift is measured on the disturbance level, so it
+    // counts the same whether or not the engine compensated it.
+    const drifted = st.level !== null && st.levelAtDressUm !== null ? Math.abs(st.level - st.levelAtDressUm) : 0
+    const wearLeft = ds.wearBudgetUm - drifted
+    const offsetLeft = (s.maxSinceDressUm - Math.abs(st.offsetUm - st.offsetAtDressUm)) * s.gain
+    const remaining = Math.min(wearLeft, offsetLeft)
+    const slope = Math.abs(p.slopeUmPerPart ?? 0)
+    const left = slope > 1e-9 ? Math.max(0, remaining) / slope : Infinity
+    due = Math.min(Math.max(st.partsSinceDress + left, ds.minIntervalParts), ds.maxIntervalParts)
+  }
+  const afterParts = Math.max(0, Math.ceil(due - st.partsSinceDress))
+  let reason: string | null = null
+  if (limitedBy.includes('budget-since-dress')) reason = 'offset budget since dress used up'
+  else if (ds.roundnessLimitUm !== null && st.roundnessUm !== null && st.roundnessUm > ds.roundnessLimitUm) {
+    reason = `roundness ${fmt(st.roundnessUm)} µm over ${fmt(ds.roundnessLimitUm)} µm`
+  } else if (afterParts === 0) reason = ds.policy === 'fixed' ? `${ds.intervalParts} parts since dress` : 'wear budget reached'
+  return { now: reason !== null, afterParts, reason }
+}
+
+// ---------------------------------------------------------------- helpers
+
+function ignored(st: CompensationState, seq: number | null, reason: string): CompensationDecision {
+  const prediction = predict(st)
+  return {
+    kind: 'ignored', seq, command: null, offsetUm: st.offsetUm, hold: null, stop: false,
+    dress: { now: false, afterParts: null, reason: null }, alerts: [], prediction, reason, inputs: {},
+  }
+}
+
+function fmt(v: number, digits = 2): string {
+  const t = v.toFixed(digits)
+  if (Number(t) === 0) return (0).toFixed(digits)
+  return v > 0 ? `+${t}` : t
+}
+
+/** JSON has no −0: turn every −0 into 0 so that the state survives a JSON round trip exactly. */
+function tidyZeros<T>(value: T): T {
+  if (typeof value === 'number') return (Object.is(value, -0) ? 0 : value) as T
+  if (Array.isArray(value)) {
+    for (let i = 0; i < value.length; i++) value[i] = tidyZeros(value[i])
+    return value
+  }
+  if (value && typeof value === 'object') {
+    const o = value as Record<string, unknown>
+    for (const k of Object.keys(o)) o[k] = tidyZeros(o[k])
+  }
+  return value
+}
