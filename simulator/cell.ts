@@ -28,8 +28,11 @@ import {
 } from '../shared/utils/plant'
 import { createSeededRandom, type SeededRandom } from '../shared/utils/random'
 import type {
-  AckMessage, BirthMessage, CommandMessage, EventMessage, ExecutionState, FaultCode, JobInfo, SequencedMessage,
+  AckMessage, BirthMessage, CommandMessage, EventMessage, ExecutionState, FaultCode, JobInfo, ReadingMessage, SequencedMessage, StateMessage,
 } from '../shared/utils/contract'
+
+/** A message before numbering: everything but seq and time (distributes over unions). */
+type Body<T> = T extends unknown ? Omit<T, 'seq' | 'time'> : never
 import { machinesFor, type Scenario, type ScenarioMachine, type ScenarioScheduleItem } from './scenario'
 
 export const simulatorAdapter = { name: 'owlshift-simulator', version: '0.1.0' }
@@ -248,15 +251,15 @@ export function createCell(options: CellOptions): Cell {
     return m
   }
 
-  // Every emitted message gets the machine's next sequence number and the current simulated time.
-  function emit<T extends SequencedMessage>(m: SimMachine, body: Omit<T, 'seq' | 'time'>): T {
-    const message = { ...body, seq: ++m.seq, time: isoAt(now) } as unknown as T
-    // keep kind/seq/time first on the wire, for people reading mosquitto_sub output
-    const ordered = { kind: (message as { kind: string }).kind, seq: message.seq, time: message.time, ...message } as T
-    onMessage(m.id, ordered)
-    return ordered
+  // Every emitted message gets the machine's next sequence number and the current simulated time;
+  // kind, seq and time come first on the wire, for people reading mosquitto_sub output.
+  function emit<T extends SequencedMessage>(m: SimMachine, body: Body<T>): T {
+    const { kind, ...rest } = body as { kind: string }
+    const message = { kind, seq: ++m.seq, time: isoAt(now), ...rest } as unknown as T
+    onMessage(m.id, message)
+    return message
   }
-  const event = (m: SimMachine, body: Record<string, unknown>) => emit<EventMessage>(m, { kind: 'event', ...body } as Omit<EventMessage, 'seq' | 'time'>)
+  const event = (m: SimMachine, body: Record<string, unknown>) => emit<EventMessage>(m, { kind: 'event', ...body } as Body<EventMessage>)
 
   function desiredExecution(m: SimMachine): { state: ExecutionState; reason?: string } {
     const stopping = m.faults.filter((f) => stoppingFaults.has(f))
@@ -273,7 +276,7 @@ export function createCell(options: CellOptions): Cell {
     if (state === m.execution) return
     const wasActive = m.execution === 'ACTIVE'
     m.execution = state
-    emit(m, { kind: 'state', execution: state, activeFaults: [...m.faults], ...(reason ? { reason } : {}) })
+    emit<StateMessage>(m, { kind: 'state', execution: state, activeFaults: [...m.faults], ...(reason ? { reason } : {}) })
     if (state === 'ACTIVE') {
       plantSetRunning(m.plant, now, true)
       m.token++
@@ -333,7 +336,7 @@ export function createCell(options: CellOptions): Cell {
     let diameterUm: number | null = gauged.measuredUm === null ? null : round3(gauged.measuredUm)
     let status: 'ok' | 'fault' | 'over_range' = gauged.status
     if (diameterUm !== null && Math.abs(diameterUm) > 1000) { status = 'over_range'; diameterUm = null }
-    emit(m, {
+    emit<ReadingMessage>(m, {
       kind: 'reading', part: gauged.serial, status, diameterUm, roundnessUm: round3(gauged.roundnessUm), offsetUm: round3(gauged.offsetUm),
     })
     let rejectReason: string | undefined
@@ -487,7 +490,7 @@ export function createCell(options: CellOptions): Cell {
       const m = getMachine(machineId)
       const previous = m.acks.get(command.id)
       if (previous === 'pending') return
-      if (previous) { emit<AckMessage>(m, { ...previous, seq: undefined, time: undefined } as unknown as AckMessage); return }
+      if (previous) { const { seq: _s, time: _t, ...again } = previous; emit<AckMessage>(m, again); return }
       if (now * 1000 + startMs > Date.parse(command.expiresAt)) { ack(m, command, 'expired', `received at ${isoAt(now)}, after its expiry ${command.expiresAt}`); return }
       switch (command.type) {
         case 'offset': {

@@ -9,6 +9,7 @@ import {
   mqttMaxPayloadBytes, topicKindOf, type MachineMessage,
 } from '../../shared/utils/contract'
 import { runHeadless } from '../../simulator/headless'
+import { createEngineController } from '../../simulator/engine-controller'
 import { loadScenarioFile } from '../../simulator/scenario'
 import { fileURLToPath } from 'node:url'
 import { readdirSync } from 'node:fs'
@@ -108,7 +109,7 @@ describe('every message the simulator emits validates', () => {
     it(`scenario ${file}`, () => {
       const scenario = loadScenarioFile(dir + file)
       const messages: MachineMessage[] = []
-      runHeadless({ scenario, seed: 3, hours: 3, machines: 4, controller: null, onMessage: (_m, msg) => messages.push(msg) })
+      runHeadless({ scenario, seed: 3, hours: 3, machines: 4, controller: createEngineController(), onMessage: (_m, msg) => messages.push(msg) })
       expect(messages.length).toBeGreaterThan(500)
       const kinds = new Set<string>()
       for (const message of messages) {
@@ -119,7 +120,7 @@ describe('every message the simulator emits validates', () => {
         expect(wire.ok).toBe(true)
         kinds.add(message.kind === 'event' ? `event:${message.type}` : message.kind)
       }
-      for (const k of ['birth', 'state', 'reading', 'event:part_loaded', 'event:part_ground', 'event:part_gauged', 'event:part_unloaded']) expect(kinds, k).toContain(k)
+      for (const k of ['birth', 'state', 'reading', 'ack', 'event:part_loaded', 'event:part_ground', 'event:part_gauged', 'event:part_unloaded']) expect(kinds, k).toContain(k)
     })
   }
 })

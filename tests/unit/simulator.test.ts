@@ -7,6 +7,7 @@ import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { createCell } from '../../simulator/cell'
 import { runHeadless } from '../../simulator/headless'
+import { createEngineController } from '../../simulator/engine-controller'
 import { loadScenarioFile, parseScenario, machinesFor, type Scenario } from '../../simulator/scenario'
 import type { CommandMessage, SequencedMessage, AckMessage, EventMessage, StateMessage } from '../../shared/utils/contract'
 
@@ -223,5 +224,42 @@ describe('scenarios', () => {
     const expected = heron.initialSizeUm! + heron.warmupAmplitudeUm! * (1 - Math.exp(-3600 / heron.warmupTauS!)) + heron.wheelWearUmPerPart! * (3600 / 18)
     expect(near.length).toBeGreaterThan(20)
     expect(Math.abs(meanMeasured - expected)).toBeLessThan(0.35)
+  })
+})
+
+describe('headless closed loop with the compensation engine', () => {
+  const run = (seed: number, controller: boolean, onMessage?: (id: string, m: SequencedMessage) => void) =>
+    runHeadless({ scenario: quiet, seed, hours: 10, machines: 4, controller: controller ? createEngineController() : null, onMessage })
+
+  it('holds every machine near the noise floor, far better than open loop', () => {
+    const closed = run(11, true), open = run(11, false)
+    for (const m of closed.summary.machines) {
+      const spec = quiet.machines.find((s) => s.id === m.id)!
+      const p = { ...quiet.physics, ...spec.physics }
+      // noise floor (design.md "Compensation"): with perfect knowledge of the drift the RMS equals the
+      // part-to-part noise, here √(σ_process² + (blankTransfer·σ_blank)²) with the plant defaults 0.01 and 15 µm
+      const floor = Math.sqrt(p.processSigmaUm! ** 2 + (0.01 * 15) ** 2)
+      expect(m.trueSdUm, m.id).toBeGreaterThan(0.95 * floor) // no controller beats the noise
+      expect(m.trueRmsUm, m.id).toBeLessThan(2 * floor)
+      const openRms = open.summary.machines.find((o) => o.id === m.id)!.trueRmsUm
+      expect(m.trueRmsUm, m.id).toBeLessThan(openRms / 5)
+      expect(m.commands.applied, m.id).toBeGreaterThan(50)
+    }
+    expect(closed.summary.totals.trulyOutOfTolerance).toBeLessThan(0.01 * closed.summary.totals.partsGauged)
+  })
+
+  it('is deterministic, and every reading names the offset its part was ground with', () => {
+    const a: string[] = [], b: string[] = []
+    const groundOffset = new Map<string, number>()
+    let checked = 0
+    run(5, true, (id, m) => {
+      a.push(JSON.stringify(m))
+      if (m.kind === 'event' && m.type === 'part_ground') groundOffset.set(`${id}/${m.part}`, m.offsetUm)
+      if (m.kind === 'reading') { expect(m.offsetUm).toBe(groundOffset.get(`${id}/${m.part}`)); checked++ }
+      if (m.kind === 'ack' && m.command === 'offset' && m.result === 'applied') expect(m.offsetUm).toBe(m.requestedOffsetUm)
+    })
+    run(5, true, (_id, m) => b.push(JSON.stringify(m)))
+    expect(checked).toBeGreaterThan(5000)
+    expect(b).toEqual(a)
   })
 })
