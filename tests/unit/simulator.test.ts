@@ -3,6 +3,8 @@
 import { describe, it, expect } from 'vitest'
 import { fileURLToPath } from 'node:url'
 import { writeFileSync, mkdtempSync } from 'node:fs'
+import { spawnSync } from 'node:child_process'
+import { MachineJournal } from '../../simulator/journal'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { createCell } from '../../simulator/cell'
@@ -262,4 +264,64 @@ describe('headless closed loop with the compensation engine', () => {
     expect(checked).toBeGreaterThan(5000)
     expect(b).toEqual(a)
   })
+})
+
+describe('the journal (store-and-forward on disk)', () => {
+  const entry = (seq: number) => ({ seq, timeMs: 1_000 * seq, kind: 'reading' as const, payload: `{"seq":${seq}}` })
+
+  it('keeps unacknowledged messages in order across a reopen and continues the numbering', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'owlshift-journal-'))
+    const path = join(dir, 'cell-a', 'cg-01.journal')
+    const j = new MachineJournal(path)
+    expect(j.beginSession()).toBe(1)
+    for (let s = 1; s <= 6; s++) j.append(entry(s))
+    j.acknowledge(1); j.acknowledge(2); j.acknowledge(4) // 4 out of order: stays behind 3 until 3 is acked
+    expect(j.pending).toBe(3)
+    const again = new MachineJournal(path)
+    expect(again.unacked.map((e) => e.seq)).toEqual([3, 5, 6])
+    expect(again.lastSeq).toBe(6)
+    expect(again.lastTimeMs).toBe(6000)
+    expect(again.session).toBe(1)
+    expect(() => again.append(entry(6))).toThrow(/seq 6 is not above the last one written \(6\)/)
+    again.acknowledge(3); again.acknowledge(5); again.acknowledge(6)
+    const third = new MachineJournal(path)
+    expect(third.unacked).toEqual([])
+    expect(third.lastSeq).toBe(6) // numbering survives even with nothing pending
+  })
+
+  it('ignores a torn last line (crash mid-write) but refuses a damaged middle', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'owlshift-journal-'))
+    const path = join(dir, 'j.journal')
+    writeFileSync(path, '{"m":1,"t":1000,"k":"reading","p":"{}"}\n{"m":2,"t":2000,"k":"rea')
+    const j = new MachineJournal(path)
+    expect(j.unacked.map((e) => e.seq)).toEqual([1])
+    writeFileSync(path, '{"m":1,"t":1000,"k":"reading","p":"{}"}\ngarbage\n{"a":1}\n')
+    expect(() => new MachineJournal(path)).toThrow(/line 2 is not JSON; move the file away/)
+  })
+})
+
+describe('command line', () => {
+  const cli = fileURLToPath(new URL('../../simulator/cli.ts', import.meta.url))
+  const tsx = fileURLToPath(new URL('../../node_modules/.bin/tsx', import.meta.url))
+  const runCli = (...args: string[]) => spawnSync(tsx, [cli, ...args], { encoding: 'utf8', timeout: 60_000 })
+
+  it('refuses bad options with a clear message and exit code 2', () => {
+    const r1 = runCli('--speed', 'fast', '--broker', 'mqtt://127.0.0.1:1')
+    expect(r1.status).toBe(2)
+    expect(r1.stderr).toMatch(/--speed must be a valid number, got "fast"/)
+    const r2 = runCli('--machines', '3')
+    expect(r2.status).toBe(2)
+    expect(r2.stderr).toMatch(/--broker is required \(or use --headless\)/)
+    const r3 = runCli('--broker', 'mqtt://127.0.0.1:1', '--credentials', '/nonexistent/creds.json')
+    expect(r3.status).toBe(2)
+    expect(r3.stderr).toMatch(/cannot read credentials file \/nonexistent\/creds\.json/)
+  }, 60_000)
+
+  it('runs a headless night and prints the summary', () => {
+    const r = runCli('--headless', '--machines', '2', '--hours', '1', '--seed', '3')
+    expect(r.status, r.stderr).toBe(0)
+    expect(r.stdout).toMatch(/headless: 2 machines × 1 h simulated/)
+    expect(r.stdout).toMatch(/^cg-02 +LTP-1200-P/m)
+    expect(r.stdout).toMatch(/size vs mid-tolerance: true mean/)
+  }, 60_000)
 })
