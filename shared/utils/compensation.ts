@@ -81,6 +81,8 @@ export interface CompensationState {
   /** recent residuals of accepted readings (robust σ) */
   residuals: number[]
   outlierRun: number
+  /** disturbances of the current outlier run (projected to the latest part) */
+  outlierSamples: number[]
   invalidRun: number
   outOfToleranceRun: number
   /** readings of parts ground before the last event: not used */
@@ -111,6 +113,7 @@ export type CompensationAlertCode =
   | 'gauge-suspect'
   | 'consecutive-rejects'
   | 'dress-due'
+  | 'level-shift'
 
 export interface CompensationAlert {
   code: CompensationAlertCode
@@ -187,6 +190,7 @@ export function createCompensationState(settings: CompensationSettingsInput | Co
     stepSkip: 0,
     residuals: [],
     outlierRun: 0,
+    outlierSamples: [],
     invalidRun: 0,
     outOfToleranceRun: 0,
     flushRemaining: 0,
@@ -269,6 +273,9 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   const offsetForPart = typeof r.offsetInForceUm === 'number' && Number.isFinite(r.offsetInForceUm) ? r.offsetInForceUm : pairedOffset
   updateCycleTime(st, seq, r.time)
   st.lastSeq = seq
+  // An offset change between consecutive parts moves r = y − b·u by (ξ − 1)·b·Δu when the model
+  // gain is off; allow for ξ in [0.5, 1.5] in the outlier screen.
+  const gainSlack = 0.5 * s.gain * Math.abs(offsetForPart - st.lastPartOffsetUm)
   st.lastPartOffsetUm = offsetForPart
 
   const y = r.deviationUm
@@ -292,6 +299,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   if (invalid !== null) {
     st.invalidRun++
     st.outlierRun = 0
+    st.outlierSamples = []
     if (st.flushRemaining > 0) st.flushRemaining--
     timeUpdate(st)
     consumeHold(st)
@@ -323,6 +331,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   inputs.disturbanceUm = disturbance
   let usable = true
   let outlier = false
+  let levelShift = false
   let estimateNote = ''
 
   if (st.flushRemaining > 0) {
@@ -344,14 +353,28 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
     inputs.predictedUm = predicted
     inputs.residualUm = residual
     inputs.sigmaUm = sigma
-    if (st.learnCount >= 3 && Math.abs(residual) > s.outliers.k * sigma) {
-      outlier = true
-      usable = false
+    const limit = s.outliers.k * sigma + gainSlack
+    if (Math.abs(residual) > limit) {
       st.outlierRun++
-      st.level = predicted
-      estimateNote = `outlier: ${fmt(residual)} µm from prediction (limit ${fmt(s.outliers.k * sigma)} µm), not used`
+      st.outlierSamples = [...st.outlierSamples.map((v) => v + st.slope), disturbance]
+      const shift = acceptedLevelShift(st, sigma)
+      if (shift !== null) {
+        // Readings that agree among themselves but not with the old level: the process moved.
+        st.level = shift
+        st.ewmaLevel = shift
+        st.outlierRun = 0
+        st.outlierSamples = []
+        levelShift = true
+        estimateNote = `level shift of ${fmt(residual)} µm accepted after ${s.outliers.runForGaugeSuspect + 2} consistent readings`
+      } else {
+        outlier = true
+        usable = false
+        st.level = predicted
+        estimateNote = `outlier: ${fmt(residual)} µm from prediction (limit ${fmt(limit)} µm), not used`
+      }
     } else {
       st.outlierRun = 0
+      st.outlierSamples = []
       st.residuals.push(residual)
       if (st.residuals.length > s.outliers.window) st.residuals.shift()
       const n = st.learnCount + 1
@@ -364,7 +387,10 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
       st.learnCount = n
     }
   }
-  if (!outlier) st.outlierRun = 0
+  if (!outlier) {
+    st.outlierRun = 0
+    st.outlierSamples = []
+  }
 
   let holdReason = consumeHold(st)
   const alerts: CompensationAlert[] = []
@@ -372,6 +398,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
     holdReason = `gauge suspect: ${st.outlierRun} readings in a row far from the prediction`
     alerts.push({ code: 'gauge-suspect', message: holdReason })
   }
+  if (levelShift) alerts.push({ code: 'level-shift', message: estimateNote })
   if (st.outOfToleranceRun >= 2) {
     alerts.push({ code: 'consecutive-rejects', message: `${st.outOfToleranceRun} parts in a row out of tolerance` })
   }
@@ -597,6 +624,19 @@ function learnReading(st: CompensationState, disturbance: number): { outlier: bo
   return { outlier: false, consistent, note }
 }
 
+/**
+ * A run of outliers that agree with each other (all within k·σ of their median) is a level shift,
+ * once it is two readings longer than the gauge-suspect run; returns the new level, or null.
+ */
+function acceptedLevelShift(st: CompensationState, sigma: number): number | null {
+  const o = st.settings.outliers
+  const samples = st.outlierSamples
+  if (samples.length < o.runForGaugeSuspect + 2) return null
+  const med = median(samples)
+  if (!samples.every((v) => Math.abs(v - med) <= o.k * sigma)) return null
+  return samples.reduce((a, v) => a + v, 0) / samples.length
+}
+
 /** Readings averaged after a start or an event: about one memory length of the strategy's filter. */
 function learnLength(s: CompensationSettings): number {
   const weight = s.strategy === 'ewma' ? s.ewma.lambda : s.drift.levelWeight
@@ -637,6 +677,7 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
     st.holdReason = reason
     st.relearnPending = kind
     st.outlierRun = 0
+    st.outlierSamples = []
     st.invalidRun = 0
   }
   let reason: string

@@ -346,6 +346,17 @@ describe('outliers', () => {
     expect(r.decisions.slice(0, 4).every((d) => d.command === null)).toBe(true)
     expect(r.decisions[4]!.hold).toBeNull()
   })
+  it('a run of readings that agree among themselves is a level shift: accepted after the gauge-suspect run + 2', () => {
+    const st = feed(createCompensationState(settings), noisy(40)).state
+    const shifted = Array.from({ length: 5 }, (_, i) => reading(41 + i, 3 + 0.05 * (i % 2)))
+    const r = feed(st, shifted)
+    expect(r.decisions.slice(0, 4).every((d) => d.command === null)).toBe(true)
+    expect(r.decisions[4]!.alerts.map((a) => a.code)).toContain('level-shift')
+    expect(r.decisions[4]!.command).not.toBeNull()
+    // Scattered outliers (both signs, far apart) are never taken for a shift.
+    const scattered = feed(st, [reading(41, 6), reading(42, -7), reading(43, 9), reading(44, -5), reading(45, 8)])
+    expect(scattered.decisions.every((d) => d.command === null)).toBe(true)
+  })
   it('an outlier among the first readings after an event does not set the level', () => {
     let st = feed(createCompensationState(settings), noisy(40)).state
     st = stepCompensation(st, { type: 'dress' }).state
