@@ -1,5 +1,5 @@
 // The database schema. One table per concern; times are epoch milliseconds (UTC).
-import { sqliteTable, integer, text, index, uniqueIndex } from 'drizzle-orm/sqlite-core'
+import { sqliteTable, integer, text, real, index, uniqueIndex } from 'drizzle-orm/sqlite-core'
 
 export const ROLES = ['admin', 'engineer', 'lead', 'operator', 'viewer'] as const
 
@@ -74,5 +74,158 @@ export const machines = sqliteTable('machines', {
   model: text('model').notNull(),
   currentJobId: integer('current_job_id').references(() => jobs.id),
   sortOrder: integer('sort_order').notNull().default(0),
+  // Broker credentials: the user name is the machine id; only a scrypt hash of the password is kept.
+  mqttPasswordHash: text('mqtt_password_hash'),
+  mqttRotatedAt: integer('mqtt_rotated_at'),
   createdAt: integer('created_at').notNull(),
 })
+
+// ── Ingest: what machines tell us, stored once ─────────────────────────────────────────────
+
+/** Current state of each machine, updated in the same commit as the messages that change it. */
+export const machineStatus = sqliteTable('machine_status', {
+  machineId: text('machine_id').primaryKey().references(() => machines.id),
+  online: integer('online', { mode: 'boolean' }).notNull().default(false),
+  session: integer('session'),
+  execution: text('execution'),
+  activeFaults: text('active_faults', { mode: 'json' }).$type<string[]>().notNull().default([]),
+  lastSeq: integer('last_seq').notNull().default(0),
+  lastMessageAt: integer('last_message_at'),
+  lastReadingAt: integer('last_reading_at'),
+  lastCycleAt: integer('last_cycle_at'),
+  lastDiameterUm: real('last_diameter_um'),
+  partsGood: integer('parts_good').notNull().default(0),
+  partsScrap: integer('parts_scrap').notNull().default(0),
+  blanksLeft: integer('blanks_left'),
+  cycleTimeS: real('cycle_time_s'),
+  /** offset the machine reports in force (axis µm) */
+  appliedOffsetUm: real('applied_offset_um'),
+  /** offset last requested by a command (axis µm) */
+  requestedOffsetUm: real('requested_offset_um'),
+  jobPartNumber: text('job_part_number'),
+  /** the compensation engine's state (shared/utils/compensation.ts), JSON */
+  engineState: text('engine_state', { mode: 'json' }),
+  /** the engine's latest prediction, for the overview */
+  prediction: text('prediction', { mode: 'json' }),
+  updatedAt: integer('updated_at').notNull(),
+})
+
+export const readings = sqliteTable('readings', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  seq: integer('seq').notNull(),
+  part: integer('part').notNull(),
+  time: integer('time').notNull(), // machine clock, ms
+  receivedAt: integer('received_at').notNull(),
+  status: text('status').notNull(),
+  diameterUm: real('diameter_um'),
+  roundnessUm: real('roundness_um'),
+  lengthUm: real('length_um'),
+  offsetUm: real('offset_um').notNull(),
+  jobPartNumber: text('job_part_number'),
+}, t => [uniqueIndex('readings_machine_seq').on(t.machineId, t.seq), index('readings_machine_time').on(t.machineId, t.time)])
+
+/** Every other numbered machine message (birth, state, event, ack), stored once. */
+export const machineMessages = sqliteTable('machine_messages', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  seq: integer('seq').notNull(),
+  kind: text('kind').notNull(), // birth | state | event | ack
+  type: text('type'), // event type, ack command, execution state
+  time: integer('time').notNull(),
+  receivedAt: integer('received_at').notNull(),
+  payload: text('payload', { mode: 'json' }).notNull(),
+}, t => [uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time)])
+
+/** Presence changes (birth and death); death is the MQTT will and carries no seq. */
+export const presenceLog = sqliteTable('presence_log', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  at: integer('at').notNull(),
+  online: integer('online', { mode: 'boolean' }).notNull(),
+  session: integer('session'),
+  reason: text('reason'),
+}, t => [index('presence_machine_at').on(t.machineId, t.at)])
+
+/** Numbers that never arrived: recorded, never silently filled. */
+export const sequenceGaps = sqliteTable('sequence_gaps', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  fromSeq: integer('from_seq').notNull(),
+  toSeq: integer('to_seq').notNull(),
+  detectedAt: integer('detected_at').notNull(),
+}, t => [index('gaps_machine').on(t.machineId)])
+
+/** Payloads that failed validation, kept with the reason. */
+export const deadLetters = sqliteTable('dead_letters', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  receivedAt: integer('received_at').notNull(),
+  clientId: text('client_id'),
+  machineId: text('machine_id'),
+  topic: text('topic').notNull(),
+  reason: text('reason').notNull(),
+  payload: text('payload').notNull(), // UTF-8 text, or base64 when not text; cut at 16 KiB
+  payloadBytes: integer('payload_bytes').notNull(),
+}, t => [index('dead_machine_at').on(t.machineId, t.receivedAt)])
+
+/** Every decision the compensation engine made, with its reason and inputs. */
+export const decisions = sqliteTable('decisions', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  seq: integer('seq').notNull(), // the reading or event it answered
+  at: integer('at').notNull(),
+  action: text('action').notNull(), // offset | hold | stop | dress | none
+  correctionUm: real('correction_um'),
+  offsetUm: real('offset_um').notNull(),
+  commandId: text('command_id'),
+  reason: text('reason').notNull(),
+  inputs: text('inputs', { mode: 'json' }).notNull(),
+  alerts: text('alerts', { mode: 'json' }),
+}, t => [index('decisions_machine_at').on(t.machineId, t.at)])
+
+/** Commands sent to machines and what became of them. */
+export const commands = sqliteTable('commands', {
+  id: text('id').primaryKey(),
+  machineId: text('machine_id').notNull(),
+  type: text('type').notNull(), // offset | dress | hold | resume
+  origin: text('origin').notNull(), // engine | user:<id>
+  payload: text('payload', { mode: 'json' }).notNull(),
+  issuedAt: integer('issued_at').notNull(),
+  expiresAt: integer('expires_at').notNull(),
+  status: text('status').notNull(), // sent | applied | rejected | expired
+  requestedOffsetUm: real('requested_offset_um'),
+  appliedOffsetUm: real('applied_offset_um'),
+  ackAt: integer('ack_at'),
+  ackReason: text('ack_reason'),
+}, t => [index('commands_machine_issued').on(t.machineId, t.issuedAt)])
+
+// ── Alarms (states and verbs from ISA-18.2 / IEC 62682) ───────────────────────────────────
+
+export const alarms = sqliteTable('alarms', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id'),
+  /** what raised it, e.g. fault:fire_alarm, engine:trend-near-limit, link:silent */
+  condition: text('condition').notNull(),
+  priority: integer('priority').notNull(), // 1 top … 4 low
+  state: text('state').notNull(),
+  active: integer('active', { mode: 'boolean' }).notNull(),
+  latching: integer('latching', { mode: 'boolean' }).notNull().default(false),
+  message: text('message').notNull(),
+  raisedAt: integer('raised_at').notNull(),
+  lastChangeAt: integer('last_change_at').notNull(),
+  activations: integer('activations').notNull().default(1),
+  record: text('record', { mode: 'json' }).notNull(), // the alarm model's full record
+  closedAt: integer('closed_at'),
+}, t => [index('alarms_open').on(t.closedAt, t.priority), index('alarms_machine_condition').on(t.machineId, t.condition)])
+
+export const alarmTransitions = sqliteTable('alarm_transitions', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  alarmId: integer('alarm_id').notNull().references(() => alarms.id),
+  at: integer('at').notNull(),
+  fromState: text('from_state').notNull(),
+  toState: text('to_state').notNull(),
+  action: text('action').notNull(),
+  userId: integer('user_id'),
+  where: text('where').notNull(), // system | web <address> | station:<machine>
+  note: text('note'),
+}, t => [index('alarm_transitions_alarm').on(t.alarmId), index('alarm_transitions_at').on(t.at)])

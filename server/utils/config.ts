@@ -12,6 +12,13 @@ const envSchema = z.object({
   OWLSHIFT_SIGNIN_MAX_PER_ACCOUNT: z.coerce.number().int().min(1).default(5),
   OWLSHIFT_SIGNIN_MAX_PER_ADDRESS: z.coerce.number().int().min(1).default(20),
   OWLSHIFT_SIGNIN_WINDOW_MIN: z.coerce.number().min(1).default(15),
+  MQTT_URL: z.string().regex(/^(mqtts?|tcp|tls|wss?):\/\//, 'must start with mqtt://, mqtts://, tcp://, tls://, ws:// or wss://').optional(),
+  MQTT_USERNAME: z.string().optional(),
+  MQTT_PASSWORD: z.string().optional(),
+  MQTT_CLIENT_ID: z.string().min(1).max(64).default('owlshift-server'),
+  MQTT_HOST: z.string().min(1).default('0.0.0.0'),
+  MQTT_PORT: z.coerce.number().int().min(0).max(65535).default(1883),
+  OWLSHIFT_BROKER: z.enum(['on', 'off']).default('on'),
 })
 
 export interface OwlshiftConfig {
@@ -20,6 +27,17 @@ export interface OwlshiftConfig {
   databaseAuthToken?: string
   seedDemo: boolean
   signIn: { maxPerAccount: number, maxPerAddress: number, windowMs: number }
+  mqtt: {
+    /** off: no broker and no ingest (only for tests of the web side) */
+    enabled: boolean
+    /** external broker; when unset an embedded broker listens on host:port */
+    url?: string
+    username?: string
+    password?: string
+    clientId: string
+    host: string
+    port: number
+  }
 }
 
 export class ConfigError extends Error {}
@@ -45,6 +63,15 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       maxPerAccount: e.OWLSHIFT_SIGNIN_MAX_PER_ACCOUNT,
       maxPerAddress: e.OWLSHIFT_SIGNIN_MAX_PER_ADDRESS,
       windowMs: e.OWLSHIFT_SIGNIN_WINDOW_MIN * 60_000,
+    },
+    mqtt: {
+      enabled: e.OWLSHIFT_BROKER === 'on',
+      url: e.MQTT_URL,
+      username: e.MQTT_USERNAME,
+      password: e.MQTT_PASSWORD,
+      clientId: e.MQTT_CLIENT_ID,
+      host: e.MQTT_HOST,
+      port: e.MQTT_PORT,
     },
   }
 }

@@ -1,0 +1,133 @@
+// The MQTT side of the server. Embedded by default: aedes in this process, machines ingested in
+// `authorizePublish` so their PUBACK waits for the commit (aedes 1.2 acks QoS 1 before its
+// `published` hook). With MQTT_URL set: a persistent-session subscriber on an existing broker,
+// whose PUBACKs wait for the commit through mqtt.js's `handleMessage`.
+import net from 'node:net'
+import { Aedes } from 'aedes'
+import mqtt from 'mqtt'
+import { databaseReady } from './0.database'
+import { mqttTopics } from '#shared/utils/contract'
+
+/** Marks packets the server itself publishes: only those are forwarded to machines. */
+const SERVER_MARK = 'owlshift-server-internal'
+
+interface MachineClient { owlMachine?: string, id: string }
+
+export interface BrokerHandle { kind: 'embedded' | 'external', port?: number, connectedMachines: () => number, close: () => Promise<void> }
+let handle: BrokerHandle | null = null
+export const brokerHandle = () => handle
+
+async function listenWithRetry(server: net.Server, port: number, host: string): Promise<number> {
+  for (let attempt = 1; ; attempt++) {
+    try {
+      await new Promise<void>((resolve, reject) => {
+        server.once('error', reject)
+        server.listen(port, host, () => { server.off('error', reject); resolve() })
+      })
+      return (server.address() as net.AddressInfo).port
+    }
+    catch (err) {
+      // A dev reload may still hold the port for a moment.
+      if ((err as NodeJS.ErrnoException).code !== 'EADDRINUSE' || attempt >= 10) throw err
+      await new Promise(r => setTimeout(r, 500))
+    }
+  }
+}
+
+async function startEmbedded(host: string, port: number): Promise<BrokerHandle> {
+  const ingest = useIngest()
+  const broker = await Aedes.createBroker({
+    id: 'owlshift',
+    authenticate: (client, username, password, done) => {
+      const machineId = username ?? ''
+      const ctx = machineContext(machineId)
+      const refuse = () => { const e = new Error('bad user name or password') as Error & { returnCode: number }; e.returnCode = 4; done(e, false) }
+      if (!ctx || !password) return refuse()
+      verifyMachinePassword(machineId, password.toString('utf8')).then((ok) => {
+        if (!ok) return refuse()
+        ;(client as unknown as MachineClient).owlMachine = machineId
+        done(null, true)
+      }, () => refuse())
+    },
+    authorizePublish: (client, packet, done) => {
+      const machineId = (client as unknown as MachineClient | null)?.owlMachine
+      if (!client) return done(null) // the server's own publish
+      if (!machineId) return done(new Error('not authenticated as a machine'))
+      ingest.accept({ topic: packet.topic, payload: Buffer.isBuffer(packet.payload) ? packet.payload : Buffer.from(packet.payload), clientId: client.id, machineIdentity: machineId })
+        .then(() => done(null), err => done(err as Error))
+    },
+    authorizeSubscribe: (client, sub, done) => {
+      const machineId = (client as unknown as MachineClient).owlMachine
+      const ctx = machineId ? machineContext(machineId) : undefined
+      // A machine may read its own commands and nothing else.
+      if (ctx && sub.topic === mqttTopics.command(ctx.cellId, ctx.id)) return done(null, sub)
+      done(null, null as never)
+    },
+    authorizeForward: (_client, packet) => ((packet as { clientId?: string }).clientId === SERVER_MARK ? packet : null),
+  })
+  const server = net.createServer(socket => broker.handle(socket))
+  const sockets = new Set<net.Socket>()
+  server.on('connection', (s) => { sockets.add(s); s.on('close', () => sockets.delete(s)) })
+  const boundPort = await listenWithRetry(server, port, host)
+  console.info(`[owlshift] MQTT broker (embedded) listening on ${host}:${boundPort}`)
+  setCommandPublisher((topic, payload) => new Promise((resolve, reject) => {
+    broker.publish({ cmd: 'publish', topic, payload: Buffer.from(payload), qos: 1, retain: false, dup: false, clientId: SERVER_MARK } as never, err => (err ? reject(err) : resolve()))
+  }))
+  return {
+    kind: 'embedded',
+    port: boundPort,
+    connectedMachines: () => broker.connectedClients,
+    close: async () => {
+      setCommandPublisher(null)
+      await new Promise<void>(r => server.close(() => r()))
+      for (const s of sockets) s.destroy()
+      await new Promise<void>(r => broker.close(() => r()))
+    },
+  }
+}
+
+async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<BrokerHandle> {
+  const ingest = useIngest()
+  const client = mqtt.connect(url, {
+    clientId: cfg.clientId, clean: false, protocolVersion: 4, username: cfg.username, password: cfg.password,
+    reconnectPeriod: 1000, keepalive: 30,
+  })
+  // Hold the PUBACK until the message is committed.
+  client.handleMessage = (packet, callback) => {
+    const topic = packet.cmd === 'publish' ? packet.topic : ''
+    ingest.accept({ topic, payload: Buffer.from((packet as { payload: Buffer | string }).payload), clientId: null, machineIdentity: null })
+      .then(() => callback(), err => callback(err as Error))
+  }
+  client.on('connect', (ack) => {
+    console.info(`[owlshift] connected to the external MQTT broker ${url} (session ${ack.sessionPresent ? 'resumed' : 'new'})`)
+    client.subscribe(mqttTopics.serverSubscriptions, { qos: 1 }, (err) => { if (err) console.error('[owlshift] subscribe failed:', err.message) })
+  })
+  client.on('error', err => console.error(`[owlshift] external MQTT broker: ${err.message}`))
+  setCommandPublisher(async (topic, payload) => { await client.publishAsync(topic, payload, { qos: 1 }) })
+  return {
+    kind: 'external',
+    connectedMachines: () => allMachineContexts().filter(m => m.status.online).length,
+    close: async () => { setCommandPublisher(null); await client.endAsync() },
+  }
+}
+
+export default defineNitroPlugin((nitroApp) => {
+  const config = useOwlshiftConfig()
+  if (!config.mqtt.enabled) return
+  const ready = (async () => {
+    await databaseReady
+    await loadMachineRegistry()
+    await ensureDemoMachineCredentials()
+    const ingest = useIngest()
+    ingest.onCommitted = handleCommitted
+    handle = config.mqtt.url ? await startExternal(config.mqtt.url, config.mqtt) : await startEmbedded(config.mqtt.host, config.mqtt.port)
+  })().catch((err) => {
+    console.error(`[owlshift] the MQTT broker could not start: ${(err as Error).message}. Check MQTT_PORT / MQTT_URL.`)
+    process.exit(1)
+  })
+  nitroApp.hooks.hook('close', async () => {
+    await ready
+    await useIngest().drain()
+    await handle?.close()
+  })
+})

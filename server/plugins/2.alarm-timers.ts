@@ -1,0 +1,11 @@
+// Alarm timers: shelve expiry, silent machines, blank supply — every 15 s.
+import { databaseReady } from './0.database'
+
+export default defineNitroPlugin((nitroApp) => {
+  if (!useOwlshiftConfig().mqtt.enabled) return
+  const timer = setInterval(() => {
+    databaseReady.then(() => alarmTick()).catch(err => console.error('[alarms] tick failed:', err))
+  }, 15_000)
+  timer.unref()
+  nitroApp.hooks.hook('close', () => clearInterval(timer))
+})
