@@ -121,6 +121,6 @@ describe('every message the simulator emits validates', () => {
         kinds.add(message.kind === 'event' ? `event:${message.type}` : message.kind)
       }
       for (const k of ['birth', 'state', 'reading', 'ack', 'event:part_loaded', 'event:part_ground', 'event:part_gauged', 'event:part_unloaded']) expect(kinds, k).toContain(k)
-    })
+    }, 30_000)
   }
 })

@@ -1,7 +1,10 @@
 // Physics of the simulated grinder + gauge, checked against the closed-form curves they model.
 // Oracles: the formulas in ../shared/design.md ("Simulator") and simple-statistics (registry
 // package) for sample means and standard deviations.
-import { describe, it, expect } from 'vitest'
+import { describe, it, expect, vi } from 'vitest'
+
+// whole simulated nights run here; on a busy 2-core machine they need more than the default 5 s
+vi.setConfig({ testTimeout: 30_000 })
 import { mean, standardDeviation, sampleCorrelation } from 'simple-statistics'
 import { createSeededRandom } from '../../shared/utils/random'
 import {

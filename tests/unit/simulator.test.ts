@@ -1,6 +1,9 @@
 // The cell simulator without a broker: determinism, numbering, the machine's handling of
 // commands, scenario validation and scenario effects, and the headless closed loop.
-import { describe, it, expect } from 'vitest'
+import { describe, it, expect, vi } from 'vitest'
+
+// whole simulated nights run here; on a busy 2-core machine they need more than the default 5 s
+vi.setConfig({ testTimeout: 30_000 })
 import { fileURLToPath } from 'node:url'
 import { writeFileSync, mkdtempSync } from 'node:fs'
 import { spawnSync } from 'node:child_process'
@@ -248,7 +251,7 @@ describe('headless closed loop with the compensation engine', () => {
       expect(m.commands.applied, m.id).toBeGreaterThan(50)
     }
     expect(closed.summary.totals.trulyOutOfTolerance).toBeLessThan(0.01 * closed.summary.totals.partsGauged)
-  })
+  }, 30_000)
 
   it('is deterministic, and every reading names the offset its part was ground with', () => {
     const a: string[] = [], b: string[] = []
@@ -263,7 +266,7 @@ describe('headless closed loop with the compensation engine', () => {
     run(5, true, (_id, m) => b.push(JSON.stringify(m)))
     expect(checked).toBeGreaterThan(5000)
     expect(b).toEqual(a)
-  })
+  }, 30_000)
 })
 
 describe('the journal (store-and-forward on disk)', () => {
