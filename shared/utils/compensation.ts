@@ -216,7 +216,9 @@ export function restoreCompensationState(json: unknown): CompensationState {
   if (st.version !== COMPENSATION_STATE_VERSION) throw new Error(`compensation state: unknown version ${String(st.version)}`)
   parseCompensationSettings(st.settings)
   if (!Number.isFinite(st.offsetUm) || !Array.isArray(st.offsetRing)) throw new Error('compensation state: offset fields are missing or not numbers')
-  return structuredClone(st)
+  // Fields added since the state was stored get their fresh values; stored fields win.
+  const fresh = createCompensationState(st.settings, { offsetUm: st.offsetUm })
+  return structuredClone({ ...fresh, ...st })
 }
 
 // ---------------------------------------------------------------- stepping

@@ -49,7 +49,7 @@ function toInputs(steps: Step[]): CompensationInput[] {
 }
 
 const scenarioArb = settingsArb.chain((settings) =>
-  fc.tuple(fc.constant(settings), fc.array(stepArb(settings.offsetRange!), { minLength: 1, maxLength: 150 })),
+  fc.tuple(fc.constant(settings), fc.array(stepArb({ min: settings.offsetRange?.min ?? -50, max: settings.offsetRange?.max ?? 50 }), { minLength: 1, maxLength: 150 })),
 )
 
 function isGarbage(input: CompensationInput, state: CompensationState): boolean {

@@ -431,6 +431,14 @@ describe('state is plain JSON', () => {
     const next = [reading(301, 0.2), { type: 'dress' } as CompensationInput, reading(302, -1)]
     expect(feed(copy, next)).toStrictEqual(feed(state, next))
   })
+  it('restore fills fields that a stored state predates with their fresh values', () => {
+    const st = feed(createCompensationState({ upperSpecUm: 2, lowerSpecUm: -2 }), [reading(1, 0.3)]).state
+    const { outlierSamples: _a, levelAtDressUm: _b, ...older } = st
+    const restored = restoreCompensationState(JSON.stringify(older))
+    expect(restored.outlierSamples).toEqual([])
+    expect(restored.levelAtDressUm).toBeNull()
+    expect(restored.level).toBe(st.level)
+  })
   it('restore refuses something that is not a state', () => {
     expect(() => restoreCompensationState('{"version":99}')).toThrow(/unknown version/)
     expect(() => restoreCompensationState(42)).toThrow(/expected an object/)
