@@ -16,7 +16,7 @@
 // Butler & Stefani 1994; aims at the part d + 1 ahead, so a linear drift leaves no bias).
 import { parseCompensationSettings, type CompensationSettings, type CompensationSettingsInput } from './compensation-settings'
 
-export { compensationSettingsSchema, parseCompensationSettings, COMPENSATION_STRATEGIES } from './compensation-settings'
+// Values stay exported from compensation-settings.ts only (Nuxt auto-imports each top-level name once).
 export type { CompensationSettings, CompensationSettingsInput, CompensationStrategy } from './compensation-settings'
 
 export const COMPENSATION_STATE_VERSION = 1

@@ -1,7 +1,8 @@
 import { describe, it, expect } from 'vitest'
 import * as ss from 'simple-statistics'
+import { parseCompensationSettings } from '../../shared/utils/compensation-settings'
 import {
-  createCompensationState, stepCompensation, runCompensation, restoreCompensationState, parseCompensationSettings,
+  createCompensationState, stepCompensation, runCompensation, restoreCompensationState,
   compensationHoltWeights, type CompensationState, type CompensationInput, type CompensationSettingsInput,
   type CompensationDecision,
 } from '../../shared/utils/compensation'
