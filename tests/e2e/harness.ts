@@ -1,7 +1,9 @@
 // Starts the built Owlshift server on a free port with its own data folder and the demo shop,
 // and a real Chromium (Debian's /usr/bin/chromium; never a downloaded browser).
 import { setup, createPage, url } from '@nuxt/test-utils/e2e'
-import { mkdtempSync, mkdirSync } from 'node:fs'
+import { mkdtempSync, mkdirSync, readFileSync } from 'node:fs'
+import net from 'node:net'
+import { createClient } from '@libsql/client'
 import { tmpdir } from 'node:os'
 import { join, resolve } from 'node:path'
 import type { Page } from 'playwright-core'
@@ -10,10 +12,21 @@ import { demoShop } from '../../shared/utils/demo-shop'
 export const rootDir = resolve(import.meta.dirname, '../..')
 export const artifactsDir = join(rootDir, 'test-results', 'screenshots')
 
-export function setupOwlshift(extraEnv: Record<string, string> = {}) {
+export async function freePort(): Promise<number> {
+  const server = net.createServer()
+  await new Promise<void>(r => server.listen(0, '127.0.0.1', r))
+  const { port } = server.address() as net.AddressInfo
+  await new Promise<void>(r => server.close(() => r()))
+  return port
+}
+
+export interface OwlshiftUnderTest { dataDir: string, mqttPort: number, mqttUrl: string }
+
+export async function setupOwlshift(extraEnv: Record<string, string> = {}): Promise<OwlshiftUnderTest> {
   const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-e2e-'))
+  const mqttPort = await freePort()
   mkdirSync(artifactsDir, { recursive: true })
-  return setup({
+  await setup({
     rootDir,
     build: false,
     server: true,
@@ -32,9 +45,22 @@ export function setupOwlshift(extraEnv: Record<string, string> = {}) {
       OWLSHIFT_SEED_DEMO: '1',
       NUXT_SESSION_PASSWORD: 'e2e-session-password-at-least-32-characters',
       NUXT_SESSION_COOKIE_SECURE: 'false',
+      MQTT_HOST: '127.0.0.1',
+      MQTT_PORT: String(mqttPort),
       ...extraEnv,
     },
   })
+  return { dataDir, mqttPort, mqttUrl: `mqtt://127.0.0.1:${mqttPort}` }
+}
+
+/** The broker credentials the demo seed wrote for its machines. */
+export function demoCredentials(dataDir: string): Record<string, { cell: string, username: string, password: string }> {
+  return JSON.parse(readFileSync(join(dataDir, 'machine-credentials.json'), 'utf8'))
+}
+
+/** A read connection to the server's SQLite file (WAL lets us read while it writes). */
+export function openTestDb(dataDir: string) {
+  return createClient({ url: `file:${join(dataDir, 'owlshift.db')}` })
 }
 
 export const demoUser = (role: string) => demoShop.users.find(u => u.role === role)!
