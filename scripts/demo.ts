@@ -5,6 +5,8 @@ import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs'
 import { randomBytes } from 'node:crypto'
 import { join, resolve } from 'node:path'
 import { demoShop } from '../shared/utils/demo-shop'
+import { startSimulator, type RunningSimulator } from '../simulator/live'
+import { loadScenarioFile } from '../simulator/scenario'
 
 const dataDir = resolve(process.env.OWLSHIFT_DATA_DIR ?? 'data')
 mkdirSync(dataDir, { recursive: true })
@@ -24,6 +26,7 @@ if (process.env.OWLSHIFT_DEMO_SKIP_BUILD !== '1') {
 }
 
 const port = process.env.PORT ?? '3000'
+const mqttPort = process.env.MQTT_PORT ?? '1883'
 const env = {
   ...process.env,
   PORT: port,
@@ -32,15 +35,39 @@ const env = {
   NUXT_SESSION_PASSWORD: sessionPassword,
   // The demo is served over plain HTTP; a real install behind HTTPS keeps secure cookies.
   NUXT_SESSION_COOKIE_SECURE: process.env.NUXT_SESSION_COOKIE_SECURE ?? 'false',
+  MQTT_PORT: mqttPort,
 }
 const server = spawn(process.execPath, ['.output/server/index.mjs'], { stdio: 'inherit', env })
 
-setTimeout(() => {
+// The bundled simulator brings the demo shop to life: four machines at a few times real speed,
+// speaking MQTT to the embedded broker with the credentials the server made for them.
+const speed = Number(process.env.OWLSHIFT_DEMO_SPEED ?? '4')
+let sim: RunningSimulator | null = null
+async function startDemoCell() {
+  const credsFile = join(dataDir, 'machine-credentials.json')
+  for (let i = 0; i < 120 && !(existsSync(credsFile) && await listening()); i++) await new Promise(r => setTimeout(r, 500))
+  const creds = JSON.parse(readFileSync(credsFile, 'utf8')) as Record<string, { username: string, password: string }>
+  sim = await startSimulator({
+    scenario: loadScenarioFile('simulator/scenarios/quiet-night.json'),
+    seed: Date.now() % 100000, machines: demoShop.machines.length, speed, hours: 24 * 30,
+    brokerUrl: `mqtt://127.0.0.1:${mqttPort}`, stateDir: join(dataDir, 'simulator'), startMs: Date.now(),
+    credentials: id => creds[id],
+  })
   console.log(`\n  Owlshift demo: http://localhost:${port}\n`)
   console.log(`  Sign in as (demo password for all: ${demoShop.password}):`)
   for (const u of demoShop.users) console.log(`    ${u.role.padEnd(9)} ${u.email}`)
-  console.log('\n  Ctrl+C stops it. Data lives in', dataDir, '\n')
-}, 1500)
+  console.log(`\n  The simulator runs ${demoShop.machines.length} machines at ${speed}× real time against the broker on port ${mqttPort}.`)
+  console.log('  Ctrl+C stops it. Data lives in', dataDir, '\n')
+}
+async function listening() {
+  try { return (await fetch(`http://127.0.0.1:${port}/sign-in`)).ok }
+  catch { return false }
+}
+startDemoCell().catch((err) => { console.error('[demo] the simulator could not start:', err); server.kill('SIGTERM') })
 
-for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => server.kill('SIGTERM'))
+async function shutdown() {
+  await sim?.stop({ graceful: true }).catch(() => {})
+  server.kill('SIGTERM')
+}
+for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => { void shutdown() })
 server.on('exit', code => process.exit(code ?? 0))
