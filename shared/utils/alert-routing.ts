@@ -1,0 +1,373 @@
+// Who gets woken, and when: pure rules over an alarm, the clock, the people and the routing table.
+// No I/O: server/utils/notify.ts feeds alarm events and timer ticks in and delivers what comes out.
+// Exports are prefixed `alert`/`Alert` because Nuxt auto-imports shared/utils/* into one namespace.
+//
+// The model:
+//   - the plant day is cut into shifts (local time of the plant's time zone);
+//   - an on-call table names, per shift and weekday (or for one date), the contacts in escalation order;
+//   - each priority says which roles may be woken, whether it is pushed, from which escalation level
+//     it also goes by e-mail, after how many unacknowledged minutes it moves to the next contact,
+//     and whether quiet hours hold it back;
+//   - the same alarm is never announced twice within the de-duplication window, and at most
+//     `rateLimit.max` times within `rateLimit.windowMin` (a chattering condition cannot page all night);
+//   - "trend nears tolerance" is raised from the compensation engine's prediction below a per-job
+//     threshold of minutes and cleared only above threshold × clearFactor (hysteresis).
+import { z } from 'zod'
+import type { AlarmPriority } from './alarm-model'
+import { ROLE_NAMES, type Role } from '../types/auth'
+
+// ---------------------------------------------------------------- rules
+
+const hhmm = z.string().regex(/^([01]\d|2[0-3]):[0-5]\d$/, 'use HH:MM, 24-hour clock')
+const minutes = (max: number) => z.number().finite().min(0).max(max)
+
+const priorityRuleSchema = z.object({
+  /** roles that may be woken for this priority */
+  roles: z.array(z.enum(ROLE_NAMES)).min(1, 'name at least one role'),
+  /** everyone with one of the roles at once, instead of the on-call contact (fire, mist) */
+  allAtOnce: z.boolean().default(false),
+  push: z.boolean().default(true),
+  /** escalation level from which e-mail goes out too (0: always, 1: first escalation, null: never) */
+  emailFromLevel: z.number().int().min(0).max(10).nullable().default(1),
+  /** minutes unacknowledged before the next contact is woken (null: no escalation) */
+  escalateAfterMin: minutes(24 * 60).nullable().default(10),
+  /** held back during quiet hours (then sent when they end, if still unacknowledged) */
+  quietHours: z.boolean().default(false),
+})
+
+export const alertRoutingRulesSchema = z.object({
+  timeZone: z.string().min(1).refine(isTimeZone, 'unknown time zone (use an IANA name such as Europe/Berlin)'),
+  shifts: z.array(z.object({ id: z.string().min(1).max(40), name: z.string().min(1).max(60), start: hhmm, end: hhmm }))
+    .min(1, 'define at least one shift'),
+  onCall: z.array(z.object({
+    shiftId: z.string().min(1),
+    /** weekdays of the shift's start, 0 = Sunday … 6 = Saturday */
+    weekdays: z.array(z.number().int().min(0).max(6)).optional(),
+    /** one date (YYYY-MM-DD, the shift's start) — wins over the weekly entries */
+    date: z.string().regex(/^\d{4}-\d{2}-\d{2}$/, 'use YYYY-MM-DD').optional(),
+    /** user ids in escalation order */
+    contacts: z.array(z.number().int().positive()).min(1, 'name at least one contact'),
+  }).refine(e => (e.weekdays?.length ?? 0) > 0 || !!e.date, 'give weekdays or a date')),
+  priorities: z.object({ 1: priorityRuleSchema, 2: priorityRuleSchema, 3: priorityRuleSchema, 4: priorityRuleSchema }),
+  quietHours: z.object({ start: hhmm, end: hhmm }).nullable(),
+  dedupWindowMin: minutes(24 * 60),
+  rateLimit: z.object({ max: z.number().int().min(1).max(100), windowMin: minutes(24 * 60).refine(v => v > 0, 'must be above 0') }),
+  trend: z.object({
+    defaultThresholdMin: minutes(24 * 60).refine(v => v > 0, 'must be above 0'),
+    /** per job (part number): minutes */
+    perJob: z.record(z.string(), minutes(24 * 60).refine(v => v > 0, 'must be above 0')),
+    clearFactor: z.number().min(1.05).max(5),
+  }),
+}).superRefine((r, ctx) => {
+  const ids = new Set(r.shifts.map(s => s.id))
+  if (ids.size !== r.shifts.length) ctx.addIssue({ code: 'custom', path: ['shifts'], message: 'shift ids must be unique' })
+  r.onCall.forEach((e, i) => {
+    if (!ids.has(e.shiftId)) ctx.addIssue({ code: 'custom', path: ['onCall', i, 'shiftId'], message: `no shift "${e.shiftId}"` })
+  })
+  // Every minute of the day belongs to exactly one shift, so "who is on call" always has an answer.
+  const cover = new Array<number>(1440).fill(0)
+  for (const s of r.shifts) for (const m of minutesOf(s.start, s.end)) cover[m]!++
+  const gap = cover.findIndex(c => c === 0)
+  const overlap = cover.findIndex(c => c > 1)
+  if (gap >= 0) ctx.addIssue({ code: 'custom', path: ['shifts'], message: `no shift covers ${fmtMinute(gap)}` })
+  if (overlap >= 0) ctx.addIssue({ code: 'custom', path: ['shifts'], message: `shifts overlap at ${fmtMinute(overlap)}` })
+})
+
+export type AlertRoutingRules = z.infer<typeof alertRoutingRulesSchema>
+export type AlertPriorityRule = z.infer<typeof priorityRuleSchema>
+
+/** Starting rules for a new shop (choices, not a standard: adjust per plant). */
+export function alertDefaultRules(timeZone = 'UTC'): AlertRoutingRules {
+  return alertRoutingRulesSchema.parse({
+    timeZone,
+    shifts: [
+      { id: 'early', name: 'Early', start: '06:00', end: '14:00' },
+      { id: 'late', name: 'Late', start: '14:00', end: '22:00' },
+      { id: 'night', name: 'Night', start: '22:00', end: '06:00' },
+    ],
+    onCall: [],
+    priorities: {
+      1: { roles: ['lead', 'engineer', 'admin'], allAtOnce: true, emailFromLevel: 0, escalateAfterMin: 5 },
+      2: { roles: ['lead', 'engineer'], emailFromLevel: 1, escalateAfterMin: 10 },
+      3: { roles: ['lead', 'engineer'], emailFromLevel: 1, escalateAfterMin: 20, quietHours: true },
+      4: { roles: ['lead', 'engineer'], push: false, emailFromLevel: null, escalateAfterMin: null, quietHours: true },
+    },
+    quietHours: { start: '23:00', end: '05:30' },
+    dedupWindowMin: 10,
+    rateLimit: { max: 4, windowMin: 60 },
+    trend: { defaultThresholdMin: 30, perJob: {}, clearFactor: 1.5 },
+  })
+}
+
+/** Parse rules from storage or a form; the error names every bad field. */
+export function alertParseRules(raw: unknown): { rules: AlertRoutingRules } | { problems: string[] } {
+  const r = alertRoutingRulesSchema.safeParse(raw)
+  if (r.success) return { rules: r.data }
+  return { problems: r.error.issues.map(i => `${i.path.join('.') || 'rules'}: ${i.message}`) }
+}
+
+// ---------------------------------------------------------------- plant clock, shifts, on call
+
+export interface AlertLocalTime { date: string, weekday: number, minute: number }
+
+/** Local date, weekday (0 = Sunday) and minute of the day of `now` in `timeZone` (Intl, no library). */
+export function alertLocalTime(now: number, timeZone: string): AlertLocalTime {
+  const parts = new Intl.DateTimeFormat('en-US', {
+    timeZone, hourCycle: 'h23', year: 'numeric', month: '2-digit', day: '2-digit', hour: '2-digit', minute: '2-digit', weekday: 'short',
+  }).formatToParts(new Date(now))
+  const get = (t: string) => parts.find(p => p.type === t)!.value
+  const weekday = ['Sun', 'Mon', 'Tue', 'Wed', 'Thu', 'Fri', 'Sat'].indexOf(get('weekday'))
+  return { date: `${get('year')}-${get('month')}-${get('day')}`, weekday, minute: Number(get('hour')) * 60 + Number(get('minute')) }
+}
+
+export interface AlertShiftNow { shiftId: string, shiftName: string, /** local date the shift started */ date: string, weekday: number }
+
+/** The shift running at `now`; a shift that spans midnight belongs to the day it started. */
+export function alertShiftAt(rules: AlertRoutingRules, now: number): AlertShiftNow {
+  const t = alertLocalTime(now, rules.timeZone)
+  for (const s of rules.shifts) {
+    const start = toMinute(s.start)
+    const end = toMinute(s.end)
+    const wraps = end <= start
+    const inside = wraps ? t.minute >= start || t.minute < end : t.minute >= start && t.minute < end
+    if (!inside) continue
+    if (wraps && t.minute < end) return { shiftId: s.id, shiftName: s.name, date: previousDate(t.date), weekday: (t.weekday + 6) % 7 }
+    return { shiftId: s.id, shiftName: s.name, date: t.date, weekday: t.weekday }
+  }
+  // The schema guarantees full cover; rules built by hand without it fall back to the first shift.
+  const s = rules.shifts[0]!
+  return { shiftId: s.id, shiftName: s.name, date: t.date, weekday: t.weekday }
+}
+
+/** The on-call contacts (user ids, escalation order) for the shift at `now`: a dated entry wins. */
+export function alertOnCallAt(rules: AlertRoutingRules, now: number): { shift: AlertShiftNow, contacts: number[] } {
+  const shift = alertShiftAt(rules, now)
+  const dated = rules.onCall.find(e => e.shiftId === shift.shiftId && e.date === shift.date)
+  const weekly = rules.onCall.find(e => e.shiftId === shift.shiftId && !e.date && e.weekdays?.includes(shift.weekday))
+  return { shift, contacts: [...(dated ?? weekly)?.contacts ?? []] }
+}
+
+/** True when `now` lies in the quiet hours (local time). */
+export function alertInQuietHours(rules: AlertRoutingRules, now: number): boolean {
+  if (!rules.quietHours) return false
+  const m = alertLocalTime(now, rules.timeZone).minute
+  const start = toMinute(rules.quietHours.start)
+  const end = toMinute(rules.quietHours.end)
+  return end <= start ? m >= start || m < end : m >= start && m < end
+}
+
+/** First instant (minute resolution) at or after `now` outside the quiet hours. */
+export function alertQuietHoursEnd(rules: AlertRoutingRules, now: number): number {
+  let t = Math.floor(now / 60_000) * 60_000
+  for (let i = 0; i < 1500 && alertInQuietHours(rules, t); i++) t += 60_000
+  return Math.max(t, now)
+}
+
+// ---------------------------------------------------------------- recipients
+
+export interface AlertPerson { id: number, role: Role, disabled?: boolean }
+
+export interface AlertRecipients {
+  userIds: number[]
+  /** how many escalation levels exist for this alarm at this time (levels 0 … levels-1) */
+  levels: number
+  why: string
+}
+
+/**
+ * Who is woken at escalation `level`. The on-call chain (only people whose role the priority
+ * allows, enabled, in order) gives one contact per level. With `allAtOnce`, or when nobody
+ * suitable is on call, everyone with an allowed role is woken at level 0, and again (by the
+ * channels of level 1) at level 1 — a hole in the rota must never silence an alarm.
+ */
+export function alertRecipients(rules: AlertRoutingRules, people: readonly AlertPerson[], priority: AlarmPriority, now: number, level: number): AlertRecipients {
+  const rule = rules.priorities[priority]
+  const active = new Map(people.filter(p => !p.disabled && rule.roles.includes(p.role)).map(p => [p.id, p]))
+  const { shift, contacts } = alertOnCallAt(rules, now)
+  const chain = [...new Set(contacts)].filter(id => active.has(id))
+  if (!rule.allAtOnce && chain.length) {
+    return { userIds: level < chain.length ? [chain[level]!] : [], levels: chain.length, why: `${shift.shiftName} shift ${shift.date}, on-call contact ${level + 1} of ${chain.length}` }
+  }
+  const everyone = [...active.keys()].sort((a, b) => a - b)
+  const why = rule.allAtOnce ? `priority ${priority}: everyone with role ${rule.roles.join('/')}` : `nobody suitable on call for the ${shift.shiftName} shift ${shift.date}: everyone with role ${rule.roles.join('/')}`
+  return { userIds: level <= 1 ? everyone : [], levels: everyone.length ? 2 : 0, why }
+}
+
+// ---------------------------------------------------------------- per-alarm decisions
+
+/** What the router needs to know of an alarm (a subset of the alarm engine's view). */
+export interface AlertAlarm {
+  id: number
+  machineId: string | null
+  condition: string
+  priority: AlarmPriority
+  state: string
+  active: boolean
+  latching: boolean
+  activations: number
+}
+
+/** The router's memory of one alarm (stored by the server between events and ticks). */
+export interface AlertTrack {
+  alarmId: number
+  /** the activation (count) last announced or deliberately not announced */
+  activations: number
+  /** escalation level reached; -1 while held back */
+  level: number
+  /** when the current level went out (escalation clock) */
+  levelAt: number
+  /** quiet hours: announce at this time if still owed */
+  heldUntil: number | null
+  /** acknowledged, back to normal, shelved or out of service: a later re-annunciation starts afresh */
+  done: boolean
+  /** every escalation level used: nobody left to wake for this activation */
+  exhausted: boolean
+}
+
+export interface AlertSend { userId: number, level: number, push: boolean, email: boolean, why: string }
+
+export type AlertNote =
+  | { kind: 'duplicate', why: string }
+  | { kind: 'rate-limited', why: string }
+  | { kind: 'held', until: number, why: string }
+  | { kind: 'no-recipient', why: string }
+  | { kind: 'chain-exhausted', why: string }
+  | { kind: 'stopped', why: string }
+
+export interface AlertStepResult {
+  track: AlertTrack | null
+  sends: AlertSend[]
+  notes: AlertNote[]
+  /** when the router wants to look at this alarm again (null: not before its next change) */
+  nextCheckAt: number | null
+}
+
+export interface AlertStepInput {
+  alarm: AlertAlarm
+  now: number
+  rules: AlertRoutingRules
+  people: readonly AlertPerson[]
+  track: AlertTrack | null
+  /** when this machine+condition was announced before (any alarm row), for de-duplication and the rate limit */
+  announcedAt: readonly number[]
+}
+
+/** Still owed an answer: unacknowledged, with the condition active or latching. */
+export function alertIsOwed(a: AlertAlarm): boolean {
+  if (a.state === 'unacknowledged') return true
+  return a.state === 'rtn-unacknowledged' && a.latching
+}
+
+/**
+ * One decision for one alarm, on its change or on a timer tick. Deterministic in its inputs.
+ * New activation → announce to level 0 (unless duplicate, rate-limited or held by quiet hours).
+ * Same activation, still owed → escalate one level each `escalateAfterMin`, or release a hold.
+ * Acknowledged / cleared / shelved → done.
+ */
+export function alertStep(input: AlertStepInput): AlertStepResult {
+  const { alarm, now, rules } = input
+  const rule = rules.priorities[alarm.priority]
+  let track = input.track
+  if (!alertIsOwed(alarm)) {
+    if (!track || track.done) return { track, sends: [], notes: [], nextCheckAt: null }
+    return { track: { ...track, done: true }, sends: [], notes: [{ kind: 'stopped', why: `alarm is ${alarm.state}${alarm.active ? '' : ', condition cleared'}` }], nextCheckAt: null }
+  }
+  // A new activation, or an alarm owed again after it was answered (a shelve ended while active).
+  const fresh = !track || alarm.activations > track.activations || track.done
+  if (fresh) {
+    const base: AlertTrack = { alarmId: alarm.id, activations: alarm.activations, level: 0, levelAt: now, heldUntil: null, done: false, exhausted: false }
+    const dedupFrom = now - rules.dedupWindowMin * 60_000
+    const recent = input.announcedAt.filter(t => t > dedupFrom && t <= now)
+    // A repeat within the window: the same people were just told. The escalation clock still runs.
+    if (recent.length) {
+      const last = Math.max(...recent)
+      return { track: { ...base, levelAt: last }, sends: [], notes: [{ kind: 'duplicate', why: `announced ${fmtAgo(now - last)} ago, within the ${rules.dedupWindowMin} min de-duplication window` }], nextCheckAt: escalationDue(rule, last) }
+    }
+    const inWindow = input.announcedAt.filter(t => t > now - rules.rateLimit.windowMin * 60_000 && t <= now).length
+    if (inWindow >= rules.rateLimit.max) {
+      return { track: base, sends: [], notes: [{ kind: 'rate-limited', why: `already announced ${inWindow} times in ${rules.rateLimit.windowMin} min (limit ${rules.rateLimit.max})` }], nextCheckAt: escalationDue(rule, now) }
+    }
+    if (rule.quietHours && alertInQuietHours(rules, now)) {
+      const until = alertQuietHoursEnd(rules, now)
+      return { track: { ...base, level: -1, heldUntil: until }, sends: [], notes: [{ kind: 'held', until, why: `priority ${alarm.priority} waits for the end of quiet hours` }], nextCheckAt: until }
+    }
+    return announce(input, base, 0)
+  }
+  track = track!
+  if (track.exhausted) return { track, sends: [], notes: [], nextCheckAt: null }
+  if (track.heldUntil !== null) {
+    if (now < track.heldUntil) return { track, sends: [], notes: [], nextCheckAt: track.heldUntil }
+    return announce(input, { ...track, heldUntil: null, level: 0, levelAt: now }, 0)
+  }
+  const due = escalationDue(rule, track.levelAt)
+  if (due === null || now < due) return { track, sends: [], notes: [], nextCheckAt: due }
+  return announce(input, { ...track, level: track.level + 1, levelAt: now }, track.level + 1)
+}
+
+function announce(input: AlertStepInput, track: AlertTrack, level: number): AlertStepResult {
+  const { alarm, now, rules } = input
+  const rule = rules.priorities[alarm.priority]
+  const who = alertRecipients(rules, input.people, alarm.priority, now, level)
+  if (!who.userIds.length) {
+    const note: AlertNote = level === 0
+      ? { kind: 'no-recipient', why: `no enabled person with role ${rule.roles.join('/')}` }
+      : { kind: 'chain-exhausted', why: `all ${who.levels} escalation levels used; nobody left to wake` }
+    return { track: { ...track, level: Math.max(0, level - 1), exhausted: true }, sends: [], notes: [note], nextCheckAt: null }
+  }
+  const email = rule.emailFromLevel !== null && level >= rule.emailFromLevel
+  const sends = who.userIds.map(userId => ({ userId, level, push: rule.push, email, why: level === 0 ? who.why : `unacknowledged for ${rule.escalateAfterMin} min — escalated: ${who.why}` }))
+  const more = level + 1 < who.levels
+  return { track, sends, notes: [], nextCheckAt: more ? escalationDue(rule, now) : null }
+}
+
+function escalationDue(rule: AlertPriorityRule, from: number): number | null {
+  return rule.escalateAfterMin === null ? null : from + rule.escalateAfterMin * 60_000
+}
+
+// ---------------------------------------------------------------- trend nears tolerance
+
+export interface AlertTrendPrediction { levelUm: number | null, minutesToSpecLimit: number | null, minutesToCompLimit?: number | null }
+export interface AlertTrendResult { raised: boolean, changed: boolean, minutes: number | null, thresholdMin: number, message: string }
+
+/** The threshold in minutes for a job: its own, else the default. */
+export function alertTrendThreshold(rules: AlertRoutingRules, partNumber: string | null): number {
+  return (partNumber && rules.trend.perJob[partNumber]) || rules.trend.defaultThresholdMin
+}
+
+/**
+ * Hysteresis on the engine's "minutes until the predicted size meets the specification limit":
+ * raise below `threshold`, clear only above `threshold × clearFactor` (or when the trend no longer
+ * meets a limit at all). Without a level (engine learning after a start or a dress) nothing changes.
+ */
+export function alertTrendStep(wasRaised: boolean, p: AlertTrendPrediction | null, thresholdMin: number, clearFactor: number): AlertTrendResult {
+  if (!(thresholdMin > 0) || !(clearFactor > 1)) throw new RangeError('trend threshold must be > 0 and the clear factor > 1')
+  const known = !!p && p.levelUm !== null && Number.isFinite(p.levelUm)
+  const m = known && p!.minutesToSpecLimit !== null && Number.isFinite(p!.minutesToSpecLimit) ? Math.max(0, p!.minutesToSpecLimit!) : null
+  let raised = wasRaised
+  if (known) {
+    if (!wasRaised && m !== null && m < thresholdMin) raised = true
+    else if (wasRaised && (m === null || m > thresholdMin * clearFactor)) raised = false
+  }
+  const message = m === null ? 'size trend meets no tolerance limit' : `size meets tolerance in about ${m < 10 ? m.toFixed(1) : Math.round(m)} min at this trend (alert below ${thresholdMin} min)`
+  return { raised, changed: raised !== wasRaised, minutes: m, thresholdMin, message }
+}
+
+// ---------------------------------------------------------------- helpers
+
+function toMinute(s: string): number { return Number(s.slice(0, 2)) * 60 + Number(s.slice(3, 5)) }
+function fmtMinute(m: number): string { return `${String(Math.floor(m / 60)).padStart(2, '0')}:${String(m % 60).padStart(2, '0')}` }
+function minutesOf(start: string, end: string): number[] {
+  const a = toMinute(start)
+  const b = toMinute(end)
+  const n = b > a ? b - a : 1440 - a + b
+  return Array.from({ length: n }, (_, i) => (a + i) % 1440)
+}
+function previousDate(date: string): string {
+  const [y, m, d] = date.split('-').map(Number)
+  return new Date(Date.UTC(y!, m! - 1, d! - 1)).toISOString().slice(0, 10)
+}
+function fmtAgo(ms: number): string { return ms < 60_000 ? `${Math.round(ms / 1000)} s` : `${Math.round(ms / 60_000)} min` }
+function isTimeZone(tz: string): boolean {
+  try { new Intl.DateTimeFormat('en-US', { timeZone: tz }); return true }
+  catch { return false }
+}

@@ -1,0 +1,253 @@
+// Routing rules: on-call selection, quiet hours, escalation timing, de-duplication, rate limit,
+// trend hysteresis, and refusal of bad rules. Time zones come from the ICU data in Node (Intl);
+// daylight-saving dates from the EU rule (Directive 2000/84/EC: summer time starts the last
+// Sunday of March at 01:00 UTC and ends the last Sunday of October at 01:00 UTC).
+import { describe, it, expect } from 'vitest'
+import fc from 'fast-check'
+import {
+  alertDefaultRules, alertParseRules, alertLocalTime, alertShiftAt, alertOnCallAt, alertInQuietHours, alertQuietHoursEnd,
+  alertRecipients, alertStep, alertTrendStep, alertTrendThreshold,
+  type AlertRoutingRules, type AlertAlarm, type AlertPerson, type AlertTrack,
+} from '../../shared/utils/alert-routing'
+
+const MIN = 60_000
+const people: AlertPerson[] = [
+  { id: 1, role: 'admin' }, { id: 2, role: 'lead' }, { id: 3, role: 'lead' }, { id: 4, role: 'engineer' },
+  { id: 5, role: 'operator' }, { id: 6, role: 'viewer' }, { id: 7, role: 'lead', disabled: true },
+]
+
+function rules(patch: Partial<AlertRoutingRules> = {}): AlertRoutingRules {
+  const r = alertDefaultRules('Europe/Berlin')
+  r.onCall = [
+    // Night shift Mon–Fri starts: lead 2, then lead 3, then engineer 4.
+    { shiftId: 'night', weekdays: [1, 2, 3, 4, 5], contacts: [2, 3, 4] },
+    { shiftId: 'night', weekdays: [0, 6], contacts: [3, 4] },
+    // One dated override: Friday 2025-06-13 night is covered by engineer 4 alone.
+    { shiftId: 'night', date: '2025-06-13', contacts: [4] },
+  ]
+  return { ...r, ...patch }
+}
+// Berlin is UTC+2 in June 2025 (summer time).
+const berlin = (iso: string) => Date.parse(`${iso}+02:00`)
+
+const alarm = (over: Partial<AlertAlarm> = {}): AlertAlarm => ({
+  id: 10, machineId: 'cg-01', condition: 'fault:coolant_fault', priority: 2, state: 'unacknowledged', active: true, latching: false, activations: 1, ...over,
+})
+
+describe('plant clock and shifts', () => {
+  it('reads local time across the spring daylight-saving change (EU rule)', () => {
+    // 2025-03-30 00:30 UTC = 01:30 CET (UTC+1); 01:30 UTC = 03:30 CEST (UTC+2).
+    expect(alertLocalTime(Date.parse('2025-03-30T00:30:00Z'), 'Europe/Berlin')).toEqual({ date: '2025-03-30', weekday: 0, minute: 90 })
+    expect(alertLocalTime(Date.parse('2025-03-30T01:30:00Z'), 'Europe/Berlin')).toEqual({ date: '2025-03-30', weekday: 0, minute: 210 })
+  })
+
+  it('gives a shift that spans midnight to the day it started', () => {
+    // Saturday 2025-06-14 02:00 local is still Friday's night shift.
+    expect(alertShiftAt(rules(), berlin('2025-06-14T02:00:00'))).toMatchObject({ shiftId: 'night', date: '2025-06-13', weekday: 5 })
+    expect(alertShiftAt(rules(), berlin('2025-06-13T22:00:00'))).toMatchObject({ shiftId: 'night', date: '2025-06-13' })
+    expect(alertShiftAt(rules(), berlin('2025-06-13T21:59:00'))).toMatchObject({ shiftId: 'late', date: '2025-06-13' })
+    expect(alertShiftAt(rules(), berlin('2025-06-14T06:00:00'))).toMatchObject({ shiftId: 'early', date: '2025-06-14' })
+  })
+
+  it('picks who is on call tonight: weekly rota, a dated override wins', () => {
+    // Wednesday night 2025-06-11 → weekly Mon–Fri chain; also after midnight.
+    expect(alertOnCallAt(rules(), berlin('2025-06-11T23:00:00')).contacts).toEqual([2, 3, 4])
+    expect(alertOnCallAt(rules(), berlin('2025-06-12T03:00:00')).contacts).toEqual([2, 3, 4])
+    // Friday 13 June night: the dated entry.
+    expect(alertOnCallAt(rules(), berlin('2025-06-14T01:00:00')).contacts).toEqual([4])
+    // Saturday night: the weekend chain.
+    expect(alertOnCallAt(rules(), berlin('2025-06-14T23:00:00')).contacts).toEqual([3, 4])
+    // Day shift: nobody on the rota.
+    expect(alertOnCallAt(rules(), berlin('2025-06-11T10:00:00')).contacts).toEqual([])
+  })
+
+  it('knows quiet hours (23:00–05:30) and when they end', () => {
+    const r = rules()
+    expect(alertInQuietHours(r, berlin('2025-06-11T22:59:00'))).toBe(false)
+    expect(alertInQuietHours(r, berlin('2025-06-11T23:00:00'))).toBe(true)
+    expect(alertInQuietHours(r, berlin('2025-06-12T05:29:00'))).toBe(true)
+    expect(alertInQuietHours(r, berlin('2025-06-12T05:30:00'))).toBe(false)
+    expect(alertQuietHoursEnd(r, berlin('2025-06-12T01:17:30'))).toBe(berlin('2025-06-12T05:30:00'))
+    expect(alertQuietHoursEnd({ ...r, quietHours: null }, berlin('2025-06-12T01:17:30'))).toBe(berlin('2025-06-12T01:17:30'))
+  })
+})
+
+describe('recipients', () => {
+  const night = berlin('2025-06-11T23:30:00')
+  it('wakes the on-call contacts one level at a time, skipping roles the priority does not allow', () => {
+    expect(alertRecipients(rules(), people, 2, night, 0)).toMatchObject({ userIds: [2], levels: 3 })
+    expect(alertRecipients(rules(), people, 2, night, 2)).toMatchObject({ userIds: [4], levels: 3 })
+    expect(alertRecipients(rules(), people, 2, night, 3).userIds).toEqual([])
+    const leadsOnly = rules()
+    leadsOnly.priorities[2] = { ...leadsOnly.priorities[2], roles: ['lead'] }
+    expect(alertRecipients(leadsOnly, people, 2, night, 1)).toMatchObject({ userIds: [3], levels: 2 })
+  })
+
+  it('wakes everyone allowed at once for top priority', () => {
+    expect(alertRecipients(rules(), people, 1, night, 0).userIds).toEqual([1, 2, 3, 4])
+  })
+
+  it('falls back to everyone allowed (never a disabled account) when the rota has a hole', () => {
+    const day = berlin('2025-06-11T10:00:00')
+    const r = alertRecipients(rules(), people, 2, day, 0)
+    expect(r.userIds).toEqual([2, 3, 4])
+    expect(r.why).toMatch(/nobody suitable on call/)
+  })
+})
+
+describe('alarm steps: announce, de-duplicate, rate-limit, hold, escalate, stop', () => {
+  const t0 = berlin('2025-06-11T22:10:00') // night shift, before quiet hours
+  const step = (a: AlertAlarm, now: number, track: AlertTrack | null, announcedAt: number[] = [], r = rules()) =>
+    alertStep({ alarm: a, now, rules: r, people, track, announcedAt })
+
+  it('announces a new alarm to the first on-call contact, by push only at level 0', () => {
+    const s = step(alarm(), t0, null)
+    expect(s.sends).toEqual([expect.objectContaining({ userId: 2, level: 0, push: true, email: false })])
+    expect(s.nextCheckAt).toBe(t0 + 10 * MIN)
+  })
+
+  it('escalates exactly every 10 minutes while unacknowledged, e-mail from level 1, then stops at the end of the chain', () => {
+    let s = step(alarm(), t0, null)
+    const none = step(alarm(), t0 + 10 * MIN - 1, s.track)
+    expect(none.sends).toEqual([])
+    s = step(alarm(), t0 + 10 * MIN, s.track)
+    expect(s.sends).toEqual([expect.objectContaining({ userId: 3, level: 1, push: true, email: true })])
+    expect(s.sends[0]!.why).toMatch(/unacknowledged for 10 min/)
+    s = step(alarm(), t0 + 20 * MIN, s.track)
+    expect(s.sends).toEqual([expect.objectContaining({ userId: 4, level: 2, email: true })])
+    expect(s.nextCheckAt).toBeNull()
+    s = step(alarm(), t0 + 30 * MIN, s.track)
+    expect(s.sends).toEqual([])
+    expect(s.notes[0]!.kind).toBe('chain-exhausted')
+    expect(step(alarm(), t0 + 40 * MIN, s.track).sends).toEqual([])
+  })
+
+  it('stops escalating once acknowledged, and for a non-latching alarm whose condition cleared', () => {
+    const first = step(alarm(), t0, null)
+    const acked = step(alarm({ state: 'acknowledged' }), t0 + 3 * MIN, first.track)
+    expect(acked.track!.done).toBe(true)
+    expect(acked.notes[0]!.kind).toBe('stopped')
+    expect(step(alarm({ state: 'acknowledged' }), t0 + 30 * MIN, acked.track).sends).toEqual([])
+    const cleared = step(alarm({ state: 'rtn-unacknowledged', active: false }), t0 + 3 * MIN, first.track)
+    expect(cleared.track!.done).toBe(true)
+    // A latching alarm (fire) stays owed after its condition clears, until someone acknowledges.
+    const fire = alarm({ priority: 1, condition: 'fault:fire_alarm', latching: true })
+    const f0 = step(fire, t0, null)
+    const f1 = step({ ...fire, state: 'rtn-unacknowledged', active: false }, t0 + 5 * MIN, f0.track)
+    expect(f1.sends.length).toBe(4) // level 1 of all-at-once: everyone again, by e-mail too
+    expect(f1.sends.every(x => x.email)).toBe(true)
+  })
+
+  it('does not announce the same alarm twice: same activation, or a repeat within the de-duplication window', () => {
+    const first = step(alarm(), t0, null)
+    expect(step(alarm(), t0 + 1000, first.track).sends).toEqual([])
+    // The condition cleared and came back 4 minutes later (new activation, same machine and condition).
+    const again = step(alarm({ activations: 2 }), t0 + 4 * MIN, { ...first.track!, done: true }, [t0])
+    expect(again.sends).toEqual([])
+    expect(again.notes[0]).toMatchObject({ kind: 'duplicate' })
+    // Its escalation clock runs from the earlier announcement.
+    expect(again.nextCheckAt).toBe(t0 + 10 * MIN)
+    // After the 10-minute window it is announced again.
+    expect(step(alarm({ id: 11 }), t0 + 11 * MIN, null, [t0]).sends.length).toBe(1)
+  })
+
+  it('rate-limits a condition that keeps coming back: at most 4 announcements an hour', () => {
+    const announced = [t0, t0 + 12 * MIN, t0 + 24 * MIN, t0 + 36 * MIN]
+    const s = step(alarm({ id: 12 }), t0 + 48 * MIN, null, announced)
+    expect(s.sends).toEqual([])
+    expect(s.notes[0]).toMatchObject({ kind: 'rate-limited' })
+    // An hour after the first one, there is room again.
+    expect(step(alarm({ id: 13 }), t0 + 60 * MIN + 1, null, announced).sends.length).toBe(1)
+  })
+
+  it('holds a medium-priority alarm during quiet hours and sends it when they end, if still owed', () => {
+    const medium = alarm({ priority: 3, condition: 'link:silent' })
+    const at = berlin('2025-06-12T01:00:00')
+    const held = step(medium, at, null)
+    expect(held.sends).toEqual([])
+    expect(held.notes[0]).toMatchObject({ kind: 'held', until: berlin('2025-06-12T05:30:00') })
+    expect(held.nextCheckAt).toBe(berlin('2025-06-12T05:30:00'))
+    expect(step(medium, berlin('2025-06-12T05:29:59'), held.track).sends).toEqual([])
+    const released = step(medium, berlin('2025-06-12T05:30:00'), held.track)
+    // 05:30 is still Wednesday's night shift (until 06:00): its first contact.
+    expect(released.sends.map(s => s.userId)).toEqual([2])
+    // Acknowledged before the end: nothing is sent.
+    expect(step({ ...medium, state: 'acknowledged' }, berlin('2025-06-12T05:30:00'), held.track).sends).toEqual([])
+    // A high-priority alarm is not held.
+    expect(step(alarm(), at, null).sends.map(s => s.userId)).toEqual([2])
+  })
+
+  it('announces again when an alarm is owed after it was answered (a shelve ended while active)', () => {
+    const first = step(alarm(), t0, null)
+    const shelved = step(alarm({ state: 'shelved' }), t0 + MIN, first.track)
+    const back = step(alarm(), t0 + 13 * MIN, shelved.track, [t0])
+    expect(back.sends.map(s => s.userId)).toEqual([2])
+  })
+
+  it('says so when nobody may be woken', () => {
+    const s = alertStep({ alarm: alarm(), now: t0, rules: rules(), people: [{ id: 9, role: 'viewer' }], track: null, announcedAt: [] })
+    expect(s.sends).toEqual([])
+    expect(s.notes[0]).toMatchObject({ kind: 'no-recipient' })
+  })
+})
+
+describe('trend nears tolerance (hysteresis)', () => {
+  const p = (m: number | null) => ({ levelUm: 0.5, minutesToSpecLimit: m })
+
+  it('raises below the threshold and clears only above threshold × 1.5', () => {
+    const seq = [40, 31, 29.9, 35, 44.9, 45, 45.1, 20]
+    let raised = false
+    const out = seq.map((m) => { const r = alertTrendStep(raised, p(m), 30, 1.5); raised = r.raised; return r.raised })
+    expect(out).toEqual([false, false, true, true, true, true, false, true])
+  })
+
+  it('clears when the trend no longer meets a limit, and keeps its state while the engine has no level', () => {
+    expect(alertTrendStep(true, p(null), 30, 1.5).raised).toBe(false)
+    expect(alertTrendStep(true, { levelUm: null, minutesToSpecLimit: null }, 30, 1.5)).toMatchObject({ raised: true, changed: false })
+    expect(alertTrendStep(false, null, 30, 1.5).raised).toBe(false)
+  })
+
+  it('never flaps: between a raise and the next clear the minutes went above 1.5 × threshold, and back below the threshold before a new raise', () => {
+    fc.assert(fc.property(fc.array(fc.option(fc.double({ min: 0, max: 120, noNaN: true }), { nil: null }), { maxLength: 200 }), fc.double({ min: 1, max: 60, noNaN: true }), (ms, T) => {
+      let raised = false
+      for (const m of ms) {
+        const r = alertTrendStep(raised, p(m), T, 1.5)
+        if (r.changed && r.raised) expect(m !== null && m < T).toBe(true)
+        if (r.changed && !r.raised) expect(m === null || m > 1.5 * T).toBe(true)
+        raised = r.raised
+      }
+    }))
+  })
+
+  it('uses the job threshold when there is one', () => {
+    const r = rules()
+    r.trend.perJob['OS-4471'] = 45
+    expect(alertTrendThreshold(r, 'OS-4471')).toBe(45)
+    expect(alertTrendThreshold(r, 'OS-1000')).toBe(30)
+    expect(alertTrendThreshold(r, null)).toBe(30)
+  })
+
+  it('refuses a threshold or clear factor that would break the hysteresis', () => {
+    expect(() => alertTrendStep(false, p(1), 0, 1.5)).toThrow(/threshold/)
+    expect(() => alertTrendStep(false, p(1), 30, 1)).toThrow(/clear factor/)
+  })
+})
+
+describe('bad rules are refused with the field named', () => {
+  it.each([
+    ['an unknown time zone', { timeZone: 'Mars/Olympus' }, /timeZone: unknown time zone/],
+    ['a gap between shifts', { shifts: [{ id: 'a', name: 'A', start: '06:00', end: '14:00' }] }, /no shift covers 00:00/],
+    ['overlapping shifts', { shifts: [{ id: 'a', name: 'A', start: '06:00', end: '18:00' }, { id: 'b', name: 'B', start: '17:00', end: '06:00' }] }, /shifts overlap at 17:00/],
+    ['an on-call entry for a missing shift', { onCall: [{ shiftId: 'noon', weekdays: [1], contacts: [2] }] }, /onCall.0.shiftId: no shift "noon"/],
+    ['an on-call entry without days', { onCall: [{ shiftId: 'night', contacts: [2] }] }, /give weekdays or a date/],
+    ['a time that is not HH:MM', { quietHours: { start: '11pm', end: '05:30' } }, /quietHours.start: use HH:MM/],
+    ['a clear factor of 1', { trend: { defaultThresholdMin: 30, perJob: {}, clearFactor: 1 } }, /trend.clearFactor/],
+  ])('%s', (_what, patch, message) => {
+    const r = alertParseRules({ ...alertDefaultRules(), ...patch })
+    expect('problems' in r && r.problems.join('\n')).toMatch(message)
+  })
+
+  it('accepts the defaults', () => {
+    expect('rules' in alertParseRules(alertDefaultRules('Europe/Berlin'))).toBe(true)
+  })
+})
