@@ -1,0 +1,269 @@
+// Replay: what would candidate compensation settings have done over a recorded run? Pure; the
+// browser runs it with the very engine the server runs (compensation.ts, one step per input).
+//
+// The recorded sizes y_k were ground with the offsets then in force u_k. The disturbance the
+// engine fought is r_k = y_k − b·u_k (b = the candidate's model gain). The candidate's own offsets
+// u'_k would have given y'_k = r_k + b·u'_k = y_k + b·(u'_k − u_k). A command reaches the parts
+// `lag` readings later (measured from the run: first reading carrying an acknowledged offset), so
+//   u'_k = u_k + (C[k − lag] − A[k − lag])
+// with A[p] / C[p] the offsets the machine had (recorded) / would have had (candidate) after
+// reading p. When the candidate commands exactly what ran, C − A is 0 and every reading, hence
+// every decision, is reproduced exactly (tests/unit/replay.test.ts).
+// Dresses, wheel changes and mastering happen where they happened: the recorded wheel cannot be
+// dressed at another time, so the candidate's dress requests are counted, not acted out.
+import { createCompensationState, stepCompensation, type CompensationDecision, type CompensationInput, type CompensationState } from './compensation'
+import { parseCompensationSettings, type CompensationSettingsInput } from './compensation-settings'
+import { spcWithinSigmaMovingRange } from './spc'
+import { csvReadRecords, type CsvProblem } from './csv'
+
+export type ReplayItem =
+  | { kind: 'reading', seq: number, time: number, deviationUm: number | null, status: string, roundnessUm?: number | null, offsetUm: number }
+  | { kind: 'event', seq: number, time: number, type: 'dress' | 'wheel-change' | 'mastered' | 'restart' }
+  /** the machine reports this offset in force after a command (its acknowledgement) */
+  | { kind: 'offset-applied', seq: number, time: number, offsetUm: number }
+
+export interface ReplayOptions {
+  /** offset in force at the start (default: the first reading's) */
+  initialOffsetUm?: number
+  /** readings between a command and the first part ground with it (default: measured, else pipeline + 1) */
+  lagParts?: number
+  /** act on commands the engine gives in answer to events (the server does; the headless simulator loop does not) */
+  commandsOnEvents?: boolean
+  /** keep every decision (tests); off by default to save memory */
+  keepDecisions?: boolean
+}
+
+export interface ReplaySide {
+  /** size per reading (µm), null where the gauge gave none */
+  sizes: (number | null)[]
+  /** offset in force per reading (axis µm) */
+  offsets: number[]
+  commands: { seq: number, offsetUm: number, stepUm: number }[]
+  dresses: number
+  stops: number
+  summary: ReplaySummary
+}
+
+export interface ReplaySummary {
+  parts: number
+  rmsUm: number
+  rmsOverSigma: number
+  outOfTolerance: number
+  commands: number
+  largestStepUm: number
+  dresses: number
+  stops: number
+}
+
+export interface ReplayResult {
+  seqs: number[]
+  times: number[]
+  actual: ReplaySide
+  candidate: ReplaySide
+  /** σ of the disturbance from its moving range (short-term noise), the yardstick of RMS ÷ σ */
+  sigmaUm: number
+  lagParts: number
+  limits: { targetUm: number, upperSpecUm: number, lowerSpecUm: number, upperCompUm: number, lowerCompUm: number }
+  finalState: CompensationState
+  decisions?: CompensationDecision[]
+}
+
+const round3 = (x: number) => Math.round(x * 1000) / 1000
+
+/** Readings between an acknowledged offset and the first reading ground with it (median), or null. */
+export function replayMeasuredLag(items: readonly ReplayItem[]): number | null {
+  const lags: number[] = []
+  let readingIndex = -1
+  const readings: { index: number, offsetUm: number }[] = []
+  const acks: { afterReading: number, offsetUm: number }[] = []
+  for (const it of items) {
+    if (it.kind === 'reading') readings.push({ index: ++readingIndex, offsetUm: it.offsetUm })
+    else if (it.kind === 'offset-applied') acks.push({ afterReading: readingIndex, offsetUm: it.offsetUm })
+  }
+  let r = 0
+  for (const a of acks) {
+    while (r < readings.length && readings[r]!.index <= a.afterReading) r++
+    for (let k = r; k < readings.length && k - a.afterReading <= 30; k++) {
+      if (Math.abs(readings[k]!.offsetUm - a.offsetUm) < 1e-9) { lags.push(k - a.afterReading); break }
+    }
+  }
+  if (!lags.length) return null
+  lags.sort((x, y) => x - y)
+  return lags[Math.floor(lags.length / 2)]!
+}
+
+export function replayRun(settingsInput: CompensationSettingsInput, items: readonly ReplayItem[], options: ReplayOptions = {}): ReplayResult {
+  const settings = parseCompensationSettings(settingsInput)
+  const firstReading = items.find(i => i.kind === 'reading') as Extract<ReplayItem, { kind: 'reading' }> | undefined
+  const initial = options.initialOffsetUm ?? firstReading?.offsetUm ?? 0
+  const lag = options.lagParts ?? replayMeasuredLag(items) ?? settings.pipelineParts + 1
+  const gain = settings.gain
+  const commandsOnEvents = options.commandsOnEvents ?? true
+
+  let state = createCompensationState(settings, { offsetUm: initial })
+  const decisions: CompensationDecision[] | undefined = options.keepDecisions ? [] : undefined
+
+  const seqs: number[] = []
+  const times: number[] = []
+  const actual: ReplaySide = emptySide()
+  const candidate: ReplaySide = emptySide()
+  // Offsets after each reading's slot (its acknowledgement included): A recorded, C candidate.
+  const afterA: number[] = []
+  const afterC: number[] = []
+  let a = initial
+  let c = initial
+  let pendingAck: number | null = null // candidate offset the machine would acknowledge next
+  let dressAsked = false
+  let stopAsked = false
+  let actualStop = false
+  let actualRun = 0 // recorded parts out of tolerance in a row (the engine's stop rule)
+
+  const feed = (input: CompensationInput, fromEvent: boolean) => {
+    const r = stepCompensation(state, input)
+    state = r.state
+    const d = r.decision
+    decisions?.push(d)
+    if (d.kind === 'ignored') return
+    if (d.command && (!fromEvent || commandsOnEvents)) {
+      const value = round3(d.command.newOffsetUm)
+      candidate.commands.push({ seq: d.seq ?? seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pendingAck ?? c) })
+      pendingAck = value
+    }
+    if (d.dress.now && !dressAsked) { dressAsked = true; candidate.dresses++ }
+    if (d.stop && !stopAsked) { stopAsked = true; candidate.stops++ }
+    if (!d.stop) stopAsked = false
+  }
+  const deliverAck = () => {
+    if (pendingAck === null) return
+    c = pendingAck
+    pendingAck = null
+    feed({ type: 'offset-applied', offsetUm: c }, true)
+  }
+
+  let readingIndex = -1
+  for (const it of items) {
+    if (it.kind === 'offset-applied') {
+      if (Math.abs(it.offsetUm - a) > 1e-12) actual.commands.push({ seq: it.seq, offsetUm: it.offsetUm, stepUm: it.offsetUm - a })
+      a = it.offsetUm
+      deliverAck() // the candidate's acknowledgement comes where the recorded one came
+      if (readingIndex >= 0) { afterA[readingIndex] = a; afterC[readingIndex] = c }
+      continue
+    }
+    if (it.kind === 'event') {
+      if (it.type === 'dress') { actual.dresses++; dressAsked = false }
+      const type = it.type === 'mastered' ? 'mastered' : it.type
+      feed({ type, time: it.time } as CompensationInput, true)
+      continue
+    }
+    // A reading: the candidate's acknowledgement has come by now at the latest.
+    deliverAck()
+    readingIndex++
+    const p = readingIndex - lag
+    const delta = p >= 0 ? afterC[p]! - afterA[p]! : 0
+    const u = delta === 0 ? it.offsetUm : it.offsetUm + delta
+    const y = it.deviationUm === null || delta === 0 ? it.deviationUm : it.deviationUm + gain * delta
+    seqs.push(it.seq)
+    times.push(it.time)
+    actual.sizes.push(it.deviationUm)
+    actual.offsets.push(it.offsetUm)
+    candidate.sizes.push(y)
+    candidate.offsets.push(u)
+    feed({
+      type: 'reading', seq: it.seq, time: it.time, deviationUm: y, status: it.status,
+      ...(it.roundnessUm != null ? { roundnessUm: it.roundnessUm } : {}),
+      offsetInForceUm: u,
+    }, false)
+    if (it.status !== 'ok' || it.deviationUm === null) { /* no size */ }
+    else if (it.deviationUm > settings.upperSpecUm || it.deviationUm < settings.lowerSpecUm) {
+      if (!actualStop && ++actualRun >= settings.stopAfterOutOfTolerance) { actualStop = true; actual.stops++ }
+    }
+    else { actualRun = 0; actualStop = false }
+    afterA[readingIndex] = a
+    afterC[readingIndex] = c
+  }
+  deliverAck()
+
+  // Noise floor: short-term σ of the disturbance (moving range / d2, d2 = 1.128 for n = 2).
+  const disturbance: number[] = []
+  for (let k = 0; k < actual.sizes.length; k++) {
+    const y = actual.sizes[k]
+    if (y !== null && Number.isFinite(y)) disturbance.push(y - gain * actual.offsets[k]!)
+  }
+  const sigmaUm = disturbance.length >= 2 ? spcWithinSigmaMovingRange(disturbance) : Number.NaN
+  actual.summary = summarise(actual, settings, sigmaUm)
+  candidate.summary = summarise(candidate, settings, sigmaUm)
+  return {
+    seqs, times, actual, candidate, sigmaUm, lagParts: lag,
+    limits: { targetUm: settings.targetUm, upperSpecUm: settings.upperSpecUm, lowerSpecUm: settings.lowerSpecUm, upperCompUm: settings.upperCompUm, lowerCompUm: settings.lowerCompUm },
+    finalState: state,
+    ...(decisions ? { decisions } : {}),
+  }
+}
+
+function emptySide(): ReplaySide {
+  return { sizes: [], offsets: [], commands: [], dresses: 0, stops: 0, summary: { parts: 0, rmsUm: 0, rmsOverSigma: 0, outOfTolerance: 0, commands: 0, largestStepUm: 0, dresses: 0, stops: 0 } }
+}
+
+function summarise(side: ReplaySide, s: { targetUm: number, upperSpecUm: number, lowerSpecUm: number }, sigmaUm: number): ReplaySummary {
+  let n = 0
+  let sq = 0
+  let out = 0
+  for (const y of side.sizes) {
+    if (y === null || !Number.isFinite(y)) continue
+    n++
+    sq += (y - s.targetUm) ** 2
+    if (y > s.upperSpecUm || y < s.lowerSpecUm) out++
+  }
+  const rms = n ? Math.sqrt(sq / n) : Number.NaN
+  return {
+    parts: n, rmsUm: rms, rmsOverSigma: rms / sigmaUm, outOfTolerance: out,
+    commands: side.commands.length,
+    largestStepUm: side.commands.reduce((m, c) => Math.max(m, Math.abs(c.stepUm)), 0),
+    dresses: side.dresses, stops: side.stops,
+  }
+}
+
+// ── Gauge CSV (a stand-alone gauge's export) ──────────────────────────────────────────────────
+
+/**
+ * Reads a gauge CSV into replay readings. Header names (any order): deviation_um (required: size
+ * minus nominal, µm), time (ISO 8601 or ms since epoch; optional), offset_um (offset in force,
+ * optional, default 0), status (ok or a fault word; optional), roundness_um (optional).
+ */
+export function replayItemsFromGaugeCsv(text: string): { items: ReplayItem[], problems: CsvProblem[] } {
+  const { records, problems } = csvReadRecords(text)
+  const items: ReplayItem[] = []
+  const header = records.shift()
+  if (!header) return { items, problems: [...problems, { line: 1, reason: 'the file is empty: it needs a header row with deviation_um' }] }
+  const names = header.cells.map(c => c.trim().toLowerCase())
+  const col = (n: string) => names.indexOf(n)
+  const known = ['deviation_um', 'time', 'offset_um', 'status', 'roundness_um']
+  const unknown = names.filter(n => !known.includes(n))
+  if (col('deviation_um') < 0) problems.push({ line: header.line, reason: 'missing column deviation_um' })
+  if (unknown.length) problems.push({ line: header.line, reason: `unknown column ${unknown.map(u => `"${u}"`).join(', ')} (known: ${known.join(', ')})` })
+  if (problems.length) return { items, problems }
+  let seq = 0
+  for (const rec of records) {
+    if (rec.cells.length !== names.length) { problems.push({ line: rec.line, reason: `has ${rec.cells.length} fields, the header has ${names.length}` }); continue }
+    const cell = (n: string) => (col(n) >= 0 ? rec.cells[col(n)]!.trim() : '')
+    const why: string[] = []
+    const status = cell('status') || 'ok'
+    const devText = cell('deviation_um')
+    const dev = devText === '' ? null : Number(devText)
+    if (dev !== null && !Number.isFinite(dev)) why.push(`deviation_um "${devText}" is not a number`)
+    if (dev === null && status === 'ok') why.push('deviation_um is empty but status is ok')
+    const offText = cell('offset_um')
+    const off = offText === '' ? 0 : Number(offText)
+    if (!Number.isFinite(off)) why.push(`offset_um "${offText}" is not a number`)
+    const timeText = cell('time')
+    const time = timeText === '' ? seq * 20_000 : /^\d+$/.test(timeText) ? Number(timeText) : Date.parse(timeText)
+    if (!Number.isFinite(time)) why.push(`time "${timeText}" is neither ISO 8601 nor milliseconds`)
+    const rText = cell('roundness_um')
+    const roundness = rText === '' ? null : Number(rText)
+    if (roundness !== null && !Number.isFinite(roundness)) why.push(`roundness_um "${rText}" is not a number`)
+    if (why.length) { problems.push({ line: rec.line, reason: why.join('; ') }); continue }
+    items.push({ kind: 'reading', seq: ++seq, time, deviationUm: dev, status, roundnessUm: roundness, offsetUm: off })
+  }
+  if (!items.length && !problems.length) problems.push({ line: header.line, reason: 'the file has a header but no readings' })
+  return { items, problems }
+}
