@@ -124,7 +124,11 @@ export class IngestPipeline {
       }
     })()
     try { await this.flushing }
-    finally { this.flushing = null }
+    finally {
+      this.flushing = null
+      // Arrivals during the last commit's after-work found a flush running and set no timer.
+      if (this.queue.length) this.kick(0)
+    }
   }
 
   /** Waits until everything queued so far is committed. */
