@@ -229,3 +229,46 @@ export const alarmTransitions = sqliteTable('alarm_transitions', {
   where: text('where').notNull(), // system | web <address> | station:<machine>
   note: text('note'),
 }, t => [index('alarm_transitions_alarm').on(t.alarmId), index('alarm_transitions_at').on(t.at)])
+
+// ── Notifications: push devices, VAPID keys, escalation state, delivery log ────────────────
+
+/** The server's VAPID key pair (RFC 8292), made once at first start. One row, id 1. */
+export const vapidKeys = sqliteTable('vapid_keys', {
+  id: integer('id').primaryKey(),
+  publicKey: text('public_key').notNull(),
+  privateKey: text('private_key').notNull(),
+  createdAt: integer('created_at').notNull(),
+})
+
+/** A browser subscribed to Web Push for one user (one row per device). */
+export const pushSubscriptions = sqliteTable('push_subscriptions', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  userId: integer('user_id').notNull().references(() => users.id),
+  endpoint: text('endpoint').notNull(),
+  p256dh: text('p256dh').notNull(),
+  auth: text('auth').notNull(),
+  label: text('label').notNull(),
+  createdAt: integer('created_at').notNull(),
+  lastSentAt: integer('last_sent_at'),
+  lastError: text('last_error'),
+}, t => [uniqueIndex('push_subscriptions_endpoint').on(t.endpoint), index('push_subscriptions_user').on(t.userId)])
+
+/** The router's memory of each alarm it is waking people for (shared/utils/alert-routing.ts AlertTrack). */
+export const alertTracks = sqliteTable('alert_tracks', {
+  alarmId: integer('alarm_id').primaryKey().references(() => alarms.id),
+  track: text('track', { mode: 'json' }).notNull(),
+  updatedAt: integer('updated_at').notNull(),
+})
+
+/** Every alert outcome: sent, failed, gone, clicked, acknowledged, held, duplicate, rate-limited… */
+export const notificationDeliveries = sqliteTable('notification_deliveries', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  at: integer('at').notNull(),
+  alarmId: integer('alarm_id'), // null for a test notification
+  userId: integer('user_id'),
+  channel: text('channel').notNull(), // push | email | none
+  level: integer('level').notNull().default(0), // escalation level
+  status: text('status').notNull(),
+  subscriptionId: integer('subscription_id'),
+  detail: text('detail'),
+}, t => [index('notification_deliveries_alarm').on(t.alarmId), index('notification_deliveries_at').on(t.at)])
