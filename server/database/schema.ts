@@ -65,6 +65,9 @@ export const jobs = sqliteTable('jobs', {
   cycleTimeS: integer('cycle_time_s').notNull().default(20),
   archived: integer('archived', { mode: 'boolean' }).notNull().default(false),
   createdAt: integer('created_at').notNull(),
+  lengthMm: text('length_mm'), // optional part length, decimal text
+  lengthUpperTolNm: integer('length_upper_tol_nm'),
+  lengthLowerTolNm: integer('length_lower_tol_nm'),
 }, t => [uniqueIndex('jobs_part_number_unique').on(t.partNumber)])
 
 export const machines = sqliteTable('machines', {
@@ -272,3 +275,25 @@ export const notificationDeliveries = sqliteTable('notification_deliveries', {
   subscriptionId: integer('subscription_id'),
   detail: text('detail'),
 }, t => [index('notification_deliveries_alarm').on(t.alarmId), index('notification_deliveries_at').on(t.at)])
+
+// ── Jobs: compensation settings with history ──────────────────────────────────────────────
+
+/** Versions of a job's compensation tuning (job-wide, or one machine's override). One active
+ *  version per job and scope; drafts are edited, active and retired ones never change. */
+export const compensationSettings = sqliteTable('compensation_settings', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  jobId: integer('job_id').notNull().references(() => jobs.id),
+  machineId: text('machine_id').references(() => machines.id), // null: every machine on the job
+  version: integer('version').notNull(), // 1, 2, … per job
+  status: text('status', { enum: ['draft', 'active', 'retired'] }).notNull(),
+  /** the tuning (shared/utils/compensation-tuning.ts), checked with the engine's settings schema */
+  settings: text('settings', { mode: 'json' }).$type<Record<string, unknown>>().notNull(),
+  note: text('note'),
+  reason: text('reason'), // why it was put in force
+  createdBy: integer('created_by').notNull(),
+  createdAt: integer('created_at').notNull(),
+  updatedAt: integer('updated_at').notNull(),
+  activatedBy: integer('activated_by'),
+  activatedAt: integer('activated_at'),
+  retiredAt: integer('retired_at'),
+}, t => [uniqueIndex('compensation_settings_job_version').on(t.jobId, t.version), index('compensation_settings_job_status').on(t.jobId, t.status)])
