@@ -20,6 +20,7 @@ export const alarmCatalogue: Record<string, AlarmKind> = {
   'engine:offset-range-limit': { priority: 2, latching: false, title: 'Offset at its allowed limit', steps: ['Dress or change the wheel; compensation cannot go further.'] },
   'engine:budget-used-up': { priority: 3, latching: false, title: 'Compensation budget since dress used up', steps: ['Dress the wheel.'] },
   'engine:trend-near-limit': { priority: 3, latching: false, title: 'Size trend nears tolerance', steps: ['Watch the trend; dress if the wheel is due.'] },
+  'trend:nears-tolerance': { priority: 2, latching: false, title: 'Size will meet tolerance soon', steps: ['Open the machine and read the minutes left on its trend.', 'Dress the wheel or correct the offset before the size meets the limit.', 'Acknowledge, so the next person on call is not woken.'] },
   'engine:settings': { priority: 2, latching: false, title: 'Compensation off: settings not valid', steps: ['Check the job\'s tolerance and compensation settings.'] },
   'machine:stopped': { priority: 3, latching: false, title: 'Machine stopped', steps: ['Find why it stopped in the event log.'] },
   'link:offline': { priority: 3, latching: false, title: 'Machine offline', steps: ['Check the machine\'s network and its adapter.'] },

@@ -24,4 +24,15 @@ export const routeAccess: Record<string, RouteRule> = {
   'users/[id]/index.patch.ts': { access: ['admin'], params: { id: '5' } },
   'users/[id]/password.post.ts': { access: ['admin'], params: { id: '5' } },
   'audit.get.ts': { access: ['admin'] },
+  // Notifications
+  'push/key.get.ts': { access: 'signed-in' },
+  'push/subscribe.post.ts': { access: 'signed-in' },
+  'push/unsubscribe.post.ts': { access: 'signed-in' },
+  'push/devices.get.ts': { access: 'signed-in' },
+  'push/clicked.post.ts': { access: 'signed-in' },
+  'push/test.post.ts': { access: 'signed-in' },
+  'notifications/rules.get.ts': { access: ['admin', 'lead', 'engineer'] },
+  'notifications/rules.put.ts': { access: ['admin'] },
+  'notifications/on-call.get.ts': { access: 'signed-in' },
+  'notifications/deliveries.get.ts': { access: ['admin', 'lead', 'engineer'] },
 }

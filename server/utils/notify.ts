@@ -1,0 +1,282 @@
+// Notifications: listens to alarm transitions and machine status on the live bus, asks the
+// routing rules (shared/utils/alert-routing.ts) who to wake, delivers by Web Push and e-mail, and
+// writes every outcome to the delivery log. Also raises "trend nears tolerance" (with hysteresis)
+// from the compensation engine's predictions, as an alarm through the alarm engine's public entry,
+// so it is acknowledged, escalated and logged like any other alarm.
+import { and, desc, eq, gte, inArray } from 'drizzle-orm'
+import { z } from 'zod'
+import type { Agent } from 'node:https'
+import type { AlarmPriority } from '#shared/utils/alarm-model'
+import {
+  alertDefaultRules, alertParseRules, alertStep, alertTrendStep, alertTrendThreshold,
+  type AlertAlarm, type AlertRoutingRules, type AlertSend, type AlertTrack,
+} from '#shared/utils/alert-routing'
+import { alertEmail, alertPushPayload, type AlertMessageInput } from '#shared/utils/alert-message'
+import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'
+import { sendMail } from './mailer'
+
+export const TREND_CONDITION = 'trend:nears-tolerance'
+const RULES_KEY = 'alert-routing'
+const SWEEP_MS = 30_000
+
+const envSchema = z.object({
+  OWLSHIFT_PUBLIC_URL: z.string().url('must be the address people open, e.g. https://owlshift.plant.example').default('http://localhost:3000'),
+  OWLSHIFT_PUSH_CONTACT: z.string().regex(/^(mailto:|https:)/, 'must start with mailto: or https: (RFC 8292)').default('mailto:owlshift@localhost'),
+})
+export function notifySettings(env: Record<string, string | undefined> = process.env) {
+  const parsed = envSchema.safeParse(Object.fromEntries(Object.entries(env).filter(([k, v]) => k.startsWith('OWLSHIFT_P') && v !== '')))
+  if (!parsed.success) throw new Error(`Owlshift notifications: ${parsed.error.issues.map(i => `${i.path.join('.')} ${i.message}`).join('; ')}`)
+  return { publicUrl: parsed.data.OWLSHIFT_PUBLIC_URL, pushContact: parsed.data.OWLSHIFT_PUSH_CONTACT }
+}
+
+type AlarmView = ReturnType<typeof alarmView>
+type DeliveryRow = typeof schema.notificationDeliveries.$inferInsert
+
+let vapid: VapidKeys | null = null
+let rules: AlertRoutingRules | null = null
+const tracks = new Map<number, AlertTrack>()
+const announced = new Map<string, number[]>() // machine|condition → level-0 announcement times
+const timers = new Map<number, NodeJS.Timeout>()
+const trendRaised = new Map<string, boolean>()
+let chain: Promise<unknown> = Promise.resolve()
+let stopFns: (() => void)[] = []
+let pushAgent: Agent | undefined
+
+function serial<T>(fn: () => Promise<T>): Promise<T> {
+  const next = chain.then(fn, fn)
+  chain = next.catch(err => console.error('[notify]', err))
+  return next
+}
+const keyOf = (a: { machineId: string | null, condition: string }) => `${a.machineId ?? '-'}|${a.condition}`
+
+// ---------------------------------------------------------------- keys and rules
+
+/** The VAPID key pair: made once at first start and kept in the database. */
+export async function useVapidKeys(): Promise<VapidKeys> {
+  if (vapid) return vapid
+  const db = useDb()
+  const subject = notifySettings().pushContact
+  let [row] = await db.select().from(schema.vapidKeys).where(eq(schema.vapidKeys.id, 1))
+  if (!row) {
+    const k = newVapidKeys()
+    await db.insert(schema.vapidKeys).values({ id: 1, publicKey: k.publicKey, privateKey: k.privateKey, createdAt: Date.now() }).onConflictDoNothing()
+    ;[row] = await db.select().from(schema.vapidKeys).where(eq(schema.vapidKeys.id, 1))
+  }
+  vapid = { publicKey: row!.publicKey, privateKey: row!.privateKey, subject }
+  return vapid
+}
+
+export async function loadAlertRules(): Promise<AlertRoutingRules> {
+  if (rules) return rules
+  const db = useDb()
+  const [row] = await db.select().from(schema.settingsKv).where(eq(schema.settingsKv.key, RULES_KEY))
+  if (row) {
+    const parsed = alertParseRules(row.value)
+    if ('rules' in parsed) return (rules = parsed.rules)
+    console.warn(`[notify] stored routing rules are not valid (${parsed.problems.join('; ')}); using the defaults until an admin saves new ones`)
+  }
+  const [cell] = await db.select().from(schema.cells).limit(1)
+  return (rules = alertDefaultRules(cell?.timeZone ?? 'UTC'))
+}
+
+export async function saveAlertRules(next: AlertRoutingRules) {
+  await useDb().insert(schema.settingsKv).values({ key: RULES_KEY, value: next }).onConflictDoUpdate({ target: schema.settingsKv.key, set: { value: next } })
+  rules = next
+}
+
+// ---------------------------------------------------------------- the router
+
+async function people() {
+  return useDb().select({ id: schema.users.id, role: schema.users.role, disabled: schema.users.disabled, email: schema.users.email, name: schema.users.name }).from(schema.users)
+}
+
+function toAlertAlarm(a: AlarmView): AlertAlarm {
+  return { id: a.id, machineId: a.machineId, condition: a.condition, priority: a.priority as AlarmPriority, state: a.state, active: a.active, latching: a.latching, activations: a.activations }
+}
+
+async function saveTrack(t: AlertTrack) {
+  tracks.set(t.alarmId, t)
+  await useDb().insert(schema.alertTracks).values({ alarmId: t.alarmId, track: t, updatedAt: Date.now() })
+    .onConflictDoUpdate({ target: schema.alertTracks.alarmId, set: { track: t, updatedAt: Date.now() } })
+}
+
+async function logRows(rows: DeliveryRow[]): Promise<number[]> {
+  if (!rows.length) return []
+  const out = await useDb().insert(schema.notificationDeliveries).values(rows).returning({ id: schema.notificationDeliveries.id })
+  return out.map(r => r.id)
+}
+
+/** One alarm view through the router, at `now`. Serialised with every other router call. */
+export function routeAlarm(a: AlarmView, now = Date.now()) {
+  return serial(() => routeAlarmNow(a, now))
+}
+
+async function routeAlarmNow(a: AlarmView, now: number) {
+  const r = await loadAlertRules()
+  const before = tracks.get(a.id) ?? null
+  const key = keyOf(a)
+  const ppl = await people()
+  const result = alertStep({ alarm: toAlertAlarm(a), now, rules: r, people: ppl, track: before, announcedAt: announced.get(key) ?? [] })
+  if (result.track && result.track !== before) await saveTrack(result.track)
+  const rows: DeliveryRow[] = result.notes.map(n => ({
+    at: now, alarmId: a.id, userId: null, channel: 'none', level: result.track?.level ?? 0, status: n.kind, detail: n.why,
+  }))
+  // Acknowledged while we were waking people: log who answered.
+  if (before && !before.done && a.state !== 'unacknowledged' && result.track?.done && (a.state === 'acknowledged' || a.state === 'latched' || a.state === 'normal')) {
+    const [t] = await useDb().select().from(schema.alarmTransitions).where(and(eq(schema.alarmTransitions.alarmId, a.id), eq(schema.alarmTransitions.action, 'acknowledge'))).orderBy(desc(schema.alarmTransitions.at)).limit(1)
+    if (t) rows.push({ at: t.at, alarmId: a.id, userId: t.userId, channel: 'none', level: before.level, status: 'acknowledged', detail: `acknowledged (${t.where}) ${Math.round((t.at - before.levelAt) / 1000)} s after the last alert` })
+  }
+  await logRows(rows)
+  if (result.sends.length) {
+    if (result.sends.some(s => s.level === 0)) announced.set(key, [...(announced.get(key) ?? []).filter(t => t > now - 24 * 3600_000), now])
+    await deliver(a, result.sends, ppl, r, now)
+  }
+  schedule(a.id, result.nextCheckAt, now)
+}
+
+function schedule(alarmId: number, at: number | null, now: number) {
+  const old = timers.get(alarmId)
+  if (old) clearTimeout(old)
+  timers.delete(alarmId)
+  if (at === null) return
+  const t = setTimeout(() => { timers.delete(alarmId); void recheck(alarmId) }, Math.max(250, at - now))
+  t.unref()
+  timers.set(alarmId, t)
+}
+
+async function recheck(alarmId: number) {
+  const [row] = await useDb().select().from(schema.alarms).where(eq(schema.alarms.id, alarmId))
+  if (row) await routeAlarm(alarmView(row))
+}
+
+/** Looks again at every alarm still being escalated (after a restart, or a missed timer). */
+export async function sweepAlerts() {
+  const open = [...tracks.values()].filter(t => !t.done && !t.exhausted).map(t => t.alarmId)
+  if (!open.length) return
+  const rows = await useDb().select().from(schema.alarms).where(inArray(schema.alarms.id, open))
+  for (const row of rows) await routeAlarm(alarmView(row))
+}
+
+// ---------------------------------------------------------------- delivery
+
+async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType<typeof people>>, r: AlertRoutingRules, now: number) {
+  const db = useDb()
+  const keys = await useVapidKeys()
+  const machine = a.machineId ? machineContext(a.machineId) : undefined
+  const msgBase: Omit<AlertMessageInput, 'level' | 'why'> = {
+    alarmId: a.id, machineId: a.machineId, machineName: machine?.name ?? null, title: a.title, message: a.message,
+    priority: a.priority as AlarmPriority, steps: a.steps, raisedAt: a.raisedAt,
+  }
+  const { publicUrl } = notifySettings()
+  for (const s of sends) {
+    const person = ppl.find(p => p.id === s.userId)
+    if (!person) continue
+    const msg: AlertMessageInput = { ...msgBase, level: s.level, why: s.why }
+    if (s.push) {
+      const subs = await db.select().from(schema.pushSubscriptions).where(eq(schema.pushSubscriptions.userId, s.userId))
+      if (!subs.length) await logRows([{ at: now, alarmId: a.id, userId: s.userId, channel: 'push', level: s.level, status: 'failed', detail: 'no device subscribed; in-page only' }])
+      for (const sub of subs) {
+        // Log first, so the notification can carry its delivery id (clicks are logged against it).
+        const [id] = await logRows([{ at: now, alarmId: a.id, userId: s.userId, channel: 'push', level: s.level, status: 'sending', subscriptionId: sub.id, detail: s.why }])
+        const payload = JSON.stringify(alertPushPayload(msg, id!))
+        const out = await sendWebPush({ endpoint: sub.endpoint, p256dh: sub.p256dh, auth: sub.auth }, payload, keys, {
+          urgency: a.priority <= 2 ? 'high' : 'normal', ttlS: a.priority <= 2 ? 3600 : 4 * 3600, topic: `alarm-${a.id}`, agent: pushAgent,
+        })
+        const status = out.outcome === 'sent' ? 'sent' : out.outcome === 'gone' ? 'gone' : 'failed'
+        await db.update(schema.notificationDeliveries).set({ status, detail: out.outcome === 'sent' ? `${s.why} · HTTP ${out.status}` : `${out.detail} (HTTP ${out.status ?? '—'})` }).where(eq(schema.notificationDeliveries.id, id!))
+        if (out.outcome === 'gone') await db.delete(schema.pushSubscriptions).where(eq(schema.pushSubscriptions.id, sub.id))
+        else await db.update(schema.pushSubscriptions).set(out.outcome === 'sent' ? { lastSentAt: now, lastError: null } : { lastError: out.detail }).where(eq(schema.pushSubscriptions.id, sub.id))
+      }
+    }
+    if (s.email) {
+      const mail = alertEmail(msg, publicUrl, r.timeZone)
+      const out = await sendMail({ to: person.email, ...mail })
+      await logRows([{ at: now, alarmId: a.id, userId: s.userId, channel: 'email', level: s.level, status: out.ok ? 'sent' : 'failed', detail: out.ok ? `${s.why} · ${out.messageId}` : out.detail }])
+    }
+  }
+}
+
+/** A test notification to each of a user's devices (from the profile page); logged like any other. */
+export async function sendTestPush(userId: number, subs: (typeof schema.pushSubscriptions.$inferSelect)[]) {
+  const db = useDb()
+  const keys = await useVapidKeys()
+  const now = Date.now()
+  const results: { id: number, label: string, outcome: string }[] = []
+  for (const sub of subs) {
+    const [id] = await logRows([{ at: now, alarmId: null, userId, channel: 'push', level: 0, status: 'sending', subscriptionId: sub.id, detail: 'test notification' }])
+    const payload = JSON.stringify({ title: 'Owlshift test alert', body: 'Alerts reach this device.', url: '/me', alarmId: null, deliveryId: id, tag: 'owlshift-test', priority: 4, requireInteraction: false })
+    const out = await sendWebPush({ endpoint: sub.endpoint, p256dh: sub.p256dh, auth: sub.auth }, payload, keys, { ttlS: 300, agent: pushAgent })
+    const status = out.outcome === 'sent' ? 'sent' : out.outcome === 'gone' ? 'gone' : 'failed'
+    await db.update(schema.notificationDeliveries).set({ status, detail: out.outcome === 'sent' ? 'test notification' : out.detail }).where(eq(schema.notificationDeliveries.id, id!))
+    if (out.outcome === 'gone') await db.delete(schema.pushSubscriptions).where(eq(schema.pushSubscriptions.id, sub.id))
+    results.push({ id: sub.id, label: sub.label, outcome: status })
+  }
+  return results
+}
+
+/** A notification was opened on a device: logged against its delivery (only by its own user). */
+export async function recordClick(deliveryId: number, userId: number): Promise<boolean> {
+  const db = useDb()
+  const [d] = await db.select().from(schema.notificationDeliveries).where(eq(schema.notificationDeliveries.id, deliveryId))
+  if (!d || d.userId !== userId) return false
+  await logRows([{ at: Date.now(), alarmId: d.alarmId, userId, channel: d.channel, level: d.level, status: 'clicked', subscriptionId: d.subscriptionId, detail: `opened delivery ${deliveryId}` }])
+  return true
+}
+
+// ---------------------------------------------------------------- trend nears tolerance
+
+async function watchTrend(machineId: string, status: Record<string, unknown>, now: number) {
+  const r = await loadAlertRules()
+  const was = trendRaised.get(machineId) ?? false
+  const prediction = status.prediction as { levelUm: number | null, minutesToSpecLimit: number | null } | null
+  const part = (status.jobPartNumber as string | null) ?? null
+  const step = alertTrendStep(was, prediction, alertTrendThreshold(r, part), r.trend.clearFactor)
+  trendRaised.set(machineId, step.raised)
+  if (!step.changed) return
+  const name = machineContext(machineId)?.name ?? machineId
+  await applyAlarmConditions([{ machineId, condition: TREND_CONDITION, active: step.raised, message: `${name}: ${step.message}`, at: now }])
+}
+
+// ---------------------------------------------------------------- start and stop
+
+export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
+  pushAgent = opts.pushAgent
+  notifySettings() // fail early on bad settings
+  await useVapidKeys()
+  await loadAlertRules()
+  const db = useDb()
+  // Resume: open tracks, recent announcements, and trends already raised.
+  const trackRows = await db.select().from(schema.alertTracks)
+  for (const t of trackRows) tracks.set(t.alarmId, t.track as AlertTrack)
+  const recent = await db.select({ at: schema.notificationDeliveries.at, machineId: schema.alarms.machineId, condition: schema.alarms.condition })
+    .from(schema.notificationDeliveries).innerJoin(schema.alarms, eq(schema.alarms.id, schema.notificationDeliveries.alarmId))
+    .where(and(gte(schema.notificationDeliveries.at, Date.now() - 24 * 3600_000), eq(schema.notificationDeliveries.level, 0), inArray(schema.notificationDeliveries.status, ['sent', 'failed'])))
+  for (const d of recent) {
+    const k = keyOf(d)
+    const times = announced.get(k) ?? []
+    if (!times.includes(d.at)) announced.set(k, [...times, d.at])
+  }
+  const openTrend = await db.select({ machineId: schema.alarms.machineId, active: schema.alarms.active }).from(schema.alarms)
+    .where(and(eq(schema.alarms.condition, TREND_CONDITION)))
+  for (const o of openTrend) if (o.machineId && o.active) trendRaised.set(o.machineId, true)
+
+  stopFns.push(onLive((e) => {
+    const now = Date.now()
+    if (e.type === 'alarm') void routeAlarm(e.alarm as unknown as AlarmView, now)
+    else if (e.type === 'status') void serial(() => watchTrend(e.machineId, e.status, now))
+  }))
+  const sweep = setInterval(() => { void sweepAlerts() }, SWEEP_MS)
+  sweep.unref()
+  stopFns.push(() => clearInterval(sweep))
+  await sweepAlerts()
+}
+
+export function stopNotifications() {
+  for (const f of stopFns) f()
+  stopFns = []
+  for (const t of timers.values()) clearTimeout(t)
+  timers.clear()
+}
+
+/** Forget cached keys and rules (after an admin change from another process, and in tests). */
+export function resetNotifyCache() { rules = null; vapid = null }

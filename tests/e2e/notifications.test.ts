@@ -1,0 +1,178 @@
+// Notifications end to end, against local fakes that speak the real protocols: a push service over
+// HTTPS (self-signed certificate trusted through NODE_EXTRA_CA_CERTS; VAPID verified, aes128gcm
+// decrypted) and an SMTP catcher (smtp-server + mailparser). A drifting machine over MQTT raises
+// "trend nears tolerance" before any part leaves the tolerance; the on-call lead gets a push; left
+// unacknowledged it escalates to the engineer by push and e-mail; a gone subscription is deleted;
+// the delivery log shows sent, gone, clicked and acknowledged. Then the service worker's push
+// handler in Chromium, driven through the DevTools protocol (ServiceWorker.deliverPushMessage).
+import { describe, it, expect, beforeAll, afterAll } from 'vitest'
+import { url, createPage } from '@nuxt/test-utils/e2e'
+import { SMTPServer } from 'smtp-server'
+import { simpleParser, type ParsedMail } from 'mailparser'
+import type { AddressInfo } from 'node:net'
+import { join } from 'node:path'
+import type { Client } from '@libsql/client'
+import { startFakePushService, type FakePushService } from '../helpers/fake-push-service'
+import { setupOwlshift, demoCredentials, openTestDb, sessionCookie, demoUser, signIn, artifactsDir } from './harness'
+import { birth, reading, payloadOf, topicFor, machineClient, publishAcked } from './mqtt-helpers'
+import { alertDefaultRules } from '../../shared/utils/alert-routing'
+
+const push: FakePushService = await startFakePushService()
+const inbox: { to: string[], mail: ParsedMail }[] = []
+const smtp = new SMTPServer({
+  authOptional: true, disabledCommands: ['STARTTLS'], logger: false,
+  onData(stream, session, done) { simpleParser(stream).then((mail) => { inbox.push({ to: session.envelope.rcptTo.map(r => r.address), mail }); done() }, done) },
+})
+await new Promise<void>(r => smtp.listen(0, '127.0.0.1', r))
+const smtpPort = (smtp.server.address() as AddressInfo).port
+
+describe('notifications', async () => {
+  const owl = await setupOwlshift({
+    NODE_EXTRA_CA_CERTS: push.certFile,
+    SMTP_URL: `smtp://127.0.0.1:${smtpPort}`,
+    SMTP_FROM: 'Owlshift <owlshift@larkspur.example>',
+    OWLSHIFT_PUBLIC_URL: 'https://owlshift.larkspur.example',
+    OWLSHIFT_PUSH_CONTACT: 'mailto:night-alerts@larkspur.example',
+  })
+  let db: Client
+  const cookies: Record<string, string> = {}
+  const api = async (role: string, path: string, init: { method?: string, body?: unknown } = {}) => {
+    const res = await fetch(url(path), { method: init.method ?? 'GET', headers: { 'content-type': 'application/json', cookie: cookies[role]! }, body: init.body === undefined ? undefined : JSON.stringify(init.body) })
+    const text = await res.text()
+    return { status: res.status, body: text ? JSON.parse(text) : null }
+  }
+  beforeAll(async () => {
+    db = openTestDb(owl.dataDir)
+    for (const role of ['admin', 'lead', 'engineer', 'viewer']) cookies[role] = await sessionCookie(demoUser(role).email)
+  })
+  afterAll(async () => { db?.close(); await push.close(); await new Promise<void>(r => smtp.close(() => r())) })
+  const idOf = async (role: string) => Number((await db.execute({ sql: 'select id from users where email = ?', args: [demoUser(role).email] })).rows[0]![0])
+
+  it('keeps one VAPID key pair, made at first start', async () => {
+    const a = await api('lead', '/api/push/key')
+    expect(a.status).toBe(200)
+    expect(Buffer.from(a.body.publicKey, 'base64url').length).toBe(65) // uncompressed P-256 point
+    expect((await api('viewer', '/api/push/key')).body.publicKey).toBe(a.body.publicKey)
+    expect(Number((await db.execute('select count(*) from vapid_keys')).rows[0]![0])).toBe(1)
+  })
+
+  it('refuses bad subscriptions and bad rules with a clear message, saving nothing', async () => {
+    const bad = await api('lead', '/api/push/subscribe', { method: 'POST', body: { endpoint: 'http://push.example/x', keys: { p256dh: 'AAAA', auth: 'BB' } } })
+    expect(bad.status).toBe(400)
+    expect(bad.body.message).toMatch(/endpoint must be https:\/\/.*keys\.p256dh must be 65 bytes.*keys\.auth must be 16 bytes/)
+    const rules = { ...alertDefaultRules('Europe/Berlin'), quietHours: { start: '25:00', end: '05:00' } }
+    const r = await api('admin', '/api/notifications/rules', { method: 'PUT', body: rules })
+    expect(r.status).toBe(400)
+    expect(r.body.message).toMatch(/quietHours\.start: use HH:MM/)
+    const unknown = await api('admin', '/api/notifications/rules', { method: 'PUT', body: { ...alertDefaultRules('Europe/Berlin'), onCall: [{ shiftId: 'night', weekdays: [1], contacts: [9999] }] } })
+    expect(unknown.body.message).toMatch(/unknown people: 9999/)
+    expect(Number((await db.execute(`select count(*) from settings_kv where key = 'alert-routing'`)).rows[0]![0])).toBe(0)
+    expect(Number((await db.execute('select count(*) from push_subscriptions')).rows[0]![0])).toBe(0)
+  })
+
+  it('wakes the on-call lead before any part is out of tolerance, escalates to the engineer by push and e-mail, and logs it all', async () => {
+    const lead = await idOf('lead')
+    const engineer = await idOf('engineer')
+    // Everyone on the rota every day: lead first, then engineer. High priority escalates after 3 s.
+    const rules = alertDefaultRules('Europe/Berlin')
+    rules.onCall = rules.shifts.map(s => ({ shiftId: s.id, weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [lead, engineer] }))
+    rules.priorities[2] = { ...rules.priorities[2], escalateAfterMin: 0.05, emailFromLevel: 1 }
+    rules.quietHours = null
+    rules.trend.perJob['LTP-2000-S'] = 240 // minutes: early warning for this job
+    expect((await api('admin', '/api/notifications/rules', { method: 'PUT', body: rules })).status).toBe(200)
+    expect((await api('lead', '/api/notifications/on-call')).body.contacts.map((c: { id: number }) => c.id)).toEqual([lead, engineer])
+
+    const leadPhone = push.subscribe()
+    const engineerPhone = push.subscribe()
+    const engineerOldTablet = push.subscribe()
+    push.forget(engineerOldTablet.endpoint, 410)
+    expect((await api('lead', '/api/push/subscribe', { method: 'POST', body: { ...leadPhone, label: 'Cleo phone' } })).status).toBe(200)
+    expect((await api('engineer', '/api/push/subscribe', { method: 'POST', body: { ...engineerPhone, label: 'Bram phone' } })).status).toBe(200)
+    expect((await api('engineer', '/api/push/subscribe', { method: 'POST', body: { ...engineerOldTablet, label: 'Bram old tablet' } })).status).toBe(200)
+    expect((await api('engineer', '/api/push/devices')).body.map((d: { label: string }) => d.label).sort()).toEqual(['Bram old tablet', 'Bram phone'])
+
+    // A machine drifting +0.1 µm a part toward its +4 µm limit; reported size never compensated.
+    const creds = demoCredentials(owl.dataDir)
+    const c = await machineClient(owl.mqttUrl, 'cg-01', creds['cg-01']!.password)
+    await publishAcked(c, topicFor('cg-01', birth(1)), payloadOf(birth(1)))
+    let seq = 2
+    const leadPushes = () => push.received.filter(p => leadPhone.endpoint.endsWith(p.subscriptionId))
+    while (!leadPushes().length && seq < 40) {
+      await publishAcked(c, topicFor('cg-01', reading(seq, (seq - 2) * 0.1)), payloadOf(reading(seq, (seq - 2) * 0.1)))
+      seq++
+      await new Promise(r => setTimeout(r, 150))
+    }
+    await expect.poll(() => leadPushes().length, { timeout: 5000 }).toBeGreaterThan(0)
+    await c.endAsync()
+    // Before any part was out of tolerance (±4 µm):
+    const worst = Number((await db.execute(`select max(abs(diameter_um)) from readings where machine_id = 'cg-01'`)).rows[0]![0])
+    expect(worst).toBeLessThan(4)
+
+    const first = JSON.parse(leadPushes()[0]!.plaintext)
+    expect(first.title).toMatch(/: Size will meet tolerance soon$/)
+    expect(first.body).toMatch(/size meets tolerance in about \d+ min at this trend \(alert below 240 min\)/)
+    expect(first.url).toBe(`/alarms?open=${first.alarmId}`)
+    expect(leadPushes()[0]!.jwt.sub).toBe('mailto:night-alerts@larkspur.example')
+    expect(leadPushes()[0]!.urgency).toBe('high')
+
+    // Nobody acknowledges: after 3 s the engineer is woken, by push and by e-mail.
+    await expect.poll(() => push.received.filter(p => engineerPhone.endpoint.endsWith(p.subscriptionId)).length, { timeout: 15_000 }).toBe(1)
+    const esc = JSON.parse(push.received.find(p => engineerPhone.endpoint.endsWith(p.subscriptionId))!.plaintext)
+    expect(esc.title).toMatch(/\(escalated\)$/)
+    await expect.poll(() => inbox.length, { timeout: 10_000 }).toBe(1)
+    expect(inbox[0]!.to).toEqual([demoUser('engineer').email])
+    expect(inbox[0]!.mail.subject).toMatch(/^\[Owlshift high\] Escalated: .* — Size will meet tolerance soon$/)
+    expect(inbox[0]!.mail.text).toContain(`https://owlshift.larkspur.example/alarms?open=${first.alarmId}`)
+    // The old tablet answered 410 Gone: its subscription is deleted.
+    await expect.poll(async () => (await api('engineer', '/api/push/devices')).body.map((d: { label: string }) => d.label)).toEqual(['Bram phone'])
+
+    // The lead opens the notification, then acknowledges.
+    expect((await api('lead', '/api/push/clicked', { method: 'POST', body: { deliveryId: first.deliveryId } })).status).toBe(200)
+    expect((await api('engineer', '/api/push/clicked', { method: 'POST', body: { deliveryId: first.deliveryId } })).status).toBe(404) // not theirs
+    expect((await api('lead', `/api/alarms/${first.alarmId}/acknowledge`, { method: 'POST', body: {} })).status).toBe(200)
+
+    await expect.poll(async () => (await api('lead', `/api/notifications/deliveries?alarmId=${first.alarmId}`)).body.map((d: { status: string }) => d.status).includes('acknowledged')).toBe(true)
+    const log = (await api('lead', `/api/notifications/deliveries?alarmId=${first.alarmId}`)).body as { status: string, channel: string, userId: number | null, level: number }[]
+    const has = (s: Partial<(typeof log)[number]>) => log.some(d => Object.entries(s).every(([k, v]) => d[k as keyof typeof d] === v))
+    expect(has({ status: 'sent', channel: 'push', userId: lead, level: 0 })).toBe(true)
+    expect(has({ status: 'sent', channel: 'push', userId: engineer, level: 1 })).toBe(true)
+    expect(has({ status: 'gone', channel: 'push', userId: engineer, level: 1 })).toBe(true)
+    expect(has({ status: 'sent', channel: 'email', userId: engineer, level: 1 })).toBe(true)
+    expect(has({ status: 'clicked', userId: lead })).toBe(true)
+    expect(has({ status: 'acknowledged', userId: lead })).toBe(true)
+    // Acknowledged: no one else is woken (the chain had two people; nothing more after the ack).
+    const before = push.received.length
+    await new Promise(r => setTimeout(r, 4000))
+    expect(push.received.length).toBe(before)
+    // The viewer may not read the log.
+    expect((await api('viewer', '/api/notifications/deliveries')).status).toBe(403)
+  })
+
+  it('the service worker shows a pushed alert with its title and link (Chromium, DevTools protocol)', async () => {
+    const page = await createPage(undefined, { viewport: { width: 390, height: 844 } })
+    await page.context().grantPermissions(['notifications'], { origin: new URL(url('/')).origin })
+    await signIn(page, demoUser('lead').email)
+    await page.waitForURL(u => !u.pathname.startsWith('/sign-in'))
+    await page.goto(url('/me'), { waitUntil: 'networkidle' })
+    await page.locator('[data-test=device-alerts]').waitFor()
+    const cdp = await page.context().newCDPSession(page)
+    const registered = new Promise<string>((resolve) => {
+      cdp.on('ServiceWorker.workerRegistrationUpdated', (e: { registrations: { registrationId: string, scopeURL: string, isDeleted: boolean }[] }) => {
+        const r = e.registrations.find(x => x.scopeURL === url('/') && !x.isDeleted)
+        if (r) resolve(r.registrationId)
+      })
+    })
+    await cdp.send('ServiceWorker.enable')
+    await page.evaluate(() => navigator.serviceWorker.register('/sw.js', { scope: '/' }).then(() => navigator.serviceWorker.ready))
+    const registrationId = await registered
+    const payload = { title: 'Grinder 1: Size will meet tolerance soon', body: 'size meets tolerance in about 12 min', url: '/alarms?open=77', alarmId: 77, deliveryId: 5, tag: 'alarm-77', priority: 2, requireInteraction: true }
+    await cdp.send('ServiceWorker.deliverPushMessage', { origin: new URL(url('/')).origin, registrationId, data: JSON.stringify(payload) })
+    const shown = () => page.evaluate(() => navigator.serviceWorker.ready.then(r => r.getNotifications()).then(ns => ns.map(n => ({ title: n.title, body: n.body, tag: n.tag, data: n.data, requireInteraction: n.requireInteraction }))))
+    await expect.poll(shown, { timeout: 10_000 }).toEqual([{ title: payload.title, body: payload.body, tag: 'alarm-77', data: { url: '/alarms?open=77', alarmId: 77, deliveryId: 5 }, requireInteraction: true }])
+    // A payload that tries to send the browser elsewhere gets the home page instead.
+    await cdp.send('ServiceWorker.deliverPushMessage', { origin: new URL(url('/')).origin, registrationId, data: JSON.stringify({ ...payload, tag: 'alarm-78', url: 'https://elsewhere.example/' }) })
+    await expect.poll(async () => (await shown()).find(n => n.tag === 'alarm-78')?.data.url, { timeout: 10_000 }).toBe('/')
+    await page.screenshot({ path: join(artifactsDir, 'me-device-alerts-phone.png'), fullPage: true })
+    await page.close()
+  })
+})
