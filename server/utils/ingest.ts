@@ -80,6 +80,7 @@ export class IngestPipeline {
   private queue: Pending[] = []
   private timer: NodeJS.Timeout | null = null
   private flushing: Promise<void> | null = null
+  private afterCommit: Promise<void> = Promise.resolve()
   readonly stats: IngestStats = { accepted: 0, stored: 0, duplicates: 0, deadLetters: 0, commits: 0, lastCommitMs: 0 }
   /** called after each commit with what it caused (commands to send, live events, alarm conditions) */
   onCommitted: (effects: IngestEffects) => Promise<void> | void = () => {}
@@ -111,8 +112,12 @@ export class IngestPipeline {
         try {
           const effects = await this.commit(batch.map(p => p.arrival))
           for (const p of batch) p.resolve()
-          try { await this.onCommitted(effects) }
-          catch (err) { console.error('[ingest] after-commit work failed:', err) }
+          // Commands, live events and alarms run in commit order but off the commit path: with an
+          // external broker, sending a command waits for a PUBACK that mqtt.js queues behind the
+          // very messages waiting on the next commit.
+          this.afterCommit = this.afterCommit
+            .then(() => this.onCommitted(effects))
+            .catch((err) => { console.error('[ingest] after-commit work failed:', err) })
         }
         catch (err) {
           // Nothing is acknowledged; the machines will send again. Reload state from the database
@@ -137,6 +142,7 @@ export class IngestPipeline {
       if (this.flushing) await this.flushing
       else await new Promise(r => setTimeout(r, FLUSH_DELAY_MS + 1))
     }
+    await this.afterCommit
   }
 
   private async commit(arrivals: Arrival[]): Promise<IngestEffects> {
