@@ -34,7 +34,9 @@ function useTransport(): Transporter | null {
 export function mailEnabled(): boolean { return useTransport() !== null }
 
 export async function sendMail(m: MailMessage): Promise<MailOutcome> {
-  const t = useTransport()
+  let t: Transporter | null
+  try { t = useTransport() }
+  catch (err) { return { ok: false, detail: (err as Error).message } }
   if (!t) return { ok: false, detail: 'e-mail is off (SMTP_URL not set)' }
   try {
     const info = await t.sendMail({ from, to: m.to, subject: m.subject, text: m.text, ...(m.html ? { html: m.html } : {}) })

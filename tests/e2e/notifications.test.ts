@@ -148,6 +148,37 @@ describe('notifications', async () => {
     expect((await api('viewer', '/api/notifications/deliveries')).status).toBe(403)
   })
 
+  it('shows an in-page alert over the live stream to someone without push, who can acknowledge it there', async () => {
+    const page = await createPage(undefined, { viewport: { width: 1440, height: 900 } })
+    await signIn(page, demoUser('operator').email)
+    await page.waitForURL(u => !u.pathname.startsWith('/sign-in'))
+    await page.goto(url('/me'), { waitUntil: 'networkidle' })
+    // Push cannot work on this page's browser (no push service reachable): the page says what remains.
+    await expect.poll(() => page.locator('[data-test=device-alerts]').innerText()).toMatch(/without internet it cannot arrive; then alerts show in the page/)
+    await page.waitForTimeout(1500) // the live stream is connected and its snapshot loaded
+    const creds = demoCredentials(owl.dataDir)
+    const c = await machineClient(owl.mqttUrl, 'cg-02', creds['cg-02']!.password)
+    await publishAcked(c, topicFor('cg-02', birth(1)), payloadOf(birth(1)))
+    const fault = { kind: 'event', seq: 2, time: new Date().toISOString(), type: 'fault_raised', fault: 'coolant_fault', message: 'flow low' } as const
+    await publishAcked(c, topicFor('cg-02', fault as never), payloadOf(fault as never))
+    await c.endAsync()
+    const toast = page.locator('[data-test=in-page-alert]').filter({ hasText: 'Coolant fault' })
+    await toast.waitFor({ timeout: 10_000 })
+    expect(await toast.innerText()).toMatch(/High priority · .*coolant fault — flow low[\s\S]*In-page alert: shown while Owlshift is open/)
+    for (const [name, viewport] of [['desktop', { width: 1440, height: 900 }], ['phone', { width: 390, height: 844 }]] as const) {
+      await page.setViewportSize(viewport)
+      for (const theme of ['dark', 'light']) {
+        await page.evaluate(t => document.documentElement.classList.toggle('dark', t === 'dark'), theme)
+        await page.screenshot({ path: join(artifactsDir, `in-page-alert-${name}-${theme}.png`) })
+      }
+    }
+    await toast.getByRole('button', { name: 'Acknowledge' }).click()
+    await toast.waitFor({ state: 'detached', timeout: 10_000 })
+    const state = (await db.execute(`select state from alarms where machine_id = 'cg-02' and condition = 'fault:coolant_fault'`)).rows[0]![0]
+    expect(state).toBe('acknowledged')
+    await page.close()
+  })
+
   it('the service worker shows a pushed alert with its title and link (Chromium, DevTools protocol)', async () => {
     const page = await createPage(undefined, { viewport: { width: 390, height: 844 } })
     await page.context().grantPermissions(['notifications'], { origin: new URL(url('/')).origin })
