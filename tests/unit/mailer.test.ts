@@ -38,7 +38,7 @@ describe('e-mail over SMTP to a local catcher', () => {
     expect(got.envelopeTo).toEqual(['cleo@larkspur.example'])
     expect(got.mail.subject).toBe('[Owlshift high] Escalated: Grinder 2 — Coolant fault')
     expect(got.mail.from?.value).toEqual([expect.objectContaining({ name: 'Owlshift', address: 'owlshift@larkspur.example' })])
-    expect(got.mail.text).toContain('Open and acknowledge: https://owlshift.plant.example/alarms/42')
+    expect(got.mail.text).toContain('Open and acknowledge: https://owlshift.plant.example/alarms?open=42')
     expect(got.mail.text).toContain('Raised 12 Jun 2025, 03:00 (Europe/Berlin)') // 01:00 UTC = 03:00 CEST
     expect(got.mail.html).toContain('Flow &lt; 2 l/min')
     expect(got.mail.html).toContain('<li>Check coolant level, flow and filter.</li>')
@@ -55,5 +55,22 @@ describe('e-mail over SMTP to a local catcher', () => {
   it('says which setting is wrong', () => {
     expect(() => mailSettings({ SMTP_URL: 'mail.plant.example' })).toThrow(/SMTP_URL must look like smtp:\/\/host:port/)
     expect(mailSettings({})).toEqual({ url: undefined, from: 'Owlshift <owlshift@localhost>' })
+  })
+})
+
+describe('the demo mail catcher (scripts/mail-catcher.ts)', () => {
+  it('catches what Owlshift sends and lists it, escaped, in its inbox page', async () => {
+    const { startMailCatcher } = await import('../../scripts/mail-catcher')
+    const c = await startMailCatcher({ smtpPort: 0, httpPort: 0 })
+    try {
+      process.env.SMTP_URL = `smtp://127.0.0.1:${c.smtpPort}`
+      resetMailer()
+      expect((await sendMail({ to: 'cleo@larkspur.example', subject: 'Grinder <2> escalated', text: 'see the alarm' })).ok).toBe(true)
+      const list = await (await fetch(`${c.inboxUrl}messages.json`)).json()
+      expect(list).toEqual([expect.objectContaining({ to: ['cleo@larkspur.example'], subject: 'Grinder <2> escalated', text: 'see the alarm\n' })])
+      const html = await (await fetch(c.inboxUrl)).text()
+      expect(html).toContain('Grinder &lt;2&gt; escalated')
+    }
+    finally { resetMailer(); await c.close() }
   })
 })
