@@ -138,7 +138,11 @@ export const machineMessages = sqliteTable('machine_messages', {
   time: integer('time').notNull(),
   receivedAt: integer('received_at').notNull(),
   payload: text('payload', { mode: 'json' }).notNull(),
-}, t => [uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time)])
+}, t => [
+  uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time),
+  // the report reads one kind of message at a time (part_unloaded, faults, dresses, offset acks, states)
+  index('messages_machine_type_time').on(t.machineId, t.type, t.time),
+])
 
 /** Presence changes (birth and death); death is the MQTT will and carries no seq. */
 export const presenceLog = sqliteTable('presence_log', {
@@ -297,3 +301,27 @@ export const compensationSettings = sqliteTable('compensation_settings', {
   activatedAt: integer('activated_at'),
   retiredAt: integer('retired_at'),
 }, t => [uniqueIndex('compensation_settings_job_version').on(t.jobId, t.version), index('compensation_settings_job_status').on(t.jobId, t.status)])
+
+// ── Overnight report: notes left during a shift, and the hand-over sign-off ─────────────────
+
+/** A note left during the shift (machine optional); shown in the report of the shift it falls in. */
+export const shiftNotes = sqliteTable('shift_notes', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id'),
+  text: text('text').notNull(),
+  userId: integer('user_id').notNull().references(() => users.id),
+  at: integer('at').notNull(),
+}, t => [index('shift_notes_at').on(t.at)])
+
+/** The incoming lead's signature on a shift's report, with a comment (also in the audit log). */
+export const reportSignoffs = sqliteTable('report_signoffs', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  cellId: text('cell_id').notNull().references(() => cells.id),
+  shiftId: text('shift_id').notNull(),
+  shiftDate: text('shift_date').notNull(), // local date the shift started, YYYY-MM-DD
+  from: integer('from').notNull(),
+  to: integer('to').notNull(),
+  userId: integer('user_id').notNull().references(() => users.id),
+  comment: text('comment').notNull(),
+  at: integer('at').notNull(),
+}, t => [index('report_signoffs_shift').on(t.cellId, t.shiftId, t.shiftDate)])

@@ -35,4 +35,12 @@ export const routeAccess: Record<string, RouteRule> = {
   'notifications/rules.put.ts': { access: ['admin'] },
   'notifications/on-call.get.ts': { access: 'signed-in' },
   'notifications/deliveries.get.ts': { access: ['admin', 'lead', 'engineer'] },
+  // Overnight report and hand-over
+  'reports/shifts.get.ts': { access: 'signed-in' },
+  'reports/shift.get.ts': { access: 'signed-in' },
+  'reports/range.get.ts': { access: 'signed-in' },
+  'reports/parts.csv.get.ts': { access: 'signed-in' },
+  'reports/signoffs.post.ts': { access: ['lead'] },
+  'reports/notes.post.ts': { access: ['lead', 'engineer', 'operator'] },
+  'reports/calendar.put.ts': { access: ['admin', 'engineer'] },
 }

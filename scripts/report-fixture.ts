@@ -1,0 +1,96 @@
+// A report database without the server: a temporary SQLite file with the real migrations, filled
+// with the messages of headless simulator runs stored the way ingest stores them (readings in
+// `readings`, every other numbered message in `machine_messages`). Used by the report tests and
+// `npm run bench:report`.
+import { mkdtempSync, rmSync } from 'node:fs'
+import { tmpdir } from 'node:os'
+import { join } from 'node:path'
+import { fileURLToPath } from 'node:url'
+import { createClient, type Client, type InStatement } from '@libsql/client'
+import { drizzle } from 'drizzle-orm/libsql'
+import { migrate } from 'drizzle-orm/libsql/migrator'
+import * as schema from '../server/database/schema'
+import type { ReportDb } from '../server/utils/report'
+import type { SequencedMessage } from '../shared/utils/contract'
+import { runHeadless, type HeadlessResult } from '../simulator/headless'
+import { createEngineController } from '../simulator/engine-controller'
+import { machinesFor, type Scenario } from '../simulator/scenario'
+
+const root = fileURLToPath(new URL('..', import.meta.url))
+
+export interface ReportFixture { db: ReportDb; client: Client; dir: string; close(): void }
+
+export async function openReportFixture(): Promise<ReportFixture> {
+  const dir = mkdtempSync(join(tmpdir(), 'owlshift-report-'))
+  const client = createClient({ url: `file:${join(dir, 'report.db')}` })
+  await client.execute('PRAGMA journal_mode = WAL')
+  await client.execute('PRAGMA synchronous = OFF')
+  const db = drizzle(client, { schema })
+  await migrate(db, { migrationsFolder: join(root, 'server/database/migrations') })
+  return { db, client, dir, close() { client.close(); rmSync(dir, { recursive: true, force: true }) } }
+}
+
+/** The cell, its machines and jobs as the scenario describes them (cell time zone given). */
+export async function seedCell(fx: ReportFixture, scenario: Scenario, machines: number, timeZone: string): Promise<void> {
+  const now = Date.now()
+  await fx.db.insert(schema.cells).values({ id: scenario.cell, name: `Cell ${scenario.cell}`, timeZone }).onConflictDoNothing()
+  const specs = machinesFor(scenario, machines)
+  const jobs = new Map(specs.map((s) => [s.job.partNumber, s]))
+  for (const [partNumber, s] of jobs) {
+    await fx.db.insert(schema.jobs).values({
+      partNumber, description: `job ${partNumber}`, material: 'carbide', method: 'through-feed', nominalMm: String(s.job.nominalMm),
+      upperTolNm: Math.round(s.job.upperToleranceUm * 1000), lowerTolNm: Math.round(s.job.lowerToleranceUm * 1000), cycleTimeS: s.cycleTimeS, createdAt: now,
+    }).onConflictDoNothing()
+  }
+  await fx.db.insert(schema.machines).values(specs.map((s, i) => ({ id: s.id, cellId: scenario.cell, name: s.name, model: s.model, sortOrder: i, createdAt: now }))).onConflictDoNothing()
+}
+
+/** Buffers simulator messages as database rows (the same mapping as server/utils/ingest.ts). */
+export class MessageRows {
+  readings: unknown[][] = []
+  messages: unknown[][] = []
+  private job = new Map<string, string | null>()
+  constructor(private readonly seqOffset: Record<string, number> = {}) {}
+  add(machineId: string, m: SequencedMessage): void {
+    const seq = m.seq + (this.seqOffset[machineId] ?? 0)
+    const time = Date.parse(m.time)
+    if (m.kind === 'birth') this.job.set(machineId, m.job?.partNumber ?? null)
+    if (m.kind === 'event' && m.type === 'job_change') this.job.set(machineId, m.job.partNumber)
+    if (m.kind === 'reading') {
+      this.readings.push([machineId, seq, m.part, time, time, m.status, m.diameterUm, m.roundnessUm ?? null, m.lengthUm ?? null, m.offsetUm, this.job.get(machineId) ?? null])
+      return
+    }
+    const type = m.kind === 'event' ? m.type : m.kind === 'ack' ? `${m.command}:${m.result}` : m.kind === 'state' ? m.execution : null
+    this.messages.push([machineId, seq, m.kind, type, time, time, JSON.stringify({ ...m, seq })])
+  }
+  async flush(client: Client): Promise<void> {
+    const stmts: InStatement[] = []
+    const chunk = 100
+    for (let i = 0; i < this.readings.length; i += chunk) {
+      const rows = this.readings.slice(i, i + chunk)
+      stmts.push({ sql: `insert into readings (machine_id, seq, part, time, received_at, status, diameter_um, roundness_um, length_um, offset_um, job_part_number) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
+    }
+    for (let i = 0; i < this.messages.length; i += chunk) {
+      const rows = this.messages.slice(i, i + chunk)
+      stmts.push({ sql: `insert into machine_messages (machine_id, seq, kind, type, time, received_at, payload) values ${rows.map(() => '(?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
+    }
+    for (let i = 0; i < stmts.length; i += 500) await client.batch(stmts.slice(i, i + 500), 'write')
+    this.readings = []
+    this.messages = []
+  }
+}
+
+/**
+ * Runs the scenario headless (compensation engine in the loop), stores its messages and returns
+ * the simulator's own summary: the ground truth the report must reproduce.
+ */
+export async function simulateInto(fx: ReportFixture, opts: { scenario: Scenario; seed: number; machines: number; hours: number; seqOffset?: Record<string, number> }): Promise<HeadlessResult & { lastSeq: Record<string, number> }> {
+  const rows = new MessageRows(opts.seqOffset)
+  const lastSeq: Record<string, number> = {}
+  const result = runHeadless({
+    scenario: opts.scenario, seed: opts.seed, hours: opts.hours, machines: opts.machines, controller: createEngineController(),
+    onMessage: (id, m) => { rows.add(id, m); lastSeq[id] = m.seq + (opts.seqOffset?.[id] ?? 0) },
+  })
+  await rows.flush(fx.client)
+  return { ...result, lastSeq }
+}

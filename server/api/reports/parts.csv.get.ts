@@ -1,0 +1,10 @@
+// Every part of a shift or range as CSV: offset in force, dress count, wheel.
+export default defineEventHandler(async (event) => {
+  await requireUser(event)
+  const q = readValidQuery(event, reportAnyQuery)
+  const lines = await reportAnswer(async () => reportPartsCsv(useDb(), await reportScopeOf(q)))
+  const name = 'shift' in q ? `${q.cell}-${q.shift}-${q.date}` : `${q.cell}-${new Date(q.from).toISOString().slice(0, 10)}`
+  setHeader(event, 'content-type', 'text/csv; charset=utf-8')
+  setHeader(event, 'content-disposition', `attachment; filename="owlshift-parts-${name}${q.machine ? `-${q.machine}` : ''}.csv"`)
+  return `${lines.join('\r\n')}\r\n`
+})

@@ -1,0 +1,27 @@
+// The cells, the chosen cell's shift calendar (first cell by default) and its shifts of the last
+// two weeks, newest first, with who signed them over.
+import { z } from 'zod'
+import { and, asc, eq, gte } from 'drizzle-orm'
+
+const query = z.object({ cell: z.string().regex(/^[a-z0-9][a-z0-9_-]{0,39}$/, 'must be a cell id like cell-a').optional() })
+
+export default defineEventHandler(async (event) => {
+  await requireUser(event)
+  const q = readValidQuery(event, query)
+  const cells = await useDb().select({ id: schema.cells.id, name: schema.cells.name }).from(schema.cells).orderBy(asc(schema.cells.id))
+  const cell = q.cell ?? cells[0]?.id
+  if (!cell) return { cells, cell: null, calendar: null, shifts: [] }
+  const now = Date.now()
+  return reportAnswer(async () => {
+    const calendar = await reportCalendar(useDb(), cell)
+    const shifts = shiftsBetween(calendar, now - 14 * 86_400_000, now).reverse()
+    const s = schema.reportSignoffs
+    const signed = await useDb().select({ shiftId: s.shiftId, date: s.shiftDate, name: schema.users.name, at: s.at }).from(s)
+      .innerJoin(schema.users, eq(schema.users.id, s.userId))
+      .where(and(eq(s.cellId, cell), gte(s.at, now - 15 * 86_400_000)))
+    return {
+      cells, cell, calendar,
+      shifts: shifts.map(w => ({ ...w, ended: w.to <= now, signedBy: signed.filter(x => x.shiftId === w.shiftId && x.date === w.date).map(x => ({ name: x.name, at: x.at })) })),
+    }
+  })
+})

@@ -1,0 +1,1 @@
+CREATE INDEX `messages_machine_type_time` ON `machine_messages` (`machine_id`,`type`,`time`);

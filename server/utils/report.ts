@@ -1,0 +1,688 @@
+// The overnight run report: what a cell (or one machine) made over a shift or any range, read
+// from the stored machine messages. Takes the database handle as a parameter and imports
+// everything explicitly, so the benchmark and tests can call it outside Nitro.
+//
+// Time: machine messages (states, events, readings) are placed by the machine's clock; alarms,
+// gaps, presence changes and dead letters by the server's receive time. A machine with a sane
+// clock puts both in the same window.
+import { and, asc, desc, eq, gte, inArray, isNull, lt, or, sql } from 'drizzle-orm'
+import type { LibSQLDatabase } from 'drizzle-orm/libsql'
+import * as schema from '../database/schema'
+import {
+  kpiCombine, kpiIndices, kpiMergeDowntime, kpiMttr, kpiTimeModel,
+  type KpiDowntime, type KpiIndices, type KpiInputs, type KpiMachineEvent, type KpiRepair,
+} from '../../shared/utils/kpi'
+import {
+  spcCapability, spcMean, spcOverallSigma, spcRunRules, spcWithinSigmaMovingRange, SPC_RUN_RULE_TEXT, SPC_WESTERN_ELECTRIC_RULES,
+  type SpcRunRule,
+} from '../../shared/utils/spc'
+import { alarmRateMetrics, ALARM_PRIORITY_NAMES, type AlarmPriority, type AlarmRateMetrics } from '../../shared/utils/alarm-model'
+import {
+  SHIFT_DEFAULT_PATTERN, shiftCalendarProblems, shiftWindow, type ShiftCalendar, type ShiftDefinition, type ShiftWindow,
+} from '../../shared/utils/shift-calendar'
+import { executionStates } from '../../shared/utils/contract'
+
+export type ReportDb = LibSQLDatabase<typeof schema>
+
+export class ReportInputError extends Error {}
+
+export const REPORT_MAX_RANGE_MS = 31 * 86_400_000
+/** A size chart keeps at most this many points per machine (min and max of each bucket beyond). */
+export const REPORT_CHART_MAX_POINTS = 2400
+const FAULT_EVENT_TYPES = ['fault_raised', 'fault_cleared'] as const
+const MARK_EVENT_TYPES = ['dress', 'wheel_change', 'mastering', 'job_change', 'pallet_change'] as const
+const OFFSET_ACK_TYPES = ['offset:applied', 'offset:rejected', 'offset:expired'] as const
+// States are stored with their execution value as type, births with none: every query below
+// names its types so it runs on the (machine, type, time) index.
+const STATE_TYPES = [...executionStates]
+
+// ---------------------------------------------------------------- shapes
+
+export interface ReportScope { cellId: string; from: number; to: number; machineId?: string | null; shift?: ShiftWindow | null }
+
+export interface ReportCapability {
+  machineId: string
+  partNumber: string | null
+  n: number
+  mean: number | null
+  lsl: number | null
+  usl: number | null
+  /** σ within: MR̄/d2(2) over the parts in time order; σ overall: sample standard deviation */
+  sigmaWithin: number | null
+  sigmaOverall: number | null
+  sigmaWithinMethod: string
+  sigmaOverallMethod: string
+  cp: number | null
+  cpk: number | null
+  pp: number | null
+  ppk: number | null
+  /** why indices are missing, if they are */
+  note: string | null
+  runRules: { rule: SpcRunRule; text: string; count: number; first: { part: number; time: number } }[]
+}
+
+export interface ReportCompensation {
+  offsetsApplied: number
+  offsetsRejected: number
+  offsetsExpired: number
+  /** Σ |step| of applied offsets, µm of axis offset */
+  totalStepUm: number
+  /** applied offset at the end minus at the start of the range */
+  netStepUm: number
+  largestStepUm: number
+  holdMs: number
+  holds: { reason: string; ms: number; episodes: number; readings: number }[]
+  dresses: number
+  dressTriggers: Record<string, number>
+  /** parts between dresses (from the dress events) */
+  dressIntervalParts: { min: number; mean: number; max: number } | null
+  dressIntervalMinutes: { min: number; mean: number; max: number } | null
+  wheelChanges: number
+  masterings: number
+}
+
+export interface ReportMachine {
+  id: string
+  name: string
+  partNumbers: string[]
+  produced: number
+  good: number
+  scrap: number
+  scrapByReason: { reason: string; count: number }[]
+  kpiInputs: KpiInputs & { pruSource: string }
+  kpi: KpiIndices
+  downtime: KpiDowntime[]
+  repairs: KpiRepair[]
+  mttrMs: number | null
+  capability: ReportCapability[]
+  compensation: ReportCompensation
+  chart: ReportChart
+}
+
+export interface ReportChart {
+  /** [machine time ms, diameter deviation µm]; thinned to min/max per bucket when long */
+  points: [number, number][]
+  thinned: boolean
+  lsl: number | null
+  usl: number | null
+  offsets: { at: number; offsetUm: number; stepUm: number }[]
+  dresses: { at: number; trigger: string }[]
+  events: { at: number; type: string }[]
+}
+
+export interface ReportAlarms {
+  annunciations: number
+  byPriority: Record<string, number>
+  ackTimes: { count: number; medianMs: number | null; maxMs: number | null; unacknowledged: number }
+  handlers: { userId: number | null; name: string; acknowledged: number; other: number; conditions: string[] }[]
+  list: { alarmId: number; at: number; machineId: string | null; priority: number; condition: string; message: string; ackMs: number | null; ackBy: string | null }[]
+  rates: AlarmRateMetrics
+}
+
+export interface ReportCompleteness {
+  readings: number
+  missingSequenceNumbers: number
+  gaps: { machineId: string; fromSeq: number; toSeq: number; detectedAt: number }[]
+  disconnections: { machineId: string; at: number; reason: string | null; backAt: number | null }[]
+  offlineMs: number
+  deadLetters: number
+  deadLetterReasons: { reason: string; count: number }[]
+}
+
+export interface Report {
+  scope: { cellId: string; cellName: string; timeZone: string; from: number; to: number; machineId: string | null; shift: ShiftWindow | null; generatedAt: number }
+  totals: {
+    produced: number; good: number; scrap: number; scrapByReason: { reason: string; count: number }[]
+    kpiInputs: KpiInputs; kpi: KpiIndices; downtime: KpiDowntime[]; mttrMs: number | null; failures: number
+  }
+  machines: ReportMachine[]
+  alarms: ReportAlarms
+  completeness: ReportCompleteness
+  notes: { id: number; at: number; machineId: string | null; author: string; text: string }[]
+  signoffs: { id: number; at: number; userId: number; name: string; comment: string }[]
+}
+
+// ---------------------------------------------------------------- calendar
+
+export const SHIFT_CALENDAR_KEY = 'shift-calendar'
+
+/** The cell's calendar: its time zone and the shifts stored in settings (default pattern otherwise). */
+export async function reportCalendar(db: ReportDb, cellId: string): Promise<ShiftCalendar & { cellName: string }> {
+  const [cell] = await db.select().from(schema.cells).where(eq(schema.cells.id, cellId))
+  if (!cell) throw new ReportInputError(`no cell "${cellId}"`)
+  const [row] = await db.select().from(schema.settingsKv).where(eq(schema.settingsKv.key, SHIFT_CALENDAR_KEY))
+  const stored = (row?.value as { shifts?: ShiftDefinition[] } | undefined)?.shifts
+  const calendar: ShiftCalendar = { timeZone: cell.timeZone, shifts: stored?.length ? stored : [...SHIFT_DEFAULT_PATTERN] }
+  const problems = shiftCalendarProblems(calendar)
+  if (problems.length) throw new ReportInputError(`the shift calendar of cell "${cellId}" is not usable: ${problems.join('; ')}`)
+  return { ...calendar, cellName: cell.name }
+}
+
+/** The scope of one shift of a cell. */
+export async function reportShiftScope(db: ReportDb, cellId: string, shiftId: string, date: string, machineId?: string | null): Promise<ReportScope> {
+  const cal = await reportCalendar(db, cellId)
+  let shift: ShiftWindow
+  try { shift = shiftWindow(cal, shiftId, date) }
+  catch (e) { throw new ReportInputError((e as Error).message) }
+  return { cellId, from: shift.from, to: shift.to, machineId, shift }
+}
+
+// ---------------------------------------------------------------- the report
+
+/** Builds the report of a cell (or one of its machines) over [from, to). */
+export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Report> {
+  const { from, to } = scope
+  if (!(Number.isFinite(from) && Number.isFinite(to) && from < to)) throw new ReportInputError('the range needs from < to (epoch ms)')
+  if (to - from > REPORT_MAX_RANGE_MS) throw new ReportInputError('the range is longer than 31 days; ask for a shorter one')
+  const cal = await reportCalendar(db, scope.cellId)
+  const machineRows = await db.select().from(schema.machines).where(eq(schema.machines.cellId, scope.cellId)).orderBy(asc(schema.machines.sortOrder), asc(schema.machines.id))
+  const chosen = scope.machineId ? machineRows.filter((m) => m.id === scope.machineId) : machineRows
+  if (scope.machineId && !chosen.length) throw new ReportInputError(`no machine "${scope.machineId}" in cell "${scope.cellId}"`)
+  const ids = chosen.map((m) => m.id)
+  const idList = ids.length ? ids : ['\u0000'] // inArray needs one value
+
+  const mm = schema.machineMessages
+  const inWindow = (col: typeof mm.time) => and(gte(col, from), lt(col, to))
+  // Bulk columns come back as one concatenated text per machine (and job): libSQL turns each row
+  // into an object, which costs more than the query itself when a night has 20,000 parts.
+  const US = '\u001f' // unit separator: never inside a number or a stored JSON text
+  const [jobs, readingLists, unloaded, marked, births, ackLists] = await Promise.all([
+    db.select().from(schema.jobs),
+    db.all<{ m: string; j: string | null; seqs: string; parts: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
+      select machine_id as m, job_part_number as j,
+        group_concat(seq, ',' order by time, seq) as seqs, group_concat(part, ',' order by time, seq) as parts,
+        group_concat(time, ',' order by time, seq) as times, group_concat(coalesce(diameter_um, ''), ',' order by time, seq) as dia,
+        group_concat(case status when 'ok' then 'o' when 'fault' then 'f' else 'r' end, '' order by time, seq) as st,
+        min(received_at) as lo, max(received_at) as hi
+      from readings where machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id, job_part_number`),
+    // good parts by a plain text test (ingest stores the JSON as JSON.stringify writes it); reasons only for rejects
+    db.all<{ m: string; reason: string | null; good: number; n: number }>(sql`
+      select machine_id as m, case when instr(payload, '"disposition":"good"') > 0 then null else json_extract(payload, '$.rejectReason') end as reason,
+        max(instr(payload, '"disposition":"good"') > 0) as good, count(*) as n
+      from machine_messages where machine_id in ${idList} and type = 'part_unloaded' and time >= ${from} and time < ${to} group by 1, 2`),
+    // states, faults and the events marked on the chart (a few per hour), whole payloads
+    db.select({ machineId: mm.machineId, seq: mm.seq, kind: mm.kind, type: mm.type, time: mm.time, payload: mm.payload })
+      .from(mm).where(and(inArray(mm.machineId, idList), inArray(mm.type, [...STATE_TYPES, ...FAULT_EVENT_TYPES, ...MARK_EVENT_TYPES]), inWindow(mm.time))),
+    db.select({ machineId: mm.machineId, seq: mm.seq, kind: mm.kind, type: mm.type, time: mm.time, payload: mm.payload })
+      .from(mm).where(and(inArray(mm.machineId, idList), isNull(mm.type), inWindow(mm.time))),
+    // offset acks: many (one per correction)
+    db.all<{ m: string; times: string; seqs: string; types: string; payloads: string }>(sql`
+      select machine_id as m, group_concat(time, ',' order by time, seq) as times, group_concat(seq, ',' order by time, seq) as seqs,
+        group_concat(type, ',' order by time, seq) as types, group_concat(payload, ${US} order by time, seq) as payloads
+      from machine_messages where machine_id in ${idList} and type in ${[...OFFSET_ACK_TYPES]} and time >= ${from} and time < ${to} group by machine_id`),
+  ])
+  const readings: ReadingRow[] = []
+  for (const g of readingLists) {
+    const seqs = g.seqs.split(','), parts = g.parts.split(','), times = g.times.split(','), dia = g.dia.split(',')
+    for (let i = 0; i < seqs.length; i++) {
+      readings.push({ machineId: g.m, seq: Number(seqs[i]), part: Number(parts[i]), time: Number(times[i]), status: g.st[i] === 'o' ? 'ok' : g.st[i] === 'f' ? 'fault' : 'over_range', diameterUm: dia[i] === '' ? null : Number(dia[i]), partNumber: g.j })
+    }
+  }
+  if (readingLists.length > 1) readings.sort((a, b) => (a.machineId < b.machineId ? -1 : a.machineId > b.machineId ? 1 : a.time - b.time || a.seq - b.seq))
+  const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
+  const acks = ackLists.flatMap((g) => {
+    const times = g.times.split(','), seqs = g.seqs.split(','), types = g.types.split(','), payloads = g.payloads.split(US)
+    return times.map((t, i) => ({ machineId: g.m, seq: Number(seqs[i]), type: types[i]!, time: Number(t), offsetUm: (JSON.parse(payloads[i]!) as { offsetUm: number }).offsetUm }))
+  })
+  const byTime = (a: { time: number; seq: number }, b: { time: number; seq: number }) => a.time - b.time || a.seq - b.seq
+  const marks: MarkRow[] = [...marked, ...births, ...acks.map((a) => ({ ...a, kind: 'ack', payload: { offsetUm: a.offsetUm } }))].sort(byTime)
+  const jobByPart = new Map(jobs.map((j) => [j.partNumber, j]))
+
+  // The situation of each machine at `from`: its last state, births and offset before the window.
+  const latest = (where: ReturnType<typeof and>) => db.select({ time: mm.time, payload: mm.payload }).from(mm).where(where).orderBy(desc(mm.time)).limit(1)
+  const before = await Promise.all(ids.map(async (id) => {
+    const [[state], [lastAck], [lastBirth], [birth]] = await Promise.all([
+      // max() rather than ORDER BY … LIMIT 1: the planner then keeps to the (machine, type, time) index
+      db.select({ time: mm.time, payload: mm.payload }).from(mm).where(and(eq(mm.machineId, id), inArray(mm.type, STATE_TYPES),
+        eq(mm.time, sql`(select max(time) from machine_messages where machine_id = ${id} and type in ${STATE_TYPES} and time < ${from})`))).orderBy(desc(mm.seq)).limit(1),
+      latest(and(eq(mm.machineId, id), eq(mm.type, 'offset:applied'), lt(mm.time, from))),
+      latest(and(eq(mm.machineId, id), isNull(mm.type), lt(mm.time, from))),
+      latest(and(eq(mm.machineId, id), isNull(mm.type), lt(mm.time, to))),
+    ])
+    const faults = state
+      ? await db.select({ time: mm.time, type: mm.type, payload: mm.payload }).from(mm)
+        .where(and(eq(mm.machineId, id), inArray(mm.type, [...FAULT_EVENT_TYPES]), gte(mm.time, state.time), lt(mm.time, from))).orderBy(asc(mm.time))
+      : []
+    const offsetRow = [lastAck, lastBirth].filter(Boolean).sort((a, b) => b!.time - a!.time)[0]
+    return { id, state, faults, offsetUm: (offsetRow?.payload as { offsetUm?: number } | undefined)?.offsetUm ?? null, birth: birth?.payload as BirthLike | undefined }
+  }))
+  const beforeById = new Map(before.map((b) => [b.id, b]))
+
+  // Held readings: decisions stored with action "hold" (found by server time around the window's readings).
+  const rcv = received[0]
+  const holds = rcv?.lo != null && rcv.hi != null
+    ? await db.select({ machineId: schema.decisions.machineId, seq: schema.decisions.seq, reason: schema.decisions.reason }).from(schema.decisions)
+      .where(and(inArray(schema.decisions.machineId, idList), gte(schema.decisions.at, Number(rcv.lo)), lt(schema.decisions.at, Number(rcv.hi) + 1), eq(schema.decisions.action, 'hold')))
+    : []
+  const heldByMachine = new Map<string, Map<number, string>>()
+  for (const h of holds) {
+    let m = heldByMachine.get(h.machineId)
+    if (!m) heldByMachine.set(h.machineId, (m = new Map()))
+    m.set(h.seq, h.reason)
+  }
+
+  const readingsByMachine = groupBy(readings, (r) => r.machineId)
+  const marksByMachine = groupBy(marks, (r) => r.machineId)
+  const unloadedByMachine = groupBy(unloaded, (r) => r.m)
+
+  const machines: ReportMachine[] = chosen.map((m) => {
+    const b = beforeById.get(m.id)!
+    const mr = readingsByMachine.get(m.id) ?? []
+    const mk = marksByMachine.get(m.id) ?? []
+    const un = unloadedByMachine.get(m.id) ?? []
+    const birth = b.birth
+    const currentJob = m.currentJobId ? jobs.find((j) => j.id === m.currentJobId) : undefined
+
+    // Parts and scrap (part_unloaded events)
+    let good = 0
+    const scrap = new Map<string, number>()
+    for (const u of un) {
+      if (Number(u.good)) good += Number(u.n)
+      else scrap.set(u.reason ?? 'unspecified', (scrap.get(u.reason ?? 'unspecified') ?? 0) + Number(u.n))
+    }
+    const scrapByReason = sortCounts(scrap)
+    const scrapCount = scrapByReason.reduce((a, s) => a + s.count, 0)
+    const produced = good + scrapCount
+
+    // Time model from states and faults
+    const bs = b.state?.payload as { execution: string; activeFaults?: string[]; reason?: string } | undefined
+    let beforeFaults = [...(bs?.activeFaults ?? [])]
+    for (const f of b.faults) {
+      const fault = (f.payload as { fault: string }).fault
+      beforeFaults = f.type === 'fault_raised' ? [...new Set([...beforeFaults, fault])] : beforeFaults.filter((x) => x !== fault)
+    }
+    const events: KpiMachineEvent[] = []
+    for (const e of mk) {
+      const p = e.payload as Record<string, unknown>
+      if (e.kind === 'state') events.push({ at: e.time, type: 'state', execution: String(p.execution), activeFaults: (p.activeFaults as string[]) ?? [], reason: (p.reason as string) ?? null })
+      else if (e.kind === 'birth' && !bs && events.length === 0) events.push({ at: e.time, type: 'state', execution: String(p.execution), activeFaults: [] })
+      else if (e.type === 'fault_raised') events.push({ at: e.time, type: 'fault-raised', fault: String(p.fault) })
+      else if (e.type === 'fault_cleared') events.push({ at: e.time, type: 'fault-cleared', fault: String(p.fault) })
+    }
+    const tm = kpiTimeModel({ from, to, before: bs ? { execution: bs.execution, activeFaults: beforeFaults, reason: bs.reason ?? null } : null, events })
+    const cycle = birth?.cycleTimeS ?? currentJob?.cycleTimeS ?? null
+    const pruSource = birth?.cycleTimeS ? 'nominal cycle time announced by the machine' : currentJob ? 'cycle time of the job' : 'no cycle time known'
+    const kpiInputs = { pbt: tm.pbtMs, apt: tm.aptMs, pru: cycle ? cycle * 1000 : 0, pq: produced, gq: good, pruSource }
+    const kpi = cycle ? kpiIndices(kpiInputs) : { ...kpiIndices(kpiInputs), effectiveness: null, oee: null }
+
+    // Capability per job
+    const byJob = groupBy(mr, (r) => r.partNumber ?? '')
+    const jobInfo = (pn: string) => {
+      const j = jobByPart.get(pn)
+      if (j) return { lsl: j.lowerTolNm / 1000, usl: j.upperTolNm / 1000 }
+      if (birth?.job && birth.job.partNumber === pn) return { lsl: birth.job.lowerToleranceUm, usl: birth.job.upperToleranceUm }
+      return null
+    }
+    const capability = [...byJob].map(([pn, rs]) => capabilityOf(m.id, pn || null, rs, jobInfo(pn)))
+
+    // Compensation summary
+    const compensation = compensationOf(mk, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map())
+    const tol = jobInfo(mr.at(-1)?.partNumber ?? birth?.job?.partNumber ?? '') ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
+    const chart: ReportChart = {
+      points: thin(mr.filter((r) => r.diameterUm !== null).map((r) => [r.time, r.diameterUm!] as [number, number])),
+      thinned: mr.length > REPORT_CHART_MAX_POINTS,
+      lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
+      offsets: compensation.offsetMarks,
+      dresses: mk.filter((e) => e.type === 'dress').map((e) => ({ at: e.time, trigger: String((e.payload as { trigger?: string }).trigger ?? '') })),
+      events: mk.filter((e) => e.type === 'fault_raised' || e.type === 'wheel_change' || e.type === 'mastering' || e.type === 'job_change')
+        .map((e) => ({ at: e.time, type: e.type === 'fault_raised' ? `fault: ${(e.payload as { fault: string }).fault}` : e.type! })),
+    }
+    const { offsetMarks: _o, ...comp } = compensation
+    return {
+      id: m.id, name: m.name, partNumbers: [...byJob.keys()].filter(Boolean),
+      produced, good, scrap: scrapCount, scrapByReason,
+      kpiInputs, kpi, downtime: tm.downtime, repairs: tm.repairs, mttrMs: kpiMttr(tm.repairs.map((r) => r.to - r.from)),
+      capability, compensation: comp, chart,
+    }
+  })
+
+  const combined = kpiCombine(machines.filter((m) => m.kpiInputs.pru > 0 || m.produced === 0).map(({ kpiInputs: { pruSource: _s, ...k } }) => k))
+  const allRepairs = machines.flatMap((m) => m.repairs)
+  const scrapAll = new Map<string, number>()
+  for (const m of machines) for (const s of m.scrapByReason) scrapAll.set(s.reason, (scrapAll.get(s.reason) ?? 0) + s.count)
+
+  const [alarms, completeness, notes, signoffs] = await Promise.all([
+    alarmsOf(db, ids, from, to, !scope.machineId),
+    completenessOf(db, ids, from, to, readings.length),
+    notesOf(db, ids, from, to, !scope.machineId),
+    scope.shift ? signoffsOf(db, scope.cellId, scope.shift) : Promise.resolve([]),
+  ])
+
+  return {
+    scope: { cellId: scope.cellId, cellName: cal.cellName, timeZone: cal.timeZone, from, to, machineId: scope.machineId ?? null, shift: scope.shift ?? null, generatedAt: Date.now() },
+    totals: {
+      produced: machines.reduce((a, m) => a + m.produced, 0), good: machines.reduce((a, m) => a + m.good, 0),
+      scrap: machines.reduce((a, m) => a + m.scrap, 0), scrapByReason: sortCounts(scrapAll),
+      kpiInputs: combined, kpi: kpiIndices(combined), downtime: kpiMergeDowntime(machines.map((m) => m.downtime)),
+      mttrMs: kpiMttr(allRepairs.map((r) => r.to - r.from)), failures: allRepairs.length,
+    },
+    machines, alarms, completeness, notes, signoffs,
+  }
+}
+
+interface BirthLike { cycleTimeS?: number; offsetUm?: number; job?: { partNumber: string; lowerToleranceUm: number; upperToleranceUm: number } | null }
+
+// ---------------------------------------------------------------- parts of the report
+
+type ReadingRow = { machineId: string; seq: number; part: number; time: number; status: string; diameterUm: number | null; partNumber: string | null }
+
+function capabilityOf(machineId: string, partNumber: string | null, rs: readonly ReadingRow[], tol: { lsl: number; usl: number } | null): ReportCapability {
+  const ok = rs.filter((r) => r.status === 'ok' && r.diameterUm !== null)
+  const values = ok.map((r) => r.diameterUm!)
+  const base: ReportCapability = {
+    machineId, partNumber, n: values.length, mean: values.length ? spcMean(values) : null, lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
+    sigmaWithin: null, sigmaOverall: null,
+    sigmaWithinMethod: 'within: average moving range of consecutive parts / d2(2) = 1.128',
+    sigmaOverallMethod: 'overall: sample standard deviation of all parts (n − 1)',
+    cp: null, cpk: null, pp: null, ppk: null, note: null, runRules: [],
+  }
+  if (values.length < 2) return { ...base, note: 'fewer than two measured parts' }
+  const sigmaWithin = spcWithinSigmaMovingRange(values)
+  const sigmaOverall = spcOverallSigma(values)
+  const mean = base.mean!
+  const out = { ...base, sigmaWithin, sigmaOverall }
+  if (sigmaWithin > 0) {
+    const counts = new Map<SpcRunRule, { count: number; first: number }>()
+    for (const v of spcRunRules(values, { center: mean, sigma: sigmaWithin, rules: SPC_WESTERN_ELECTRIC_RULES })) {
+      const c = counts.get(v.rule)
+      if (c) c.count++
+      else counts.set(v.rule, { count: 1, first: v.index })
+    }
+    out.runRules = [...counts].map(([rule, c]) => ({ rule, text: SPC_RUN_RULE_TEXT[rule], count: c.count, first: { part: ok[c.first]!.part, time: ok[c.first]!.time } }))
+  }
+  if (!tol) return { ...out, note: 'no tolerance known for this job' }
+  if (!(sigmaWithin > 0 && sigmaOverall > 0)) return { ...out, note: 'all sizes identical: σ is 0' }
+  const c = spcCapability({ mean, withinSigma: sigmaWithin, overallSigma: sigmaOverall, usl: tol.usl, lsl: tol.lsl })
+  return { ...out, ...c }
+}
+
+type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
+
+function compensationOf(mk: readonly MarkRow[], mr: readonly ReadingRow[], offsetBefore: number | null, held: Map<number, string>) {
+  let offset = offsetBefore
+  let applied = 0, rejected = 0, expired = 0, total = 0, largest = 0
+  let first: number | null = offsetBefore
+  const offsetMarks: { at: number; offsetUm: number; stepUm: number }[] = []
+  const dressEvents: { time: number; parts: number; trigger: string }[] = []
+  let wheelChanges = 0, masterings = 0
+  for (const e of mk) {
+    const p = e.payload as Record<string, unknown>
+    if (e.kind === 'birth') {
+      if (offset === null) { offset = Number(p.offsetUm); first ??= offset }
+    }
+    else if (e.kind === 'ack' && e.type?.startsWith('offset:')) {
+      const result = e.type.slice('offset:'.length)
+      if (result === 'applied') {
+        applied++
+        const now = Number(p.offsetUm)
+        const step = offset === null ? 0 : now - offset
+        first ??= offset ?? now
+        total += Math.abs(step)
+        largest = Math.max(largest, Math.abs(step))
+        offsetMarks.push({ at: e.time, offsetUm: now, stepUm: round3(step) })
+        offset = now
+      }
+      else if (result === 'rejected') rejected++
+      else if (result === 'expired') expired++
+    }
+    else if (e.type === 'dress') dressEvents.push({ time: e.time, parts: Number(p.partsSinceDress), trigger: String(p.trigger) })
+    else if (e.type === 'wheel_change') wheelChanges++
+    else if (e.type === 'mastering') masterings++
+  }
+  // Time in hold: runs of held readings, from the first held one to the next reading not held.
+  const holdByReason = new Map<string, { reason: string; ms: number; episodes: number; readings: number }>()
+  let runStart: number | null = null
+  let runReason = ''
+  let runCount = 0
+  const close = (at: number) => {
+    if (runStart === null) return
+    const h = holdByReason.get(runReason) ?? { reason: runReason, ms: 0, episodes: 0, readings: 0 }
+    h.ms += at - runStart
+    h.episodes++
+    h.readings += runCount
+    holdByReason.set(runReason, h)
+    runStart = null
+    runCount = 0
+  }
+  for (const r of mr) {
+    const reason = held.get(r.seq)
+    if (reason !== undefined) {
+      const category = holdCategory(reason)
+      if (runStart !== null && category !== runReason) close(r.time)
+      if (runStart === null) { runStart = r.time; runReason = category }
+      runCount++
+    }
+    else close(r.time)
+  }
+  if (runStart !== null) close(mr.at(-1)!.time)
+  const holds = [...holdByReason.values()].sort((a, b) => b.ms - a.ms)
+  const stats = (xs: number[]) => (xs.length ? { min: Math.min(...xs), mean: xs.reduce((a, b) => a + b, 0) / xs.length, max: Math.max(...xs) } : null)
+  const dressTriggers: Record<string, number> = {}
+  for (const d of dressEvents) dressTriggers[d.trigger] = (dressTriggers[d.trigger] ?? 0) + 1
+  const minutesBetween = dressEvents.slice(1).map((d, i) => (d.time - dressEvents[i]!.time) / 60_000)
+  return {
+    offsetsApplied: applied, offsetsRejected: rejected, offsetsExpired: expired,
+    totalStepUm: round3(total), netStepUm: round3(offset !== null && first !== null ? offset - first : 0), largestStepUm: round3(largest),
+    holdMs: holds.reduce((a, h) => a + h.ms, 0), holds,
+    dresses: dressEvents.length, dressTriggers,
+    dressIntervalParts: stats(dressEvents.map((d) => d.parts).filter((n) => Number.isFinite(n))),
+    dressIntervalMinutes: stats(minutesBetween),
+    wheelChanges, masterings, offsetMarks,
+  }
+}
+
+/** "hold: dress: waiting for post-dress parts (3 parts)" → "dress". */
+export function holdCategory(reason: string): string {
+  const text = reason.replace(/^hold:\s*/, '')
+  const cut = text.search(/[:(;]/)
+  return (cut > 0 ? text.slice(0, cut) : text).trim() || 'hold'
+}
+
+async function alarmsOf(db: ReportDb, ids: string[], from: number, to: number, includeCellWide: boolean): Promise<ReportAlarms> {
+  const t = schema.alarmTransitions
+  const a = schema.alarms
+  const scopeCond = includeCellWide ? or(inArray(a.machineId, ids.length ? ids : ['\u0000']), sql`${a.machineId} is null`) : inArray(a.machineId, ids)
+  // Acknowledgements may come after the end of the window: look a day further for them.
+  const rows = await db.select({ alarmId: t.alarmId, at: t.at, toState: t.toState, action: t.action, userId: t.userId, machineId: a.machineId, priority: a.priority, condition: a.condition, message: a.message })
+    .from(t).innerJoin(a, eq(a.id, t.alarmId)).where(and(gte(t.at, from), lt(t.at, to + 86_400_000), scopeCond)).orderBy(asc(t.at), asc(t.id))
+  const users = await db.select({ id: schema.users.id, name: schema.users.name }).from(schema.users)
+  const nameOf = (id: number | null) => (id === null ? 'the system' : users.find((u) => u.id === id)?.name ?? `user ${id}`)
+  const list: ReportAlarms['list'] = []
+  const open = new Map<number, ReportAlarms['list'][number]>()
+  const handlers = new Map<string, ReportAlarms['handlers'][number]>()
+  for (const r of rows) {
+    if (r.toState === 'unacknowledged' && r.at < to) {
+      const item = { alarmId: r.alarmId, at: r.at, machineId: r.machineId, priority: r.priority, condition: r.condition, message: r.message, ackMs: null, ackBy: null }
+      list.push(item)
+      open.set(r.alarmId, item)
+    }
+    if (r.action === 'acknowledge') {
+      const item = open.get(r.alarmId)
+      if (item) { item.ackMs = r.at - item.at; item.ackBy = nameOf(r.userId); open.delete(r.alarmId) }
+    }
+    if (r.userId !== null && r.at < to && r.action !== 'condition-active' && r.action !== 'condition-cleared') {
+      const key = String(r.userId)
+      const h = handlers.get(key) ?? { userId: r.userId, name: nameOf(r.userId), acknowledged: 0, other: 0, conditions: [] }
+      if (r.action === 'acknowledge') h.acknowledged++
+      else h.other++
+      if (!h.conditions.includes(r.condition)) h.conditions.push(r.condition)
+      handlers.set(key, h)
+    }
+  }
+  const acks = list.filter((l) => l.ackMs !== null).map((l) => l.ackMs!).sort((x, y) => x - y)
+  const byPriority: Record<string, number> = { top: 0, high: 0, medium: 0, low: 0 }
+  for (const l of list) byPriority[ALARM_PRIORITY_NAMES[l.priority as AlarmPriority] ?? 'low']!++
+  return {
+    annunciations: list.length, byPriority,
+    ackTimes: { count: acks.length, medianMs: acks.length ? median(acks) : null, maxMs: acks.at(-1) ?? null, unacknowledged: list.length - acks.length },
+    handlers: [...handlers.values()].sort((x, y) => y.acknowledged + y.other - x.acknowledged - x.other),
+    list,
+    rates: alarmRateMetrics(list.map((l) => ({ at: l.at, priority: l.priority as AlarmPriority })), { from, to }),
+  }
+}
+
+async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number): Promise<ReportCompleteness> {
+  const idList = ids.length ? ids : ['\u0000']
+  const [gaps, presence, dead] = await Promise.all([
+    db.select().from(schema.sequenceGaps).where(and(inArray(schema.sequenceGaps.machineId, idList), gte(schema.sequenceGaps.detectedAt, from), lt(schema.sequenceGaps.detectedAt, to))).orderBy(asc(schema.sequenceGaps.detectedAt)),
+    db.select().from(schema.presenceLog).where(and(inArray(schema.presenceLog.machineId, idList), gte(schema.presenceLog.at, from), lt(schema.presenceLog.at, to))).orderBy(asc(schema.presenceLog.at)),
+    db.select({ reason: schema.deadLetters.reason, n: sql<number>`count(*)` }).from(schema.deadLetters)
+      .where(and(or(inArray(schema.deadLetters.machineId, idList), sql`${schema.deadLetters.machineId} is null`), gte(schema.deadLetters.receivedAt, from), lt(schema.deadLetters.receivedAt, to)))
+      .groupBy(schema.deadLetters.reason),
+  ])
+  const disconnections: ReportCompleteness['disconnections'] = []
+  for (const p of presence) {
+    if (!p.online) disconnections.push({ machineId: p.machineId, at: p.at, reason: p.reason, backAt: null })
+    else {
+      const d = [...disconnections].reverse().find((x) => x.machineId === p.machineId && x.backAt === null)
+      if (d) d.backAt = p.at
+    }
+  }
+  const reasons = new Map<string, number>()
+  for (const d of dead) {
+    const short = d.reason.length > 80 ? `${d.reason.slice(0, 77)}…` : d.reason
+    reasons.set(short, (reasons.get(short) ?? 0) + Number(d.n))
+  }
+  return {
+    readings: readingCount,
+    missingSequenceNumbers: gaps.reduce((a, g) => a + g.toSeq - g.fromSeq + 1, 0),
+    gaps: gaps.map((g) => ({ machineId: g.machineId, fromSeq: g.fromSeq, toSeq: g.toSeq, detectedAt: g.detectedAt })),
+    disconnections,
+    offlineMs: disconnections.reduce((a, d) => a + ((d.backAt ?? to) - d.at), 0),
+    deadLetters: dead.reduce((a, d) => a + Number(d.n), 0),
+    deadLetterReasons: sortCounts(reasons),
+  }
+}
+
+async function notesOf(db: ReportDb, ids: string[], from: number, to: number, includeCellWide: boolean): Promise<Report['notes']> {
+  const n = schema.shiftNotes
+  const scopeCond = includeCellWide ? or(inArray(n.machineId, ids.length ? ids : ['\u0000']), sql`${n.machineId} is null`) : inArray(n.machineId, ids)
+  const rows = await db.select({ id: n.id, at: n.at, machineId: n.machineId, author: schema.users.name, text: n.text }).from(n)
+    .innerJoin(schema.users, eq(schema.users.id, n.userId)).where(and(gte(n.at, from), lt(n.at, to), scopeCond)).orderBy(asc(n.at))
+  return rows
+}
+
+async function signoffsOf(db: ReportDb, cellId: string, shift: ShiftWindow): Promise<Report['signoffs']> {
+  const s = schema.reportSignoffs
+  return db.select({ id: s.id, at: s.at, userId: s.userId, name: schema.users.name, comment: s.comment }).from(s)
+    .innerJoin(schema.users, eq(schema.users.id, s.userId))
+    .where(and(eq(s.cellId, cellId), eq(s.shiftId, shift.shiftId), eq(s.shiftDate, shift.date))).orderBy(asc(s.at))
+}
+
+// ---------------------------------------------------------------- parts CSV
+
+const CSV_HEADER = ['machine', 'part', 'gauged_at_utc', 'job', 'status', 'diameter_dev_um', 'offset_in_force_um', 'disposition', 'reject_reason', 'dresses_before', 'parts_since_dress', 'wheel_diameter_mm', 'wheel_id']
+
+/** Every part gauged in the range, one CSV line each (RFC 4180 quoting), as an array of lines. */
+export async function reportPartsCsv(db: ReportDb, scope: ReportScope): Promise<string[]> {
+  const { from, to } = scope
+  if (!(Number.isFinite(from) && Number.isFinite(to) && from < to)) throw new ReportInputError('the range needs from < to (epoch ms)')
+  if (to - from > REPORT_MAX_RANGE_MS) throw new ReportInputError('the range is longer than 31 days; ask for a shorter one')
+  const machineRows = await db.select().from(schema.machines).where(eq(schema.machines.cellId, scope.cellId)).orderBy(asc(schema.machines.sortOrder), asc(schema.machines.id))
+  if (!machineRows.length) throw new ReportInputError(`no cell "${scope.cellId}" with machines`)
+  const ids = machineRows.map((m) => m.id).filter((id) => !scope.machineId || id === scope.machineId)
+  if (!ids.length) throw new ReportInputError(`no machine "${scope.machineId}" in cell "${scope.cellId}"`)
+  const mm = schema.machineMessages
+  const lines = [CSV_HEADER.join(',')]
+  for (const id of ids) {
+    const [readings, events, lastWheel] = await Promise.all([
+      db.select().from(schema.readings).where(and(eq(schema.readings.machineId, id), gte(schema.readings.time, from), lt(schema.readings.time, to))).orderBy(asc(schema.readings.time), asc(schema.readings.seq)),
+      db.select({ type: mm.type, time: mm.time, part: sql<number | null>`json_extract(${mm.payload}, '$.part')`, a: sql<string | null>`json_extract(${mm.payload}, '$.disposition')`, b: sql<string | null>`json_extract(${mm.payload}, '$.rejectReason')`, wheel: sql<number | null>`json_extract(${mm.payload}, '$.wheelDiameterMm')`, wheelId: sql<string | null>`json_extract(${mm.payload}, '$.wheelId')` })
+        .from(mm).where(and(eq(mm.machineId, id), gte(mm.time, from - 3_600_000), lt(mm.time, to), inArray(mm.type, ['part_unloaded', 'part_ground', 'dress', 'wheel_change']))).orderBy(asc(mm.time), asc(mm.seq)),
+      db.select({ wheelId: sql<string | null>`json_extract(${mm.payload}, '$.wheelId')` }).from(mm).where(and(eq(mm.machineId, id), lt(mm.time, from - 3_600_000), eq(mm.type, 'wheel_change'))).orderBy(desc(mm.time)).limit(1),
+    ])
+    // Walk events in time order: dress count and wheel id at the moment each part was ground.
+    const ground = new Map<number, { wheel: number | null; dresses: number; sinceDress: number; wheelId: string | null }>()
+    const disposition = new Map<number, { a: string | null; b: string | null }>()
+    let dresses = 0, sinceDress = 0
+    let wheelId = lastWheel[0]?.wheelId ?? null
+    for (const e of events) {
+      if (e.type === 'dress') { if (e.time >= from) dresses++; sinceDress = 0 }
+      else if (e.type === 'wheel_change') { wheelId = e.wheelId; sinceDress = 0 }
+      else if (e.type === 'part_ground' && e.part !== null) { sinceDress++; ground.set(e.part, { wheel: e.wheel, dresses, sinceDress, wheelId }) }
+      else if (e.type === 'part_unloaded' && e.part !== null) disposition.set(e.part, { a: e.a, b: e.b })
+    }
+    for (const r of readings) {
+      const g = ground.get(r.part)
+      const d = disposition.get(r.part)
+      lines.push([
+        id, r.part, new Date(r.time).toISOString(), r.jobPartNumber ?? '', r.status, r.diameterUm ?? '', r.offsetUm,
+        d?.a ?? '', d?.b ?? '', g?.dresses ?? '', g?.sinceDress ?? '', g?.wheel ?? '', g?.wheelId ?? '',
+      ].map(csvField).join(','))
+    }
+  }
+  return lines
+}
+
+export function csvField(v: unknown): string {
+  const s = String(v)
+  // RFC 4180 quoting; a leading = + - @ is prefixed so spreadsheets do not run it as a formula.
+  const safe = /^[=+\-@]/.test(s) && !/^-?\d/.test(s) ? `'${s}` : s
+  return /[",\r\n]/.test(safe) ? `"${safe.replace(/"/g, '""')}"` : safe
+}
+
+// ---------------------------------------------------------------- shift-end summary (for the e-mail)
+
+/** A short plain-text summary of one shift and the link to its report, for the shift-end e-mail. */
+export async function buildShiftSummary(db: ReportDb, cellId: string, shift: Pick<ShiftWindow, 'shiftId' | 'date'>, baseUrl = ''): Promise<{ subject: string; text: string; link: string }> {
+  const scope = await reportShiftScope(db, cellId, shift.shiftId, shift.date)
+  const r = await reportBuild(db, scope)
+  const pct = (x: number | null) => (x === null ? '—' : `${(x * 100).toFixed(1)} %`)
+  const link = `${baseUrl}/report/${encodeURIComponent(cellId)}/${encodeURIComponent(shift.shiftId)}/${shift.date}`
+  const top = r.totals.downtime[0]
+  const lines = [
+    `${r.scope.cellName} — ${scope.shift!.name} shift of ${shift.date}`,
+    `Parts: ${r.totals.produced} made, ${r.totals.good} good, ${r.totals.scrap} scrap${r.totals.scrapByReason.length ? ` (${r.totals.scrapByReason.map((s) => `${s.reason} ${s.count}`).join(', ')})` : ''}.`,
+    `OEE ${pct(r.totals.kpi.oee)} (availability ${pct(r.totals.kpi.availability)}, effectiveness ${pct(r.totals.kpi.effectiveness)}, quality ${pct(r.totals.kpi.qualityRatio)}).`,
+    top ? `Largest stop: ${top.cause}, ${Math.round(top.ms / 60_000)} min.` : 'No unplanned stops.',
+    `Alarms: ${r.alarms.annunciations}${r.alarms.ackTimes.unacknowledged ? `, ${r.alarms.ackTimes.unacknowledged} not acknowledged` : ''}.`,
+    r.completeness.missingSequenceNumbers || r.completeness.deadLetters ? `Data: ${r.completeness.missingSequenceNumbers} messages missing, ${r.completeness.deadLetters} refused.` : 'Data: complete.',
+    r.notes.length ? `${r.notes.length} note(s) left during the shift.` : '',
+    `Report: ${link}`,
+  ].filter(Boolean)
+  return { subject: `${r.scope.cellName}: ${scope.shift!.name} ${shift.date} — ${r.totals.good} good, ${r.totals.scrap} scrap`, text: lines.join('\n'), link }
+}
+
+// ---------------------------------------------------------------- helpers
+
+function groupBy<T>(rows: readonly T[], key: (r: T) => string): Map<string, T[]> {
+  const m = new Map<string, T[]>()
+  for (const r of rows) {
+    const k = key(r)
+    let list = m.get(k)
+    if (!list) m.set(k, (list = []))
+    list.push(r)
+  }
+  return m
+}
+
+function sortCounts(m: Map<string, number>): { reason: string; count: number }[] {
+  return [...m].map(([reason, count]) => ({ reason, count })).sort((a, b) => b.count - a.count || a.reason.localeCompare(b.reason))
+}
+
+/** Keeps at most REPORT_CHART_MAX_POINTS: the lowest and highest point of each time-ordered bucket. */
+function thin(points: [number, number][]): [number, number][] {
+  if (points.length <= REPORT_CHART_MAX_POINTS) return points
+  const buckets = REPORT_CHART_MAX_POINTS / 2
+  const size = points.length / buckets
+  const out: [number, number][] = []
+  for (let b = 0; b < buckets; b++) {
+    const start = Math.floor(b * size)
+    const end = Math.min(points.length, Math.floor((b + 1) * size))
+    let lo = start, hi = start
+    for (let i = start; i < end; i++) {
+      if (points[i]![1] < points[lo]![1]) lo = i
+      if (points[i]![1] > points[hi]![1]) hi = i
+    }
+    if (lo === hi) out.push(points[lo]!)
+    else out.push(points[Math.min(lo, hi)]!, points[Math.max(lo, hi)]!)
+  }
+  return out
+}
+
+function median(sorted: number[]): number {
+  const mid = sorted.length >> 1
+  return sorted.length % 2 ? sorted[mid]! : (sorted[mid - 1]! + sorted[mid]!) / 2
+}
+
+const round3 = (x: number) => Math.round(x * 1000) / 1000

@@ -1,0 +1,150 @@
+// The report against the simulator's ground truth: a seeded headless night (compensation engine
+// in the loop) stored the way ingest stores it, then reported. Counts and scrap must equal the
+// simulator's own summary; downtime must equal the scenario's scheduled faults to the millisecond.
+// Second oracle for the statistics: simple-statistics (npm registry).
+import { describe, it, expect, beforeAll, afterAll } from 'vitest'
+import { fileURLToPath } from 'node:url'
+import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics'
+import { openReportFixture, seedCell, simulateInto, type ReportFixture } from '../../scripts/report-fixture'
+import { loadScenarioFile } from '../../simulator/scenario'
+import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, ReportInputError, type Report } from '../../server/utils/report'
+import * as schema from '../../server/database/schema'
+
+const root = fileURLToPath(new URL('../..', import.meta.url))
+const scenario = loadScenarioFile(`${root}simulator/scenarios/loader-jam-and-empty-pallet.json`)
+const start = Date.parse(scenario.start) // 2026-03-05T21:00Z = 22:00 in Berlin
+const H = 3_600_000
+const MIN = 60_000
+
+describe('overnight report from a simulated night', () => {
+  let fx: ReportFixture
+  let truth: Awaited<ReturnType<typeof simulateInto>>
+  let report: Report
+  beforeAll(async () => {
+    fx = await openReportFixture()
+    await seedCell(fx, scenario, 4, 'Europe/Berlin')
+    truth = await simulateInto(fx, { scenario, seed: 3, machines: 4, hours: 10 })
+    report = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 10 * H })
+  }, 60_000)
+  afterAll(() => fx?.close())
+
+  it('parts produced, good and scrap by reason equal the simulator summary, machine by machine', () => {
+    for (const s of truth.summary.machines) {
+      const m = report.machines.find((x) => x.id === s.id)!
+      expect(m.produced, s.id).toBe(s.partsGauged)
+      expect(m.good, s.id).toBe(s.good)
+      expect(Object.fromEntries(m.scrapByReason.map((r) => [r.reason, r.count])), s.id).toEqual(s.rejects)
+    }
+    expect(report.totals.produced).toBe(truth.summary.totals.partsGauged)
+    expect(report.totals.good).toBe(truth.summary.totals.good)
+    expect(report.totals.scrap).toBe(Object.values(truth.summary.totals.rejects).reduce((a, b) => a + b, 0))
+  })
+
+  it('downtime by cause equals the scenario schedule exactly', () => {
+    const down = (id: string) => Object.fromEntries(report.machines.find((m) => m.id === id)!.downtime.map((d) => [d.cause, d.ms]))
+    expect(down('cg-01').loader_jam).toBe(25 * MIN) // scheduled: hour 2, 25 minutes
+    expect(down('cg-02')).toEqual({})
+    expect(down('cg-04')).toEqual({ loader_jam: 4 * H }) // scheduled: hour 6 until the end of the night
+    expect(Object.keys(down('cg-03'))).toEqual(['empty_pallet']) // starves when its 3 pallets are used up
+    // The engine held cg-01 (feed hold) before the jam; the jam interrupts the hold, the hold resumes after it.
+    const cg01 = report.machines.find((m) => m.id === 'cg-01')!
+    expect(cg01.mttrMs).toBe(25 * MIN)
+    expect(cg01.kpiInputs.pbt).toBe(10 * H)
+    expect(cg01.kpiInputs.apt).toBe(10 * H - 25 * MIN - (down('cg-01')['feed hold'] ?? 0))
+    // largest first over the cell
+    expect(report.totals.downtime.map((d) => d.ms)).toEqual([...report.totals.downtime.map((d) => d.ms)].sort((a, b) => b - a))
+  })
+
+  it('feed hold lasts from the machine’s hold acknowledgement to the end, less the jam', async () => {
+    const ack = await fx.client.execute(`select min(time) t from machine_messages where machine_id = 'cg-01' and type = 'hold:applied'`)
+    const holdAt = Number(ack.rows[0]!.t)
+    if (!Number.isFinite(holdAt) || holdAt === 0) return expect(report.machines[0]!.downtime.find((d) => d.cause === 'feed hold')).toBeUndefined()
+    const hold = report.machines.find((m) => m.id === 'cg-01')!.downtime.find((d) => d.cause === 'feed hold')!
+    expect(hold.ms).toBe(start + 10 * H - holdAt - 25 * MIN)
+  })
+
+  it('OEE parts follow ISO 22400-2 from the time model and counts', () => {
+    const m = report.machines.find((x) => x.id === 'cg-02')!
+    expect(m.kpi.availability).toBe(1)
+    expect(m.kpi.qualityRatio).toBeCloseTo(m.good / m.produced, 12)
+    expect(m.kpi.effectiveness).toBeCloseTo((24_000 * m.produced) / m.kpiInputs.apt, 12) // PRU = 24 s cycle
+    expect(m.kpi.oee).toBeCloseTo((24_000 * m.good) / (10 * H), 12) // = PRU·GQ/PBT
+  })
+
+  it('capability uses the named σ estimates (checked with simple-statistics and MR̄/1.128)', async () => {
+    const rows = await fx.db.select().from(schema.readings)
+    const values = rows.filter((r) => r.machineId === 'cg-02' && r.status === 'ok').sort((a, b) => a.time - b.time || a.seq - b.seq).map((r) => r.diameterUm!)
+    const c = report.machines.find((x) => x.id === 'cg-02')!.capability[0]!
+    expect(c.n).toBe(values.length)
+    expect(c.mean!).toBeCloseTo(ssMean(values), 9)
+    expect(c.sigmaOverall!).toBeCloseTo(sampleStandardDeviation(values), 9)
+    let mr = 0
+    for (let i = 1; i < values.length; i++) mr += Math.abs(values[i]! - values[i - 1]!)
+    const within = mr / (values.length - 1) / 1.128 // d2(2) = 1.128 (reference-values §1)
+    expect(c.sigmaWithin!).toBeCloseTo(within, 3)
+    // tolerance of LTP-1200-P is −8 … 0 µm
+    expect(c.cp!).toBeCloseTo(8 / (6 * c.sigmaWithin!), 9)
+    expect(c.ppk!).toBeCloseTo(Math.min(0 - c.mean!, c.mean! + 8) / (3 * c.sigmaOverall!), 9)
+    expect(c.sigmaWithinMethod).toMatch(/moving range/)
+  })
+
+  it('the compensation summary counts the applied offsets and the dresses of the night', () => {
+    for (const s of truth.summary.machines) {
+      const comp = report.machines.find((m) => m.id === s.id)!.compensation
+      expect(comp.dresses, s.id).toBe(s.dresses)
+      expect(comp.masterings, s.id).toBe(s.masterings)
+      expect(comp.offsetsApplied + comp.offsetsRejected + comp.offsetsExpired, s.id).toBeLessThanOrEqual(s.commands.applied + s.commands.rejected + s.commands.expired)
+      expect(comp.largestStepUm).toBeLessThanOrEqual(comp.totalStepUm)
+    }
+    expect(report.machines.some((m) => m.compensation.offsetsApplied > 0)).toBe(true)
+  })
+
+  it('the night shift in Berlin cuts the run at 06:00 local, and counts only its parts', async () => {
+    const scope = await reportShiftScope(fx.db, 'cell-a', 'night', '2026-03-05')
+    expect(scope.from).toBe(start) // 22:00 CET
+    expect(scope.to).toBe(start + 8 * H)
+    const night = await reportBuild(fx.db, scope)
+    const unloaded = await fx.client.execute({ sql: `select count(*) n from machine_messages where type = 'part_unloaded' and time >= ? and time < ?`, args: [scope.from, scope.to] })
+    expect(night.totals.produced).toBe(Number(unloaded.rows[0]!.n))
+    expect(night.totals.produced).toBeLessThan(report.totals.produced)
+  })
+
+  it('exports every gauged part as CSV with its offset, dress count and wheel', async () => {
+    const lines = await reportPartsCsv(fx.db, { cellId: 'cell-a', from: start, to: start + 10 * H, machineId: 'cg-01' })
+    const n = await fx.client.execute(`select count(*) n from readings where machine_id = 'cg-01'`)
+    expect(lines.length).toBe(Number(n.rows[0]!.n) + 1)
+    expect(lines[0]).toBe('machine,part,gauged_at_utc,job,status,diameter_dev_um,offset_in_force_um,disposition,reject_reason,dresses_before,parts_since_dress,wheel_diameter_mm,wheel_id')
+    const cols = lines.slice(1).map((l) => l.split(','))
+    const dressCol = cols.map((c) => Number(c[9]))
+    for (let i = 1; i < dressCol.length; i++) expect(dressCol[i]).toBeGreaterThanOrEqual(dressCol[i - 1]!) // a running count
+    expect(dressCol.at(-1)).toBe(truth.summary.machines[0]!.dresses) // cg-01 dressed only before its hold
+    // parts since dress restarts at 1 right after each dress
+    for (let i = 1; i < cols.length; i++) if (dressCol[i]! > dressCol[i - 1]!) expect(Number(cols[i]![10])).toBeLessThanOrEqual(5)
+    expect(Number(cols.at(-1)![11])).toBeGreaterThan(100) // wheel diameter in mm
+    expect(csvField('a,"b"')).toBe('"a,""b"""')
+    expect(csvField('=cmd()')).toBe("'=cmd()")
+    expect(csvField(-1.25)).toBe('-1.25')
+  })
+
+  it('the shift-end summary is short text with the counts and a link', async () => {
+    const s = await buildShiftSummary(fx.db, 'cell-a', { shiftId: 'night', date: '2026-03-05' }, 'https://owl.example')
+    expect(s.link).toBe('https://owl.example/report/cell-a/night/2026-03-05')
+    expect(s.text).toMatch(/Parts: \d+ made, \d+ good, \d+ scrap/)
+    expect(s.text.split('\n').length).toBeLessThanOrEqual(9)
+  })
+
+  it('refuses bad scopes with a clear reason and changes nothing', async () => {
+    await expect(reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start })).rejects.toThrow(ReportInputError)
+    await expect(reportBuild(fx.db, { cellId: 'cell-z', from: start, to: start + H })).rejects.toThrow(/no cell "cell-z"/)
+    await expect(reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + H, machineId: 'cg-99' })).rejects.toThrow(/no machine "cg-99"/)
+    await expect(reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 40 * 24 * H })).rejects.toThrow(/longer than 31 days/)
+    await expect(reportShiftScope(fx.db, 'cell-a', 'graveyard', '2026-03-05')).rejects.toThrow(/no shift "graveyard"/)
+    const again = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 10 * H })
+    expect(again.totals).toEqual(report.totals)
+  })
+
+  it('names hold reasons by their first words', () => {
+    expect(holdCategory('hold: dress: waiting for post-dress parts (3 parts)')).toBe('dress')
+    expect(holdCategory('hold: gauge suspect: 3 readings in a row far from the prediction')).toBe('gauge suspect')
+  })
+})
