@@ -247,7 +247,7 @@ export class IngestPipeline {
         effects.live.push({ type: 'decision', machineId: ctx.id, seq, action: actionOf(decision), reason: decision.reason, offsetUm: decision.offsetUm, correctionUm: decision.command?.correctionUm ?? null })
       }
       const startEngine = (job: JobInfo | null, offsetUm: number, pipeline?: number) => {
-        try { w.engine = newEngine(compensationSettingsFor(job, ctx.job, pipeline, st.cycleTimeS ?? undefined), offsetUm) }
+        try { w.engine = newEngine(compensationSettingsFor(job, ctx.job, pipeline, st.cycleTimeS ?? undefined, ctx.tuning), offsetUm) }
         catch (err) {
           w.engine = null
           effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: compensation is off, its settings are not valid (${(err as Error).message})`, at: now })
@@ -315,7 +315,7 @@ export class IngestPipeline {
           case 'mastering': record(step({ type: 'mastered', time }, message.seq), message.seq); break
           case 'job_change':
             st.jobPartNumber = message.job.partNumber
-            if (w.engine) record(step({ type: 'job-change', settings: compensationSettingsFor(message.job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined), time }, message.seq), message.seq)
+            if (w.engine) record(step({ type: 'job-change', settings: compensationSettingsFor(message.job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined, ctx.tuning), time }, message.seq), message.seq)
             else startEngine(message.job, st.appliedOffsetUm ?? 0)
             break
           case 'fault_raised':

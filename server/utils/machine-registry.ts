@@ -3,7 +3,8 @@
 // its only writer and persists every change in the same commit as the messages behind it.
 import { eq } from 'drizzle-orm'
 import type { JobInfo } from '#shared/utils/contract'
-import { createCompensationState, restoreCompensationState, type CompensationSettingsInput, type CompensationState } from '#shared/utils/compensation'
+import { createCompensationState, restoreCompensationState, stepCompensation, type CompensationSettingsInput, type CompensationState } from '#shared/utils/compensation'
+import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 
 export type JobRow = typeof schema.jobs.$inferSelect
 export type StatusRow = typeof schema.machineStatus.$inferSelect
@@ -15,6 +16,8 @@ export interface MachineContext {
   job: JobRow | null
   status: StatusRow
   engine: CompensationState | null
+  /** the active compensation settings version for this machine's job (null: engine defaults) */
+  tuning: CompensationTuning | null
 }
 
 const registry = new Map<string, MachineContext>()
@@ -41,7 +44,8 @@ export async function loadMachineRegistry() {
       try { engine = restoreCompensationState(status.engineState) }
       catch (err) { console.warn(`[ingest] engine state of ${m.id} could not be restored (${(err as Error).message}); it starts afresh`) }
     }
-    registry.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine })
+    const tuning = m.currentJobId ? await activeTuningFor(m.currentJobId, m.id) : null
+    registry.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning })
   }
 }
 
@@ -55,25 +59,53 @@ export async function refreshMachineContext(id: string) {
   if (!m) { registry.delete(id); return }
   const [job] = m.currentJobId ? await db.select().from(schema.jobs).where(eq(schema.jobs.id, m.currentJobId)) : []
   const prev = registry.get(id)
-  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null })
+  const tuning = job ? await activeTuningFor(job.id, id) : null
+  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning })
 }
 
 /**
  * Compensation settings for what the machine says it grinds. The machine is the last authority
  * on the job in the chuck; our job record adds cycle time and roundness limit when the part
- * numbers match.
+ * numbers match, and so does the job's active tuning (what an engineer set explicitly wins).
  */
-export function compensationSettingsFor(job: JobInfo | null, ourJob: JobRow | null, pipelineParts?: number, cycleTimeS?: number): CompensationSettingsInput {
+export function compensationSettingsFor(job: JobInfo | null, ourJob: JobRow | null, pipelineParts?: number, cycleTimeS?: number, tuning?: CompensationTuning | null): CompensationSettingsInput {
   const upper = job?.upperToleranceUm ?? (ourJob ? ourJob.upperTolNm / 1000 : 2)
   const lower = job?.lowerToleranceUm ?? (ourJob ? ourJob.lowerTolNm / 1000 : -2)
   const matches = ourJob && (!job || job.partNumber === ourJob.partNumber)
+  const t = matches && tuning ? tuning : {}
   return {
+    ...t,
     upperSpecUm: upper,
     lowerSpecUm: lower,
-    pipelineParts: pipelineParts ?? 3,
-    cycleTimeS: cycleTimeS ?? (matches ? ourJob!.cycleTimeS : 20),
-    dress: matches && ourJob!.roundnessLimitNm ? { roundnessLimitUm: ourJob!.roundnessLimitNm / 1000 } : {},
+    pipelineParts: t.pipelineParts ?? pipelineParts ?? 3,
+    cycleTimeS: t.cycleTimeS ?? cycleTimeS ?? (matches ? ourJob!.cycleTimeS : 20),
+    dress: { ...(matches && ourJob!.roundnessLimitNm ? { roundnessLimitUm: ourJob!.roundnessLimitNm / 1000 } : {}), ...t.dress },
   }
+}
+
+/**
+ * A changeover or new tuning decided here (jobs page, settings activation): the machine's job and
+ * tuning change, and its running engine gets a `job-change` input with the new settings, so it
+ * holds until the parts ground before the change have left the pipeline, then re-learns. Waits
+ * until the ingest pipeline is idle, so no commit in flight carries the old engine state back.
+ * Returns the engine's answer (null when no engine runs yet: the next birth starts it).
+ */
+export async function setMachineJob(machineId: string, job: JobRow | null, tuning: CompensationTuning | null) {
+  await useIngest().drain()
+  const ctx = registry.get(machineId)
+  if (!ctx) return null
+  ctx.job = job
+  ctx.tuning = job ? tuning : null
+  if (!ctx.engine || !job) return null
+  const settings = compensationSettingsFor(null, job, ctx.engine.settings.pipelineParts, ctx.status.cycleTimeS ?? undefined, ctx.tuning)
+  const { state, decision } = stepCompensation(ctx.engine, { type: 'job-change', settings })
+  ctx.engine = state
+  const db = useDb()
+  await db.update(schema.machineStatus).set({ engineState: state }).where(eq(schema.machineStatus.machineId, machineId))
+  if (decision.kind !== 'ignored') {
+    await db.insert(schema.decisions).values({ machineId, seq: ctx.status.lastSeq, at: Date.now(), action: decision.hold ? 'hold' : 'none', correctionUm: null, offsetUm: decision.offsetUm, commandId: null, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null })
+  }
+  return decision
 }
 
 export function newEngine(settings: CompensationSettingsInput, offsetUm: number): CompensationState {

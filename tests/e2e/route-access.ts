@@ -43,4 +43,18 @@ export const routeAccess: Record<string, RouteRule> = {
   'reports/signoffs.post.ts': { access: ['lead'] },
   'reports/notes.post.ts': { access: ['lead', 'engineer', 'operator'] },
   'reports/calendar.put.ts': { access: ['admin', 'engineer'] },
+  // Jobs, compensation settings, replay
+  'jobs/index.get.ts': { access: 'signed-in' },
+  'jobs/index.post.ts': { access: ['engineer', 'admin'] },
+  'jobs/import.post.ts': { access: ['engineer', 'admin'], body: { csv: 'part_number\n' } },
+  'jobs/export.get.ts': { access: 'signed-in' },
+  'jobs/[id]/index.get.ts': { access: 'signed-in', params: { id: '1' } },
+  'jobs/[id]/index.patch.ts': { access: ['engineer', 'admin'], params: { id: '1' } },
+  'jobs/[id]/archive.post.ts': { access: ['engineer', 'admin'], params: { id: '999999' }, body: { archived: true } },
+  'jobs/[id]/assign.post.ts': { access: ['engineer', 'admin'], params: { id: '999999' }, body: { machineId: 'cg-01' } },
+  'jobs/[id]/settings.post.ts': { access: ['engineer', 'admin'], params: { id: '999999' } },
+  'compensation-settings/[id]/index.patch.ts': { access: ['engineer', 'admin'], params: { id: '999999' } },
+  'compensation-settings/[id]/activate.post.ts': { access: ['engineer', 'admin'], params: { id: '999999' }, body: { reason: 'role matrix probe' } },
+  'replay/runs.get.ts': { access: 'signed-in' },
+  'replay/readings.get.ts': { access: 'signed-in' },
 }
