@@ -188,13 +188,14 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   const US = '\u001f' // unit separator: never inside a number or a stored JSON text
   const [jobs, readingLists, unloaded, marked, births, ackLists] = await Promise.all([
     db.select().from(schema.jobs),
-    db.all<{ m: string; j: string | null; seqs: string; parts: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
-      select machine_id as m, job_part_number as j,
-        group_concat(seq, ',' order by time, seq) as seqs, group_concat(part, ',' order by time, seq) as parts,
-        group_concat(time, ',' order by time, seq) as times, group_concat(coalesce(diameter_um, ''), ',' order by time, seq) as dia,
-        group_concat(case status when 'ok' then 'o' when 'fault' then 'f' else 'r' end, '' order by time, seq) as st,
+    db.all<{ m: string; jobs: string; seqs: string; parts: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
+      select machine_id as m, group_concat(coalesce(job_part_number, ''), ${US}) as jobs,
+        group_concat(seq, ',') as seqs, group_concat(part, ',') as parts,
+        group_concat(time, ',') as times, group_concat(coalesce(diameter_um, ''), ',') as dia,
+        group_concat(case status when 'ok' then 'o' when 'fault' then 'f' else 'r' end, '') as st,
         min(received_at) as lo, max(received_at) as hi
-      from readings where machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id, job_part_number`),
+      from readings indexed by readings_machine_time
+      where machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id`),
     // good parts by a plain text test (ingest stores the JSON as JSON.stringify writes it); reasons only for rejects
     db.all<{ m: string; reason: string | null; good: number; n: number }>(sql`
       select machine_id as m, case when instr(payload, '"disposition":"good"') > 0 then null else json_extract(payload, '$.rejectReason') end as reason,
@@ -207,18 +208,21 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
       .from(mm).where(and(inArray(mm.machineId, idList), isNull(mm.type), inWindow(mm.time))),
     // offset acks: many (one per correction)
     db.all<{ m: string; times: string; seqs: string; types: string; payloads: string }>(sql`
-      select machine_id as m, group_concat(time, ',' order by time, seq) as times, group_concat(seq, ',' order by time, seq) as seqs,
-        group_concat(type, ',' order by time, seq) as types, group_concat(payload, ${US} order by time, seq) as payloads
+      select machine_id as m, group_concat(time, ',') as times, group_concat(seq, ',') as seqs,
+        group_concat(type, ',') as types, group_concat(payload, ${US}) as payloads
       from machine_messages where machine_id in ${idList} and type in ${[...OFFSET_ACK_TYPES]} and time >= ${from} and time < ${to} group by machine_id`),
   ])
   const readings: ReadingRow[] = []
   for (const g of readingLists) {
-    const seqs = g.seqs.split(','), parts = g.parts.split(','), times = g.times.split(','), dia = g.dia.split(',')
+    const seqs = g.seqs.split(','), parts = g.parts.split(','), times = g.times.split(','), dia = g.dia.split(','), jobsOf = g.jobs.split(US)
+    const mine: ReadingRow[] = []
     for (let i = 0; i < seqs.length; i++) {
-      readings.push({ machineId: g.m, seq: Number(seqs[i]), part: Number(parts[i]), time: Number(times[i]), status: g.st[i] === 'o' ? 'ok' : g.st[i] === 'f' ? 'fault' : 'over_range', diameterUm: dia[i] === '' ? null : Number(dia[i]), partNumber: g.j })
+      mine.push({ machineId: g.m, seq: Number(seqs[i]), part: Number(parts[i]), time: Number(times[i]), status: g.st[i] === 'o' ? 'ok' : g.st[i] === 'f' ? 'fault' : 'over_range', diameterUm: dia[i] === '' ? null : Number(dia[i]), partNumber: jobsOf[i] || null })
     }
+    // the index walk gives time order; same-millisecond readings are put in seq order
+    mine.sort((a, b) => a.time - b.time || a.seq - b.seq)
+    for (const r of mine) readings.push(r)
   }
-  if (readingLists.length > 1) readings.sort((a, b) => (a.machineId < b.machineId ? -1 : a.machineId > b.machineId ? 1 : a.time - b.time || a.seq - b.seq))
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
   const acks = ackLists.flatMap((g) => {
     const times = g.times.split(','), seqs = g.seqs.split(','), types = g.types.split(','), payloads = g.payloads.split(US)
@@ -228,24 +232,9 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   const marks: MarkRow[] = [...marked, ...births, ...acks.map((a) => ({ ...a, kind: 'ack', payload: { offsetUm: a.offsetUm } }))].sort(byTime)
   const jobByPart = new Map(jobs.map((j) => [j.partNumber, j]))
 
-  // The situation of each machine at `from`: its last state, births and offset before the window.
-  const latest = (where: ReturnType<typeof and>) => db.select({ time: mm.time, payload: mm.payload }).from(mm).where(where).orderBy(desc(mm.time)).limit(1)
-  const before = await Promise.all(ids.map(async (id) => {
-    const [[state], [lastAck], [lastBirth], [birth]] = await Promise.all([
-      // max() rather than ORDER BY … LIMIT 1: the planner then keeps to the (machine, type, time) index
-      db.select({ time: mm.time, payload: mm.payload }).from(mm).where(and(eq(mm.machineId, id), inArray(mm.type, STATE_TYPES),
-        eq(mm.time, sql`(select max(time) from machine_messages where machine_id = ${id} and type in ${STATE_TYPES} and time < ${from})`))).orderBy(desc(mm.seq)).limit(1),
-      latest(and(eq(mm.machineId, id), eq(mm.type, 'offset:applied'), lt(mm.time, from))),
-      latest(and(eq(mm.machineId, id), isNull(mm.type), lt(mm.time, from))),
-      latest(and(eq(mm.machineId, id), isNull(mm.type), lt(mm.time, to))),
-    ])
-    const faults = state
-      ? await db.select({ time: mm.time, type: mm.type, payload: mm.payload }).from(mm)
-        .where(and(eq(mm.machineId, id), inArray(mm.type, [...FAULT_EVENT_TYPES]), gte(mm.time, state.time), lt(mm.time, from))).orderBy(asc(mm.time))
-      : []
-    const offsetRow = [lastAck, lastBirth].filter(Boolean).sort((a, b) => b!.time - a!.time)[0]
-    return { id, state, faults, offsetUm: (offsetRow?.payload as { offsetUm?: number } | undefined)?.offsetUm ?? null, birth: birth?.payload as BirthLike | undefined }
-  }))
+  // The situation of each machine at `from`: its last state (and faults since), its offset in force
+  // and its latest birth. One statement of correlated max() lookups, each a single index probe.
+  const before = await situationBefore(db, ids, from, to)
   const beforeById = new Map(before.map((b) => [b.id, b]))
 
   // Held readings: decisions stored with action "hold" (found by server time around the window's readings).
@@ -358,6 +347,47 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     },
     machines, alarms, completeness, notes, signoffs,
   }
+}
+
+async function situationBefore(db: ReportDb, ids: string[], from: number, to: number) {
+  if (!ids.length) return []
+  const mm = schema.machineMessages
+  const idRows = sql.join(ids.map((id) => sql`select ${id} as id`), sql` union all `)
+  const lookups = await db.all<{ id: string; stateT: number | null; ackT: number | null; birthBeforeT: number | null; birthT: number | null }>(sql`
+    select ids.id as id,
+      (select max(time) from machine_messages where machine_id = ids.id and type in ${STATE_TYPES} and time < ${from}) as stateT,
+      (select max(time) from machine_messages where machine_id = ids.id and type = 'offset:applied' and time < ${from}) as ackT,
+      (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${from}) as birthBeforeT,
+      (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${to}) as birthT
+    from (${idRows}) as ids`)
+  const wanted = lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT].filter((t): t is number => t !== null).map((t) => sql`(${l.id}, ${t})`))
+  const rows = wanted.length
+    ? await db.all<{ machine_id: string; seq: number; type: string | null; time: number; payload: string }>(sql`
+      select machine_id, seq, type, time, payload from machine_messages
+      where (machine_id, time) in (values ${sql.join(wanted, sql`, `)}) and (type in ${STATE_TYPES} or type = 'offset:applied' or type is null)`)
+    : []
+  const earliestState = Math.min(...lookups.map((l) => (l.stateT === null ? Infinity : Number(l.stateT))))
+  const faults = Number.isFinite(earliestState)
+    ? await db.select({ machineId: mm.machineId, time: mm.time, type: mm.type, payload: mm.payload }).from(mm)
+      .where(and(inArray(mm.machineId, ids), inArray(mm.type, [...FAULT_EVENT_TYPES]), gte(mm.time, earliestState), lt(mm.time, from))).orderBy(asc(mm.time), asc(mm.seq))
+    : []
+  const pick = (id: string, t: number | null, isType: (type: string | null) => boolean) => {
+    if (t === null) return undefined
+    const r = rows.filter((x) => x.machine_id === id && Number(x.time) === Number(t) && isType(x.type)).sort((a, b) => b.seq - a.seq)[0]
+    return r ? { time: Number(r.time), payload: JSON.parse(r.payload) as Record<string, unknown> } : undefined
+  }
+  const isState = (type: string | null) => type !== null && (STATE_TYPES as string[]).includes(type)
+  return lookups.map((l) => {
+    const state = pick(l.id, l.stateT, isState)
+    const ack = pick(l.id, l.ackT, (t) => t === 'offset:applied')
+    const lastBirth = pick(l.id, l.birthBeforeT, (t) => t === null)
+    const offsetRow = [ack, lastBirth].filter(Boolean).sort((a, b) => b!.time - a!.time)[0]
+    return {
+      id: l.id, state, faults: state ? faults.filter((f) => f.machineId === l.id && f.time >= state.time) : [],
+      offsetUm: (offsetRow?.payload as { offsetUm?: number } | undefined)?.offsetUm ?? null,
+      birth: pick(l.id, l.birthT, (t) => t === null)?.payload as BirthLike | undefined,
+    }
+  })
 }
 
 interface BirthLike { cycleTimeS?: number; offsetUm?: number; job?: { partNumber: string; lowerToleranceUm: number; upperToleranceUm: number } | null }

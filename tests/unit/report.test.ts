@@ -63,6 +63,19 @@ describe('overnight report from a simulated night', () => {
     expect(hold.ms).toBe(start + 10 * H - holdAt - 25 * MIN)
   })
 
+  it('a window that opens during a stop takes the stop over from the states before it', async () => {
+    const late = await reportBuild(fx.db, { cellId: 'cell-a', from: start + 7 * H, to: start + 10 * H })
+    const cg04 = late.machines.find((m) => m.id === 'cg-04')!
+    expect(cg04.downtime).toEqual([{ cause: 'loader_jam', ms: 3 * H, occurrences: 1 }]) // jammed since hour 6
+    expect(cg04.produced).toBe(0)
+    expect(cg04.repairs[0]).toMatchObject({ from: start + 7 * H, to: start + 10 * H, ongoing: true })
+    const cg02 = late.machines.find((m) => m.id === 'cg-02')!
+    expect(cg02.kpiInputs.apt).toBe(3 * H)
+    // the first offset step of the window is measured from the offset in force before it
+    expect(cg02.compensation.offsetsApplied).toBeGreaterThan(0)
+    expect(cg02.chart.offsets[0]!.stepUm).not.toBe(0)
+  })
+
   it('OEE parts follow ISO 22400-2 from the time model and counts', () => {
     const m = report.machines.find((x) => x.id === 'cg-02')!
     expect(m.kpi.availability).toBe(1)
