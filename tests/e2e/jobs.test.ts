@@ -108,6 +108,39 @@ describe('jobs', async () => {
     await c.endAsync()
   })
 
+  it('replay page: a recorded run against candidate settings, and a bad gauge file reported by line', async () => {
+    // More of the night on cg-01: a slow upward drift with some spread (deterministic).
+    const creds = demoCredentials(owl.dataDir)
+    const c = await machineClient(owl.mqttUrl, 'cg-01', creds['cg-01']!.password)
+    for (let seq = 14; seq <= 220; seq++) {
+      const y = 0.1 + 0.01 * (seq - 14) + 0.3 * Math.sin(seq * 1.7)
+      await publishAcked(c, topicFor('cg-01', reading(seq, y)), payloadOf(reading(seq, y)))
+    }
+    await c.endAsync()
+    const jobId = Number((await db.execute(`select id from jobs where part_number = 'LTP-0630-R'`)).rows[0]![0])
+    for (const [name, viewport] of [['desktop', { width: 1440, height: 900 }], ['phone', { width: 390, height: 844 }]] as const) {
+      const page = await signedInPage('engineer', viewport)
+      for (const theme of ['dark', 'light']) {
+        await page.context().addCookies([{ name: 'owlshift-theme', value: theme, url: url('/') }])
+        await page.goto(url(`/jobs/${jobId}/replay`), { waitUntil: 'networkidle' })
+        await page.click('[data-test="run-replay"]')
+        await page.waitForSelector('[data-test="replay-summary"]')
+        const summary = await page.locator('[data-test="replay-summary"]').innerText()
+        expect(summary).toMatch(/parts\s+219\s+219/) // 12 + 207 readings, every one replayed
+        expect(await page.locator('[data-test="replay-timing"]').innerText()).toMatch(/Replayed 219 parts in \d+ ms/)
+        await page.waitForTimeout(300)
+        await page.screenshot({ path: `${artifactsDir}/replay-${name}-${theme}.png`, fullPage: true })
+      }
+      if (name === 'desktop') {
+        await page.check('input[value="csv"]')
+        await page.setInputFiles('[data-test="gauge-csv"]', { name: 'gauge.csv', mimeType: 'text/csv', buffer: Buffer.from('deviation_um,time\n0.1,1000\nabc,2000\n') })
+        await page.click('[data-test="run-replay"]')
+        expect(await page.locator('[data-test="replay-problem"]').innerText()).toMatch(/line 3: deviation_um "abc" is not a number/)
+      }
+      await page.close()
+    }
+  })
+
   it('a changeover is recorded and the engine holds', async () => {
     const jobId = Number((await db.execute(`select id from jobs where part_number = 'QZ-1'`)).rows[0]![0])
     const res = await call('engineer', 'POST', `/api/jobs/${jobId}/assign`, { machineId: 'cg-01' })
