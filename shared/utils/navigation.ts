@@ -6,6 +6,7 @@ export interface NavEntry { to: string, label: string, icon: string, roles: read
 
 export const navEntries: NavEntry[] = [
   { to: '/', label: 'Cell', icon: 'cell', roles: 'all' },
+  { to: '/alarms', label: 'Alarms', icon: 'alarms', roles: 'all' },
   { to: '/report', label: 'Reports', icon: 'report', roles: 'all' },
   { to: '/jobs', label: 'Jobs', icon: 'jobs', roles: 'all' },
   { to: '/people', label: 'People', icon: 'people', roles: ['admin'] },

@@ -1,0 +1,60 @@
+// Chart data for a range: sizes (downsampled per time bucket, min and max kept), the engine's
+// level estimate, the offset in force as steps, and markers for dress, wheel change, mastering,
+// station logs and alarms.
+import { and, asc, between, eq, inArray, isNotNull } from 'drizzle-orm'
+
+const BUCKETS = 600
+
+export default defineEventHandler(async (event) => {
+  await requireUser(event)
+  const ctx = machineFromParams(event)
+  const { range } = readValidQuery(event, rangeQuery)
+  const { from, to } = await machineWindow(ctx, range)
+  const db = useDb()
+  const rows = await db.select({ t: schema.readings.time, v: schema.readings.diameterUm, o: schema.readings.offsetUm, seq: schema.readings.seq, status: schema.readings.status })
+    .from(schema.readings).where(and(eq(schema.readings.machineId, ctx.id), between(schema.readings.time, from, to))).orderBy(asc(schema.readings.time))
+  const sizes = rows.filter(r => r.v !== null).map(r => ({ t: r.t, v: r.v as number, seq: r.seq }))
+  const gaugeFaults = rows.filter(r => r.v === null).map(r => ({ t: r.t, status: r.status }))
+  // Offset steps: only the points where the offset in force changed (plus the ends).
+  const offsets: { t: number, v: number }[] = []
+  for (const r of rows) if (!offsets.length || offsets[offsets.length - 1]!.v !== r.o) offsets.push({ t: r.t, v: r.o })
+  if (rows.length) offsets.push({ t: rows[rows.length - 1]!.t, v: rows[rows.length - 1]!.o })
+
+  // Level estimate: the engine's prediction for each part, in size terms (disturbance + gain × offset).
+  const seqRange = sizes.length ? [sizes[0]!.seq, sizes[sizes.length - 1]!.seq] as const : null
+  const timeOfSeq = new Map(sizes.map(s => [s.seq, s.t]))
+  const level: { t: number, v: number }[] = []
+  if (seqRange) {
+    const ds = await db.select({ seq: schema.decisions.seq, inputs: schema.decisions.inputs }).from(schema.decisions)
+      .where(and(eq(schema.decisions.machineId, ctx.id), between(schema.decisions.seq, seqRange[0], seqRange[1]))).orderBy(asc(schema.decisions.seq))
+    for (const d of ds) {
+      const i = d.inputs as Record<string, number | null>
+      const t = timeOfSeq.get(d.seq)
+      if (t !== undefined && typeof i.predictedUm === 'number' && typeof i.offsetForPartUm === 'number')
+        level.push({ t, v: i.predictedUm + (typeof i.gain === 'number' ? i.gain : 1) * i.offsetForPartUm })
+    }
+  }
+
+  const eventKinds = ['dress', 'wheel_change', 'mastering', 'job_change', 'fault_raised'] as const
+  const events = await db.select({ t: schema.machineMessages.time, type: schema.machineMessages.type }).from(schema.machineMessages)
+    .where(and(eq(schema.machineMessages.machineId, ctx.id), eq(schema.machineMessages.kind, 'event'), inArray(schema.machineMessages.type, [...eventKinds]), between(schema.machineMessages.time, from, to)))
+  const logs = await db.select({ t: schema.stationLog.machineTime, type: schema.stationLog.kind }).from(schema.stationLog)
+    .where(and(eq(schema.stationLog.machineId, ctx.id), isNotNull(schema.stationLog.machineTime), between(schema.stationLog.machineTime, from, to)))
+  const raised = await db.select({ t: schema.alarms.raisedAt, condition: schema.alarms.condition }).from(schema.alarms)
+    .where(and(eq(schema.alarms.machineId, ctx.id), between(schema.alarms.raisedAt, from, to)))
+  const markers = [
+    ...raised.map(a => ({ t: a.t, kind: 'alarm', source: a.condition })),
+    ...events.map(e => ({ t: e.t, kind: e.type as string, source: 'machine' })),
+    ...logs.map(l => ({ t: l.t as number, kind: l.type, source: 'station' })),
+  ].sort((a, b) => a.t - b.t)
+
+  return {
+    range, from, to, count: sizes.length,
+    sizes: liveDownsampleMinMax(sizes, BUCKETS).map(s => [s.t, s.v] as const),
+    level: liveDownsampleMinMax(level, BUCKETS).map(s => [s.t, s.v] as const),
+    offsets: offsets.map(o => [o.t, o.v] as const),
+    gaugeFaults: gaugeFaults.slice(-200),
+    markers,
+    limits: machineLimits(ctx),
+  }
+})
