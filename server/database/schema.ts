@@ -65,6 +65,9 @@ export const jobs = sqliteTable('jobs', {
   cycleTimeS: integer('cycle_time_s').notNull().default(20),
   archived: integer('archived', { mode: 'boolean' }).notNull().default(false),
   createdAt: integer('created_at').notNull(),
+  lengthMm: text('length_mm'), // optional part length, decimal text
+  lengthUpperTolNm: integer('length_upper_tol_nm'),
+  lengthLowerTolNm: integer('length_lower_tol_nm'),
 }, t => [uniqueIndex('jobs_part_number_unique').on(t.partNumber)])
 
 export const machines = sqliteTable('machines', {
@@ -135,7 +138,11 @@ export const machineMessages = sqliteTable('machine_messages', {
   time: integer('time').notNull(),
   receivedAt: integer('received_at').notNull(),
   payload: text('payload', { mode: 'json' }).notNull(),
-}, t => [uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time)])
+}, t => [
+  uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time),
+  // the report reads one kind of message at a time (part_unloaded, faults, dresses, offset acks, states)
+  index('messages_machine_type_time').on(t.machineId, t.type, t.time),
+])
 
 /** Presence changes (birth and death); death is the MQTT will and carries no seq. */
 export const presenceLog = sqliteTable('presence_log', {
@@ -229,6 +236,95 @@ export const alarmTransitions = sqliteTable('alarm_transitions', {
   where: text('where').notNull(), // system | web <address> | station:<machine>
   note: text('note'),
 }, t => [index('alarm_transitions_alarm').on(t.alarmId), index('alarm_transitions_at').on(t.at)])
+
+// ── Notifications: push devices, VAPID keys, escalation state, delivery log ────────────────
+
+/** The server's VAPID key pair (RFC 8292), made once at first start. One row, id 1. */
+export const vapidKeys = sqliteTable('vapid_keys', {
+  id: integer('id').primaryKey(),
+  publicKey: text('public_key').notNull(),
+  privateKey: text('private_key').notNull(),
+  createdAt: integer('created_at').notNull(),
+})
+
+/** A browser subscribed to Web Push for one user (one row per device). */
+export const pushSubscriptions = sqliteTable('push_subscriptions', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  userId: integer('user_id').notNull().references(() => users.id),
+  endpoint: text('endpoint').notNull(),
+  p256dh: text('p256dh').notNull(),
+  auth: text('auth').notNull(),
+  label: text('label').notNull(),
+  createdAt: integer('created_at').notNull(),
+  lastSentAt: integer('last_sent_at'),
+  lastError: text('last_error'),
+}, t => [uniqueIndex('push_subscriptions_endpoint').on(t.endpoint), index('push_subscriptions_user').on(t.userId)])
+
+/** The router's memory of each alarm it is waking people for (shared/utils/alert-routing.ts AlertTrack). */
+export const alertTracks = sqliteTable('alert_tracks', {
+  alarmId: integer('alarm_id').primaryKey().references(() => alarms.id),
+  track: text('track', { mode: 'json' }).notNull(),
+  updatedAt: integer('updated_at').notNull(),
+})
+
+/** Every alert outcome: sent, failed, gone, clicked, acknowledged, held, duplicate, rate-limited… */
+export const notificationDeliveries = sqliteTable('notification_deliveries', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  at: integer('at').notNull(),
+  alarmId: integer('alarm_id'), // null for a test notification
+  userId: integer('user_id'),
+  channel: text('channel').notNull(), // push | email | none
+  level: integer('level').notNull().default(0), // escalation level
+  status: text('status').notNull(),
+  subscriptionId: integer('subscription_id'),
+  detail: text('detail'),
+}, t => [index('notification_deliveries_alarm').on(t.alarmId), index('notification_deliveries_at').on(t.at)])
+
+// ── Jobs: compensation settings with history ──────────────────────────────────────────────
+
+/** Versions of a job's compensation tuning (job-wide, or one machine's override). One active
+ *  version per job and scope; drafts are edited, active and retired ones never change. */
+export const compensationSettings = sqliteTable('compensation_settings', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  jobId: integer('job_id').notNull().references(() => jobs.id),
+  machineId: text('machine_id').references(() => machines.id), // null: every machine on the job
+  version: integer('version').notNull(), // 1, 2, … per job
+  status: text('status', { enum: ['draft', 'active', 'retired'] }).notNull(),
+  /** the tuning (shared/utils/compensation-tuning.ts), checked with the engine's settings schema */
+  settings: text('settings', { mode: 'json' }).$type<Record<string, unknown>>().notNull(),
+  note: text('note'),
+  reason: text('reason'), // why it was put in force
+  createdBy: integer('created_by').notNull(),
+  createdAt: integer('created_at').notNull(),
+  updatedAt: integer('updated_at').notNull(),
+  activatedBy: integer('activated_by'),
+  activatedAt: integer('activated_at'),
+  retiredAt: integer('retired_at'),
+}, t => [uniqueIndex('compensation_settings_job_version').on(t.jobId, t.version), index('compensation_settings_job_status').on(t.jobId, t.status)])
+
+// ── Overnight report: notes left during a shift, and the hand-over sign-off ─────────────────
+
+/** A note left during the shift (machine optional); shown in the report of the shift it falls in. */
+export const shiftNotes = sqliteTable('shift_notes', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id'),
+  text: text('text').notNull(),
+  userId: integer('user_id').notNull().references(() => users.id),
+  at: integer('at').notNull(),
+}, t => [index('shift_notes_at').on(t.at)])
+
+/** The incoming lead's signature on a shift's report, with a comment (also in the audit log). */
+export const reportSignoffs = sqliteTable('report_signoffs', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  cellId: text('cell_id').notNull().references(() => cells.id),
+  shiftId: text('shift_id').notNull(),
+  shiftDate: text('shift_date').notNull(), // local date the shift started, YYYY-MM-DD
+  from: integer('from').notNull(),
+  to: integer('to').notNull(),
+  userId: integer('user_id').notNull().references(() => users.id),
+  comment: text('comment').notNull(),
+  at: integer('at').notNull(),
+}, t => [index('report_signoffs_shift').on(t.cellId, t.shiftId, t.shiftDate)])
 
 // ── Live cell: stations at the machines, alarm notes and photos ─────────────────────────────
 
