@@ -24,6 +24,9 @@ export const routeAccess: Record<string, RouteRule> = {
   'users/[id]/index.patch.ts': { access: ['admin'], params: { id: '5' } },
   'users/[id]/password.post.ts': { access: ['admin'], params: { id: '5' } },
   'audit.get.ts': { access: ['admin'] },
+  // Ingest
+  'machine-credentials/[id].post.ts': { access: ['admin'], params: { id: 'cg-99' } },
+  'dead-letters.get.ts': { access: ['admin', 'engineer'] },
   // Live cell
   'stream.get.ts': { access: 'signed-in' },
   'cell/index.get.ts': { access: 'signed-in' },
