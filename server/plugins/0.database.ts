@@ -33,5 +33,7 @@ export default defineNitroPlugin(async (nitroApp) => {
     console.error(err instanceof ConfigError ? err.message : `[owlshift] start-up failed: ${(err as Error).stack}`)
     process.exit(1)
   }
-  nitroApp.hooks.hook('close', () => closeDatabase())
+  // Close the database last on shutdown: 'close' handlers run in registration order, and the
+  // other plugins (broker, ingest drain, timers) register theirs synchronously after this one.
+  queueMicrotask(() => nitroApp.hooks.hook('close', () => closeDatabase()))
 })
