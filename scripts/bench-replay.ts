@@ -7,6 +7,7 @@
 import { build } from 'esbuild'
 import { chromium } from 'playwright-core'
 import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs'
+import { loadavg } from 'node:os'
 import { dirname, join, resolve } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import { runHeadless } from '../simulator/headless'
@@ -72,6 +73,7 @@ async function main() {
     `| fastest / slowest (ms) | ${ms[0]!.toFixed(0)} / ${ms[ms.length - 1]!.toFixed(0)} |`,
     `| per part (µs) | ${(median * 1000 / times[0]!.parts).toFixed(1)} |`,
     `| target | < 500 ms — ${median < 500 ? 'met' : 'NOT met'} |`,
+    `| machine load average while measuring (1 min) | ${loadavg()[0]!.toFixed(1)} on 2 cores |`,
   ]
   console.log(lines.join('\n'))
   if (write) writeSection(lines, version)

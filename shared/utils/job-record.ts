@@ -7,7 +7,7 @@ import { csvReadRecords, csvWrite, type CsvProblem } from './csv'
 
 export const JOB_METHODS = ['through-feed', 'in-feed', 'plunge', 'peel'] as const
 
-const optionalNumber = (schema: z.ZodNumber) => z.preprocess(v => (v === '' || v === undefined ? null : v), schema.nullable()).default(null)
+const optionalNumber = <T extends z.ZodType<number>>(schema: T) => z.preprocess(v => (v === '' || v === undefined ? null : v), schema.nullable()).default(null)
 const um = z.coerce.number({ error: 'must be a number of µm' }).finite().min(-1000, 'must be within ±1000 µm').max(1000, 'must be within ±1000 µm')
 
 export const jobInputSchema = z.object({

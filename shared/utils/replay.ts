@@ -187,7 +187,7 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
   const disturbance: number[] = []
   for (let k = 0; k < actual.sizes.length; k++) {
     const y = actual.sizes[k]
-    if (y !== null && Number.isFinite(y)) disturbance.push(y - gain * actual.offsets[k]!)
+    if (y != null && Number.isFinite(y)) disturbance.push(y - gain * actual.offsets[k]!)
   }
   const sigmaUm = disturbance.length >= 2 ? spcWithinSigmaMovingRange(disturbance) : Number.NaN
   actual.summary = summarise(actual, settings, sigmaUm)
