@@ -371,3 +371,16 @@ export const alarmNotes = sqliteTable('alarm_notes', {
   photoType: text('photo_type'),
   photoBytes: integer('photo_bytes'),
 }, t => [index('alarm_notes_alarm').on(t.alarmId)])
+
+// ── Retention: raw readings older than OWLSHIFT_RETENTION_DAYS are folded into hourly summaries ──
+export const readingHours = sqliteTable('reading_hours', {
+  machineId: text('machine_id').notNull(),
+  hourStart: integer('hour_start').notNull(), // machine clock, ms, on the hour (UTC)
+  jobPartNumber: text('job_part_number').notNull().default(''),
+  n: integer('n').notNull(), // readings with a diameter
+  faults: integer('faults').notNull(), // gauge faults / over range
+  sumUm: real('sum_um').notNull(),
+  sumSqUm: real('sum_sq_um').notNull(),
+  minUm: real('min_um'),
+  maxUm: real('max_um'),
+}, t => [uniqueIndex('reading_hours_key').on(t.machineId, t.hourStart, t.jobPartNumber)])
