@@ -206,4 +206,51 @@ describe('notifications', async () => {
     await page.screenshot({ path: join(artifactsDir, 'me-device-alerts-phone.png'), fullPage: true })
     await page.close()
   })
+
+  it('lets an admin set who is on call and shows the delivery log; a lead may only read', async () => {
+    // Starts from the rules of the escalation test above (night: lead → engineer, no quiet hours) and its log.
+    const start = alertDefaultRules('Europe/Berlin')
+    start.onCall = [{ shiftId: 'night', weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [await idOf('lead'), await idOf('engineer')] }]
+    start.quietHours = null
+    expect((await api('admin', '/api/notifications/rules', { method: 'PUT', body: start })).status).toBe(200)
+    const page = await createPage(undefined, { viewport: { width: 1440, height: 900 } })
+    await signIn(page, demoUser('admin').email)
+    await page.waitForURL(u => !u.pathname.startsWith('/sign-in'))
+    await page.goto(url('/alerts'), { waitUntil: 'networkidle' })
+    const night = page.locator('[data-test=shift-night]')
+    await night.getByRole('button', { name: /^Remove Bram Okonjo/ }).click()
+    await night.getByLabel('Add a person to Night').selectOption({ label: `${demoUser('admin').name} · admin` })
+    await night.getByRole('button', { name: 'Add', exact: true }).click()
+    await page.getByLabel('Quiet hours', { exact: true }).check() // the earlier test turned them off
+    await page.getByLabel('Quiet hours start (HH:MM)').fill('2300') // not HH:MM: the server names the field
+    await page.locator('[data-test=save-rules]').click()
+    await expect.poll(() => page.locator('[data-test=rules-problem]').innerText()).toMatch(/quietHours\.start: use HH:MM/)
+    await page.getByLabel('Quiet hours start (HH:MM)').fill('23:00')
+    await page.locator('[data-test=save-rules]').click()
+    await page.getByText('Saved. New alerts follow these rules.').waitFor()
+    const saved = (await api('admin', '/api/notifications/rules')).body.rules
+    const lead = await idOf('lead')
+    const admin = await idOf('admin')
+    expect(saved.onCall.find((e: { shiftId: string }) => e.shiftId === 'night').contacts).toEqual([lead, admin])
+    expect(saved.quietHours).toEqual({ start: '23:00', end: '05:30' })
+    const log = page.locator('[data-test=delivery-log]')
+    await expect.poll(() => log.innerText()).toMatch(/acknowledged/)
+    expect(await log.innerText()).toMatch(/gone/)
+    for (const theme of ['dark', 'light']) {
+      await page.evaluate(t => document.documentElement.classList.toggle('dark', t === 'dark'), theme)
+      await page.screenshot({ path: join(artifactsDir, `alerts-desktop-${theme}.png`), fullPage: true })
+    }
+    await page.setViewportSize({ width: 390, height: 844 })
+    await page.screenshot({ path: join(artifactsDir, 'alerts-phone-light.png'), fullPage: true })
+    await page.close()
+    // A lead reads the same page without edit controls.
+    const leadPage = await createPage(undefined, { viewport: { width: 390, height: 844 } })
+    await signIn(leadPage, demoUser('lead').email)
+    await leadPage.waitForURL(u => !u.pathname.startsWith('/sign-in'))
+    await leadPage.goto(url('/alerts'), { waitUntil: 'networkidle' })
+    await leadPage.locator('[data-test=routing-editor]').waitFor()
+    expect(await leadPage.locator('[data-test=save-rules]').count()).toBe(0)
+    await leadPage.screenshot({ path: join(artifactsDir, 'alerts-phone-dark-lead.png'), fullPage: true })
+    await leadPage.close()
+  })
 })
