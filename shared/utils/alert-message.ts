@@ -28,8 +28,8 @@ export interface AlertPushPayload {
   requireInteraction: boolean
 }
 
-/** The page the alert opens: the alarm itself. */
-export function alertLinkFor(alarmId: number): string { return `/alarms/${alarmId}` }
+/** The page the alert opens: the alarm list with this alarm open (pages/alarms.vue). */
+export function alertLinkFor(alarmId: number): string { return `/alarms?open=${alarmId}` }
 
 export function alertPushPayload(m: AlertMessageInput, deliveryId: number | null): AlertPushPayload {
   const where = m.machineName ?? m.machineId ?? 'Cell'
