@@ -295,7 +295,8 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     const kpi = cycle ? kpiIndices(kpiInputs) : { ...kpiIndices(kpiInputs), effectiveness: null, oee: null }
 
     // Capability per job
-    const byJob = groupBy(mr, (r) => r.partNumber ?? '')
+    // readings stored before the machine's first birth carry no job: they belong to the job it announced
+    const byJob = groupBy(mr, (r) => r.partNumber ?? birth?.job?.partNumber ?? '')
     const jobInfo = (pn: string) => {
       const j = jobByPart.get(pn)
       if (j) return { lsl: j.lowerTolNm / 1000, usl: j.upperTolNm / 1000 }
