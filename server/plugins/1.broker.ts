@@ -13,9 +13,6 @@ const SERVER_MARK = 'owlshift-server-internal'
 
 interface MachineClient { owlMachine?: string, id: string }
 
-export interface BrokerHandle { kind: 'embedded' | 'external', port?: number, connectedMachines: () => number, close: () => Promise<void> }
-let handle: BrokerHandle | null = null
-export const brokerHandle = () => handle
 
 async function listenWithRetry(server: net.Server, port: number, host: string): Promise<number> {
   for (let attempt = 1; ; attempt++) {
@@ -79,8 +76,10 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
     connectedMachines: () => broker.connectedClients,
     close: async () => {
       setCommandPublisher(null)
-      await new Promise<void>(r => server.close(() => r()))
+      // Stop accepting, then cut the machines' connections: close() alone waits for them to leave.
+      const closed = new Promise<void>(r => server.close(() => r()))
       for (const s of sockets) s.destroy()
+      await closed
       await new Promise<void>(r => broker.close(() => r()))
     },
   }
@@ -120,7 +119,7 @@ export default defineNitroPlugin((nitroApp) => {
     await ensureDemoMachineCredentials()
     const ingest = useIngest()
     ingest.onCommitted = handleCommitted
-    handle = config.mqtt.url ? await startExternal(config.mqtt.url, config.mqtt) : await startEmbedded(config.mqtt.host, config.mqtt.port)
+    setBrokerHandle(config.mqtt.url ? await startExternal(config.mqtt.url, config.mqtt) : await startEmbedded(config.mqtt.host, config.mqtt.port))
   })().catch((err) => {
     console.error(`[owlshift] the MQTT broker could not start: ${(err as Error).message}. Check MQTT_PORT / MQTT_URL.`)
     process.exit(1)
@@ -128,6 +127,7 @@ export default defineNitroPlugin((nitroApp) => {
   nitroApp.hooks.hook('close', async () => {
     await ready
     await useIngest().drain()
-    await handle?.close()
+    await brokerHandle()?.close()
+    setBrokerHandle(null)
   })
 })

@@ -19,6 +19,9 @@ const envSchema = z.object({
   MQTT_HOST: z.string().min(1).default('0.0.0.0'),
   MQTT_PORT: z.coerce.number().int().min(0).max(65535).default(1883),
   OWLSHIFT_BROKER: z.enum(['on', 'off']).default('on'),
+  OWLSHIFT_BACKUP_EVERY_H: z.coerce.number().min(0).default(24),
+  OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
+  OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
 })
 
 export interface OwlshiftConfig {
@@ -37,6 +40,13 @@ export interface OwlshiftConfig {
     clientId: string
     host: string
     port: number
+  }
+  maintenance: {
+    /** hours between scheduled backups; 0 = none */
+    backupEveryH: number
+    backupKeep: number
+    /** raw readings older than this many days are summarised and removed; 0 = keep all */
+    retentionDays: number
   }
 }
 
@@ -72,6 +82,11 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       clientId: e.MQTT_CLIENT_ID,
       host: e.MQTT_HOST,
       port: e.MQTT_PORT,
+    },
+    maintenance: {
+      backupEveryH: e.OWLSHIFT_BACKUP_EVERY_H,
+      backupKeep: e.OWLSHIFT_BACKUP_KEEP,
+      retentionDays: e.OWLSHIFT_RETENTION_DAYS,
     },
   }
 }

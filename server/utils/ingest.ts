@@ -42,7 +42,11 @@ type CommandRow = typeof schema.commands.$inferInsert
 
 interface Pending { arrival: Arrival, resolve: () => void, reject: (e: Error) => void }
 
-export interface IngestStats { accepted: number, stored: number, duplicates: number, deadLetters: number, commits: number, lastCommitMs: number }
+export interface IngestStats {
+  accepted: number, stored: number, readings: number, duplicates: number, deadLetters: number, commits: number, lastCommitMs: number
+  /** the last 1,000 commit durations (ms), for the metrics endpoint's quantiles */
+  recentCommitMs: number[]
+}
 
 export function deadLetterPayload(buf: Buffer): string {
   const cut = buf.subarray(0, DEAD_LETTER_KEEP_BYTES)
@@ -81,7 +85,7 @@ export class IngestPipeline {
   private timer: NodeJS.Timeout | null = null
   private flushing: Promise<void> | null = null
   private afterCommit: Promise<void> = Promise.resolve()
-  readonly stats: IngestStats = { accepted: 0, stored: 0, duplicates: 0, deadLetters: 0, commits: 0, lastCommitMs: 0 }
+  readonly stats: IngestStats = { accepted: 0, stored: 0, readings: 0, duplicates: 0, deadLetters: 0, commits: 0, lastCommitMs: 0, recentCommitMs: [] }
   /** called after each commit with what it caused (commands to send, live events, alarm conditions) */
   onCommitted: (effects: IngestEffects) => Promise<void> | void = () => {}
 
@@ -359,7 +363,10 @@ export class IngestPipeline {
     this.stats.duplicates += duplicates
     this.stats.deadLetters += dead.length
     this.stats.commits++
+    this.stats.readings += readingRows.length
     this.stats.lastCommitMs = performance.now() - t0
+    this.stats.recentCommitMs.push(this.stats.lastCommitMs)
+    if (this.stats.recentCommitMs.length > 1000) this.stats.recentCommitMs.shift()
     return effects
   }
 }

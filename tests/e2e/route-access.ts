@@ -27,6 +27,11 @@ export const routeAccess: Record<string, RouteRule> = {
   // Ingest
   'machine-credentials/[id].post.ts': { access: ['admin'], params: { id: 'cg-99' } },
   'dead-letters.get.ts': { access: ['admin', 'engineer'] },
+  // Operations
+  'health.get.ts': { access: 'public' },
+  'metrics.get.ts': { access: 'public' },
+  'backups/index.get.ts': { access: ['admin'] },
+  'backups/index.post.ts': { access: ['admin'] },
   // Live cell
   'stream.get.ts': { access: 'signed-in' },
   'cell/index.get.ts': { access: 'signed-in' },

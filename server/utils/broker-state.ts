@@ -1,0 +1,6 @@
+// What the broker plugin started (embedded or external), for health and metrics.
+export interface BrokerHandle { kind: 'embedded' | 'external', port?: number, connectedMachines: () => number, close: () => Promise<void> }
+
+let handle: BrokerHandle | null = null
+export const brokerHandle = () => handle
+export function setBrokerHandle(h: BrokerHandle | null) { handle = h }

@@ -1,0 +1,52 @@
+// Health and metrics figures, gathered in one place for /api/health and /api/metrics.
+import { sql } from 'drizzle-orm'
+
+function quantile(sorted: number[], q: number): number {
+  if (!sorted.length) return 0
+  return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))]!
+}
+
+export async function databaseHealth(): Promise<{ ok: boolean, ms: number, error?: string }> {
+  const t0 = performance.now()
+  try {
+    await useDb().run(sql`select 1`)
+    return { ok: true, ms: performance.now() - t0 }
+  }
+  catch (err) { return { ok: false, ms: performance.now() - t0, error: (err as Error).message } }
+}
+
+export async function alarmCountsByState(): Promise<Record<string, number>> {
+  const rows = await useDb().select({ state: schema.alarms.state, n: sql<number>`count(*)` }).from(schema.alarms)
+    .where(sql`${schema.alarms.closedAt} is null`).groupBy(schema.alarms.state)
+  return Object.fromEntries(rows.map(r => [r.state, Number(r.n)]))
+}
+
+/** Prometheus text exposition format (version 0.0.4). */
+export async function prometheusText(): Promise<string> {
+  const ingest = useIngest()
+  const s = ingest.stats
+  const sorted = [...s.recentCommitMs].sort((a, b) => a - b)
+  const broker = brokerHandle()
+  const machines = allMachineContexts()
+  const lines: string[] = []
+  const metric = (name: string, type: 'counter' | 'gauge' | 'summary', help: string, values: [string, number][]) => {
+    lines.push(`# HELP ${name} ${help}`, `# TYPE ${name} ${type}`)
+    for (const [labels, v] of values) lines.push(`${name}${labels} ${Number.isFinite(v) ? v : 0}`)
+  }
+  metric('owlshift_readings_total', 'counter', 'Gauge readings stored since start.', [['', s.readings]])
+  metric('owlshift_messages_stored_total', 'counter', 'Machine messages stored since start (readings and events).', [['', s.stored]])
+  metric('owlshift_messages_accepted_total', 'counter', 'Machine messages received since start.', [['', s.accepted]])
+  metric('owlshift_duplicates_total', 'counter', 'Redelivered messages recognised and not stored again.', [['', s.duplicates]])
+  metric('owlshift_dead_letters_total', 'counter', 'Messages that failed validation, stored as dead letters.', [['', s.deadLetters]])
+  metric('owlshift_commits_total', 'counter', 'Ingest commits (each may hold many messages).', [['', s.commits]])
+  metric('owlshift_commit_seconds', 'summary', 'Duration of the last 1,000 ingest commits.', [
+    ['{quantile="0.5"}', quantile(sorted, 0.5) / 1000], ['{quantile="0.99"}', quantile(sorted, 0.99) / 1000],
+    ['_count', s.commits], ['_sum', sorted.reduce((a, b) => a + b, 0) / 1000],
+  ])
+  metric('owlshift_ingest_queue_depth', 'gauge', 'Messages waiting for the next commit.', [['', ingest.queueDepth]])
+  metric('owlshift_machines_connected', 'gauge', 'Machines connected to the broker.', [['', broker?.connectedMachines() ?? 0]])
+  metric('owlshift_machines_online', 'gauge', 'Machines whose last presence message was a birth.', [['', machines.filter(m => m.status.online).length]])
+  const alarms = await alarmCountsByState()
+  metric('owlshift_alarms', 'gauge', 'Open alarms by ISA-18.2 state.', Object.entries(alarms).map(([state, n]) => [`{state="${state}"}`, n]))
+  return `${lines.join('\n')}\n`
+}
