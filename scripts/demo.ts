@@ -7,6 +7,7 @@ import { join, resolve } from 'node:path'
 import { demoShop } from '../shared/utils/demo-shop'
 import { startSimulator, type RunningSimulator } from '../simulator/live'
 import { loadScenarioFile } from '../simulator/scenario'
+import { startMailCatcher } from './mail-catcher'
 
 const dataDir = resolve(process.env.OWLSHIFT_DATA_DIR ?? 'data')
 mkdirSync(dataDir, { recursive: true })
@@ -27,6 +28,9 @@ if (process.env.OWLSHIFT_DEMO_SKIP_BUILD !== '1') {
 
 const port = process.env.PORT ?? '3000'
 const mqttPort = process.env.MQTT_PORT ?? '1883'
+
+// A local SMTP catcher stands in for the shop's mail server: alert escalations land in its inbox.
+const mail = process.env.SMTP_URL ? null : await startMailCatcher({ smtpPort: Number(process.env.OWLSHIFT_DEMO_SMTP_PORT ?? 1025), httpPort: Number(process.env.OWLSHIFT_DEMO_INBOX_PORT ?? 1080) })
 const env = {
   ...process.env,
   PORT: port,
@@ -36,6 +40,8 @@ const env = {
   // The demo is served over plain HTTP; a real install behind HTTPS keeps secure cookies.
   NUXT_SESSION_COOKIE_SECURE: process.env.NUXT_SESSION_COOKIE_SECURE ?? 'false',
   MQTT_PORT: mqttPort,
+  OWLSHIFT_PUBLIC_URL: process.env.OWLSHIFT_PUBLIC_URL ?? `http://localhost:${port}`,
+  ...(mail ? { SMTP_URL: `smtp://127.0.0.1:${mail.smtpPort}` } : {}),
 }
 const server = spawn(process.execPath, ['.output/server/index.mjs'], { stdio: 'inherit', env })
 
@@ -57,6 +63,7 @@ async function startDemoCell() {
   console.log(`  Sign in as (demo password for all: ${demoShop.password}):`)
   for (const u of demoShop.users) console.log(`    ${u.role.padEnd(9)} ${u.email}`)
   console.log(`\n  The simulator runs ${demoShop.machines.length} machines at ${speed}× real time against the broker on port ${mqttPort}.`)
+  if (mail) console.log(`  Alert e-mails are caught locally; read them at ${mail.inboxUrl}`)
   console.log('  Ctrl+C stops it. Data lives in', dataDir, '\n')
 }
 async function listening() {
@@ -68,6 +75,7 @@ startDemoCell().catch((err) => { console.error('[demo] the simulator could not s
 async function shutdown() {
   await sim?.stop({ graceful: true }).catch(() => {})
   server.kill('SIGTERM')
+  await mail?.close().catch(() => {})
 }
 for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => { void shutdown() })
 server.on('exit', code => process.exit(code ?? 0))

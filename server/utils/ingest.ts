@@ -5,6 +5,7 @@ import { and, eq, inArray } from 'drizzle-orm'
 import {
   decodeMachineMessage, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
+import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
 import { stepCompensation, type CompensationDecision, type CompensationInput, type CompensationState } from '#shared/utils/compensation'
 
 export interface Arrival {
@@ -241,9 +242,20 @@ export class IngestPipeline {
           effects.commands.push({ cellId: ctx.cellId, machineId: ctx.id, command: c })
           if (c.type === 'offset') st.requestedOffsetUm = c.offsetUm
         }
-        st.prediction = decision.prediction
+        const eng = w.engine
+        st.prediction = {
+          ...decision.prediction,
+          minutesAtRisk: eng ? minutesUntilSizeAtRisk({
+            prediction: decision.prediction, strategy: eng.settings.strategy, gain: eng.settings.gain, minStepUm: eng.settings.minStepUm,
+            maxSinceDressUm: eng.settings.maxSinceDressUm, offsetRange: eng.settings.offsetRange, offsetUm: eng.offsetUm,
+            offsetAtDressUm: eng.offsetAtDressUm, appliedOffsetUm: st.appliedOffsetUm, requestedOffsetUm: st.requestedOffsetUm,
+            halfToleranceUm: (eng.settings.upperSpecUm - eng.settings.lowerSpecUm) / 2, stopRequested: decision.stop,
+          }) : decision.prediction.minutesToSpecLimit,
+        }
         const codes = new Set(decision.alerts.map(a => a.code))
-        for (const code of ['trend-near-limit', 'budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const) {
+        // The engine's own "trend nears limit" stays advisory (decision log, cards); the alarm that
+        // wakes people is "size will meet tolerance soon", raised from minutesAtRisk by notify.ts.
+        for (const code of ['budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const) {
           const alert = decision.alerts.find(a => a.code === code)
           effects.conditions.push({ machineId: ctx.id, condition: `engine:${code}`, active: codes.has(code), message: alert ? `${ctx.name}: ${alert.message}` : '', at: now })
         }

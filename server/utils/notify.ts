@@ -8,6 +8,7 @@ import { z } from 'zod'
 import type { Agent } from 'node:https'
 import type { AlarmPriority } from '#shared/utils/alarm-model'
 import {
+  type AlertTrendPrediction,
   alertDefaultRules, alertParseRules, alertStep, alertTrendStep, alertTrendThreshold,
   type AlertAlarm, type AlertRoutingRules, type AlertSend, type AlertTrack,
 } from '#shared/utils/alert-routing'
@@ -228,7 +229,7 @@ export async function recordClick(deliveryId: number, userId: number): Promise<b
 async function watchTrend(machineId: string, status: Record<string, unknown>, now: number) {
   const r = await loadAlertRules()
   const was = trendRaised.get(machineId) ?? false
-  const prediction = status.prediction as { levelUm: number | null, minutesToSpecLimit: number | null } | null
+  const prediction = status.prediction as AlertTrendPrediction | null
   const part = (status.jobPartNumber as string | null) ?? null
   const step = alertTrendStep(was, prediction, alertTrendThreshold(r, part), r.trend.clearFactor)
   trendRaised.set(machineId, step.raised)

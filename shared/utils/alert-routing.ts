@@ -326,7 +326,13 @@ function escalationDue(rule: AlertPriorityRule, from: number): number | null {
 
 // ---------------------------------------------------------------- trend nears tolerance
 
-export interface AlertTrendPrediction { levelUm: number | null, minutesToSpecLimit: number | null, minutesToCompLimit?: number | null }
+export interface AlertTrendPrediction {
+  levelUm: number | null
+  minutesToSpecLimit: number | null
+  minutesToCompLimit?: number | null
+  /** minutes until the size is really at risk with compensation at work (shared/utils/size-risk.ts); preferred when present */
+  minutesAtRisk?: number | null
+}
 export interface AlertTrendResult { raised: boolean, changed: boolean, minutes: number | null, thresholdMin: number, message: string }
 
 /** The threshold in minutes for a job: its own, else the default. */
@@ -342,7 +348,8 @@ export function alertTrendThreshold(rules: AlertRoutingRules, partNumber: string
 export function alertTrendStep(wasRaised: boolean, p: AlertTrendPrediction | null, thresholdMin: number, clearFactor: number): AlertTrendResult {
   if (!(thresholdMin > 0) || !(clearFactor > 1)) throw new RangeError('trend threshold must be > 0 and the clear factor > 1')
   const known = !!p && p.levelUm !== null && Number.isFinite(p.levelUm)
-  const m = known && p!.minutesToSpecLimit !== null && Number.isFinite(p!.minutesToSpecLimit) ? Math.max(0, p!.minutesToSpecLimit!) : null
+  const raw = p && p.minutesAtRisk !== undefined ? p.minutesAtRisk : p?.minutesToSpecLimit ?? null
+  const m = known && raw !== null && Number.isFinite(raw) ? Math.max(0, raw) : null
   let raised = wasRaised
   if (known) {
     if (!wasRaised && m !== null && m < thresholdMin) raised = true
