@@ -25,6 +25,7 @@ export const routeAccess: Record<string, RouteRule> = {
   'users/[id]/password.post.ts': { access: ['admin'], params: { id: '5' } },
   'audit.get.ts': { access: ['admin'] },
   // Ingest
+  'machines/index.post.ts': { access: ['admin'], body: { id: 'cg-01', name: 'probe', cellId: 'cell-a' } },
   'machine-credentials/[id].post.ts': { access: ['admin'], params: { id: 'cg-99' } },
   'dead-letters.get.ts': { access: ['admin', 'engineer'] },
   // Operations
