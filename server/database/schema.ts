@@ -1,5 +1,6 @@
 // The database schema. One table per concern; times are epoch milliseconds (UTC).
 import { sqliteTable, integer, text, real, index, uniqueIndex } from 'drizzle-orm/sqlite-core'
+import { sql } from 'drizzle-orm'
 
 export const ROLES = ['admin', 'engineer', 'lead', 'operator', 'viewer'] as const
 
@@ -142,6 +143,9 @@ export const machineMessages = sqliteTable('machine_messages', {
   uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time),
   // the report reads one kind of message at a time (part_unloaded, faults, dresses, offset acks, states)
   index('messages_machine_type_time').on(t.machineId, t.type, t.time),
+  // partial indexes: the report reads only rejected parts and applied offsets, not every message
+  index('messages_rejects').on(t.machineId, t.time).where(sql`${t.type} = 'part_unloaded' and json_extract(${t.payload}, '$.disposition') = 'reject'`),
+  index('messages_offset_applied').on(t.machineId, t.time).where(sql`${t.type} = 'offset:applied'`),
 ])
 
 /** Presence changes (birth and death); death is the MQTT will and carries no seq. */

@@ -31,7 +31,6 @@ export const REPORT_MAX_RANGE_MS = 31 * 86_400_000
 export const REPORT_CHART_MAX_POINTS = 2400
 const FAULT_EVENT_TYPES = ['fault_raised', 'fault_cleared'] as const
 const MARK_EVENT_TYPES = ['dress', 'wheel_change', 'mastering', 'job_change', 'pallet_change'] as const
-const OFFSET_ACK_TYPES = ['offset:applied', 'offset:rejected', 'offset:expired'] as const
 // States are stored with their execution value as type, births with none: every query below
 // names its types so it runs on the (machine, type, time) index.
 const STATE_TYPES = [...executionStates]
@@ -186,7 +185,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   // Bulk columns come back as one concatenated text per machine (and job): libSQL turns each row
   // into an object, which costs more than the query itself when a night has 20,000 parts.
   const US = '\u001f' // unit separator: never inside a number or a stored JSON text
-  const [jobs, readingLists, unloaded, marked, births, ackLists] = await Promise.all([
+  const [jobs, readingLists, unloaded, marked, births, ackLists, ackOther] = await Promise.all([
     db.select().from(schema.jobs),
     db.all<{ m: string; jobs: string; seqs: string; parts: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
       select machine_id as m, group_concat(coalesce(job_part_number, ''), ${US}) as jobs,
@@ -196,21 +195,27 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
         min(received_at) as lo, max(received_at) as hi
       from readings indexed by readings_machine_time
       where machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id`),
-    // good parts by a plain text test (ingest stores the JSON as JSON.stringify writes it); reasons only for rejects
-    db.all<{ m: string; reason: string | null; good: number; n: number }>(sql`
-      select machine_id as m, case when instr(payload, '"disposition":"good"') > 0 then null else json_extract(payload, '$.rejectReason') end as reason,
-        max(instr(payload, '"disposition":"good"') > 0) as good, count(*) as n
-      from machine_messages where machine_id in ${idList} and type = 'part_unloaded' and time >= ${from} and time < ${to} group by 1, 2`),
+    // parts unloaded: counted on the (machine, type, time) index; only rejects (partial index) are read
+    db.all<{ m: string; reason: string | null; n: number }>(sql`
+      select machine_id as m, '' as reason, count(*) as n from machine_messages
+      where machine_id in ${idList} and type = 'part_unloaded' and time >= ${from} and time < ${to} group by 1
+      union all
+      select machine_id as m, coalesce(json_extract(payload, '$.rejectReason'), 'unspecified') as reason, count(*) as n
+      from machine_messages indexed by messages_rejects
+      where machine_id in ${idList} and type = 'part_unloaded' and json_extract(payload, '$.disposition') = 'reject' and time >= ${from} and time < ${to} group by 1, 2`),
     // states, faults and the events marked on the chart (a few per hour), whole payloads
     db.select({ machineId: mm.machineId, seq: mm.seq, kind: mm.kind, type: mm.type, time: mm.time, payload: mm.payload })
       .from(mm).where(and(inArray(mm.machineId, idList), inArray(mm.type, [...STATE_TYPES, ...FAULT_EVENT_TYPES, ...MARK_EVENT_TYPES]), inWindow(mm.time))),
     db.select({ machineId: mm.machineId, seq: mm.seq, kind: mm.kind, type: mm.type, time: mm.time, payload: mm.payload })
       .from(mm).where(and(inArray(mm.machineId, idList), isNull(mm.type), inWindow(mm.time))),
-    // offset acks: many (one per correction)
-    db.all<{ m: string; times: string; seqs: string; types: string; payloads: string }>(sql`
-      select machine_id as m, group_concat(time, ',') as times, group_concat(seq, ',') as seqs,
-        group_concat(type, ',') as types, group_concat(payload, ${US}) as payloads
-      from machine_messages where machine_id in ${idList} and type in ${[...OFFSET_ACK_TYPES]} and time >= ${from} and time < ${to} group by machine_id`),
+    // applied offsets from the partial index messages_offset_applied; refused and late ones only counted
+    db.all<{ m: string; times: string; offs: string }>(sql`
+      select machine_id as m, group_concat(time, ',') as times, group_concat(json_extract(payload, '$.offsetUm'), ',') as offs
+      from machine_messages indexed by messages_offset_applied
+      where type = 'offset:applied' and machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id`),
+    db.all<{ m: string; type: string; n: number }>(sql`
+      select machine_id as m, type, count(*) as n from machine_messages
+      where machine_id in ${idList} and type in ('offset:rejected', 'offset:expired') and time >= ${from} and time < ${to} group by 1, 2`),
   ])
   const readings: ReadingRow[] = []
   for (const g of readingLists) {
@@ -225,11 +230,13 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   }
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
   const acks = ackLists.flatMap((g) => {
-    const times = g.times.split(','), seqs = g.seqs.split(','), types = g.types.split(','), payloads = g.payloads.split(US)
-    return times.map((t, i) => ({ machineId: g.m, seq: Number(seqs[i]), type: types[i]!, time: Number(t), offsetUm: (JSON.parse(payloads[i]!) as { offsetUm: number }).offsetUm }))
+    const times = g.times.split(','), offs = g.offs.split(',')
+    return times.map((t, i) => ({ machineId: g.m, seq: 0, type: 'offset:applied', time: Number(t), offsetUm: Number(offs[i]) }))
   })
+  const refusedAcks = new Map(ackOther.map((a) => [`${a.m}/${a.type}`, Number(a.n)]))
   const byTime = (a: { time: number; seq: number }, b: { time: number; seq: number }) => a.time - b.time || a.seq - b.seq
-  const marks: MarkRow[] = [...marked, ...births, ...acks.map((a) => ({ ...a, kind: 'ack', payload: { offsetUm: a.offsetUm } }))].sort(byTime)
+  const marks: MarkRow[] = [...marked, ...births].sort(byTime)
+  const acksByMachine = groupBy(acks, (a) => a.machineId) // time order: the index walk
   const jobByPart = new Map(jobs.map((j) => [j.partNumber, j]))
 
   // The situation of each machine at `from`: its last state (and faults since), its offset in force
@@ -262,16 +269,17 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     const birth = b.birth
     const currentJob = m.currentJobId ? jobs.find((j) => j.id === m.currentJobId) : undefined
 
-    // Parts and scrap (part_unloaded events)
-    let good = 0
+    // Parts and scrap (part_unloaded events): all of them, and the rejects by reason
+    let unloadedCount = 0
     const scrap = new Map<string, number>()
     for (const u of un) {
-      if (Number(u.good)) good += Number(u.n)
-      else scrap.set(u.reason ?? 'unspecified', (scrap.get(u.reason ?? 'unspecified') ?? 0) + Number(u.n))
+      if (u.reason === '' || u.reason === null) unloadedCount += Number(u.n)
+      else scrap.set(u.reason, (scrap.get(u.reason) ?? 0) + Number(u.n))
     }
     const scrapByReason = sortCounts(scrap)
     const scrapCount = scrapByReason.reduce((a, s) => a + s.count, 0)
-    const produced = good + scrapCount
+    const produced = unloadedCount
+    const good = produced - scrapCount
 
     // Time model from states and faults
     const bs = b.state?.payload as { execution: string; activeFaults?: string[]; reason?: string } | undefined
@@ -306,7 +314,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     const capability = [...byJob].map(([pn, rs]) => capabilityOf(m.id, pn || null, rs, jobInfo(pn)))
 
     // Compensation summary
-    const compensation = compensationOf(mk, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map())
+    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? [], mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 })
     const tol = jobInfo(mr.at(-1)?.partNumber ?? birth?.job?.partNumber ?? '') ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
     const chart: ReportChart = {
       points: thin(mr.filter((r) => r.diameterUm !== null).map((r) => [r.time, r.diameterUm!] as [number, number])),
@@ -429,34 +437,31 @@ function capabilityOf(machineId: string, partNumber: string | null, rs: readonly
 
 type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
 
-function compensationOf(mk: readonly MarkRow[], mr: readonly ReadingRow[], offsetBefore: number | null, held: Map<number, string>) {
+function compensationOf(mk: readonly MarkRow[], acks: readonly { time: number; offsetUm: number }[], mr: readonly ReadingRow[], offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }) {
   let offset = offsetBefore
-  let applied = 0, rejected = 0, expired = 0, total = 0, largest = 0
-  let first: number | null = offsetBefore
+  if (offset === null) {
+    // no offset known before the window: the first birth in it says what was in force
+    const birth = mk.find((e) => e.kind === 'birth')
+    if (birth && (!acks.length || birth.time <= acks[0]!.time)) offset = Number((birth.payload as { offsetUm?: number }).offsetUm ?? 0)
+  }
+  let applied = 0, total = 0, largest = 0
+  const { rejected, expired } = refused
+  let first: number | null = offset
   const offsetMarks: { at: number; offsetUm: number; stepUm: number }[] = []
   const dressEvents: { time: number; parts: number; trigger: string }[] = []
   let wheelChanges = 0, masterings = 0
+  for (const a of acks) {
+    applied++
+    const step = offset === null ? 0 : a.offsetUm - offset
+    first ??= offset ?? a.offsetUm
+    total += Math.abs(step)
+    largest = Math.max(largest, Math.abs(step))
+    offsetMarks.push({ at: a.time, offsetUm: a.offsetUm, stepUm: round3(step) })
+    offset = a.offsetUm
+  }
   for (const e of mk) {
     const p = e.payload as Record<string, unknown>
-    if (e.kind === 'birth') {
-      if (offset === null) { offset = Number(p.offsetUm); first ??= offset }
-    }
-    else if (e.kind === 'ack' && e.type?.startsWith('offset:')) {
-      const result = e.type.slice('offset:'.length)
-      if (result === 'applied') {
-        applied++
-        const now = Number(p.offsetUm)
-        const step = offset === null ? 0 : now - offset
-        first ??= offset ?? now
-        total += Math.abs(step)
-        largest = Math.max(largest, Math.abs(step))
-        offsetMarks.push({ at: e.time, offsetUm: now, stepUm: round3(step) })
-        offset = now
-      }
-      else if (result === 'rejected') rejected++
-      else if (result === 'expired') expired++
-    }
-    else if (e.type === 'dress') dressEvents.push({ time: e.time, parts: Number(p.partsSinceDress), trigger: String(p.trigger) })
+    if (e.type === 'dress') dressEvents.push({ time: e.time, parts: Number(p.partsSinceDress), trigger: String(p.trigger) })
     else if (e.type === 'wheel_change') wheelChanges++
     else if (e.type === 'mastering') masterings++
   }

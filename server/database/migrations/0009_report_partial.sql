@@ -1,0 +1,2 @@
+CREATE INDEX `messages_rejects` ON `machine_messages` (`machine_id`,`time`) WHERE "machine_messages"."type" = 'part_unloaded' and json_extract("machine_messages"."payload", '$.disposition') = 'reject';--> statement-breakpoint
+CREATE INDEX `messages_offset_applied` ON `machine_messages` (`machine_id`,`time`) WHERE "machine_messages"."type" = 'offset:applied';
