@@ -1,5 +1,6 @@
 // Pure helpers behind the live cell screens: rolling capability, the attention order of machine
-// cards, where a size sits in its tolerance, and bucketed min/max downsampling for charts.
+// cards, where a size sits in its tolerance, chart ranges and photo types. (Chart thinning is the
+// `downsample` package's LTTB, in the readings route.)
 // Exports are prefixed `live` because Nuxt auto-imports shared/utils/* into one namespace.
 import { spcCapability, spcMean, spcOverallSigma, spcWithinSigmaMovingRange } from './spc'
 
@@ -64,36 +65,6 @@ export function liveAttentionRank(f: LiveCardFacts): number {
   return rank
 }
 
-export interface LivePoint { t: number, v: number }
-
-/**
- * Keeps at most ~`buckets`·2 points: per time bucket the minimum and the maximum, in time order,
- * so spikes (the points that matter on a size chart) survive.
- */
-export function liveDownsampleMinMax<T extends LivePoint>(points: readonly T[], buckets: number): T[] {
-  if (points.length <= buckets * 2 || buckets < 1) return [...points]
-  const t0 = points[0]!.t
-  const span = points[points.length - 1]!.t - t0 || 1
-  const out: T[] = []
-  let current = -1
-  let lo: T | null = null
-  let hi: T | null = null
-  const push = () => {
-    if (!lo || !hi) return
-    if (lo === hi) out.push(lo)
-    else if (lo.t <= hi.t) out.push(lo, hi)
-    else out.push(hi, lo)
-  }
-  for (const p of points) {
-    const b = Math.min(buckets - 1, Math.floor(((p.t - t0) / span) * buckets))
-    if (b !== current) { push(); current = b; lo = p; hi = p; continue }
-    if (p.v < lo!.v) lo = p
-    if (p.v > hi!.v) hi = p
-  }
-  push()
-  return out
-}
-
 /** "12 min", "3 h 10 min", "2 d" — short spans for cards. */
 export function liveSpan(minutes: number | null): string {
   if (minutes === null || !Number.isFinite(minutes)) return '—'
@@ -103,20 +74,39 @@ export function liveSpan(minutes: number | null): string {
   return `${Math.round(minutes / 1440)} d`
 }
 
+/** ISA-18.2 alarm states in the words the screens use (one place, so every screen says the same). */
+export function liveAlarmStateWord(state: string): string {
+  return ({ 'unacknowledged': 'new', 'acknowledged': 'acknowledged', 'rtn-unacknowledged': 'cleared, not acknowledged', 'latched': 'latched: reset at machine', 'shelved': 'shelved', 'out-of-service': 'out of service', 'normal': 'closed' } as Record<string, string>)[state] ?? state
+}
+
 export const LIVE_RANGES = ['1h', 'shift', '24h', '7d'] as const
 export type LiveRange = (typeof LIVE_RANGES)[number]
 /** Shift starts, local hours: three 8-hour shifts (common practice; a shift calendar may replace it). */
 export const LIVE_SHIFT_STARTS = [6, 14, 22] as const
 
-/** Start of the shift holding `at`, in the plant's time zone. */
-export function liveShiftStart(at: number, timeZone: string): number {
-  const parts = new Intl.DateTimeFormat('en-GB', { timeZone, hour: 'numeric', minute: 'numeric', second: 'numeric', hourCycle: 'h23' }).formatToParts(new Date(at))
+/** The wall-clock reading of `at` in `timeZone`, as if that wall clock were UTC (ms). */
+function liveWallClock(at: number, timeZone: string): number {
+  const parts = new Intl.DateTimeFormat('en-GB', { timeZone, year: 'numeric', month: 'numeric', day: 'numeric', hour: 'numeric', minute: 'numeric', second: 'numeric', hourCycle: 'h23' }).formatToParts(new Date(at))
   const get = (t: string) => Number(parts.find(p => p.type === t)?.value ?? 0)
-  const localMsIntoDay = ((get('hour') * 60 + get('minute')) * 60 + get('second')) * 1000 + (at % 1000)
-  const hour = get('hour')
-  const start = [...LIVE_SHIFT_STARTS].reverse().find(h => h <= hour) ?? LIVE_SHIFT_STARTS[LIVE_SHIFT_STARTS.length - 1]!
-  const back = localMsIntoDay - start * 3_600_000
-  return at - (back >= 0 ? back : back + 86_400_000)
+  return Date.UTC(get('year'), get('month') - 1, get('day'), get('hour'), get('minute'), get('second'), ((at % 1000) + 1000) % 1000)
+}
+
+/**
+ * Start of the shift holding `at`, in the plant's time zone. Worked out on the wall clock and
+ * turned back into an instant with the zone's offset at the start itself, so a night shift that
+ * spans a daylight-saving change still starts at its 22:00.
+ */
+export function liveShiftStart(at: number, timeZone: string): number {
+  const wall = liveWallClock(at, timeZone)
+  const day = 86_400_000
+  const hourOfDay = Math.floor((((wall % day) + day) % day) / 3_600_000)
+  const start = [...LIVE_SHIFT_STARTS].reverse().find(h => h <= hourOfDay)
+  const midnight = wall - (((wall % day) + day) % day)
+  const startWall = start === undefined ? midnight - day + LIVE_SHIFT_STARTS[LIVE_SHIFT_STARTS.length - 1]! * 3_600_000 : midnight + start * 3_600_000
+  // Offset at the start: guess with the offset now, then correct with the offset at the guess.
+  let instant = startWall - (wall - at)
+  instant = startWall - (liveWallClock(instant, timeZone) - instant)
+  return instant
 }
 
 /** [from, to] of a range ending at `end` (the machine's latest reading: machines keep their own clock). */

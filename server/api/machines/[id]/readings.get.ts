@@ -1,9 +1,14 @@
-// Chart data for a range: sizes (downsampled per time bucket, min and max kept), the engine's
+// Chart data for a range: sizes (thinned with Largest-Triangle-Three-Buckets from the `downsample`
+// package, which keeps the visually significant points such as spikes), the engine's
 // level estimate, the offset in force as steps, and markers for dress, wheel change, mastering,
 // station logs and alarms.
 import { and, asc, between, eq, inArray, isNotNull } from 'drizzle-orm'
+import { createLTTB } from 'downsample'
 
-const BUCKETS = 600
+/** At most this many points per series reach the browser, whatever the range. */
+const MAX_POINTS = 1200
+const lttb = createLTTB<{ t: number, v: number }>({ x: 't', y: 'v' })
+const thin = <T extends { t: number, v: number }>(points: T[]): T[] => (points.length <= MAX_POINTS ? points : Array.from(lttb(points, MAX_POINTS)) as T[])
 
 export default defineEventHandler(async (event) => {
   await requireUser(event)
@@ -50,8 +55,8 @@ export default defineEventHandler(async (event) => {
 
   return {
     range, from, to, count: sizes.length,
-    sizes: liveDownsampleMinMax(sizes, BUCKETS).map(s => [s.t, s.v] as const),
-    level: liveDownsampleMinMax(level, BUCKETS).map(s => [s.t, s.v] as const),
+    sizes: thin(sizes).map(s => [s.t, s.v] as const),
+    level: thin(level).map(s => [s.t, s.v] as const),
     offsets: offsets.map(o => [o.t, o.v] as const),
     gaugeFaults: gaugeFaults.slice(-200),
     markers,

@@ -1,0 +1,176 @@
+// The live cell's pure helpers against outside references: capability per ISO 22514-2 naming with
+// σ_within = MR̄/d2 (d2 = 1.128 for n = 2, reference-values §1) recomputed with simple-statistics;
+// file signatures from the JPEG, PNG and WebP specifications; shift starts across a daylight-saving
+// change checked against hand-worked UTC instants.
+import { describe, it, expect } from 'vitest'
+import * as ss from 'simple-statistics'
+import fc from 'fast-check'
+import {
+  LIVE_CPK_WINDOW, liveRollingCpk, liveTolerancePosition, liveMachineState, liveAttentionRank, liveSpan,
+  liveShiftStart, liveRangeWindow, livePhotoType, liveAlarmStateWord, type LiveCardFacts,
+} from '../../shared/utils/live-view'
+
+/** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
+function referenceCpk(xs: number[], lsl: number, usl: number) {
+  const mr = ss.mean(xs.slice(1).map((x, i) => Math.abs(x - xs[i]!)))
+  const sigma = mr / (2 / Math.sqrt(Math.PI)) // d2(2) = 2/√π = 1.1284, the table's 1.128 (reference-values §1) unrounded
+  const mu = ss.mean(xs)
+  return Math.min(usl - mu, mu - lsl) / (3 * sigma)
+}
+
+describe('liveRollingCpk', () => {
+  it('worked example: μ 0.5, σ_within 0.5, limits ±3 µm → Cpk 1.667 (reference-values §4, derived check)', () => {
+    // Alternating μ ± h gives every moving range 2h, so σ_within = 2h/1.128 = 0.5 when h = 0.282.
+    const xs = Array.from({ length: 40 }, (_, i) => 0.5 + (i % 2 ? 0.282 : -0.282))
+    const r = liveRollingCpk(xs, -3, 3)!
+    expect(r.n).toBe(40)
+    expect(r.cpk).toBeCloseTo(1.667, 3)
+  })
+
+  it('agrees with a recomputation by simple-statistics on any series (property)', () => {
+    fc.assert(fc.property(
+      fc.array(fc.double({ min: -3, max: 3, noNaN: true }), { minLength: 20, maxLength: 300 }),
+      (xs) => {
+        const r = liveRollingCpk(xs, -2, 2)
+        const last = xs.slice(-LIVE_CPK_WINDOW)
+        if (ss.standardDeviation(last) < 1e-9 || ss.mean(last.slice(1).map((x, i) => Math.abs(x - last[i]!))) < 1e-9) return true
+        expect(r).not.toBeNull()
+        expect(r!.n).toBe(last.length)
+        const want = referenceCpk(last, -2, 2)
+        expect(Math.abs(r!.cpk - want)).toBeLessThanOrEqual(1e-9 * Math.max(1, Math.abs(want))) // relative: tiny spreads give huge Cpk
+      },
+    ), { numRuns: 200 })
+  })
+
+  it(`uses only the last ${LIVE_CPK_WINDOW} parts: older wild sizes do not count`, () => {
+    const steady = Array.from({ length: LIVE_CPK_WINDOW }, (_, i) => Math.sin(i) * 0.4)
+    const withOld = [...Array.from({ length: 50 }, () => 40), ...steady]
+    expect(liveRollingCpk(withOld, -2, 2)).toEqual(liveRollingCpk(steady, -2, 2))
+  })
+
+  it('gives no figure for fewer than 20 parts, no spread, or limits the wrong way round', () => {
+    const xs = Array.from({ length: 30 }, (_, i) => Math.cos(i))
+    expect(liveRollingCpk(xs.slice(0, 19), -2, 2)).toBeNull()
+    expect(liveRollingCpk(Array.from({ length: 30 }, () => 0.5), -2, 2)).toBeNull()
+    expect(liveRollingCpk(xs, 2, -2)).toBeNull()
+    expect(liveRollingCpk(xs, 1, 1)).toBeNull()
+    // Gauge faults arrive as non-numbers; they are left out rather than poisoning the figure.
+    expect(liveRollingCpk([...xs, Number.NaN], -2, 2)).toEqual(liveRollingCpk(xs, -2, 2))
+  })
+})
+
+describe('liveTolerancePosition', () => {
+  it('places a size between the limits; the outer tenth each side is "near"; beyond is "outside"', () => {
+    expect(liveTolerancePosition(0, -2, 2)).toEqual({ fraction: 0.5, zone: 'inside' })
+    expect(liveTolerancePosition(1.7, -2, 2).zone).toBe('near')
+    expect(liveTolerancePosition(1.7, -2, 2).fraction).toBeCloseTo(0.925, 12)
+    expect(liveTolerancePosition(-2, -2, 2)).toEqual({ fraction: 0, zone: 'near' }) // on the limit is still in tolerance
+    expect(liveTolerancePosition(2, -2, 2)).toEqual({ fraction: 1, zone: 'near' })
+    expect(liveTolerancePosition(2.1, -2, 2).zone).toBe('outside')
+    expect(liveTolerancePosition(-6, -2, 2)).toEqual({ fraction: -1, zone: 'outside' })
+    // Asymmetric tolerance (an h6 shaft of 6.3 mm: 0 / −9 µm, ISO 286-2): mid-tolerance is −4.5 µm.
+    expect(liveTolerancePosition(-4.5, -9, 0)).toEqual({ fraction: 0.5, zone: 'inside' })
+  })
+})
+
+const facts = (f: Partial<LiveCardFacts>): LiveCardFacts => ({
+  online: true, execution: 'ACTIVE', activeFaults: [], alarmPriorities: [], unacknowledged: 0, zone: 'inside', minutesToLimit: null, holdReason: null, ...f,
+})
+
+describe('liveMachineState', () => {
+  it('names the state in a word for each situation (MTConnect execution states)', () => {
+    expect(liveMachineState(facts({ online: false }))).toEqual({ tone: 'idle', word: 'Offline' })
+    expect(liveMachineState(facts({ activeFaults: ['loader_jam'] }))).toEqual({ tone: 'halt', word: 'Fault' })
+    expect(liveMachineState(facts({ execution: 'STOPPED' })).word).toBe('Stopped')
+    expect(liveMachineState(facts({ execution: 'FEED_HOLD' })).word).toBe('Held')
+    expect(liveMachineState(facts({ zone: 'outside' })).word).toBe('Out of size')
+    expect(liveMachineState(facts({ holdReason: 'limit' })).word).toBe('Comp. waiting')
+    expect(liveMachineState(facts({ zone: 'near' })).word).toBe('Drifting')
+    expect(liveMachineState(facts({ minutesToLimit: 12 })).word).toBe('Drifting')
+    expect(liveMachineState(facts({ minutesToLimit: 45 }))).toEqual({ tone: 'steady', word: 'Grinding' })
+    expect(liveMachineState(facts({ execution: 'READY' })).word).toBe('Waiting')
+    expect(liveMachineState(facts({ execution: 'SOME_NEW_STATE', zone: null })).word).toBe('some new state')
+    expect(liveMachineState(facts({ execution: null, zone: null })).word).toBe('No data')
+  })
+})
+
+describe('liveAttentionRank', () => {
+  it('orders cards by what needs a person first', () => {
+    const cards = {
+      p1Acked: facts({ alarmPriorities: [1] }),
+      p1New: facts({ alarmPriorities: [1, 3], unacknowledged: 1 }),
+      p3: facts({ alarmPriorities: [3], unacknowledged: 1 }),
+      outside: facts({ zone: 'outside' }),
+      drifting10: facts({ minutesToLimit: 10 }),
+      drifting25: facts({ minutesToLimit: 25 }),
+      grinding: facts({}),
+      offline: facts({ online: false }),
+    }
+    const order = Object.entries(cards).sort((a, b) => liveAttentionRank(a[1]) - liveAttentionRank(b[1])).map(([k]) => k)
+    expect(order).toEqual(['p1New', 'p1Acked', 'p3', 'outside', 'drifting10', 'drifting25', 'grinding', 'offline'])
+  })
+})
+
+describe('liveAlarmStateWord', () => {
+  it('has a word for each ISA-18.2 state and passes an unknown one through', () => {
+    expect(liveAlarmStateWord('unacknowledged')).toBe('new')
+    expect(liveAlarmStateWord('rtn-unacknowledged')).toBe('cleared, not acknowledged')
+    expect(liveAlarmStateWord('latched')).toBe('latched: reset at machine')
+    expect(liveAlarmStateWord('out-of-service')).toBe('out of service')
+    expect(liveAlarmStateWord('suppressed-by-design')).toBe('suppressed-by-design')
+  })
+})
+
+describe('liveSpan', () => {
+  it('writes short spans', () => {
+    expect(liveSpan(null)).toBe('—')
+    expect(liveSpan(Number.POSITIVE_INFINITY)).toBe('—')
+    expect(liveSpan(0.4)).toBe('< 1 min')
+    expect(liveSpan(12.4)).toBe('12 min')
+    expect(liveSpan(60)).toBe('1 h')
+    expect(liveSpan(190)).toBe('3 h 10 min')
+    expect(liveSpan(3 * 1440)).toBe('3 d')
+  })
+})
+
+describe('liveShiftStart and liveRangeWindow (shifts at 06, 14, 22 local: common practice)', () => {
+  const utc = (s: string) => Date.parse(s)
+  it('finds the shift start in winter and summer time (Europe/Berlin: UTC+1 / UTC+2)', () => {
+    expect(liveShiftStart(utc('2026-01-15T10:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-01-15T05:00:00Z')) // 11:00 CET → 06:00 CET
+    expect(liveShiftStart(utc('2026-07-15T10:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-07-15T04:00:00Z')) // 12:00 CEST → 06:00 CEST
+    expect(liveShiftStart(utc('2026-01-15T02:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-01-14T21:00:00Z')) // 03:00 → 22:00 the day before
+    expect(liveShiftStart(utc('2026-01-15T13:00:00Z'), 'UTC')).toBe(utc('2026-01-15T06:00:00Z'))
+    expect(liveShiftStart(utc('2026-01-15T14:00:00Z'), 'UTC')).toBe(utc('2026-01-15T14:00:00Z')) // a shift starts on its own hour
+  })
+
+  it('a night shift across the spring change (29 March 2026, 02:00 CET → 03:00 CEST) started at 22:00 CET', () => {
+    // 04:30 CEST = 02:30Z; the shift began 22:00 CET on the 28th = 21:00Z, 5.5 real hours earlier.
+    expect(liveShiftStart(utc('2026-03-29T02:30:00Z'), 'Europe/Berlin')).toBe(utc('2026-03-28T21:00:00Z'))
+    // Autumn (25 October 2026, 03:00 CEST → 02:00 CET): 05:00 CET = 04:00Z; the shift began 22:00 CEST = 20:00Z.
+    expect(liveShiftStart(utc('2026-10-25T04:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-10-24T20:00:00Z'))
+  })
+
+  it('ranges end at the machine\'s latest reading', () => {
+    const end = utc('2026-01-15T10:00:00Z')
+    expect(liveRangeWindow('1h', end, 'UTC')).toEqual({ from: end - 3_600_000, to: end })
+    expect(liveRangeWindow('24h', end, 'UTC')).toEqual({ from: end - 86_400_000, to: end })
+    expect(liveRangeWindow('7d', end, 'UTC')).toEqual({ from: end - 7 * 86_400_000, to: end })
+    expect(liveRangeWindow('shift', end, 'UTC')).toEqual({ from: utc('2026-01-15T06:00:00Z'), to: end })
+  })
+})
+
+describe('livePhotoType (by content, never by name)', () => {
+  const bytes = (...xs: (number | string)[]) => new Uint8Array(xs.flatMap(x => (typeof x === 'string' ? [...x].map(c => c.charCodeAt(0)) : [x])))
+  it('recognises the published signatures', () => {
+    expect(livePhotoType(bytes(0xFF, 0xD8, 0xFF, 0xE0, 0, 0x10, 'JFIF'))).toBe('image/jpeg') // SOI marker, ITU-T T.81 / JFIF
+    expect(livePhotoType(bytes(0x89, 'PNG', 0x0D, 0x0A, 0x1A, 0x0A, 0, 0, 0, 13, 'IHDR'))).toBe('image/png') // PNG spec §5.2
+    expect(livePhotoType(bytes('RIFF', 0x24, 0, 0, 0, 'WEBPVP8 '))).toBe('image/webp') // RFC 9649 §2.5
+  })
+  it('refuses everything else', () => {
+    expect(livePhotoType(bytes('plain text, not an image'))).toBeNull()
+    expect(livePhotoType(bytes('GIF89a', 1, 0, 1, 0))).toBeNull()
+    expect(livePhotoType(bytes('RIFF', 0x24, 0, 0, 0, 'WAVEfmt '))).toBeNull() // a RIFF that is sound
+    expect(livePhotoType(bytes(0xFF, 0xD8))).toBeNull() // cut short
+    expect(livePhotoType(new Uint8Array())).toBeNull()
+  })
+})
