@@ -1,5 +1,5 @@
 // The cells, the chosen cell's shift calendar (first cell by default) and its shifts of the last
-// two weeks, newest first, with who signed them over.
+// week, newest first, with who signed them over.
 import { z } from 'zod'
 import { and, asc, eq, gte } from 'drizzle-orm'
 
@@ -14,11 +14,11 @@ export default defineEventHandler(async (event) => {
   const now = Date.now()
   return reportAnswer(async () => {
     const calendar = await reportCalendar(useDb(), cell)
-    const shifts = shiftsBetween(calendar, now - 14 * 86_400_000, now).reverse()
+    const shifts = shiftsBetween(calendar, now - 7 * 86_400_000, now).reverse()
     const s = schema.reportSignoffs
     const signed = await useDb().select({ shiftId: s.shiftId, date: s.shiftDate, name: schema.users.name, at: s.at }).from(s)
       .innerJoin(schema.users, eq(schema.users.id, s.userId))
-      .where(and(eq(s.cellId, cell), gte(s.at, now - 15 * 86_400_000)))
+      .where(and(eq(s.cellId, cell), gte(s.at, now - 8 * 86_400_000)))
     return {
       cells, cell, calendar,
       shifts: shifts.map(w => ({ ...w, ended: w.to <= now, signedBy: signed.filter(x => x.shiftId === w.shiftId && x.date === w.date).map(x => ({ name: x.name, at: x.at })) })),
