@@ -225,7 +225,7 @@ export function restoreCompensationState(json: unknown): CompensationState {
 
 /** Feeds one reading or event; returns the new state and the decision. Never mutates `state`. */
 export function stepCompensation(state: CompensationState, input: CompensationInput): { state: CompensationState; decision: CompensationDecision } {
-  const st = structuredClone(state)
+  const st = copyState(state)
   const type = input && typeof input === 'object' ? (input as { type?: unknown }).type : undefined
   let decision: CompensationDecision
   if (type === 'reading') decision = onReading(st, input as CompensationReading)
@@ -237,7 +237,124 @@ export function stepCompensation(state: CompensationState, input: CompensationIn
     return { state, decision: ignored(state, null, `unknown input type ${JSON.stringify(type ?? null)}: ignored`) }
   }
   if (decision.kind === 'ignored') return { state, decision }
-  return { state: tidyZeros(st), decision }
+  return { state: tidyState(st), decision }
+}
+
+// The step works on a copy, so the caller's state is never changed. The copy is made by hand (a
+// structuredClone per reading was most of the engine's time). What the step changes in place:
+// the top-level fields and the arrays offsetRing, stepWindow, learnSamples (copied here).
+// Shared with the input, never changed in place: `settings` (replaced whole on a job change),
+// `outlierSamples` (always replaced), `residuals` (replaced by appendResidual, so that its sorted
+// copy for the robust σ can be kept per array). tests/unit/compensation-frozen.test.ts steps a
+// deep-frozen state through every input type to hold this.
+function copyState(state: CompensationState): CompensationState {
+  if (!hasStateLayout(state)) {
+    // Extra or reordered fields (a state assembled elsewhere): keep them all, in their order.
+    const st = { ...state }
+    st.offsetRing = state.offsetRing.slice()
+    st.stepWindow = state.stepWindow.slice()
+    st.learnSamples = state.learnSamples.slice()
+    return st
+  }
+  // Field for field, in the order createCompensationState gives (the JSON of the state keeps it).
+  const st: CompensationState = {
+    version: state.version,
+    settings: state.settings,
+    offsetUm: state.offsetUm,
+    offsetAtDressUm: state.offsetAtDressUm,
+    offsetRing: state.offsetRing.slice(),
+    lastPartOffsetUm: state.lastPartOffsetUm,
+    lastSeq: state.lastSeq,
+    lastTimeMs: state.lastTimeMs,
+    readings: state.readings,
+    partsSinceDress: state.partsSinceDress,
+    level: state.level,
+    slope: state.slope,
+    learnCount: state.learnCount,
+    ewmaLevel: state.ewmaLevel,
+    stepWindow: state.stepWindow.slice(),
+    stepSkip: state.stepSkip,
+    residuals: state.residuals,
+    outlierRun: state.outlierRun,
+    outlierSamples: state.outlierSamples,
+    invalidRun: state.invalidRun,
+    outOfToleranceRun: state.outOfToleranceRun,
+    flushRemaining: state.flushRemaining,
+    holdRemaining: state.holdRemaining,
+    holdReason: state.holdReason,
+    relearnPending: state.relearnPending,
+    learning: state.learning,
+    learnSamples: state.learnSamples.slice(),
+    dressStepBase: state.dressStepBase,
+    dressStepUm: state.dressStepUm,
+    dressStepCount: state.dressStepCount,
+    levelAtDressUm: state.levelAtDressUm,
+    cycleTimeS: state.cycleTimeS,
+    roundnessUm: state.roundnessUm,
+  }
+  statesWithLayout.add(st)
+  return st
+}
+
+/** States known to have exactly the fields of createCompensationState, in its order. */
+const statesWithLayout = new WeakSet<object>()
+let stateKeys: readonly string[] | null = null
+
+function hasStateLayout(state: CompensationState): boolean {
+  if (statesWithLayout.has(state)) return true
+  stateKeys ??= Object.keys(createCompensationState({ upperSpecUm: 1, lowerSpecUm: -1 }))
+  const keys = Object.keys(state)
+  return keys.length === stateKeys.length && keys.every((k, i) => k === stateKeys![i])
+}
+
+const STATE_FIELDS_COPIED = new Set<string>(['offsetRing', 'stepWindow', 'learnSamples'])
+const STATE_FIELDS_SHARED = new Set<string>(['settings', 'outlierSamples', 'residuals'])
+
+/**
+ * JSON has no −0: every −0 in the returned state becomes 0 so that it survives a JSON round
+ * trip exactly (same result as tidying a full deep copy, without making one).
+ */
+function tidyState(st: CompensationState): CompensationState {
+  const o = st as unknown as Record<string, unknown>
+  for (const k in o) {
+    const v = o[k]
+    if (typeof v === 'number') { if (v === 0 && 1 / v < 0) o[k] = 0 }
+    else if (v === null || typeof v !== 'object') continue
+    else if (STATE_FIELDS_COPIED.has(k)) tidyNumbersInPlace(v as unknown[])
+    else if (k === 'settings') st.settings = tidySettings(st.settings)
+    else if (STATE_FIELDS_SHARED.has(k)) { if (hasNegativeZero(v)) o[k] = tidyZeros(structuredClone(v)) }
+    else o[k] = tidyZeros(structuredClone(v)) // a field this version does not know: copy, as before
+  }
+  return st
+}
+
+/** Settings objects already checked free of −0 (settings are never changed once parsed). */
+const tidySettingsSeen = new WeakSet<object>()
+
+function tidySettings(settings: CompensationSettings): CompensationSettings {
+  if (tidySettingsSeen.has(settings)) return settings
+  const tidy = hasNegativeZero(settings) ? tidyZeros(structuredClone(settings)) : settings
+  tidySettingsSeen.add(tidy)
+  return tidy
+}
+
+function tidyNumbersInPlace(values: unknown[]): void {
+  for (let i = 0; i < values.length; i++) {
+    const v = values[i]
+    if (typeof v === 'number') { if (v === 0 && 1 / v < 0) values[i] = 0 }
+    else if (v !== null && typeof v === 'object') values[i] = tidyZeros(structuredClone(v))
+  }
+}
+
+function hasNegativeZero(value: unknown): boolean {
+  if (typeof value === 'number') return value === 0 && 1 / value < 0
+  if (value === null || typeof value !== 'object') return false
+  if (Array.isArray(value)) {
+    for (let i = 0; i < value.length; i++) if (hasNegativeZero(value[i])) return true
+    return false
+  }
+  for (const k of Object.keys(value)) if (hasNegativeZero((value as Record<string, unknown>)[k])) return true
+  return false
 }
 
 /** Convenience: feed many inputs, keep every decision. */
@@ -377,8 +494,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
     } else {
       st.outlierRun = 0
       st.outlierSamples = []
-      st.residuals.push(residual)
-      if (st.residuals.length > s.outliers.window) st.residuals.shift()
+      st.residuals = appendResidual(st.residuals, residual, s.outliers.window)
       const n = st.learnCount + 1
       const { alpha, beta } = holtWeights(s.drift.levelWeight, s.drift.slopeWeight)
       const newLevel = predicted + alpha * residual
@@ -549,7 +665,55 @@ function boundedCommand(st: CompensationState, desiredUm: number): { command: Co
 function robustSigma(st: CompensationState): number {
   const o = st.settings.outliers
   if (st.residuals.length < 8) return Math.max(o.sigmaPriorUm, o.sigmaFloorUm)
-  return Math.max(1.4826 * median(st.residuals.map(Math.abs)), o.sigmaFloorUm)
+  const sorted = sortedAbsolute(st.residuals)
+  if (sorted === null) return Math.max(1.4826 * median(st.residuals.map(Math.abs)), o.sigmaFloorUm)
+  const mid = sorted.length >> 1
+  const med = sorted.length % 2 ? sorted[mid]! : (sorted[mid - 1]! + sorted[mid]!) / 2
+  return Math.max(1.4826 * med, o.sigmaFloorUm)
+}
+
+// The robust σ needs the median of |residual| two or three times a step over a window of ~30
+// that changes by one value a reading. Each residuals array (never changed in place) keeps its
+// |values| sorted here; the next window's sorted copy is derived by one removal and one
+// insertion instead of a sort. Same multiset of finite values → the same median, bit for bit.
+const sortedAbsByResiduals = new WeakMap<readonly number[], number[]>()
+
+/** |values| in ascending order, or null when a value is not finite (then sort as before). */
+function sortedAbsolute(residuals: readonly number[]): number[] | null {
+  let sorted = sortedAbsByResiduals.get(residuals)
+  if (sorted) return sorted
+  if (!residuals.every(Number.isFinite)) return null
+  sorted = residuals.map(Math.abs).sort((a, b) => a - b)
+  sortedAbsByResiduals.set(residuals, sorted)
+  return sorted
+}
+
+/** The residual window with `value` added (the oldest dropped past `window`): a new array. */
+function appendResidual(residuals: readonly number[], value: number, window: number): number[] {
+  const drop = residuals.length + 1 > window
+  const next = drop ? residuals.slice(1) : residuals.slice()
+  next.push(value)
+  const sorted = sortedAbsByResiduals.get(residuals)
+  if (sorted && Number.isFinite(value)) {
+    const nextSorted = sorted.slice()
+    if (drop) nextSorted.splice(lowerBound(nextSorted, Math.abs(residuals[0]!)), 1)
+    const a = Math.abs(value)
+    nextSorted.splice(lowerBound(nextSorted, a), 0, a)
+    sortedAbsByResiduals.set(next, nextSorted)
+  }
+  return next
+}
+
+/** First index in ascending `values` whose value is ≥ x. */
+function lowerBound(values: readonly number[], x: number): number {
+  let lo = 0
+  let hi = values.length
+  while (lo < hi) {
+    const mid = (lo + hi) >> 1
+    if (values[mid]! < x) lo = mid + 1
+    else hi = mid
+  }
+  return lo
 }
 
 /**
