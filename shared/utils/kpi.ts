@@ -36,7 +36,8 @@ export interface KpiIndices {
 
 /** The ISO 22400-2 indices; an index whose denominator is 0 is null (not defined), never NaN. */
 export function kpiIndices(k: KpiInputs): KpiIndices {
-  for (const [name, v] of Object.entries(k)) {
+  for (const name of ['pbt', 'apt', 'pru', 'pq', 'gq'] as const) {
+    const v = k[name]
     if (typeof v !== 'number' || !Number.isFinite(v) || v < 0) throw new RangeError(`kpi: ${name} must be a finite number ≥ 0, got ${String(v)}`)
   }
   if (k.apt > k.pbt) throw new RangeError(`kpi: actual production time (${k.apt}) cannot exceed planned busy time (${k.pbt})`)
