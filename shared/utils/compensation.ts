@@ -475,7 +475,9 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
     const limit = s.outliers.k * sigma + gainSlack
     if (Math.abs(residual) > limit) {
       st.outlierRun++
-      st.outlierSamples = [...st.outlierSamples.map((v) => v + st.slope), disturbance]
+      // Only the latest run matters: a long run must be judged on its recent readings, or its first
+      // jump (or a few noisy ones) would keep a real level shift from ever being accepted.
+      st.outlierSamples = [...st.outlierSamples.map((v) => v + st.slope), disturbance].slice(-(s.outliers.runForGaugeSuspect + 2))
       const shift = acceptedLevelShift(st, sigma)
       if (shift !== null) {
         // Readings that agree among themselves but not with the old level: the process moved.

@@ -109,11 +109,14 @@ describe('compensation engine: golden decisions (recorded before the speed work)
     expect(got.hash).toBe(expected)
   })
 
+  // Re-recorded on 2026-12-01 after one deliberate change: a run of outliers is judged on its
+  // latest readings only, so a real level shift is accepted however long the run (found by the
+  // seeded stability property). The closed-loop hashes above did not move.
   it.each([
-    ['drift', 1, '09fc742643e4936780b5029163efe2bac93fc2a7ee28863f67cf1b78a22f0e68'],
-    ['ewma', 2, 'b9500858522cd54ac9e2a5973f0b9628b1b0faf417ec6d000be4917f369ae06d'],
+    ['drift', 1, '0b57cacccd742bacf89377dda5e56b7ca2a8485d50612a84e30cc7a59fd23341'],
+    ['ewma', 2, 'b609d62ecc5356ffcc2ab02b164fb44955eb391c8efeb03a753f94f1069c5090'],
     ['step', 3, '695cb43de1766668e7f5d33e205da377df035e2602b0135e2f8d3150badbaa85'],
-    ['none', 4, '26d776887f92178e84ab44da11436dcba065b19d2c09fbccd0dd255e8e5e572f'],
+    ['none', 4, 'ce65c607028096957625d2b42b39e4cfe8fd236664c786452250894d7946f6d6'],
   ])('synthetic stream through every input type, strategy %s', (strategy, seed, expected) => {
     const got = syntheticHash({ upperSpecUm: 4, lowerSpecUm: -4, strategy } as CompensationSettingsInput, seed as number)
     expect(got).toBe(expected)
