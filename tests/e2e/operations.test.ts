@@ -80,7 +80,7 @@ describe('operations', () => {
     db.close()
   })
 
-  it('folds readings older than the retention window into hourly summaries', async () => {
+  it('folds readings received before the retention window into hourly summaries (buckets on the machine clock)', async () => {
     const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-ops-'))
     const first = await boot(dataDir)
     const c = await machineClient(first.mqttUrl, 'cg-03', demoCredentials(dataDir)['cg-03']!.password)
@@ -89,8 +89,9 @@ describe('operations', () => {
     for (let seq = 2; seq <= 41; seq++) { const v = ((seq % 7) - 3) / 10; values.push(v); await c.publishAsync(topicFor('cg-03', reading(seq, v)), payloadOf(reading(seq, v)), { qos: 1 }) }
     await c.endAsync()
     await killServer(first.s, 'SIGTERM')
-    // The test readings are stamped 2026-11-30 (machine clock); keep only the last hour.
-    await boot(dataDir, { OWLSHIFT_RETENTION_DAYS: String(1 / 24) })
+    // Retention counts on the server's clock (when a reading was received): keep one second.
+    await new Promise(r => setTimeout(r, 1500))
+    await boot(dataDir, { OWLSHIFT_RETENTION_DAYS: String(1 / 86_400) })
     const db = openTestDb(dataDir)
     const deadline = Date.now() + 10_000
     while (Number((await db.execute(`select count(*) from readings where machine_id = 'cg-03'`)).rows[0]![0]) > 0 && Date.now() < deadline) await new Promise(r => setTimeout(r, 200))
