@@ -62,10 +62,10 @@ async function flood(clients: MqttClient[], firstSeq: number, perMachine: number
 async function startOwlshift(dataDir: string, port: number, mqttPort: number): Promise<ChildProcess> {
   const child = spawn(process.execPath, ['.output/server/index.mjs'], {
     env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'bench-session-password-long-enough-1234', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort) },
-    stdio: ['ignore', 'pipe', 'inherit'],
+    stdio: ['ignore', 'inherit', 'pipe'],
   })
   await new Promise<void>((resolve, reject) => {
-    child.stdout!.on('data', (d: Buffer) => { if (d.toString().includes('MQTT broker (embedded) listening')) resolve() })
+    child.stderr!.on('data', (d: Buffer) => { if (d.toString().includes('MQTT broker (embedded) listening')) resolve() })
     child.once('exit', code => reject(new Error(`server exited ${code}`)))
   })
   return child

@@ -34,10 +34,10 @@ async function main() {
   const base = `http://127.0.0.1:${port}`
   const server = spawn(process.execPath, ['.output/server/index.mjs'], {
     env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'soak-session-password-long-enough-123', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort), OWLSHIFT_BACKUP_EVERY_H: '0' },
-    stdio: ['ignore', 'pipe', 'inherit'],
+    stdio: ['ignore', 'inherit', 'pipe'],
   })
   await new Promise<void>((resolve, reject) => {
-    server.stdout!.on('data', (d: Buffer) => { if (d.toString().includes('MQTT broker (embedded) listening')) resolve() })
+    server.stderr!.on('data', (d: Buffer) => { if (d.toString().includes('MQTT broker (embedded) listening')) resolve() })
     server.once('exit', code => reject(new Error(`server exited ${code}`)))
   })
   try {

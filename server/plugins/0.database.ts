@@ -25,8 +25,8 @@ export default defineNitroPlugin(async (nitroApp) => {
       throw new ConfigError('Owlshift cannot start: NUXT_SESSION_PASSWORD must be set to a secret of at least 32 characters (it seals the sign-in cookies). `npm run demo` makes one in data/ for you.')
     const db = await openDatabase(config)
     const applied = await applyMigrations(useDbClient(), await loadMigrationFiles())
-    if (applied) console.info(`[owlshift] applied ${applied} database migration(s)`)
-    if (config.seedDemo && await seedDemoShop(db, hashPassword)) console.info('[owlshift] created the demo shop')
+    if (applied) log.info(`[owlshift] applied ${applied} database migration(s)`)
+    if (config.seedDemo && await seedDemoShop(db, hashPassword)) log.info('[owlshift] created the demo shop')
     resolveReady()
   }
   catch (err) {

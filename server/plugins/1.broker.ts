@@ -66,7 +66,7 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
   const sockets = new Set<net.Socket>()
   server.on('connection', (s) => { sockets.add(s); s.on('close', () => sockets.delete(s)) })
   const boundPort = await listenWithRetry(server, port, host)
-  console.info(`[owlshift] MQTT broker (embedded) listening on ${host}:${boundPort}`)
+  log.info(`[owlshift] MQTT broker (embedded) listening on ${host}:${boundPort}`)
   setCommandPublisher((topic, payload) => new Promise((resolve, reject) => {
     broker.publish({ cmd: 'publish', topic, payload: Buffer.from(payload), qos: 1, retain: false, dup: false, clientId: SERVER_MARK } as never, err => (err ? reject(err) : resolve()))
   }))
@@ -98,10 +98,10 @@ async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<
       .then(() => callback(), err => callback(err as Error))
   }
   client.on('connect', (ack) => {
-    console.info(`[owlshift] connected to the external MQTT broker ${url} (session ${ack.sessionPresent ? 'resumed' : 'new'})`)
-    client.subscribe(mqttTopics.serverSubscriptions, { qos: 1 }, (err) => { if (err) console.error('[owlshift] subscribe failed:', err.message) })
+    log.info(`[owlshift] connected to the external MQTT broker ${url} (session ${ack.sessionPresent ? 'resumed' : 'new'})`)
+    client.subscribe(mqttTopics.serverSubscriptions, { qos: 1 }, (err) => { if (err) log.error(`[owlshift] subscribe failed: ${err.message}`) })
   })
-  client.on('error', err => console.error(`[owlshift] external MQTT broker: ${err.message}`))
+  client.on('error', err => log.error(`[owlshift] external MQTT broker: ${err.message}`))
   setCommandPublisher(async (topic, payload) => { await client.publishAsync(topic, payload, { qos: 1 }) })
   return {
     kind: 'external',

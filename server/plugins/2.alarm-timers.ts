@@ -4,7 +4,7 @@ import { databaseReady } from './0.database'
 export default defineNitroPlugin((nitroApp) => {
   if (!useOwlshiftConfig().mqtt.enabled) return
   const timer = setInterval(() => {
-    databaseReady.then(() => alarmTick()).catch(err => console.error('[alarms] tick failed:', err))
+    databaseReady.then(() => alarmTick()).catch(err => log.error({ err: err }, '[alarms] tick failed'))
   }, 15_000)
   timer.unref()
   nitroApp.hooks.hook('close', () => clearInterval(timer))

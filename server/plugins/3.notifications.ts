@@ -8,6 +8,6 @@ export default defineNitroPlugin((nitroApp) => {
   catch (err) { console.error((err as Error).message); process.exit(1) }
   databaseReady
     .then(() => startNotifications())
-    .catch(err => console.error(`[notify] notifications could not start: ${(err as Error).message}`))
+    .catch(err => log.error(`[notify] notifications could not start: ${(err as Error).message}`))
   nitroApp.hooks.hook('close', () => stopNotifications())
 })

@@ -3,7 +3,7 @@
 export async function handleCommitted(effects: IngestEffects) {
   for (const c of effects.commands) {
     try { await sendCommand(c.cellId, c.machineId, c.command) }
-    catch (err) { console.error(`[ingest] command ${c.command.id} to ${c.machineId} not sent: ${(err as Error).message}`) }
+    catch (err) { log.error(`[ingest] command ${c.command.id} to ${c.machineId} not sent: ${(err as Error).message}`) }
   }
   for (const e of effects.live) publishLive(e)
   if (effects.conditions.length) await applyAlarmConditions(effects.conditions)

@@ -14,5 +14,5 @@ export async function ensureDemoMachineCredentials() {
   const known: Record<string, { cell: string, username: string, password: string }> = existsSync(file) ? JSON.parse(readFileSync(file, 'utf8')) : {}
   for (const m of missing) known[m.id] = { cell: m.cellId, username: m.id, password: await setMachinePassword(m.id) }
   writeFileSync(file, JSON.stringify(known, null, 2), { mode: 0o600 })
-  console.info(`[owlshift] broker credentials for ${missing.length} demo machine(s) written to ${file}`)
+  log.info(`[owlshift] broker credentials for ${missing.length} demo machine(s) written to ${file}`)
 }

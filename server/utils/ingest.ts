@@ -122,12 +122,12 @@ export class IngestPipeline {
           // very messages waiting on the next commit.
           this.afterCommit = this.afterCommit
             .then(() => this.onCommitted(effects))
-            .catch((err) => { console.error('[ingest] after-commit work failed:', err) })
+            .catch((err) => { log.error({ err: err }, '[ingest] after-commit work failed') })
         }
         catch (err) {
           // Nothing is acknowledged; the machines will send again. Reload state from the database
           // so memory matches what is committed.
-          console.error('[ingest] commit failed, nothing acknowledged:', err)
+          log.error({ err: err }, '[ingest] commit failed, nothing acknowledged')
           await loadMachineRegistry().catch(() => {})
           for (const p of batch) p.reject(err as Error)
         }

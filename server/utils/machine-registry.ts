@@ -42,7 +42,7 @@ export async function loadMachineRegistry() {
     let engine: CompensationState | null = null
     if (status.engineState) {
       try { engine = restoreCompensationState(status.engineState) }
-      catch (err) { console.warn(`[ingest] engine state of ${m.id} could not be restored (${(err as Error).message}); it starts afresh`) }
+      catch (err) { log.warn(`[ingest] engine state of ${m.id} could not be restored (${(err as Error).message}); it starts afresh`) }
     }
     const tuning = m.currentJobId ? await activeTuningFor(m.currentJobId, m.id) : null
     registry.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning })

@@ -45,7 +45,7 @@ let pushAgent: Agent | undefined
 
 function serial<T>(fn: () => Promise<T>): Promise<T> {
   const next = chain.then(fn, fn)
-  chain = next.catch(err => console.error('[notify]', err))
+  chain = next.catch(err => log.error({ err: err }, '[notify]'))
   return next
 }
 const keyOf = (a: { machineId: string | null, condition: string }) => `${a.machineId ?? '-'}|${a.condition}`
@@ -74,7 +74,7 @@ export async function loadAlertRules(): Promise<AlertRoutingRules> {
   if (row) {
     const parsed = alertParseRules(row.value)
     if ('rules' in parsed) return (rules = parsed.rules)
-    console.warn(`[notify] stored routing rules are not valid (${parsed.problems.join('; ')}); using the defaults until an admin saves new ones`)
+    log.warn(`[notify] stored routing rules are not valid (${parsed.problems.join('; ')}); using the defaults until an admin saves new ones`)
   }
   const [cell] = await db.select().from(schema.cells).limit(1)
   return (rules = alertDefaultRules(cell?.timeZone ?? 'UTC'))
