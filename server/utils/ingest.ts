@@ -2,6 +2,7 @@
 // run through the compensation engine, and only then acknowledged. Arrivals within a few
 // milliseconds share one commit (group commit); their acknowledgements wait for it.
 import { and, eq, inArray } from 'drizzle-orm'
+import type { InStatement } from '@libsql/client'
 import {
   decodeMachineMessage, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
@@ -346,23 +347,22 @@ export class IngestPipeline {
       }
     }
 
-    // 4. One transaction for everything.
-    const statements: any[] = []
-    const chunked = <T>(rows: T[], size: number) => Array.from({ length: Math.ceil(rows.length / size) }, (_, i) => rows.slice(i * size, (i + 1) * size))
-    for (const c of chunked(readingRows, 500)) statements.push(db.insert(schema.readings).values(c).onConflictDoNothing())
-    for (const c of chunked(messageRows, 500)) statements.push(db.insert(schema.machineMessages).values(c).onConflictDoNothing())
-    for (const c of chunked(decisionRows, 500)) statements.push(db.insert(schema.decisions).values(c))
-    for (const c of chunked(commandRows, 500)) statements.push(db.insert(schema.commands).values(c).onConflictDoNothing())
-    for (const c of chunked(dead, 200)) statements.push(db.insert(schema.deadLetters).values(c))
-    if (presenceRows.length) statements.push(db.insert(schema.presenceLog).values(presenceRows))
-    if (gapRows.length) statements.push(db.insert(schema.sequenceGaps).values(gapRows))
-    for (const u of commandUpdates) statements.push(db.update(schema.commands).set(u.set).where(eq(schema.commands.id, u.id)))
-    const changed = [...work.values()].filter(w => w.changed)
-    for (const w of changed) {
-      const row = { ...w.status, engineState: w.engine, updatedAt: now }
-      statements.push(db.insert(schema.machineStatus).values(row).onConflictDoUpdate({ target: schema.machineStatus.machineId, set: row }))
+    // 4. One transaction for everything (raw multi-row statements: see raw-insert.ts).
+    const statements: InStatement[] = [
+      ...insertStatements(schema.readings, readingRows, { onConflict: 'nothing' }),
+      ...insertStatements(schema.machineMessages, messageRows, { onConflict: 'nothing' }),
+      ...insertStatements(schema.decisions, decisionRows),
+      ...insertStatements(schema.commands, commandRows, { onConflict: 'nothing' }),
+      ...insertStatements(schema.deadLetters, dead),
+      ...insertStatements(schema.presenceLog, presenceRows),
+      ...insertStatements(schema.sequenceGaps, gapRows),
+    ]
+    for (const u of commandUpdates) {
+      statements.push({ sql: 'UPDATE "commands" SET "status" = ?, "applied_offset_um" = ?, "ack_at" = ?, "ack_reason" = ? WHERE "id" = ?', args: [u.set.status ?? null, u.set.appliedOffsetUm ?? null, u.set.ackAt ?? null, u.set.ackReason ?? null, u.id] })
     }
-    if (statements.length) await db.batch(statements as [any, ...any[]])
+    const changed = [...work.values()].filter(w => w.changed)
+    statements.push(...insertStatements(schema.machineStatus, changed.map(w => ({ ...w.status, engineState: w.engine, updatedAt: now })), { onConflict: { update: 'machineId' } }))
+    if (statements.length) await useDbClient().batch(statements, 'write')
 
     // 5. Committed: memory follows, counters move.
     for (const w of changed) {
