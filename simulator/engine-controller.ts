@@ -76,7 +76,8 @@ export function createEngineController(options: EngineControllerOptions = {}): H
       }
       if (message.kind !== 'reading') return
       const decision = feed(machineId, loop, {
-        type: 'reading', seq: message.seq, time, deviationUm: message.diameterUm, status: message.status,
+        // The engine counts readings (parts gauged); the message sequence also counts events.
+        type: 'reading', seq: (loop.state.lastSeq ?? 0) + 1, time, deviationUm: message.diameterUm, status: message.status,
         ...(message.roundnessUm != null ? { roundnessUm: message.roundnessUm } : {}),
         offsetInForceUm: message.offsetUm,
       })

@@ -280,7 +280,10 @@ export class IngestPipeline {
         st.lastReadingAt = time
         st.lastDiameterUm = message.diameterUm
         const decision = step({
-          type: 'reading', seq: message.seq, time, deviationUm: message.diameterUm, status: message.status,
+          // The engine counts readings (parts gauged), not messages: the message sequence also counts
+          // events, and the engine would take each gap for parts it never saw (too-early dresses,
+          // holds ending early, cycle time 5× too short). Duplicates never reach this point.
+          type: 'reading', seq: (w.engine?.lastSeq ?? 0) + 1, time, deviationUm: message.diameterUm, status: message.status,
           roundnessUm: message.roundnessUm ?? undefined, lengthUm: message.lengthUm ?? undefined, offsetInForceUm: message.offsetUm,
         }, message.seq)
         record(decision, message.seq)

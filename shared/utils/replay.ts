@@ -126,7 +126,7 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     if (d.kind === 'ignored') return
     if (d.command && (!fromEvent || commandsOnEvents)) {
       const value = round3(d.command.newOffsetUm)
-      candidate.commands.push({ seq: d.seq ?? seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pendingAck ?? c) })
+      candidate.commands.push({ seq: seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pendingAck ?? c) }) // the message number of the reading it answered
       pendingAck = value
     }
     if (d.dress.now && !dressAsked) { dressAsked = true; candidate.dresses++ }
@@ -169,7 +169,9 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     candidate.sizes.push(y)
     candidate.offsets.push(u)
     feed({
-      type: 'reading', seq: it.seq, time: it.time, deviationUm: y, status: it.status,
+      // The engine numbers readings, not messages: the message sequence also counts events, and
+      // each gap in it would read as parts ground but never gauged.
+      type: 'reading', seq: readingIndex + 1, time: it.time, deviationUm: y, status: it.status,
       ...(it.roundnessUm != null ? { roundnessUm: it.roundnessUm } : {}),
       offsetInForceUm: u,
     }, false)
