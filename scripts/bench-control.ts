@@ -9,7 +9,7 @@
 // RMS/σ: RMS of measured deviation from target (outlier readings excluded) ÷ the plant's noise σ
 // (√(process² + gauge² + (blank transfer·blank σ)²)); 1.00 is the floor — the "oracle" row steers
 // with perfect knowledge of the drift and lands there.
-import { readFileSync, writeFileSync, existsSync, mkdirSync } from 'node:fs'
+import { writeBenchmarkSection } from './lib/benchmarks-doc'
 import { dirname, resolve } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import {
@@ -276,18 +276,7 @@ function writeSection(lines: string[]): void {
   const heading = '## Compensation (npm run bench:control)'
   const date = new Date().toISOString().slice(0, 10)
   const section = [heading, '', `Command: \`npm run bench:control\` (scripts/bench-control.ts) — run ${date} on the project machine (2 cores, Node ${process.versions.node}).`, '', ...lines, ''].join('\n')
-  let text = existsSync(file) ? readFileSync(file, 'utf8') : '# Benchmarks\n\n'
-  const start = text.indexOf(heading)
-  if (start >= 0) {
-    const rest = text.slice(start + heading.length)
-    const next = rest.search(/\n## /)
-    const end = next >= 0 ? start + heading.length + next + 1 : text.length
-    text = text.slice(0, start) + section + (next >= 0 ? '\n' : '') + text.slice(end)
-  } else {
-    text = text.replace(/\s*$/, '\n\n') + section
-  }
-  mkdirSync(dirname(file), { recursive: true })
-  writeFileSync(file, text)
+  writeBenchmarkSection(heading.slice(3), section.slice(heading.length).trimStart(), file)
   console.log(`\nwrote ${file}`)
 }
 

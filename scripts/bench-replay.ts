@@ -5,8 +5,8 @@
 //   npx tsx scripts/bench-replay.ts             measure and write docs/benchmarks.md "Replay" section
 //   npx tsx scripts/bench-replay.ts --no-write  print only
 import { build } from 'esbuild'
+import { writeBenchmarkSection } from './lib/benchmarks-doc'
 import { chromium } from 'playwright-core'
-import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs'
 import { loadavg } from 'node:os'
 import { dirname, join, resolve } from 'node:path'
 import { fileURLToPath } from 'node:url'
@@ -84,19 +84,7 @@ function writeSection(lines: string[], browserVersion: string): void {
   const heading = '## Replay (npm run bench:replay)'
   const date = new Date().toISOString().slice(0, 10)
   const section = [heading, '', `Command: \`npm run bench:replay\` (scripts/bench-replay.ts) — run ${date} in headless Chromium ${browserVersion} on the project machine (2 cores). A seeded simulated run (fast wheel wear) replayed with drift settings by shared/utils/replay.ts, bundled unchanged.`, '', ...lines, ''].join('\n')
-  let text = existsSync(file) ? readFileSync(file, 'utf8') : '# Benchmarks\n\n'
-  const start = text.indexOf(heading)
-  if (start >= 0) {
-    const rest = text.slice(start + heading.length)
-    const next = rest.search(/\n## /)
-    const end = next >= 0 ? start + heading.length + next + 1 : text.length
-    text = text.slice(0, start) + section + (next >= 0 ? '\n' : '') + text.slice(end)
-  }
-  else {
-    text = text.replace(/\s*$/, '\n\n') + section
-  }
-  mkdirSync(dirname(file), { recursive: true })
-  writeFileSync(file, text)
+  writeBenchmarkSection(heading.slice(3), section.slice(heading.length).trimStart(), file)
   console.log(`\nwrote ${file}`)
 }
 

@@ -4,7 +4,7 @@
 // simulated 24-hour days (headless simulator, compensation engine in the loop), then the pure
 // report function is timed on it. Writes the section "Report (npm run bench:report)" of
 // docs/benchmarks.md and leaves the other sections alone.
-import { existsSync, readFileSync, writeFileSync } from 'node:fs'
+import { writeBenchmarkSection } from './lib/benchmarks-doc'
 import { cpus, loadavg } from 'node:os'
 import { fileURLToPath } from 'node:url'
 import { loadScenarioFile } from '../simulator/scenario'
@@ -102,15 +102,5 @@ doubles what every reading costs to store.
 Run: \`npm run bench:report\` (\`BENCH_DAYS\`, \`BENCH_RUNS\` to change the size and the number of runs).
 `
 
-const file = `${root}docs/benchmarks.md`
-const before = existsSync(file) ? readFileSync(file, 'utf8') : '# Benchmarks\n'
-const heading = '## Report (npm run bench:report)'
-let after: string
-const at = before.indexOf(heading)
-if (at === -1) after = `${before.trimEnd()}\n\n${section}`
-else {
-  const next = before.indexOf('\n## ', at + heading.length)
-  after = before.slice(0, at) + section + (next === -1 ? '' : `\n${before.slice(next + 1)}`)
-}
-writeFileSync(file, after.endsWith('\n') ? after : `${after}\n`)
+writeBenchmarkSection('Report (npm run bench:report)', section.replace(/^## .*\n/, ''), `${root}docs/benchmarks.md`)
 console.log(section)

@@ -2,7 +2,7 @@
 // Target (issue 4): 12 machines × 10 h (≈ 21,600 parts at ~20 s) in ≤ 5 s on this machine,
 // with the compensation engine closing the loop. Writes the section
 // "Simulator (npm run bench:sim)" of docs/benchmarks.md and leaves the other sections alone.
-import { existsSync, readFileSync, writeFileSync } from 'node:fs'
+import { writeBenchmarkSection } from './lib/benchmarks-doc'
 import { cpus } from 'node:os'
 import { fileURLToPath } from 'node:url'
 import { runHeadless } from '../simulator/headless'
@@ -55,15 +55,5 @@ true size vs mid-tolerance: mean ${fmt(t.trueMeanUm, 3)} µm, sd ${fmt(t.trueSdU
 (open loop: rms ${fmt(open.result.summary.totals.trueRmsUm, 3)} µm).
 `
 
-const file = `${root}docs/benchmarks.md`
-const before = existsSync(file) ? readFileSync(file, 'utf8') : '# Benchmarks\n'
-const heading = '## Simulator (npm run bench:sim)'
-let after: string
-const at = before.indexOf(heading)
-if (at === -1) after = `${before.trimEnd()}\n\n${section}`
-else {
-  const next = before.indexOf('\n## ', at + heading.length)
-  after = before.slice(0, at) + section + (next === -1 ? '' : `\n${before.slice(next + 1)}`)
-}
-writeFileSync(file, after.endsWith('\n') ? after : `${after}\n`)
+writeBenchmarkSection('Simulator (npm run bench:sim)', section.replace(/^## .*\n/, ''), `${root}docs/benchmarks.md`)
 console.log(section)
