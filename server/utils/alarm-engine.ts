@@ -159,4 +159,3 @@ export function alarmTick(now = Date.now()): Promise<void> {
   }))
 }
 
-export function resetAlarmEngineCache() { open.clear(); activations.clear(); badData.clear(); loaded = false }
