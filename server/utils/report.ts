@@ -217,26 +217,18 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
       select machine_id as m, type, count(*) as n from machine_messages
       where machine_id in ${idList} and type in ('offset:rejected', 'offset:expired') and time >= ${from} and time < ${to} group by 1, 2`),
   ])
-  const readings: ReadingRow[] = []
-  for (const g of readingLists) {
-    const seqs = g.seqs.split(','), parts = g.parts.split(','), times = g.times.split(','), dia = g.dia.split(','), jobsOf = g.jobs.split(US)
-    const mine: ReadingRow[] = []
-    for (let i = 0; i < seqs.length; i++) {
-      mine.push({ machineId: g.m, seq: Number(seqs[i]), part: Number(parts[i]), time: Number(times[i]), status: g.st[i] === 'o' ? 'ok' : g.st[i] === 'f' ? 'fault' : 'over_range', diameterUm: dia[i] === '' ? null : Number(dia[i]), partNumber: jobsOf[i] || null })
-    }
-    // the index walk gives time order; same-millisecond readings are put in seq order
-    mine.sort((a, b) => a.time - b.time || a.seq - b.seq)
-    for (const r of mine) readings.push(r)
-  }
+  // Columns, not one object per reading: a week is 300,000 readings, and objects cost more
+  // (allocation and garbage collection) than everything computed from them.
+  const readingsByMachine = new Map(readingLists.map((g) => [g.m, readingColumns(g.st.length, g.seqs, g.parts, g.times, g.dia, g.st, g.jobs, US)]))
+  const readingCount = readingLists.reduce((a, g) => a + g.st.length, 0)
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
-  const acks = ackLists.flatMap((g) => {
-    const times = g.times.split(','), offs = g.offs.split(',')
-    return times.map((t, i) => ({ machineId: g.m, seq: 0, type: 'offset:applied', time: Number(t), offsetUm: Number(offs[i]) }))
-  })
+  const acksByMachine = new Map(ackLists.map((g) => {
+    const n = countFields(g.times)
+    return [g.m, { n, time: reportParseNumberList(g.times, n), offsetUm: reportParseNumberList(g.offs, n) }] as const // time order: the index walk
+  }))
   const refusedAcks = new Map(ackOther.map((a) => [`${a.m}/${a.type}`, Number(a.n)]))
   const byTime = (a: { time: number; seq: number }, b: { time: number; seq: number }) => a.time - b.time || a.seq - b.seq
   const marks: MarkRow[] = [...marked, ...births].sort(byTime)
-  const acksByMachine = groupBy(acks, (a) => a.machineId) // time order: the index walk
   const jobByPart = new Map(jobs.map((j) => [j.partNumber, j]))
 
   // The situation of each machine at `from`: its last state (and faults since), its offset in force
@@ -257,13 +249,12 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     m.set(h.seq, h.reason)
   }
 
-  const readingsByMachine = groupBy(readings, (r) => r.machineId)
   const marksByMachine = groupBy(marks, (r) => r.machineId)
   const unloadedByMachine = groupBy(unloaded, (r) => r.m)
 
   const machines: ReportMachine[] = chosen.map((m) => {
     const b = beforeById.get(m.id)!
-    const mr = readingsByMachine.get(m.id) ?? []
+    const mr = readingsByMachine.get(m.id) ?? NO_READINGS
     const mk = marksByMachine.get(m.id) ?? []
     const un = unloadedByMachine.get(m.id) ?? []
     const birth = b.birth
@@ -304,21 +295,28 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
 
     // Capability per job
     // readings stored before the machine's first birth carry no job: they belong to the job it announced
-    const byJob = groupBy(mr, (r) => r.partNumber ?? birth?.job?.partNumber ?? '')
+    const byJob = new Map<string, number[]>()
+    const jobKeys = mr.jobs.map((pn) => pn ?? birth?.job?.partNumber ?? '')
+    for (let i = 0; i < mr.n; i++) {
+      const k = jobKeys[mr.job[i]!]!
+      let list = byJob.get(k)
+      if (!list) byJob.set(k, (list = []))
+      list.push(i)
+    }
     const jobInfo = (pn: string) => {
       const j = jobByPart.get(pn)
       if (j) return { lsl: j.lowerTolNm / 1000, usl: j.upperTolNm / 1000 }
       if (birth?.job && birth.job.partNumber === pn) return { lsl: birth.job.lowerToleranceUm, usl: birth.job.upperToleranceUm }
       return null
     }
-    const capability = [...byJob].map(([pn, rs]) => capabilityOf(m.id, pn || null, rs, jobInfo(pn)))
+    const capability = [...byJob].map(([pn, rows]) => capabilityOf(m.id, pn || null, mr, rows, jobInfo(pn)))
 
     // Compensation summary
-    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? [], mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 })
-    const tol = jobInfo(mr.at(-1)?.partNumber ?? birth?.job?.partNumber ?? '') ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
+    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? NO_ACKS, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 })
+    const tol = jobInfo((mr.n ? mr.jobs[mr.job[mr.n - 1]!] : null) ?? birth?.job?.partNumber ?? '') ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
     const chart: ReportChart = {
-      points: thin(mr.filter((r) => r.diameterUm !== null).map((r) => [r.time, r.diameterUm!] as [number, number])),
-      thinned: mr.length > REPORT_CHART_MAX_POINTS,
+      points: thinnedSizes(mr),
+      thinned: mr.n > REPORT_CHART_MAX_POINTS,
       lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
       offsets: compensation.offsetMarks,
       dresses: mk.filter((e) => e.type === 'dress').map((e) => ({ at: e.time, trigger: String((e.payload as { trigger?: string }).trigger ?? '') })),
@@ -341,7 +339,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
 
   const [alarms, completeness, notes, signoffs] = await Promise.all([
     alarmsOf(db, ids, from, to, !scope.machineId),
-    completenessOf(db, ids, from, to, readings.length),
+    completenessOf(db, ids, from, to, readingCount),
     notesOf(db, ids, from, to, !scope.machineId),
     scope.shift ? signoffsOf(db, scope.cellId, scope.shift) : Promise.resolve([]),
   ])
@@ -369,11 +367,14 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${from}) as birthBeforeT,
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${to}) as birthT
     from (${idRows}) as ids`)
-  const wanted = lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT].filter((t): t is number => t !== null).map((t) => sql`(${l.id}, ${t})`))
+  const wanted = [...new Map(lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT].filter((t): t is number => t !== null)
+    .map((t) => [`${l.id}/${t}`, { id: l.id, t: Number(t) }] as const))).values()]
+  // One probe of the (machine, time) index per wanted row: a row-value IN over a VALUES list is
+  // not planned as index probes and scanned the whole table (330 ms on a week of 12 machines).
   const rows = wanted.length
-    ? await db.all<{ machine_id: string; seq: number; type: string | null; time: number; payload: string }>(sql`
-      select machine_id, seq, type, time, payload from machine_messages
-      where (machine_id, time) in (values ${sql.join(wanted, sql`, `)}) and (type in ${STATE_TYPES} or type = 'offset:applied' or type is null)`)
+    ? await db.all<{ machine_id: string; seq: number; type: string | null; time: number; payload: string }>(sql.join(wanted.map((w) => sql`
+      select machine_id, seq, type, time, payload from machine_messages indexed by messages_machine_time
+      where machine_id = ${w.id} and time = ${w.t} and (type in ${STATE_TYPES} or type = 'offset:applied' or type is null)`), sql` union all `))
     : []
   const earliestState = Math.min(...lookups.map((l) => (l.stateT === null ? Infinity : Number(l.stateT))))
   const faults = Number.isFinite(earliestState)
@@ -403,11 +404,106 @@ interface BirthLike { cycleTimeS?: number; offsetUm?: number; job?: { partNumber
 
 // ---------------------------------------------------------------- parts of the report
 
-type ReadingRow = { machineId: string; seq: number; part: number; time: number; status: string; diameterUm: number | null; partNumber: string | null }
+/** One machine's readings of the range as columns, in (time, seq) order. */
+export interface ReadingColumns {
+  n: number
+  seq: Float64Array
+  part: Float64Array
+  time: Float64Array
+  /** diameter deviation (µm); NaN where the gauge gave none */
+  dia: Float64Array
+  /** gauge status, one character per reading: o ok, f fault, r over range */
+  status: string
+  /** per reading, an index into `jobs` (part number, or null before the first birth) */
+  job: Uint16Array
+  jobs: (string | null)[]
+}
 
-function capabilityOf(machineId: string, partNumber: string | null, rs: readonly ReadingRow[], tol: { lsl: number; usl: number } | null): ReportCapability {
-  const ok = rs.filter((r) => r.status === 'ok' && r.diameterUm !== null)
-  const values = ok.map((r) => r.diameterUm!)
+const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
+const NO_ACKS = { n: 0, time: new Float64Array(0), offsetUm: new Float64Array(0) }
+
+/** Columns from the concatenated texts of one machine's readings (see the query in reportBuild). */
+function readingColumns(n: number, seqs: string, parts: string, times: string, dia: string, status: string, jobText: string, sep: string): ReadingColumns {
+  const c: ReadingColumns = {
+    n, seq: reportParseNumberList(seqs, n), part: reportParseNumberList(parts, n), time: reportParseNumberList(times, n), dia: reportParseNumberList(dia, n),
+    status, job: new Uint16Array(n), jobs: [],
+  }
+  parseJobs(jobText, sep, n, c)
+  // the index walk gives time order; same-millisecond readings must be in seq order
+  let sorted = true
+  for (let i = 1; i < n && sorted; i++) sorted = c.time[i - 1]! < c.time[i]! || (c.time[i - 1] === c.time[i] && c.seq[i - 1]! <= c.seq[i]!)
+  if (sorted) return c
+  const order = Array.from({ length: n }, (_, i) => i).sort((a, b) => c.time[a]! - c.time[b]! || c.seq[a]! - c.seq[b]!)
+  const pick = (col: Float64Array) => Float64Array.from(order, (i) => col[i]!)
+  return { n, seq: pick(c.seq), part: pick(c.part), time: pick(c.time), dia: pick(c.dia), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs }
+}
+
+/** Fills c.job and c.jobs from the separator-joined part numbers ('' = none). */
+function parseJobs(text: string, sep: string, n: number, c: ReadingColumns): void {
+  let at = 0
+  let current = -1
+  let currentText = ''
+  for (let i = 0; i < n; i++) {
+    let end = text.indexOf(sep, at)
+    if (end < 0) end = text.length
+    // part numbers change a few times a night: compare in place, slice only on a change
+    if (current < 0 || end - at !== currentText.length || !text.startsWith(currentText, at)) {
+      currentText = text.slice(at, end)
+      const pn = currentText === '' ? null : currentText
+      current = c.jobs.indexOf(pn)
+      if (current < 0) { current = c.jobs.length; c.jobs.push(pn) }
+    }
+    c.job[i] = current
+    at = end + 1
+  }
+}
+
+const POW10 = Array.from({ length: 23 }, (_, k) => 10 ** k)
+
+/** Number of comma-separated fields in a non-empty text. */
+function countFields(text: string): number {
+  let n = 1
+  for (let i = text.indexOf(','); i >= 0; i = text.indexOf(',', i + 1)) n++
+  return n
+}
+
+/**
+ * Parses n comma-separated numbers as SQLite prints them (an empty field is NaN) without making a
+ * string per number. Plain decimals of up to 15 digits take the exact path: the digits as an integer
+ * (exact below 2^53) divided by an exact power of ten is one correctly rounded operation, the same
+ * double Number() gives. Anything else (exponents, longer) goes through Number().
+ */
+export function reportParseNumberList(text: string, n: number): Float64Array {
+  const out = new Float64Array(n)
+  let at = 0
+  for (let k = 0; k < n; k++) {
+    let end = text.indexOf(',', at)
+    if (end < 0) end = text.length
+    out[k] = end === at ? Number.NaN : parseDecimal(text, at, end)
+    at = end + 1
+  }
+  return out
+}
+
+function parseDecimal(s: string, from: number, to: number): number {
+  let i = from
+  const negative = s.charCodeAt(i) === 45
+  if (negative) i++
+  let mantissa = 0, digits = 0, decimals = 0, dot = false
+  for (; i < to; i++) {
+    const ch = s.charCodeAt(i)
+    if (ch >= 48 && ch <= 57) { mantissa = mantissa * 10 + (ch - 48); digits++; if (dot) decimals++ }
+    else if (ch === 46 && !dot) dot = true
+    else return Number(s.slice(from, to))
+  }
+  if (digits === 0 || digits > 15) return Number(s.slice(from, to))
+  const v = decimals ? mantissa / POW10[decimals]! : mantissa
+  return negative ? -v : v
+}
+
+function capabilityOf(machineId: string, partNumber: string | null, mr: ReadingColumns, rows: readonly number[], tol: { lsl: number; usl: number } | null): ReportCapability {
+  const ok = rows.filter((i) => mr.status.charCodeAt(i) === 111 /* o */ && !Number.isNaN(mr.dia[i]!))
+  const values = ok.map((i) => mr.dia[i]!)
   const base: ReportCapability = {
     machineId, partNumber, n: values.length, mean: values.length ? spcMean(values) : null, lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
     sigmaWithin: null, sigmaOverall: null,
@@ -427,7 +523,7 @@ function capabilityOf(machineId: string, partNumber: string | null, rs: readonly
       if (c) c.count++
       else counts.set(v.rule, { count: 1, first: v.index })
     }
-    out.runRules = [...counts].map(([rule, c]) => ({ rule, text: SPC_RUN_RULE_TEXT[rule], count: c.count, first: { part: ok[c.first]!.part, time: ok[c.first]!.time } }))
+    out.runRules = [...counts].map(([rule, c]) => ({ rule, text: SPC_RUN_RULE_TEXT[rule], count: c.count, first: { part: mr.part[ok[c.first]!]!, time: mr.time[ok[c.first]!]! } }))
   }
   if (!tol) return { ...out, note: 'no tolerance known for this job' }
   if (!(sigmaWithin > 0 && sigmaOverall > 0)) return { ...out, note: 'all sizes identical: σ is 0' }
@@ -437,12 +533,12 @@ function capabilityOf(machineId: string, partNumber: string | null, rs: readonly
 
 type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
 
-function compensationOf(mk: readonly MarkRow[], acks: readonly { time: number; offsetUm: number }[], mr: readonly ReadingRow[], offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }) {
+function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }) {
   let offset = offsetBefore
   if (offset === null) {
     // no offset known before the window: the first birth in it says what was in force
     const birth = mk.find((e) => e.kind === 'birth')
-    if (birth && (!acks.length || birth.time <= acks[0]!.time)) offset = Number((birth.payload as { offsetUm?: number }).offsetUm ?? 0)
+    if (birth && (!acks.n || birth.time <= acks.time[0]!)) offset = Number((birth.payload as { offsetUm?: number }).offsetUm ?? 0)
   }
   let applied = 0, total = 0, largest = 0
   const { rejected, expired } = refused
@@ -450,7 +546,8 @@ function compensationOf(mk: readonly MarkRow[], acks: readonly { time: number; o
   const offsetMarks: { at: number; offsetUm: number; stepUm: number }[] = []
   const dressEvents: { time: number; parts: number; trigger: string }[] = []
   let wheelChanges = 0, masterings = 0
-  for (const a of acks) {
+  for (let k = 0; k < acks.n; k++) {
+    const a = { time: acks.time[k]!, offsetUm: acks.offsetUm[k]! }
     applied++
     const step = offset === null ? 0 : a.offsetUm - offset
     first ??= offset ?? a.offsetUm
@@ -480,17 +577,18 @@ function compensationOf(mk: readonly MarkRow[], acks: readonly { time: number; o
     runStart = null
     runCount = 0
   }
-  for (const r of mr) {
-    const reason = held.get(r.seq)
+  for (let i = 0; i < (held.size ? mr.n : 0); i++) {
+    const time = mr.time[i]!
+    const reason = held.get(mr.seq[i]!)
     if (reason !== undefined) {
       const category = holdCategory(reason)
-      if (runStart !== null && category !== runReason) close(r.time)
-      if (runStart === null) { runStart = r.time; runReason = category }
+      if (runStart !== null && category !== runReason) close(time)
+      if (runStart === null) { runStart = time; runReason = category }
       runCount++
     }
-    else close(r.time)
+    else close(time)
   }
-  if (runStart !== null) close(mr.at(-1)!.time)
+  if (runStart !== null) close(mr.time[mr.n - 1]!)
   const holds = [...holdByReason.values()].sort((a, b) => b.ms - a.ms)
   const stats = (xs: number[]) => (xs.length ? { min: Math.min(...xs), mean: xs.reduce((a, b) => a + b, 0) / xs.length, max: Math.max(...xs) } : null)
   const dressTriggers: Record<string, number> = {}
@@ -696,22 +794,29 @@ function sortCounts(m: Map<string, number>): { reason: string; count: number }[]
   return [...m].map(([reason, count]) => ({ reason, count })).sort((a, b) => b.count - a.count || a.reason.localeCompare(b.reason))
 }
 
-/** Keeps at most REPORT_CHART_MAX_POINTS: the lowest and highest point of each time-ordered bucket. */
-function thin(points: [number, number][]): [number, number][] {
-  if (points.length <= REPORT_CHART_MAX_POINTS) return points
+/**
+ * The measured sizes [time, µm] of a machine, at most REPORT_CHART_MAX_POINTS of them: beyond that,
+ * the lowest and highest point of each time-ordered bucket. Pairs are made only for kept points.
+ */
+function thinnedSizes(mr: ReadingColumns): [number, number][] {
+  const idx: number[] = []
+  for (let i = 0; i < mr.n; i++) if (!Number.isNaN(mr.dia[i]!)) idx.push(i)
+  const point = (k: number): [number, number] => [mr.time[idx[k]!]!, mr.dia[idx[k]!]!]
+  if (idx.length <= REPORT_CHART_MAX_POINTS) return idx.map((_, k) => point(k))
+  const y = (k: number) => mr.dia[idx[k]!]!
   const buckets = REPORT_CHART_MAX_POINTS / 2
-  const size = points.length / buckets
+  const size = idx.length / buckets
   const out: [number, number][] = []
   for (let b = 0; b < buckets; b++) {
     const start = Math.floor(b * size)
-    const end = Math.min(points.length, Math.floor((b + 1) * size))
+    const end = Math.min(idx.length, Math.floor((b + 1) * size))
     let lo = start, hi = start
-    for (let i = start; i < end; i++) {
-      if (points[i]![1] < points[lo]![1]) lo = i
-      if (points[i]![1] > points[hi]![1]) hi = i
+    for (let k = start; k < end; k++) {
+      if (y(k) < y(lo)) lo = k
+      if (y(k) > y(hi)) hi = k
     }
-    if (lo === hi) out.push(points[lo]!)
-    else out.push(points[Math.min(lo, hi)]!, points[Math.max(lo, hi)]!)
+    if (lo === hi) out.push(point(lo))
+    else out.push(point(Math.min(lo, hi)), point(Math.max(lo, hi)))
   }
   return out
 }

@@ -7,7 +7,8 @@ import { fileURLToPath } from 'node:url'
 import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics'
 import { openReportFixture, seedCell, simulateInto, type ReportFixture } from '../../scripts/report-fixture'
 import { loadScenarioFile } from '../../simulator/scenario'
-import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, ReportInputError, type Report } from '../../server/utils/report'
+import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, reportParseNumberList, ReportInputError, type Report } from '../../server/utils/report'
+import fc from 'fast-check'
 import * as schema from '../../server/database/schema'
 
 const root = fileURLToPath(new URL('../..', import.meta.url))
@@ -159,5 +160,25 @@ describe('overnight report from a simulated night', () => {
   it('names hold reasons by their first words', () => {
     expect(holdCategory('hold: dress: waiting for post-dress parts (3 parts)')).toBe('dress')
     expect(holdCategory('hold: gauge suspect: 3 readings in a row far from the prediction')).toBe('gauge suspect')
+  })
+})
+
+describe('reading columns are parsed without a string per number', () => {
+  // Oracle: JavaScript's own Number() (ECMA-262 StringToNumber, correctly rounded), on the texts
+  // SQLite prints for REAL and INTEGER values (%!.15g: up to 15 significant digits, exponent when small or large).
+  const sqliteText = (x: number) => x.toPrecision(15).replace(/\.?0+(e|$)/, '$1')
+  it('gives the same double as Number() for every field, and NaN for an empty one', () => {
+    fc.assert(fc.property(fc.array(fc.oneof(
+      fc.double({ min: -1e6, max: 1e6, noNaN: true }).map(sqliteText),
+      fc.integer({ min: -2_000_000_000_000, max: 2_000_000_000_000 }).map(String),
+      fc.integer({ min: -99_999, max: 99_999 }).map((k) => (k / 1000).toString()),
+      fc.constant(''), fc.constant('1.0e-05'), fc.constant('-0.0'),
+    ), { minLength: 1, maxLength: 60 }), (fields) => {
+      const parsed = reportParseNumberList(fields.join(','), fields.length)
+      fields.forEach((f, i) => {
+        if (f === '') expect(parsed[i]).toBeNaN()
+        else expect(Object.is(parsed[i], Number(f)), `${f} → ${parsed[i]}`).toBe(true)
+      })
+    }), { seed: 9, numRuns: 300 })
   })
 })
