@@ -1,0 +1,532 @@
+// A test stand-in for a libSQL server: speaks Hrana over HTTP (JSON encoding) on 127.0.0.1 and keeps
+// its data in a real SQLite file through the native `libsql` package, so Owlshift can be run with
+// DATABASE_URL=http://… on a machine without `sqld` — the way scripts/mail-catcher.ts stands in for
+// a mail server. It is for tests and trials, not for production: no TLS, one process, one file.
+//   npx tsx tests/support/libsql-http-server.ts --file /tmp/x.db --port 8080 [--auth-token s3cret]
+//   startLibsqlHttpServer({ file, port? })  →  { url, close }     (from tests)
+//
+// What it implements (Hrana 2 and 3 specifications and the HTTP API v2 specification, docs/ in
+// github.com/tursodatabase/libsql: HRANA_2_SPEC.md, HRANA_3_SPEC.md, HTTP_V2_SPEC.md):
+// - GET /v2 and GET /v3 answer 200 (version check); GET /v3-protobuf answers 404, so a client that
+//   probes for Protobuf falls back to JSON. @libsql/client 0.18 does not probe: it uses /v2/pipeline.
+// - POST /v2/pipeline and /v3/pipeline: { baton, requests } → { baton, base_url: null, results }.
+//   A null baton opens a stream (its own SQLite connection); every answer hands out a fresh random
+//   baton and retires the old one; a `close` request or an idle stream (streamIdleMs) ends it,
+//   rolling back any open transaction. Every request in a pipeline runs, even after an error.
+// - Stream requests: execute, batch (conditions ok / error / not / and / or, and is_autocommit on
+//   v3), sequence, store_sql / close_sql (per stream, at most 50 texts of ≤ 5 kB, as in sqld),
+//   get_autocommit (v3), close. `describe` and unknown request types answer a Hrana error with
+//   code NOT_SUPPORTED; POST /v3/cursor and Protobuf endpoints answer 501.
+// - Values: null, integer (decimal string, 64-bit), float (JSON number), text, blob (base64);
+//   positional or named arguments (not both, as in sqld); want_rows; affected_row_count;
+//   last_insert_rowid; column names and declared types.
+// - Errors as sqld words them: "SQLite error: …" with the primary result code (SQLITE_CONSTRAINT…,
+//   SQLite's generic SQLITE_ERROR shows as SQLITE_UNKNOWN, as rusqlite names it), SQL_NO_STATEMENT,
+//   SQL_MANY_STATEMENTS, ARGS_BOTH_POSITIONAL_AND_NAMED; malformed bodies and unknown sql_ids answer
+//   400 (protocol error), an unknown or expired baton 500 with code STREAM_EXPIRED (stream error).
+// - Writers from different streams wait for each other like a SQLite busy handler would, but
+//   without blocking the event loop: a statement that meets SQLITE_BUSY is retried asynchronously
+//   for up to busyWaitMs, so the stream holding the lock can finish its transaction meanwhile.
+// Connections have foreign keys on: libSQL server always enabled them (tursodatabase/libsql#981),
+// and the native libsql build does so by default.
+import { createServer, type IncomingMessage, type ServerResponse } from 'node:http'
+import type { AddressInfo } from 'node:net'
+import { randomBytes } from 'node:crypto'
+import Database from 'libsql'
+
+export interface LibsqlHttpServerOptions {
+  /** The SQLite file behind the server (created if missing; put in WAL mode). */
+  file: string
+  /** 0 or unset: a free port. */
+  port?: number
+  host?: string
+  /** When set, every request must carry `Authorization: Bearer <authToken>`. */
+  authToken?: string
+  /** Streams idle this long are closed and their open transaction rolled back. */
+  streamIdleMs?: number
+  /** How long a statement may wait for another stream's write lock before SQLITE_BUSY is returned. */
+  busyWaitMs?: number
+}
+
+export interface LibsqlHttpServer {
+  url: string
+  port: number
+  /** What the server has seen, so a test can prove which protocol parts a client used. */
+  stats: { pipelines: number, streamsOpened: number, requests: Record<string, number>, httpErrors: number }
+  /** Streams open right now. */
+  openStreams(): number
+  close(): Promise<void>
+}
+
+type Json = Record<string, unknown>
+type HValue = { type: 'null' } | { type: 'integer', value: string } | { type: 'float', value: number } | { type: 'text', value: string } | { type: 'blob', base64: string }
+interface HError { message: string, code: string }
+interface StmtResult { cols: { name: string | null, decltype: string | null }[], rows: HValue[][], affected_row_count: number, last_insert_rowid: string | null }
+type SqlValue = null | bigint | number | string | Buffer
+
+/** The client broke the protocol: the whole pipeline answers 400 and the stream ends (as in sqld). */
+class ProtocolError extends Error {}
+/** A request failed: reported in its result slot, the other requests go on. */
+class RequestError extends Error { constructor(message: string, readonly code: string) { super(message) } }
+
+const MAX_STORED_SQL = 50
+const MAX_STORED_SQL_BYTES = 5 * 1024
+const MAX_BODY_BYTES = 64 * 1024 * 1024
+const INT64 = /^-?\d{1,19}$/
+
+interface Stream {
+  id: number
+  db: Database.Database
+  /** `SELECT changes(), last_insert_rowid(), total_changes()` on this connection. */
+  counters: Database.Statement
+  sqls: Map<number, string>
+  lastUsed: number
+  running: boolean
+  closed: boolean
+}
+
+export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Promise<LibsqlHttpServer> {
+  const host = opts.host ?? '127.0.0.1'
+  const streamIdleMs = opts.streamIdleMs ?? 10_000
+  const busyWaitMs = opts.busyWaitMs ?? 5_000
+  const stats: LibsqlHttpServer['stats'] = { pipelines: 0, streamsOpened: 0, requests: {}, httpErrors: 0 }
+  const byBaton = new Map<string, Stream>()
+  const streams = new Set<Stream>()
+  let nextStreamId = 1
+
+  // WAL, like sqld: readers (a test reading the file directly) never block the writer.
+  const setup = new Database(opts.file)
+  setup.exec('PRAGMA journal_mode = WAL')
+  setup.close()
+
+  function openStream(): Stream {
+    const db = new Database(opts.file)
+    db.exec('PRAGMA foreign_keys = ON')
+    const counters = db.prepare('SELECT changes(), last_insert_rowid(), total_changes()')
+    counters.safeIntegers(true)
+    counters.raw(true)
+    const s: Stream = { id: nextStreamId++, db, counters, sqls: new Map(), lastUsed: Date.now(), running: false, closed: false }
+    streams.add(s)
+    stats.streamsOpened++
+    return s
+  }
+
+  function closeStream(s: Stream) {
+    if (s.closed) return
+    s.closed = true
+    streams.delete(s)
+    for (const [baton, owner] of byBaton) if (owner === s) byBaton.delete(baton)
+    try { if (s.db.inTransaction) s.db.exec('ROLLBACK') }
+    catch { /* closing discards the transaction anyway */ }
+    s.db.close()
+  }
+
+  const sweeper = setInterval(() => {
+    const now = Date.now()
+    for (const s of streams) if (!s.running && now - s.lastUsed > streamIdleMs) closeStream(s)
+  }, Math.min(1000, streamIdleMs))
+  sweeper.unref()
+
+  // ---- statements -------------------------------------------------------------------------------
+
+  function sqlOf(s: Stream, req: Json): string {
+    const hasSql = req.sql !== undefined && req.sql !== null
+    const hasId = req.sql_id !== undefined && req.sql_id !== null
+    if (hasSql && hasId) throw new ProtocolError('Both "sql" and "sql_id" were given; exactly one is allowed')
+    if (hasSql) {
+      if (typeof req.sql !== 'string') throw new ProtocolError('"sql" must be a string')
+      return req.sql
+    }
+    if (hasId) {
+      const sql = s.sqls.get(Number(req.sql_id))
+      if (sql === undefined) throw new ProtocolError(`SQL text with id ${String(req.sql_id)} was not stored on this stream`)
+      return sql
+    }
+    throw new ProtocolError('Neither "sql" nor "sql_id" was given')
+  }
+
+  function decodeValue(v: unknown): SqlValue {
+    const o = v as Json | null
+    switch (o?.type) {
+      case 'null': return null
+      case 'integer':
+        if (typeof o.value !== 'string' || !INT64.test(o.value)) throw new ProtocolError(`integer value must be a decimal string, got ${JSON.stringify(o.value)}`)
+        { const n = BigInt(o.value)
+          if (n > 9223372036854775807n || n < -9223372036854775808n) throw new ProtocolError(`integer value ${o.value} does not fit in 64 bits`)
+          return n }
+      case 'float':
+        if (typeof o.value !== 'number') throw new ProtocolError('float value must be a JSON number')
+        return o.value
+      case 'text':
+        if (typeof o.value !== 'string') throw new ProtocolError('text value must be a string')
+        return o.value
+      case 'blob':
+        if (typeof o.base64 !== 'string') throw new ProtocolError('blob value must carry "base64"')
+        return Buffer.from(o.base64, 'base64')
+      default: throw new ProtocolError(`unknown value ${JSON.stringify(v)}`)
+    }
+  }
+
+  function encodeValue(v: unknown): HValue {
+    if (v === null || v === undefined) return { type: 'null' }
+    if (typeof v === 'bigint') return { type: 'integer', value: v.toString() }
+    if (typeof v === 'number') return { type: 'float', value: v }
+    if (typeof v === 'string') return { type: 'text', value: v }
+    if (v instanceof Uint8Array) return { type: 'blob', base64: Buffer.from(v).toString('base64') }
+    throw new Error(`unexpected value from SQLite: ${typeof v}`)
+  }
+
+  /** Checks a statement's shape and decodes its arguments (protocol errors before anything runs). */
+  function prepareStmt(s: Stream, stmt: unknown) {
+    if (!stmt || typeof stmt !== 'object') throw new ProtocolError('"stmt" must be an object')
+    const st = stmt as Json
+    const sql = sqlOf(s, st)
+    const args = st.args == null ? [] : st.args
+    const named = st.named_args == null ? [] : st.named_args
+    if (!Array.isArray(args) || !Array.isArray(named)) throw new ProtocolError('"args" and "named_args" must be arrays')
+    const positional = args.map(decodeValue)
+    const byName: Record<string, SqlValue> = {}
+    for (const a of named as Json[]) {
+      if (typeof a?.name !== 'string') throw new ProtocolError('a named argument needs a "name"')
+      // The native binding takes names without their :, @ or $ sign.
+      byName[/^[:@$]/.test(a.name) ? a.name.slice(1) : a.name] = decodeValue(a.value)
+    }
+    return { sql, positional, byName, hasNamed: named.length > 0, wantRows: st.want_rows !== false }
+  }
+
+  async function runStmt(s: Stream, p: ReturnType<typeof prepareStmt>): Promise<StmtResult> {
+    const count = statementCount(p.sql)
+    if (count === 0) throw new RequestError('SQL string does not contain any statement', 'SQL_NO_STATEMENT')
+    if (count > 1) throw new RequestError('SQL string contains more than one statement', 'SQL_MANY_STATEMENTS')
+    if (p.positional.length && p.hasNamed) throw new RequestError('Specifying both positional and named arguments is not supported', 'ARGS_BOTH_POSITIONAL_AND_NAMED')
+    const bind = p.hasNamed ? p.byName : p.positional
+    const st = s.db.prepare(p.sql)
+    st.safeIntegers(true)
+    const reader = st.reader
+    const cols = reader ? st.columns().map(c => ({ name: c.name, decltype: c.type ?? null })) : []
+    if (reader) st.raw(true)
+    const before = (s.counters.get() as bigint[])[2]!
+    const raw = await retryWhileBusy(s, () => (reader ? st.all(bind) as unknown[][] : (st.run(bind), [])))
+    const [changes, lastRowid, total] = s.counters.get() as bigint[]
+    return {
+      cols,
+      rows: p.wantRows ? raw.map(r => r.map(encodeValue)) : [],
+      // changes() keeps the count of the last INSERT/UPDATE/DELETE, so it is reported only when
+      // this statement changed something.
+      affected_row_count: total! > before ? Number(changes) : 0,
+      last_insert_rowid: lastRowid!.toString(),
+    }
+  }
+
+  /**
+   * Runs `step` again while it meets SQLITE_BUSY (another stream holds the write lock), yielding to
+   * the event loop in between so that stream can finish. The SAME prepared statement must be
+   * retried: the native binding does not reset a statement that failed with SQLITE_BUSY, and a new
+   * statement on that connection would then never commit. If the wait runs out, the connection is
+   * closed (which also discards that half-run statement) and so is the stream.
+   */
+  async function retryWhileBusy<T>(s: Stream, step: () => T): Promise<T> {
+    const deadline = Date.now() + busyWaitMs
+    for (;;) {
+      try { return step() }
+      catch (err) {
+        if ((err as { rawCode?: number }).rawCode !== 5) throw err
+        if (Date.now() >= deadline) {
+          closeStream(s)
+          throw new RequestError(`SQLite error: database is locked (waited ${busyWaitMs} ms for another stream's transaction; this stream is now closed)`, 'SQLITE_BUSY')
+        }
+      }
+      await new Promise(r => setTimeout(r, 2))
+    }
+  }
+
+  function errorOf(err: unknown): HError {
+    if (err instanceof RequestError) return { message: err.message, code: err.code }
+    const e = err as { message?: string, rawCode?: number, code?: string }
+    if (typeof e.rawCode === 'number') return { message: `SQLite error: ${e.message}`, code: primaryCodeName(e.rawCode) }
+    return { message: String(e.message ?? err), code: 'ARGS_INVALID' }
+  }
+
+  // ---- stream requests --------------------------------------------------------------------------
+
+  async function runBatch(s: Stream, batch: unknown, version: number) {
+    const steps = (batch as Json | null)?.steps
+    if (!Array.isArray(steps)) throw new ProtocolError('"batch.steps" must be an array')
+    const prepared = steps.map((step: Json) => ({ cond: step?.condition as Json | null | undefined, stmt: prepareStmt(s, step?.stmt) }))
+    const results: (StmtResult | null)[] = []
+    const errors: (HError | null)[] = []
+    const evalCond = (c: Json, at: number): boolean => {
+      switch (c.type) {
+        case 'ok':
+        case 'error': {
+          const i = Number(c.step)
+          if (!Number.isInteger(i) || i < 0 || i >= at) throw new ProtocolError(`condition refers to step ${String(c.step)}, which has not run before step ${at}`)
+          return c.type === 'ok' ? results[i] !== null : errors[i] !== null
+        }
+        case 'not': return !evalCond(c.cond as Json, at)
+        case 'and': return (c.conds as Json[]).every(x => evalCond(x, at))
+        case 'or': return (c.conds as Json[]).some(x => evalCond(x, at))
+        case 'is_autocommit':
+          if (version < 3) throw new ProtocolError('The "is_autocommit" condition needs Hrana 3 (/v3/pipeline)')
+          return !s.db.inTransaction
+        default: throw new ProtocolError(`unknown batch condition ${JSON.stringify(c)}`)
+      }
+    }
+    for (let i = 0; i < prepared.length; i++) {
+      const { cond, stmt } = prepared[i]!
+      results.push(null)
+      errors.push(null)
+      if (s.closed) { errors[i] = { message: 'The stream was closed by an earlier step', code: 'STREAM_CLOSED' }; continue }
+      if (cond && !evalCond(cond, i)) continue
+      try { results[i] = await runStmt(s, stmt) }
+      catch (err) { errors[i] = errorOf(err) }
+    }
+    return { step_results: results, step_errors: errors }
+  }
+
+  async function handleRequest(s: Stream, req: Json, version: number): Promise<Json> {
+    const type = String(req?.type)
+    stats.requests[type] = (stats.requests[type] ?? 0) + 1
+    switch (type) {
+      case 'close':
+        closeStream(s)
+        return { type }
+      case 'execute':
+        return { type, result: await runStmt(s, prepareStmt(s, req.stmt)) }
+      case 'batch':
+        return { type, result: await runBatch(s, req.batch, version) }
+      case 'sequence': {
+        const parts = splitStatements(sqlOf(s, req))
+        for (const sql of parts) await retryWhileBusy(s, () => s.db.exec(sql))
+        return { type }
+      }
+      case 'store_sql': {
+        const id = Number(req.sql_id)
+        if (!Number.isInteger(id) || typeof req.sql !== 'string') throw new ProtocolError('store_sql needs an integer "sql_id" and a string "sql"')
+        if (s.sqls.has(id)) throw new ProtocolError(`SQL text with id ${id} is already stored`)
+        if (s.sqls.size >= MAX_STORED_SQL) throw new RequestError(`The server already stores ${s.sqls.size} SQL texts, it cannot store more`, 'SQL_STORE_TOO_MANY')
+        if (Buffer.byteLength(req.sql) > MAX_STORED_SQL_BYTES) throw new RequestError(`The statement is too large to be stored: ${Buffer.byteLength(req.sql)} of ${MAX_STORED_SQL_BYTES} bytes`, 'SQL_STORE_TOO_LARGE')
+        s.sqls.set(id, req.sql)
+        return { type }
+      }
+      case 'close_sql':
+        s.sqls.delete(Number(req.sql_id))
+        return { type }
+      case 'get_autocommit':
+        if (version < 3) throw new RequestError('The "get_autocommit" request needs Hrana 3 (/v3/pipeline)', 'NOT_SUPPORTED')
+        return { type, is_autocommit: !s.db.inTransaction }
+      case 'describe':
+        throw new RequestError('The "describe" request is not implemented by this test server', 'NOT_SUPPORTED')
+      default:
+        throw new RequestError(`Unknown stream request type ${JSON.stringify(req?.type)}`, 'NOT_SUPPORTED')
+    }
+  }
+
+  async function pipeline(body: Json, version: number): Promise<{ status: number, body: Json | string }> {
+    if (!body || typeof body !== 'object' || !Array.isArray(body.requests)) return { status: 400, body: 'Pipeline body must be {"baton": string | null, "requests": [...]}' }
+    let s: Stream
+    if (body.baton === null || body.baton === undefined) s = openStream()
+    else {
+      const found = typeof body.baton === 'string' ? byBaton.get(body.baton) : undefined
+      if (!found || found.running) return { status: 500, body: { message: 'The stream has expired or the baton is not valid', code: 'STREAM_EXPIRED' } }
+      byBaton.delete(body.baton as string)
+      s = found
+    }
+    stats.pipelines++
+    s.running = true
+    const results: Json[] = []
+    try {
+      for (const req of body.requests as Json[]) {
+        if (s.closed) { results.push({ type: 'error', error: { message: 'The stream is closed', code: 'STREAM_CLOSED' } }); continue }
+        try { results.push({ type: 'ok', response: await handleRequest(s, req, version) }) }
+        catch (err) {
+          if (err instanceof ProtocolError) throw err
+          results.push({ type: 'error', error: errorOf(err) })
+        }
+      }
+    }
+    catch (err) {
+      closeStream(s)
+      if (err instanceof ProtocolError) return { status: 400, body: err.message }
+      throw err
+    }
+    finally {
+      s.running = false
+      s.lastUsed = Date.now()
+    }
+    let baton: string | null = null
+    if (!s.closed) {
+      baton = `${s.id}.${randomBytes(18).toString('base64url')}`
+      byBaton.set(baton, s)
+    }
+    return { status: 200, body: { baton, base_url: null, results } }
+  }
+
+  // ---- HTTP -------------------------------------------------------------------------------------
+
+  const send = (res: ServerResponse, status: number, body: Json | string) => {
+    if (status >= 400) stats.httpErrors++
+    // The client parses an error body only when the content type is exactly application/json.
+    if (typeof body === 'string') res.writeHead(status, { 'content-type': 'text/plain' }).end(body)
+    else res.writeHead(status, { 'content-type': 'application/json' }).end(JSON.stringify(body))
+  }
+
+  async function readBody(req: IncomingMessage): Promise<Buffer | undefined> {
+    const chunks: Buffer[] = []
+    let size = 0
+    for await (const c of req) {
+      size += (c as Buffer).length
+      if (size > MAX_BODY_BYTES) return undefined
+      chunks.push(c as Buffer)
+    }
+    return Buffer.concat(chunks)
+  }
+
+  const server = createServer(async (req, res) => {
+    try {
+      const path = new URL(req.url ?? '/', 'http://x').pathname.replace(/\/+$/, '') || '/'
+      if (opts.authToken !== undefined && req.headers.authorization !== `Bearer ${opts.authToken}`)
+        return send(res, 401, 'Unauthorized: this server needs "Authorization: Bearer <token>"')
+      if (req.method === 'GET') {
+        if (path === '/' || path === '/health') return send(res, 200, 'Hello, this is a test stand-in libSQL server (Hrana over HTTP, JSON, versions 2 and 3)')
+        if (path === '/v2' || path === '/v3') return send(res, 200, '')
+        return send(res, 404, `Not found: GET ${path} (Protobuf encoding is not implemented by this test server)`)
+      }
+      if (req.method === 'POST' && (path === '/v2/pipeline' || path === '/v3/pipeline')) {
+        const raw = await readBody(req)
+        if (!raw) return send(res, 413, `Request body larger than ${MAX_BODY_BYTES} bytes`)
+        let body: Json
+        try { body = JSON.parse(raw.toString('utf8')) }
+        catch (err) { return send(res, 400, `Could not parse the JSON request body: ${(err as Error).message}`) }
+        const out = await pipeline(body, path.startsWith('/v3') ? 3 : 2)
+        return send(res, out.status, out.body)
+      }
+      if (req.method === 'POST' && /^\/v3(-protobuf)?\/(cursor|pipeline)$/.test(path))
+        return send(res, 501, `Not implemented by this test server: POST ${path} (it speaks JSON pipelines only)`)
+      return send(res, 404, `Not found: ${req.method} ${path}`)
+    }
+    catch (err) {
+      if (!res.headersSent) send(res, 500, { message: `Internal error: ${(err as Error).message}`, code: 'INTERNAL' })
+    }
+  })
+  await new Promise<void>((resolve, reject) => { server.once('error', reject); server.listen(opts.port ?? 0, host, () => resolve()) })
+  const port = (server.address() as AddressInfo).port
+
+  return {
+    url: `http://${host}:${port}`,
+    port,
+    stats,
+    openStreams: () => streams.size,
+    close: async () => {
+      clearInterval(sweeper)
+      for (const s of [...streams]) closeStream(s)
+      server.closeAllConnections()
+      await new Promise<void>(r => server.close(() => r()))
+    },
+  }
+}
+
+/** sqld's names for SQLite's primary result codes (it reports SQLITE_ERROR as SQLITE_UNKNOWN). */
+const PRIMARY_CODES: Record<number, string> = {
+  1: 'SQLITE_UNKNOWN', 2: 'SQLITE_INTERNAL', 3: 'SQLITE_PERM', 4: 'SQLITE_ABORT', 5: 'SQLITE_BUSY', 6: 'SQLITE_LOCKED',
+  7: 'SQLITE_NOMEM', 8: 'SQLITE_READONLY', 9: 'SQLITE_INTERRUPT', 10: 'SQLITE_IOERR', 11: 'SQLITE_CORRUPT', 12: 'SQLITE_NOTFOUND',
+  13: 'SQLITE_FULL', 14: 'SQLITE_CANTOPEN', 15: 'SQLITE_PROTOCOL', 17: 'SQLITE_SCHEMA', 18: 'SQLITE_TOOBIG', 19: 'SQLITE_CONSTRAINT',
+  20: 'SQLITE_MISMATCH', 21: 'SQLITE_MISUSE', 22: 'SQLITE_NOLFS', 23: 'SQLITE_AUTH', 25: 'SQLITE_RANGE', 26: 'SQLITE_NOTADB',
+}
+function primaryCodeName(rawCode: number) { return PRIMARY_CODES[rawCode & 0xff] ?? 'SQLITE_UNKNOWN' }
+
+const counted = new Map<string, number>()
+/** Statements in a SQL text, cached: the ingest sends the same long INSERT texts again and again. */
+function statementCount(sql: string): number {
+  let n = counted.get(sql)
+  if (n === undefined) {
+    n = splitStatements(sql).length
+    if (counted.size > 500) counted.clear()
+    counted.set(sql, n)
+  }
+  return n
+}
+
+/**
+ * Splits SQL text into statements the way SQLite's sqlite3_complete() sees them: a semicolon ends a
+ * statement unless it is inside a quoted string or identifier, a comment, or the body of a CREATE
+ * TRIGGER (which ends at `END;`). Empty statements (stray semicolons, comments only) are dropped.
+ * The native binding would silently run only the first of several statements; sqld refuses them.
+ */
+export function splitStatements(sql: string): string[] {
+  const out: string[] = []
+  const n = sql.length
+  let start = 0
+  let i = 0
+  let words: string[] = []
+  let lastWord = ''
+  let inTrigger = false
+  let content = false
+  const end = (at: number) => {
+    if (content) out.push(sql.slice(start, at))
+    start = at + 1
+    words = []
+    lastWord = ''
+    inTrigger = false
+    content = false
+  }
+  while (i < n) {
+    const c = sql[i]!
+    if (c === '-' && sql[i + 1] === '-') { const e = sql.indexOf('\n', i); i = e < 0 ? n : e + 1; continue }
+    if (c === '/' && sql[i + 1] === '*') { const e = sql.indexOf('*/', i + 2); i = e < 0 ? n : e + 2; continue }
+    if (c === '\'' || c === '"' || c === '`' || c === '[') {
+      const close = c === '[' ? ']' : c
+      let j = i + 1
+      for (;;) {
+        const k = sql.indexOf(close, j)
+        if (k < 0) { j = n; break }
+        if (close !== ']' && sql[k + 1] === close) { j = k + 2; continue } // doubled quote = literal quote
+        j = k + 1
+        break
+      }
+      i = j
+      content = true
+      lastWord = ''
+      continue
+    }
+    if (c === ';') {
+      if (inTrigger && lastWord !== 'END') { i++; lastWord = ''; continue }
+      end(i)
+      i++
+      continue
+    }
+    if (c === ' ' || c === '\n' || c === '\t' || c === '\r' || c === '\f') { i++; continue }
+    if (/[A-Za-z_]/.test(c)) {
+      let j = i + 1
+      while (j < n && /[A-Za-z0-9_$]/.test(sql[j]!)) j++
+      const w = sql.slice(i, j).toUpperCase()
+      if (words.length < 3) {
+        words.push(w)
+        if (words[0] === 'CREATE' && w === 'TRIGGER' && (words.length === 2 || (words.length === 3 && (words[1] === 'TEMP' || words[1] === 'TEMPORARY')))) inTrigger = true
+      }
+      lastWord = w
+      content = true
+      i = j
+      continue
+    }
+    content = true
+    lastWord = ''
+    i++
+  }
+  end(n)
+  return out
+}
+
+if (import.meta.url === `file://${process.argv[1]}`) {
+  const arg = (name: string) => { const i = process.argv.indexOf(`--${name}`); return i > 0 ? process.argv[i + 1] : undefined }
+  const file = arg('file')
+  if (!file) {
+    console.error('usage: npx tsx tests/support/libsql-http-server.ts --file <path.db> [--port 8080] [--host 127.0.0.1] [--auth-token <token>]')
+    process.exit(2)
+  }
+  const s = await startLibsqlHttpServer({ file, port: Number(arg('port') ?? 8080), host: arg('host'), authToken: arg('auth-token') })
+  console.info(`libSQL test server (Hrana over HTTP) on ${s.url}, data in ${file}: DATABASE_URL=${s.url}${arg('auth-token') ? ' DATABASE_AUTH_TOKEN=…' : ''}`)
+  const stop = () => { void s.close().then(() => process.exit(0)) }
+  process.on('SIGINT', stop)
+  process.on('SIGTERM', stop)
+}
