@@ -169,6 +169,14 @@ describe('libSQL test server (Hrana over HTTP)', () => {
     expect((await post(server.url, '/v2/pipeline', { baton: null, requests: [{ type: 'execute', stmt: { sql_id: 99 } }] })).status).toBe(400)
   })
 
+  it('is reached by a libsql://host:port?tls=0 URL too (@libsql/client sends it over plain HTTP)', async () => {
+    const before = server.stats.pipelines
+    const viaLibsql = createClient({ url: `${server.url.replace('http:', 'libsql:')}?tls=0` })
+    try { expect((await viaLibsql.execute('select 40 + 2 as n')).rows[0]!.n).toBe(42) }
+    finally { viaLibsql.close() }
+    expect(server.stats.pipelines).toBeGreaterThan(before)
+  })
+
   it('leaves no stream open after the client is done', async () => {
     await http.execute('select 1')
     await http.batch(['select 1', 'select 2'], 'read')
