@@ -37,8 +37,8 @@ for (let d = 0; d < days; d++) {
   process.stdout.write(`day ${d + 1}/${days}: ${r.summary.totals.partsGauged} parts stored\n`)
 }
 const fillS = (performance.now() - tFill) / 1000
-const rows = await fx.client.execute('select (select count(*) from readings) r, (select count(*) from machine_messages) m')
-const stored = { readings: Number(rows.rows[0]!.r), messages: Number(rows.rows[0]!.m) }
+const rows = await fx.client.execute('select (select count(*) from readings) r, (select count(*) from machine_messages) m, (select count(*) from decisions) d')
+const stored = { readings: Number(rows.rows[0]!.r), messages: Number(rows.rows[0]!.m), decisions: Number(rows.rows[0]!.d) }
 
 async function time(name: string, f: () => Promise<unknown>) {
   await f() // warm-up (JIT, SQLite page cache)
@@ -58,8 +58,9 @@ async function time(name: string, f: () => Promise<unknown>) {
   return { name, median: ms[Math.floor(ms.length / 2)]!, best: ms[0]!, worst: ms[ms.length - 1]!, cpu: cpu[Math.floor(cpu.length / 2)]!, load: loadavg()[0]!, out }
 }
 
-// The night: the last 10 hours of day 4 (any 10-hour slice has the same rate of parts).
-const nightFrom = start + (Math.min(days, 4) - 1) * 24 * H + 14 * H
+// The night: the first 10 hours of day 4, when all 12 machines run (≈ 21,600 parts at 20 s; later in
+// each simulated day the engine stops some machines on out-of-tolerance runs and fewer parts are made).
+const nightFrom = start + (Math.min(days, 4) - 1) * 24 * H
 const night = { cellId: scenario.cell, from: nightFrom, to: nightFrom + 10 * H }
 const week = { cellId: scenario.cell, from: start, to: start + days * 24 * H }
 const results = [
@@ -79,7 +80,7 @@ const section = `## Report (npm run bench:report)
 
 The pure report function (\`server/utils/report.ts\`, \`reportBuild\`) on a temporary SQLite file (real migrations,
 WAL) holding ${days} simulated 24-hour days of \`quiet-night.json\` with every cycle at 20 s, ${machines} machines, compensation
-engine in the loop: ${stored.readings.toLocaleString('en-US')} readings and ${stored.messages.toLocaleString('en-US')} other machine messages
+engine in the loop: ${stored.readings.toLocaleString('en-US')} readings, ${stored.messages.toLocaleString('en-US')} other machine messages and ${stored.decisions.toLocaleString('en-US')} engine decisions
 (${parts.toLocaleString('en-US')} parts; filling took ${fillS.toFixed(0)} s). ${runs} timed runs after one warm-up (wall-clock ms).
 Measured ${new Date().toISOString().slice(0, 10)} on ${cpus().length} × ${cpus()[0]?.model ?? 'unknown CPU'}, Node ${process.version}.
 
@@ -93,12 +94,18 @@ was while each row was measured. On 2 cores, a load above 2 stretches wall-clock
 Not in these figures: HTTP, session check and JSON encoding of the answer (the night's report is
 ${(JSON.stringify(nightReport).length / 1024).toFixed(0)} KiB of JSON, most of it the size charts, thinned to ≤ 2,400 points per machine).
 
-Where the time goes (profiled 2026-12-01): most of it is SQLite stepping through the rows of the range — the
-readings (one index probe and one table row per part) and the applied-offset acks (their JSON read for the value).
+Where the time goes (profiled 2026-12-02): SQLite stepping through three row streams of the range, each one
+table row fetched per index entry — the readings (one per part), the engine's decisions (one per part: held
+readings and the slope estimate for predicted wear) and the applied-offset acks (one per offset; the row fetch
+costs, not the JSON: reading only the payload length takes as long). The JavaScript side keeps readings and acks
+as typed columns parsed from concatenated text (no object per reading), which removed most of the garbage
+collection. The situation before the window is found by single index probes (a row-value IN over a VALUES list
+had scanned the whole message table: 330 ms of the old 460 ms night).
 Counting parts, reading only rejected parts and only applied offsets runs on partial indexes (migration 0009). A
 covering index on readings (machine, time, seq, part, status, diameter, job, received) made the readings scan 1.8×
 faster in the sqlite3 shell (769 → 417 ms for one day of 12 machines at load 13); it is not added because it
-doubles what every reading costs to store.
+doubles what every reading costs to store. Not added either, for the same reason (ingest speed), without measuring
+the insert cost first: a partial index of held decisions, and the offset value in the applied-offset index.
 Run: \`npm run bench:report\` (\`BENCH_DAYS\`, \`BENCH_RUNS\` to change the size and the number of runs).
 `
 

@@ -1,7 +1,12 @@
 // A report database without the server: a temporary SQLite file with the real migrations, filled
 // with the messages of headless simulator runs stored the way ingest stores them (readings in
-// `readings`, every other numbered message in `machine_messages`). Used by the report tests and
-// `npm run bench:report`.
+// `readings`, every other numbered message in `machine_messages`, and a decision row per reading in
+// `decisions` as ingest writes one). Used by the report tests and `npm run bench:report`.
+//
+// Decision rows are rebuilt from the engine's state after each reading (the headless controller
+// keeps the state, not the decision): action offset when the offset moved, hold while the engine
+// holds (with its hold reason), the level and slope estimates as inputs. The report reads holds and
+// the slope (predicted wear) from them, as it does from the rows ingest writes.
 import { mkdtempSync, rmSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
@@ -12,6 +17,7 @@ import { migrate } from 'drizzle-orm/libsql/migrator'
 import * as schema from '../server/database/schema'
 import type { ReportDb } from '../server/utils/report'
 import type { SequencedMessage } from '../shared/utils/contract'
+import type { CompensationState } from '../shared/utils/compensation'
 import { runHeadless, type HeadlessResult } from '../simulator/headless'
 import { createEngineController } from '../simulator/engine-controller'
 import { machinesFor, type Scenario } from '../simulator/scenario'
@@ -49,6 +55,7 @@ export async function seedCell(fx: ReportFixture, scenario: Scenario, machines: 
 export class MessageRows {
   readings: unknown[][] = []
   messages: unknown[][] = []
+  decisions: unknown[][] = []
   private job = new Map<string, string | null>()
   constructor(private readonly seqOffset: Record<string, number> = {}) {}
   add(machineId: string, m: SequencedMessage): void {
@@ -63,6 +70,18 @@ export class MessageRows {
     const type = m.kind === 'event' ? m.type : m.kind === 'ack' ? `${m.command}:${m.result}` : m.kind === 'state' ? m.execution : null
     this.messages.push([machineId, seq, m.kind, type, time, time, JSON.stringify({ ...m, seq })])
   }
+  /** The decision row ingest would write for a reading, from the engine state before and after it. */
+  decide(machineId: string, m: SequencedMessage, before: CompensationState | undefined, after: CompensationState): void {
+    const seq = m.seq + (this.seqOffset[machineId] ?? 0)
+    const at = Date.parse(m.time)
+    const moved = before !== undefined && after.offsetUm !== before.offsetUm
+    // a reading taken while an event hold counts down is held (the engine counts it off)
+    const held = before !== undefined && before.holdRemaining > 0 && !moved
+    const action = moved ? 'offset' : held ? 'hold' : 'none'
+    const reason = held ? `hold: ${before!.holdReason ?? 'hold'}` : moved ? `offset ${after.offsetUm} µm` : 'no change'
+    const inputs = { levelUm: after.level, slopeUmPerPart: after.slope, ewmaLevelUm: after.ewmaLevel, stepMeanUm: null, outOfTolerance: after.outOfToleranceRun > 0, outlier: after.outlierRun > 0 }
+    this.decisions.push([machineId, seq, at, action, moved ? after.offsetUm - before!.offsetUm : null, after.offsetUm, null, reason, JSON.stringify(inputs), null])
+  }
   async flush(client: Client): Promise<void> {
     const stmts: InStatement[] = []
     const chunk = 100
@@ -74,9 +93,14 @@ export class MessageRows {
       const rows = this.messages.slice(i, i + chunk)
       stmts.push({ sql: `insert into machine_messages (machine_id, seq, kind, type, time, received_at, payload) values ${rows.map(() => '(?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
     }
+    for (let i = 0; i < this.decisions.length; i += chunk) {
+      const rows = this.decisions.slice(i, i + chunk)
+      stmts.push({ sql: `insert into decisions (machine_id, seq, at, action, correction_um, offset_um, command_id, reason, inputs, alerts) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
+    }
     for (let i = 0; i < stmts.length; i += 500) await client.batch(stmts.slice(i, i + 500), 'write')
     this.readings = []
     this.messages = []
+    this.decisions = []
   }
 }
 
@@ -87,8 +111,18 @@ export class MessageRows {
 export async function simulateInto(fx: ReportFixture, opts: { scenario: Scenario; seed: number; machines: number; hours: number; seqOffset?: Record<string, number> }): Promise<HeadlessResult & { lastSeq: Record<string, number> }> {
   const rows = new MessageRows(opts.seqOffset)
   const lastSeq: Record<string, number> = {}
+  const engine = createEngineController()
+  const controller = {
+    onMessage: (id: string, m: SequencedMessage, cell: Parameters<typeof engine.onMessage>[2]) => {
+      const before = engine.states.get(id)
+      const out = engine.onMessage(id, m, cell)
+      const after = engine.states.get(id)
+      if (m.kind === 'reading' && after && after !== before) rows.decide(id, m, before, after)
+      return out
+    },
+  }
   const result = runHeadless({
-    scenario: opts.scenario, seed: opts.seed, hours: opts.hours, machines: opts.machines, controller: createEngineController(),
+    scenario: opts.scenario, seed: opts.seed, hours: opts.hours, machines: opts.machines, controller,
     onMessage: (id, m) => { rows.add(id, m); lastSeq[id] = m.seq + (opts.seqOffset?.[id] ?? 0) },
   })
   await rows.flush(fx.client)

@@ -21,6 +21,8 @@ import {
   SHIFT_DEFAULT_PATTERN, shiftCalendarProblems, shiftWindow, type ShiftCalendar, type ShiftDefinition, type ShiftWindow,
 } from '../../shared/utils/shift-calendar'
 import { executionStates } from '../../shared/utils/contract'
+import { parseCompensationSettings } from '../../shared/utils/compensation-settings'
+import { wearCompare, type WearBoundaryKind, type WearSummary } from '../../shared/utils/wheel-wear'
 
 export type ReportDb = LibSQLDatabase<typeof schema>
 
@@ -78,6 +80,12 @@ export interface ReportCompensation {
   dressIntervalMinutes: { min: number; mean: number; max: number } | null
   wheelChanges: number
   masterings: number
+  /**
+   * Predicted against actual wheel wear (shared/utils/wheel-wear.ts), µm of diameter per part, per
+   * dress interval and over the range. Predicted: the engine's slope estimate from its decisions;
+   * actual: −gain × net offset movement / parts. Gain: the active tuning of the machine's last job.
+   */
+  wheelWear: WearSummary & { gainSource: string }
 }
 
 export interface ReportMachine {
@@ -187,9 +195,9 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   const US = '\u001f' // unit separator: never inside a number or a stored JSON text
   const [jobs, readingLists, unloaded, marked, births, ackLists, ackOther] = await Promise.all([
     db.select().from(schema.jobs),
-    db.all<{ m: string; jobs: string; seqs: string; parts: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
+    db.all<{ m: string; jobs: string; seqs: string; parts: string; offs: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
       select machine_id as m, group_concat(coalesce(job_part_number, ''), ${US}) as jobs,
-        group_concat(seq, ',') as seqs, group_concat(part, ',') as parts,
+        group_concat(seq, ',') as seqs, group_concat(part, ',') as parts, group_concat(offset_um, ',') as offs,
         group_concat(time, ',') as times, group_concat(coalesce(diameter_um, ''), ',') as dia,
         group_concat(case status when 'ok' then 'o' when 'fault' then 'f' else 'r' end, '') as st,
         min(received_at) as lo, max(received_at) as hi
@@ -219,7 +227,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   ])
   // Columns, not one object per reading: a week is 300,000 readings, and objects cost more
   // (allocation and garbage collection) than everything computed from them.
-  const readingsByMachine = new Map(readingLists.map((g) => [g.m, readingColumns(g.st.length, g.seqs, g.parts, g.times, g.dia, g.st, g.jobs, US)]))
+  const readingsByMachine = new Map(readingLists.map((g) => [g.m, readingColumns(g.st.length, g.seqs, g.parts, g.offs, g.times, g.dia, g.st, g.jobs, US)]))
   const readingCount = readingLists.reduce((a, g) => a + g.st.length, 0)
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
   const acksByMachine = new Map(ackLists.map((g) => {
@@ -236,18 +244,31 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   const before = await situationBefore(db, ids, from, to)
   const beforeById = new Map(before.map((b) => [b.id, b]))
 
-  // Held readings: decisions stored with action "hold" (found by server time around the window's readings).
+  // The engine's decisions on the window's readings (found by server time around them), in one
+  // pass: the held readings with their reasons, and the engine's slope estimate (predicted wear).
   const rcv = received[0]
-  const holds = rcv?.lo != null && rcv.hi != null
-    ? await db.select({ machineId: schema.decisions.machineId, seq: schema.decisions.seq, reason: schema.decisions.reason }).from(schema.decisions)
-      .where(and(inArray(schema.decisions.machineId, idList), gte(schema.decisions.at, Number(rcv.lo)), lt(schema.decisions.at, Number(rcv.hi) + 1), eq(schema.decisions.action, 'hold')))
+  const decided = rcv?.lo != null && rcv.hi != null
+    ? await db.all<{ m: string; seqs: string; slopes: string; heldSeqs: string | null; heldReasons: string | null }>(sql`
+      select machine_id as m, group_concat(seq, ',') as seqs,
+        group_concat(coalesce(json_extract(inputs, '$.slopeUmPerPart'), ''), ',') as slopes,
+        group_concat(case when action = 'hold' then seq end, ',') as heldSeqs,
+        group_concat(case when action = 'hold' then reason end, ${US}) as heldReasons
+      from decisions where machine_id in ${idList} and at >= ${Number(rcv.lo)} and at < ${Number(rcv.hi) + 1} group by machine_id`)
     : []
   const heldByMachine = new Map<string, Map<number, string>>()
-  for (const h of holds) {
-    let m = heldByMachine.get(h.machineId)
-    if (!m) heldByMachine.set(h.machineId, (m = new Map()))
-    m.set(h.seq, h.reason)
+  const slopesByMachine = new Map<string, Float64Array>()
+  for (const d of decided) {
+    if (d.heldSeqs && d.heldReasons) {
+      const seqs = d.heldSeqs.split(','), reasons = d.heldReasons.split(US)
+      heldByMachine.set(d.m, new Map(seqs.map((q, i) => [Number(q), reasons[i]!])))
+    }
+    const mr = readingsByMachine.get(d.m)
+    if (mr) {
+      const n = countFields(d.seqs)
+      slopesByMachine.set(d.m, slopeAtReadings(mr, reportParseNumberList(d.seqs, n), reportParseNumberList(d.slopes, n)))
+    }
   }
+  const tunings = await activeTunings(db, ids)
 
   const marksByMachine = groupBy(marks, (r) => r.machineId)
   const unloadedByMachine = groupBy(unloaded, (r) => r.m)
@@ -312,8 +333,11 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     const capability = [...byJob].map(([pn, rows]) => capabilityOf(m.id, pn || null, mr, rows, jobInfo(pn)))
 
     // Compensation summary
-    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? NO_ACKS, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 })
-    const tol = jobInfo((mr.n ? mr.jobs[mr.job[mr.n - 1]!] : null) ?? birth?.job?.partNumber ?? '') ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
+    const lastJob = (mr.n ? mr.jobs[mr.job[mr.n - 1]!] : null) ?? birth?.job?.partNumber ?? ''
+    const gain = gainOf(tunings, m.id, jobByPart.get(lastJob)?.id ?? null)
+    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? NO_ACKS, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 },
+      slopesByMachine.get(m.id) ?? null, gain)
+    const tol = jobInfo(lastJob) ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
     const chart: ReportChart = {
       points: thinnedSizes(mr),
       thinned: mr.n > REPORT_CHART_MAX_POINTS,
@@ -409,6 +433,8 @@ export interface ReadingColumns {
   n: number
   seq: Float64Array
   part: Float64Array
+  /** axis offset in force when the part was ground (µm) */
+  offsetUm: Float64Array
   time: Float64Array
   /** diameter deviation (µm); NaN where the gauge gave none */
   dia: Float64Array
@@ -419,13 +445,13 @@ export interface ReadingColumns {
   jobs: (string | null)[]
 }
 
-const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
+const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), offsetUm: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
 const NO_ACKS = { n: 0, time: new Float64Array(0), offsetUm: new Float64Array(0) }
 
 /** Columns from the concatenated texts of one machine's readings (see the query in reportBuild). */
-function readingColumns(n: number, seqs: string, parts: string, times: string, dia: string, status: string, jobText: string, sep: string): ReadingColumns {
+function readingColumns(n: number, seqs: string, parts: string, offs: string, times: string, dia: string, status: string, jobText: string, sep: string): ReadingColumns {
   const c: ReadingColumns = {
-    n, seq: reportParseNumberList(seqs, n), part: reportParseNumberList(parts, n), time: reportParseNumberList(times, n), dia: reportParseNumberList(dia, n),
+    n, seq: reportParseNumberList(seqs, n), part: reportParseNumberList(parts, n), offsetUm: reportParseNumberList(offs, n), time: reportParseNumberList(times, n), dia: reportParseNumberList(dia, n),
     status, job: new Uint16Array(n), jobs: [],
   }
   parseJobs(jobText, sep, n, c)
@@ -435,7 +461,7 @@ function readingColumns(n: number, seqs: string, parts: string, times: string, d
   if (sorted) return c
   const order = Array.from({ length: n }, (_, i) => i).sort((a, b) => c.time[a]! - c.time[b]! || c.seq[a]! - c.seq[b]!)
   const pick = (col: Float64Array) => Float64Array.from(order, (i) => col[i]!)
-  return { n, seq: pick(c.seq), part: pick(c.part), time: pick(c.time), dia: pick(c.dia), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs }
+  return { n, seq: pick(c.seq), part: pick(c.part), offsetUm: pick(c.offsetUm), time: pick(c.time), dia: pick(c.dia), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs }
 }
 
 /** Fills c.job and c.jobs from the separator-joined part numbers ('' = none). */
@@ -533,7 +559,7 @@ function capabilityOf(machineId: string, partNumber: string | null, mr: ReadingC
 
 type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
 
-function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }) {
+function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }, slopes: Float64Array | null, gain: { gain: number; source: string }) {
   let offset = offsetBefore
   if (offset === null) {
     // no offset known before the window: the first birth in it says what was in force
@@ -601,8 +627,62 @@ function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64
     dresses: dressEvents.length, dressTriggers,
     dressIntervalParts: stats(dressEvents.map((d) => d.parts).filter((n) => Number.isFinite(n))),
     dressIntervalMinutes: stats(minutesBetween),
-    wheelChanges, masterings, offsetMarks,
+    wheelChanges, masterings,
+    wheelWear: {
+      ...wearCompare({ n: mr.n, time: mr.time, offsetUm: mr.offsetUm, slopeUmPerPart: slopes ?? new Float64Array(mr.n).fill(Number.NaN) },
+        mk.filter((e) => e.type === 'dress' || e.type === 'wheel_change').map((e) => ({ at: e.time, kind: e.type as WearBoundaryKind })), gain.gain),
+      gainSource: gain.source,
+    },
+    offsetMarks,
   }
+}
+
+/** The engine's slope estimate after each reading (NaN where no decision was found), matched by seq. */
+function slopeAtReadings(mr: ReadingColumns, seqs: Float64Array, slopes: Float64Array): Float64Array {
+  const out = new Float64Array(mr.n).fill(Number.NaN)
+  let ascending = true
+  for (let i = 1; i < mr.n && ascending; i++) ascending = mr.seq[i - 1]! < mr.seq[i]!
+  const indexOf = ascending ? null : new Map(Array.from(mr.seq, (q, i) => [q, i]))
+  for (let k = 0; k < seqs.length; k++) {
+    const q = seqs[k]!
+    let i: number
+    if (indexOf) i = indexOf.get(q) ?? -1
+    else {
+      // readings are in seq order: binary search
+      let lo = 0, hi = mr.n - 1
+      i = -1
+      while (lo <= hi) {
+        const mid = (lo + hi) >> 1
+        const v = mr.seq[mid]!
+        if (v === q) { i = mid; break }
+        if (v < q) lo = mid + 1
+        else hi = mid - 1
+      }
+    }
+    if (i >= 0) out[i] = slopes[k]!
+  }
+  return out
+}
+
+type Tuning = { jobId: number; machineId: string | null; settings: Record<string, unknown> }
+
+async function activeTunings(db: ReportDb, ids: string[]): Promise<Tuning[]> {
+  const c = schema.compensationSettings
+  const rows = await db.select({ jobId: c.jobId, machineId: c.machineId, settings: c.settings }).from(c).where(eq(c.status, 'active'))
+  return rows.filter((r) => r.machineId === null || ids.includes(r.machineId))
+}
+
+const DEFAULT_GAIN = parseCompensationSettings({ upperSpecUm: 1, lowerSpecUm: -1 }).gain
+
+/** The model gain the engine used for a machine's job: its own tuning, the job's, or the default. */
+function gainOf(tunings: Tuning[], machineId: string, jobId: number | null): { gain: number; source: string } {
+  const own = tunings.find((t) => t.jobId === jobId && t.machineId === machineId)
+  const job = tunings.find((t) => t.jobId === jobId && t.machineId === null)
+  for (const [t, source] of [[own, 'this machine\'s tuning of the job'], [job, 'the job\'s tuning']] as const) {
+    const g = t?.settings.gain
+    if (typeof g === 'number' && g > 0) return { gain: g, source }
+  }
+  return { gain: DEFAULT_GAIN, source: 'the engine\'s default gain (no tuning sets one)' }
 }
 
 /** "hold: dress: waiting for post-dress parts (3 parts)" → "dress". */

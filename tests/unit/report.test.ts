@@ -113,6 +113,29 @@ describe('overnight report from a simulated night', () => {
     expect(report.machines.some((m) => m.compensation.offsetsApplied > 0)).toBe(true)
   })
 
+  it('wheel wear: predicted is the mean engine slope, actual the net offset movement × gain, per dress interval', async () => {
+    // Independent path: the stored rows read with plain SQL and JSON.parse, cut at the dresses here.
+    for (const id of ['cg-01', 'cg-02']) {
+      const wear = report.machines.find((m) => m.id === id)!.compensation.wheelWear
+      const reads = (await fx.client.execute({ sql: `select seq, time, offset_um from readings where machine_id = ? order by time, seq`, args: [id] })).rows
+      const dec = new Map((await fx.client.execute({ sql: `select seq, inputs from decisions where machine_id = ?`, args: [id] })).rows.map((r) => [Number(r.seq), JSON.parse(String(r.inputs)).slopeUmPerPart as number]))
+      const cuts = (await fx.client.execute({ sql: `select time from machine_messages where machine_id = ? and type in ('dress', 'wheel_change') order by time`, args: [id] })).rows.map((r) => Number(r.time))
+      expect(wear.gain).toBe(1.1) // no tuning stored: the engine default (compensation-settings.ts)
+      expect(wear.intervals.length).toBeGreaterThan(0)
+      for (const iv of wear.intervals) {
+        const mine = reads.filter((r) => Number(r.time) >= iv.from && Number(r.time) <= iv.to)
+        expect(mine.length).toBe(iv.parts)
+        expect(cuts.some((c) => c > iv.from && c <= iv.to)).toBe(false) // no dress inside an interval
+        if (iv.parts < 2) continue
+        const du = Number(mine.at(-1)!.offset_um) - Number(mine[0]!.offset_um)
+        expect(iv.actualUmPerPart!).toBeCloseTo((-1.1 * du) / (iv.parts - 1), 12)
+        const slopes = mine.map((r) => dec.get(Number(r.seq))).filter((x): x is number => typeof x === 'number')
+        expect(iv.predictedUmPerPart!).toBeCloseTo(slopes.reduce((a, b) => a + b, 0) / slopes.length, 12)
+        expect(iv.differenceUmPerPart!).toBeCloseTo(iv.actualUmPerPart! - iv.predictedUmPerPart!, 12)
+      }
+    }
+  })
+
   it('the night shift in Berlin cuts the run at 06:00 local, and counts only its parts', async () => {
     const scope = await reportShiftScope(fx.db, 'cell-a', 'night', '2026-03-05')
     expect(scope.from).toBe(start) // 22:00 CET
