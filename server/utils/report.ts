@@ -828,6 +828,30 @@ export async function reportPartsCsv(db: ReportDb, scope: ReportScope): Promise<
   return lines
 }
 
+const WEAR_CSV_HEADER = ['machine', 'scope', 'from_utc', 'to_utc', 'starts_at', 'ends_at', 'parts', 'predicted_um_per_part', 'actual_um_per_part', 'difference_um_per_part', 'predicted_um', 'actual_um', 'gain']
+
+/**
+ * Predicted against actual wheel wear as CSV lines: per machine one "range" line, then one line
+ * per dress interval. µm of diameter; predicted = the engine's slope estimate, actual = −gain × net
+ * offset movement / (parts − 1), difference = actual − predicted (shared/utils/wheel-wear.ts).
+ */
+export function reportWearCsv(report: Report): string[] {
+  const lines = [WEAR_CSV_HEADER.join(',')]
+  const iso = (ms: number) => new Date(ms).toISOString()
+  const num = (x: number | null) => (x === null ? '' : Number(x.toPrecision(6)))
+  for (const m of report.machines) {
+    const w = m.compensation.wheelWear
+    const counted = w.intervals.filter((i) => i.actualUm !== null && i.predictedUm !== null)
+    lines.push([m.id, 'range', iso(report.scope.from), iso(report.scope.to), '', '', counted.reduce((a, i) => a + i.parts, 0),
+      num(w.range.predictedUmPerPart), num(w.range.actualUmPerPart), num(w.range.differenceUmPerPart),
+      num(counted.reduce((a, i) => a + i.predictedUm!, 0)), num(counted.reduce((a, i) => a + i.actualUm!, 0)), w.gain].map(csvField).join(','))
+    for (const i of w.intervals) {
+      lines.push([m.id, 'interval', iso(i.from), iso(i.to), i.startsAt, i.endsAt, i.parts, num(i.predictedUmPerPart), num(i.actualUmPerPart), num(i.differenceUmPerPart), num(i.predictedUm), num(i.actualUm), w.gain].map(csvField).join(','))
+    }
+  }
+  return lines
+}
+
 export function csvField(v: unknown): string {
   const s = String(v)
   // RFC 4180 quoting; a leading = + - @ is prefixed so spreadsheets do not run it as a formula.

@@ -73,6 +73,7 @@ export const routeAccess: Record<string, RouteRule> = {
   'reports/shift.get.ts': { access: 'signed-in' },
   'reports/range.get.ts': { access: 'signed-in' },
   'reports/parts.csv.get.ts': { access: 'signed-in' },
+  'reports/wear.csv.get.ts': { access: 'signed-in' },
   'reports/signoffs.post.ts': { access: ['lead'] },
   'reports/notes.post.ts': { access: ['lead', 'engineer', 'operator'] },
   'reports/calendar.put.ts': { access: ['admin', 'engineer'] },

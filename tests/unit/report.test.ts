@@ -7,7 +7,7 @@ import { fileURLToPath } from 'node:url'
 import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics'
 import { openReportFixture, seedCell, simulateInto, type ReportFixture } from '../../scripts/report-fixture'
 import { loadScenarioFile } from '../../simulator/scenario'
-import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, reportParseNumberList, ReportInputError, type Report } from '../../server/utils/report'
+import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, reportParseNumberList, reportWearCsv, ReportInputError, type Report } from '../../server/utils/report'
 import fc from 'fast-check'
 import * as schema from '../../server/database/schema'
 
@@ -134,6 +134,19 @@ describe('overnight report from a simulated night', () => {
         expect(iv.differenceUmPerPart!).toBeCloseTo(iv.actualUmPerPart! - iv.predictedUmPerPart!, 12)
       }
     }
+  })
+
+  it('the wheel-wear CSV has a range line and a line per interval for each machine, with the same figures', () => {
+    const lines = reportWearCsv(report)
+    expect(lines[0]).toBe('machine,scope,from_utc,to_utc,starts_at,ends_at,parts,predicted_um_per_part,actual_um_per_part,difference_um_per_part,predicted_um,actual_um,gain')
+    expect(lines.length).toBe(1 + report.machines.reduce((a, m) => a + 1 + m.compensation.wheelWear.intervals.length, 0))
+    const cg02 = report.machines.find((m) => m.id === 'cg-02')!.compensation.wheelWear
+    const range = lines.find((l) => l.startsWith('cg-02,range,'))!.split(',')
+    expect(Number(range[8])).toBeCloseTo(cg02.range.actualUmPerPart!, 5)
+    expect(Number(range[7])).toBeCloseTo(cg02.range.predictedUmPerPart!, 5)
+    const firstIv = lines.find((l) => l.startsWith('cg-02,interval,'))!.split(',')
+    expect(firstIv[2]).toBe(new Date(cg02.intervals[0]!.from).toISOString())
+    expect(Number(firstIv[6])).toBe(cg02.intervals[0]!.parts)
   })
 
   it('the night shift in Berlin cuts the run at 06:00 local, and counts only its parts', async () => {
