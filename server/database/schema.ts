@@ -388,3 +388,24 @@ export const readingHours = sqliteTable('reading_hours', {
   minUm: real('min_um'),
   maxUm: real('max_um'),
 }, t => [uniqueIndex('reading_hours_key').on(t.machineId, t.hourStart, t.jobPartNumber)])
+
+// ── Shift-end summary e-mail: who asked for it, and each shift's sending (once per shift) ─────
+/** A user who wants the summary of each shift by e-mail when it ends. */
+export const shiftSummarySubscriptions = sqliteTable('shift_summary_subscriptions', {
+  userId: integer('user_id').primaryKey().references(() => users.id),
+  createdAt: integer('created_at').notNull(),
+})
+
+/** One row per cell and shift, claimed before sending, so a shift's summary goes out once across restarts. */
+export const shiftSummarySends = sqliteTable('shift_summary_sends', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  cellId: text('cell_id').notNull(),
+  shiftId: text('shift_id').notNull(),
+  shiftDate: text('shift_date').notNull(), // local date the shift started
+  shiftEnd: integer('shift_end').notNull(),
+  claimedAt: integer('claimed_at').notNull(),
+  status: text('status').notNull(), // sending | sent | failed | nobody (no subscriber)
+  recipients: integer('recipients').notNull().default(0),
+  failed: integer('failed').notNull().default(0),
+  detail: text('detail'),
+}, t => [uniqueIndex('shift_summary_sends_shift').on(t.cellId, t.shiftId, t.shiftDate)])
