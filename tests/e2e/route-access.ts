@@ -74,6 +74,8 @@ export const routeAccess: Record<string, RouteRule> = {
   'reports/range.get.ts': { access: 'signed-in' },
   'reports/parts.csv.get.ts': { access: 'signed-in' },
   'reports/wear.csv.get.ts': { access: 'signed-in' },
+  'reports/summary-subscription.get.ts': { access: 'signed-in' },
+  'reports/summary-subscription.put.ts': { access: 'signed-in' },
   'reports/signoffs.post.ts': { access: ['lead'] },
   'reports/notes.post.ts': { access: ['lead', 'engineer', 'operator'] },
   'reports/calendar.put.ts': { access: ['admin', 'engineer'] },
