@@ -2,7 +2,8 @@
 // DATABASE_URL=http://… (and a bearer token) pointing at tests/support/libsql-http-server.ts, a
 // stand-in that speaks Hrana over HTTP and keeps the data in a real SQLite file. Everything is
 // checked in that file, read directly (not through Owlshift): migrations, the demo shop, readings
-// committed before their PUBACK, a redelivered reading stored once; and a person can sign in.
+// committed before their PUBACK, a redelivered reading stored once, a restart on the same data;
+// and a person can sign in.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { mkdtempSync, readFileSync, readdirSync } from 'node:fs'
 import { tmpdir } from 'node:os'
@@ -82,6 +83,20 @@ describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
     // Owlshift wrote through client.batch (one transaction per ingest batch) and met no HTTP error.
     expect(libsql.stats.requests.batch).toBeGreaterThan(0)
     expect(libsql.stats.httpErrors).toBe(0)
+  })
+
+  it('starts again on the same server without re-applying migrations or re-seeding, and goes on storing', async () => {
+    const users = await count('select count(*) from users')
+    await killServer(server, 'SIGTERM')
+    // Every request closed its stream: nothing is left open on the libSQL server.
+    expect(libsql.openStreams()).toBe(0)
+    server = await startServer({ dataDir, port: server.port, env: { DATABASE_URL: libsql.url, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: new URL(mqttUrl).port } })
+    expect(server.log()).not.toMatch(/applied \d+ database migration|created the demo shop/)
+    expect(await count('select count(*) from users')).toBe(users)
+    const c = await machineClient(mqttUrl, 'cg-01', demoCredentials(dataDir)['cg-01']!.password)
+    await publishAcked(c, topicFor('cg-01', reading(17, 0.2)), payloadOf(reading(17, 0.2)))
+    expect(await count(`select count(*) from readings where machine_id = 'cg-01' and seq = 17`)).toBe(1)
+    await c.endAsync()
   })
 
   it('refuses a manual backup with a clear reason (the libSQL server owns its backups) and logs no error or warning', async () => {
