@@ -1,29 +1,34 @@
-// A test stand-in for a libSQL server: speaks Hrana over HTTP (JSON encoding) on 127.0.0.1 and keeps
-// its data in a real SQLite file through the native `libsql` package, so Owlshift can be run with
-// DATABASE_URL=http://… on a machine without `sqld` — the way scripts/mail-catcher.ts stands in for
-// a mail server. It is for tests and trials, not for production: no TLS, one process, one file.
+// A test stand-in for a libSQL server: speaks Hrana over HTTP and over WebSocket (JSON encoding) on
+// 127.0.0.1 and keeps its data in a real SQLite file through the native `libsql` package, so
+// Owlshift can be run with DATABASE_URL=http://… or ws://… on a machine without `sqld` — the way
+// scripts/mail-catcher.ts stands in for a mail server. For tests and trials, not for production:
+// no TLS, one process, one file.
 //   npx tsx tests/support/libsql-http-server.ts --file /tmp/x.db --port 8080 [--auth-token s3cret]
-//   startLibsqlHttpServer({ file, port? })  →  { url, close }     (from tests)
+//   startLibsqlHttpServer({ file, port? })  →  { url, wsUrl, close }     (from tests)
 //
 // What it implements (Hrana 2 and 3 specifications and the HTTP API v2 specification, docs/ in
 // github.com/tursodatabase/libsql: HRANA_2_SPEC.md, HRANA_3_SPEC.md, HTTP_V2_SPEC.md):
-// - GET /v2 and GET /v3 answer 200 (version check); GET /v3-protobuf answers 404, so a client that
-//   probes for Protobuf falls back to JSON. @libsql/client 0.18 does not probe: it uses /v2/pipeline.
-// - POST /v2/pipeline and /v3/pipeline: { baton, requests } → { baton, base_url: null, results }.
-//   A null baton opens a stream (its own SQLite connection); every answer hands out a fresh random
-//   baton and retires the old one; a `close` request or an idle stream (streamIdleMs) ends it,
-//   rolling back any open transaction. Every request in a pipeline runs, even after an error.
-// - Stream requests: execute, batch (conditions ok / error / not / and / or, and is_autocommit on
-//   v3), sequence, store_sql / close_sql (per stream, at most 50 texts of ≤ 5 kB, as in sqld),
-//   get_autocommit (v3), close. `describe` and unknown request types answer a Hrana error with
-//   code NOT_SUPPORTED; POST /v3/cursor and Protobuf endpoints answer 501.
+// - HTTP: GET /v2 and GET /v3 answer 200 (version check); GET /v3-protobuf answers 404, so a client
+//   that probes for Protobuf falls back to JSON. @libsql/client 0.18 does not probe: it uses
+//   /v2/pipeline. POST /v2/pipeline and /v3/pipeline: { baton, requests } → { baton, base_url: null,
+//   results }. A null baton opens a stream (its own SQLite connection); every answer hands out a
+//   fresh random baton and retires the old one; a `close` request or an idle stream (streamIdleMs)
+//   ends it, rolling back any open transaction. Every request in a pipeline runs, even after an
+//   error. Stream requests: execute, batch, sequence, store_sql / close_sql (per stream, at most 50
+//   texts of ≤ 5 kB, as in sqld), get_autocommit (v3), close. POST /v3/cursor and the Protobuf
+//   endpoints answer 501. The bearer token (authToken) is checked on every HTTP request.
+// - WebSocket: subprotocol hrana2 (JSON); hello (token in `jwt`) → hello_ok / hello_error; requests
+//   open_stream, close_stream, execute, batch, sequence, store_sql / close_sql (per connection),
+//   answered by request_id. Hrana 3 over WebSocket (cursors, get_autocommit) is not offered.
+// - Batches: conditions ok / error / not / and / or, and is_autocommit on v3.
+// - `describe` and unknown request types answer a Hrana error with code NOT_SUPPORTED.
 // - Values: null, integer (decimal string, 64-bit), float (JSON number), text, blob (base64);
 //   positional or named arguments (not both, as in sqld); want_rows; affected_row_count;
 //   last_insert_rowid; column names and declared types.
 // - Errors as sqld words them: "SQLite error: …" with the primary result code (SQLITE_CONSTRAINT…,
 //   SQLite's generic SQLITE_ERROR shows as SQLITE_UNKNOWN, as rusqlite names it), SQL_NO_STATEMENT,
-//   SQL_MANY_STATEMENTS, ARGS_BOTH_POSITIONAL_AND_NAMED; malformed bodies and unknown sql_ids answer
-//   400 (protocol error), an unknown or expired baton 500 with code STREAM_EXPIRED (stream error).
+//   SQL_MANY_STATEMENTS, ARGS_BOTH_POSITIONAL_AND_NAMED; over HTTP malformed bodies and unknown
+//   sql_ids answer 400 (protocol error), an unknown or expired baton 500 with code STREAM_EXPIRED.
 // - Writers from different streams wait for each other like a SQLite busy handler would, but
 //   without blocking the event loop: a statement that meets SQLITE_BUSY is retried asynchronously
 //   for up to busyWaitMs, so the stream holding the lock can finish its transaction meanwhile.
@@ -33,6 +38,8 @@ import { createServer, type IncomingMessage, type ServerResponse } from 'node:ht
 import type { AddressInfo } from 'node:net'
 import { randomBytes } from 'node:crypto'
 import Database from 'libsql'
+// `ws` comes with @libsql/client (through @libsql/isomorphic-ws), whose WebSocket client it serves.
+import { WebSocketServer, type WebSocket } from 'ws'
 
 export interface LibsqlHttpServerOptions {
   /** The SQLite file behind the server (created if missing; put in WAL mode). */
@@ -49,7 +56,10 @@ export interface LibsqlHttpServerOptions {
 }
 
 export interface LibsqlHttpServer {
+  /** Hrana over HTTP. */
   url: string
+  /** Hrana over WebSocket, same port. */
+  wsUrl: string
   port: number
   /** What the server has seen, so a test can prove which protocol parts a client used. */
   stats: { pipelines: number, streamsOpened: number, requests: Record<string, number>, httpErrors: number }
@@ -79,7 +89,10 @@ interface Stream {
   db: Database.Database
   /** `SELECT changes(), last_insert_rowid(), total_changes()` on this connection. */
   counters: Database.Statement
+  /** Stored SQL texts: per stream over HTTP, per connection over WebSocket. */
   sqls: Map<number, string>
+  /** HTTP streams expire when idle; WebSocket streams live as long as their connection. */
+  expires: boolean
   lastUsed: number
   running: boolean
   closed: boolean
@@ -99,13 +112,13 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
   setup.exec('PRAGMA journal_mode = WAL')
   setup.close()
 
-  function openStream(): Stream {
+  function openStream(sqls: Map<number, string> = new Map(), expires = true): Stream {
     const db = new Database(opts.file)
     db.exec('PRAGMA foreign_keys = ON')
     const counters = db.prepare('SELECT changes(), last_insert_rowid(), total_changes()')
     counters.safeIntegers(true)
     counters.raw(true)
-    const s: Stream = { id: nextStreamId++, db, counters, sqls: new Map(), lastUsed: Date.now(), running: false, closed: false }
+    const s: Stream = { id: nextStreamId++, db, counters, sqls, expires, lastUsed: Date.now(), running: false, closed: false }
     streams.add(s)
     stats.streamsOpened++
     return s
@@ -123,13 +136,13 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
 
   const sweeper = setInterval(() => {
     const now = Date.now()
-    for (const s of streams) if (!s.running && now - s.lastUsed > streamIdleMs) closeStream(s)
+    for (const s of streams) if (s.expires && !s.running && now - s.lastUsed > streamIdleMs) closeStream(s)
   }, Math.min(1000, streamIdleMs))
   sweeper.unref()
 
   // ---- statements -------------------------------------------------------------------------------
 
-  function sqlOf(s: Stream, req: Json): string {
+  function sqlOf(sqls: Map<number, string>, req: Json): string {
     const hasSql = req.sql !== undefined && req.sql !== null
     const hasId = req.sql_id !== undefined && req.sql_id !== null
     if (hasSql && hasId) throw new ProtocolError('Both "sql" and "sql_id" were given; exactly one is allowed')
@@ -138,8 +151,8 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
       return req.sql
     }
     if (hasId) {
-      const sql = s.sqls.get(Number(req.sql_id))
-      if (sql === undefined) throw new ProtocolError(`SQL text with id ${String(req.sql_id)} was not stored on this stream`)
+      const sql = sqls.get(Number(req.sql_id))
+      if (sql === undefined) throw new ProtocolError(`SQL text with id ${String(req.sql_id)} is not stored`)
       return sql
     }
     throw new ProtocolError('Neither "sql" nor "sql_id" was given')
@@ -180,7 +193,7 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
   function prepareStmt(s: Stream, stmt: unknown) {
     if (!stmt || typeof stmt !== 'object') throw new ProtocolError('"stmt" must be an object')
     const st = stmt as Json
-    const sql = sqlOf(s, st)
+    const sql = sqlOf(s.sqls, st)
     const args = st.args == null ? [] : st.args
     const named = st.named_args == null ? [] : st.named_args
     if (!Array.isArray(args) || !Array.isArray(named)) throw new ProtocolError('"args" and "named_args" must be arrays')
@@ -249,76 +262,103 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
 
   // ---- stream requests --------------------------------------------------------------------------
 
-  async function runBatch(s: Stream, batch: unknown, version: number) {
+  /** Checks a batch and resolves its SQL texts now; the returned function runs it. */
+  function planBatch(s: Stream, batch: unknown, version: number) {
     const steps = (batch as Json | null)?.steps
     if (!Array.isArray(steps)) throw new ProtocolError('"batch.steps" must be an array')
     const prepared = steps.map((step: Json) => ({ cond: step?.condition as Json | null | undefined, stmt: prepareStmt(s, step?.stmt) }))
-    const results: (StmtResult | null)[] = []
-    const errors: (HError | null)[] = []
-    const evalCond = (c: Json, at: number): boolean => {
-      switch (c.type) {
-        case 'ok':
-        case 'error': {
-          const i = Number(c.step)
-          if (!Number.isInteger(i) || i < 0 || i >= at) throw new ProtocolError(`condition refers to step ${String(c.step)}, which has not run before step ${at}`)
-          return c.type === 'ok' ? results[i] !== null : errors[i] !== null
+    return async () => {
+      const results: (StmtResult | null)[] = []
+      const errors: (HError | null)[] = []
+      const evalCond = (c: Json, at: number): boolean => {
+        switch (c.type) {
+          case 'ok':
+          case 'error': {
+            const i = Number(c.step)
+            if (!Number.isInteger(i) || i < 0 || i >= at) throw new ProtocolError(`condition refers to step ${String(c.step)}, which has not run before step ${at}`)
+            return c.type === 'ok' ? results[i] !== null : errors[i] !== null
+          }
+          case 'not': return !evalCond(c.cond as Json, at)
+          case 'and': return (c.conds as Json[]).every(x => evalCond(x, at))
+          case 'or': return (c.conds as Json[]).some(x => evalCond(x, at))
+          case 'is_autocommit':
+            if (version < 3) throw new ProtocolError('The "is_autocommit" condition needs Hrana 3 (/v3/pipeline)')
+            return !s.db.inTransaction
+          default: throw new ProtocolError(`unknown batch condition ${JSON.stringify(c)}`)
         }
-        case 'not': return !evalCond(c.cond as Json, at)
-        case 'and': return (c.conds as Json[]).every(x => evalCond(x, at))
-        case 'or': return (c.conds as Json[]).some(x => evalCond(x, at))
-        case 'is_autocommit':
-          if (version < 3) throw new ProtocolError('The "is_autocommit" condition needs Hrana 3 (/v3/pipeline)')
-          return !s.db.inTransaction
-        default: throw new ProtocolError(`unknown batch condition ${JSON.stringify(c)}`)
       }
+      for (let i = 0; i < prepared.length; i++) {
+        const { cond, stmt } = prepared[i]!
+        results.push(null)
+        errors.push(null)
+        if (s.closed) { errors[i] = { message: 'The stream was closed by an earlier step', code: 'STREAM_CLOSED' }; continue }
+        if (cond && !evalCond(cond, i)) continue
+        try { results[i] = await runStmt(s, stmt) }
+        catch (err) { errors[i] = errorOf(err) }
+      }
+      return { step_results: results, step_errors: errors }
     }
-    for (let i = 0; i < prepared.length; i++) {
-      const { cond, stmt } = prepared[i]!
-      results.push(null)
-      errors.push(null)
-      if (s.closed) { errors[i] = { message: 'The stream was closed by an earlier step', code: 'STREAM_CLOSED' }; continue }
-      if (cond && !evalCond(cond, i)) continue
-      try { results[i] = await runStmt(s, stmt) }
-      catch (err) { errors[i] = errorOf(err) }
-    }
-    return { step_results: results, step_errors: errors }
   }
 
-  async function handleRequest(s: Stream, req: Json, version: number): Promise<Json> {
+  function storeSql(sqls: Map<number, string>, req: Json) {
+    const id = Number(req.sql_id)
+    if (!Number.isInteger(id) || typeof req.sql !== 'string') throw new ProtocolError('store_sql needs an integer "sql_id" and a string "sql"')
+    if (sqls.has(id)) throw new ProtocolError(`SQL text with id ${id} is already stored`)
+    if (sqls.size >= MAX_STORED_SQL) throw new RequestError(`The server already stores ${sqls.size} SQL texts, it cannot store more`, 'SQL_STORE_TOO_MANY')
+    if (Buffer.byteLength(req.sql) > MAX_STORED_SQL_BYTES) throw new RequestError(`The statement is too large to be stored: ${Buffer.byteLength(req.sql)} of ${MAX_STORED_SQL_BYTES} bytes`, 'SQL_STORE_TOO_LARGE')
+    sqls.set(id, req.sql)
+  }
+
+  const count = (type: string) => { stats.requests[type] = (stats.requests[type] ?? 0) + 1 }
+
+  /**
+   * A request that works on a stream's connection, in two steps: checking it and resolving its
+   * stored SQL texts happens at once (so a later close_sql cannot pull a text from under it), the
+   * returned function runs it in the stream's turn. Shared by HTTP and WebSocket.
+   */
+  function planStreamRequest(s: Stream, req: Json, version: number): () => Promise<Json> {
     const type = String(req?.type)
-    stats.requests[type] = (stats.requests[type] ?? 0) + 1
     switch (type) {
-      case 'close':
-        closeStream(s)
-        return { type }
-      case 'execute':
-        return { type, result: await runStmt(s, prepareStmt(s, req.stmt)) }
-      case 'batch':
-        return { type, result: await runBatch(s, req.batch, version) }
+      case 'execute': {
+        const p = prepareStmt(s, req.stmt)
+        return async () => ({ type, result: await runStmt(s, p) })
+      }
+      case 'batch': {
+        const run = planBatch(s, req.batch, version)
+        return async () => ({ type, result: await run() })
+      }
       case 'sequence': {
-        const parts = splitStatements(sqlOf(s, req))
-        for (const sql of parts) await retryWhileBusy(s, () => s.db.exec(sql))
-        return { type }
+        const parts = splitStatements(sqlOf(s.sqls, req))
+        return async () => {
+          for (const sql of parts) await retryWhileBusy(s, () => s.db.exec(sql))
+          return { type }
+        }
       }
-      case 'store_sql': {
-        const id = Number(req.sql_id)
-        if (!Number.isInteger(id) || typeof req.sql !== 'string') throw new ProtocolError('store_sql needs an integer "sql_id" and a string "sql"')
-        if (s.sqls.has(id)) throw new ProtocolError(`SQL text with id ${id} is already stored`)
-        if (s.sqls.size >= MAX_STORED_SQL) throw new RequestError(`The server already stores ${s.sqls.size} SQL texts, it cannot store more`, 'SQL_STORE_TOO_MANY')
-        if (Buffer.byteLength(req.sql) > MAX_STORED_SQL_BYTES) throw new RequestError(`The statement is too large to be stored: ${Buffer.byteLength(req.sql)} of ${MAX_STORED_SQL_BYTES} bytes`, 'SQL_STORE_TOO_LARGE')
-        s.sqls.set(id, req.sql)
-        return { type }
-      }
-      case 'close_sql':
-        s.sqls.delete(Number(req.sql_id))
-        return { type }
       case 'get_autocommit':
-        if (version < 3) throw new RequestError('The "get_autocommit" request needs Hrana 3 (/v3/pipeline)', 'NOT_SUPPORTED')
-        return { type, is_autocommit: !s.db.inTransaction }
+        if (version < 3) throw new RequestError('The "get_autocommit" request needs Hrana 3', 'NOT_SUPPORTED')
+        return async () => ({ type, is_autocommit: !s.db.inTransaction })
       case 'describe':
         throw new RequestError('The "describe" request is not implemented by this test server', 'NOT_SUPPORTED')
       default:
         throw new RequestError(`Unknown stream request type ${JSON.stringify(req?.type)}`, 'NOT_SUPPORTED')
+    }
+  }
+
+  async function handleRequest(s: Stream, req: Json, version: number): Promise<Json> {
+    const type = String(req?.type)
+    count(type)
+    switch (type) {
+      case 'close':
+        closeStream(s)
+        return { type }
+      case 'store_sql':
+        storeSql(s.sqls, req)
+        return { type }
+      case 'close_sql':
+        s.sqls.delete(Number(req.sql_id))
+        return { type }
+      default:
+        return planStreamRequest(s, req, version)()
     }
   }
 
@@ -362,6 +402,93 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
     return { status: 200, body: { baton, base_url: null, results } }
   }
 
+  // ---- WebSocket (Hrana 2, JSON) ----------------------------------------------------------------
+
+  /**
+   * One WebSocket connection: hello, then requests answered by request_id. Streams are opened and
+   * closed by the client (open_stream / close_stream) and each runs its requests in order, one at a
+   * time; different streams go on independently, so a stream waiting for the write lock never
+   * holds up the stream that holds it. Stored SQL texts belong to the connection.
+   */
+  function serveWebSocket(ws: WebSocket, version: number) {
+    const sqls = new Map<number, string>()
+    const open = new Map<number, { s: Stream, turn: Promise<void> }>()
+    let greeted = false
+    const send = (msg: Json) => { if (ws.readyState === ws.OPEN) ws.send(JSON.stringify(msg)) }
+    const answer = (id: unknown, response: Json) => send({ type: 'response_ok', request_id: id, response })
+    const fail = (id: unknown, err: unknown) => send({ type: 'response_error', request_id: id, error: err instanceof ProtocolError ? { message: err.message, code: 'PROTOCOL_ERROR' } : errorOf(err) })
+
+    ws.on('message', (data, isBinary) => {
+      if (isBinary) return ws.close(1003, 'Binary frames are Protobuf, which this test server does not speak')
+      let msg: Json
+      try { msg = JSON.parse(String(data)) }
+      catch { return ws.close(1007, 'A message is not valid JSON') }
+      if (msg.type === 'hello') {
+        if (opts.authToken !== undefined && msg.jwt !== opts.authToken) {
+          send({ type: 'hello_error', error: { message: 'Authentication failed: wrong or missing token', code: 'UNAUTHORIZED' } })
+          return ws.close(1008, 'Authentication failed')
+        }
+        greeted = true
+        return send({ type: 'hello_ok' })
+      }
+      if (msg.type !== 'request' || !greeted) return ws.close(1002, greeted ? `Unknown message type ${JSON.stringify(msg.type)}` : 'The first message must be hello')
+      const id = msg.request_id
+      const req = (msg.request ?? {}) as Json
+      const type = String(req.type)
+      count(type)
+      try {
+        switch (type) {
+          case 'open_stream': {
+            const sid = Number(req.stream_id)
+            if (open.has(sid)) throw new ProtocolError(`Stream ${sid} is already open`)
+            open.set(sid, { s: openStream(sqls, false), turn: Promise.resolve() })
+            return answer(id, { type })
+          }
+          case 'close_stream': {
+            const sid = Number(req.stream_id)
+            const st = open.get(sid)
+            if (!st) return answer(id, { type })
+            open.delete(sid)
+            st.turn = st.turn.then(() => { closeStream(st.s); answer(id, { type }) })
+            return
+          }
+          case 'store_sql':
+            storeSql(sqls, req)
+            return answer(id, { type })
+          case 'close_sql':
+            sqls.delete(Number(req.sql_id))
+            return answer(id, { type })
+          case 'open_cursor':
+          case 'fetch_cursor':
+          case 'close_cursor':
+            throw new RequestError(`The "${type}" request needs Hrana 3 cursors, which this test server does not implement`, 'NOT_SUPPORTED')
+          default: {
+            const st = open.get(Number(req.stream_id))
+            if (!st) throw new RequestError(`Stream ${String(req.stream_id)} is not open`, 'STREAM_NOT_FOUND')
+            const run = planStreamRequest(st.s, req, version)
+            st.turn = st.turn.then(async () => {
+              st.s.running = true
+              try { answer(id, await run()) }
+              catch (err) { fail(id, err) }
+              finally { st.s.running = false }
+            })
+          }
+        }
+      }
+      catch (err) { fail(id, err) }
+    })
+    ws.on('close', () => { for (const st of open.values()) void st.turn.then(() => closeStream(st.s)) })
+  }
+
+  // The client offers hrana3-protobuf, hrana3, hrana2, hrana1; this server takes hrana2 (JSON, no
+  // cursors) and Hrana 3 features answer NOT_SUPPORTED.
+  const wss = new WebSocketServer({
+    noServer: true,
+    maxPayload: MAX_BODY_BYTES,
+    handleProtocols: (offered: Set<string>) => (offered.has('hrana2') ? 'hrana2' : offered.has('hrana1') ? 'hrana1' : false),
+  })
+  wss.on('connection', (ws: WebSocket) => serveWebSocket(ws, 2))
+
   // ---- HTTP -------------------------------------------------------------------------------------
 
   const send = (res: ServerResponse, status: number, body: Json | string) => {
@@ -388,7 +515,7 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
       if (opts.authToken !== undefined && req.headers.authorization !== `Bearer ${opts.authToken}`)
         return send(res, 401, 'Unauthorized: this server needs "Authorization: Bearer <token>"')
       if (req.method === 'GET') {
-        if (path === '/' || path === '/health') return send(res, 200, 'Hello, this is a test stand-in libSQL server (Hrana over HTTP, JSON, versions 2 and 3)')
+        if (path === '/' || path === '/health') return send(res, 200, 'Hello, this is a test stand-in libSQL server (Hrana over HTTP, JSON, versions 2 and 3; over WebSocket, hrana2)')
         if (path === '/v2' || path === '/v3') return send(res, 200, '')
         return send(res, 404, `Not found: GET ${path} (Protobuf encoding is not implemented by this test server)`)
       }
@@ -409,16 +536,20 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
       if (!res.headersSent) send(res, 500, { message: `Internal error: ${(err as Error).message}`, code: 'INTERNAL' })
     }
   })
+  server.on('upgrade', (req, socket, head) => wss.handleUpgrade(req, socket, head, ws => wss.emit('connection', ws, req)))
   await new Promise<void>((resolve, reject) => { server.once('error', reject); server.listen(opts.port ?? 0, host, () => resolve()) })
   const port = (server.address() as AddressInfo).port
 
   return {
     url: `http://${host}:${port}`,
+    wsUrl: `ws://${host}:${port}`,
     port,
     stats,
     openStreams: () => streams.size,
     close: async () => {
       clearInterval(sweeper)
+      for (const ws of wss.clients) ws.terminate()
+      wss.close()
       for (const s of [...streams]) closeStream(s)
       server.closeAllConnections()
       await new Promise<void>(r => server.close(() => r()))
@@ -525,7 +656,7 @@ if (import.meta.url === `file://${process.argv[1]}`) {
     process.exit(2)
   }
   const s = await startLibsqlHttpServer({ file, port: Number(arg('port') ?? 8080), host: arg('host'), authToken: arg('auth-token') })
-  console.info(`libSQL test server (Hrana over HTTP) on ${s.url}, data in ${file}: DATABASE_URL=${s.url}${arg('auth-token') ? ' DATABASE_AUTH_TOKEN=…' : ''}`)
+  console.info(`libSQL test server on ${s.url} (Hrana over HTTP) and ${s.wsUrl} (over WebSocket), data in ${file}: DATABASE_URL=${s.url}${arg('auth-token') ? ' DATABASE_AUTH_TOKEN=…' : ''}`)
   const stop = () => { void s.close().then(() => process.exit(0)) }
   process.on('SIGINT', stop)
   process.on('SIGTERM', stop)

@@ -1,5 +1,5 @@
 // The libSQL test server (tests/support/libsql-http-server.ts) driven by the real @libsql/client over
-// http://, checked against two outside references: the same statements through @libsql/client's
+// http:// and ws://, checked against two outside references: the same statements through @libsql/client's
 // local-file mode (native SQLite, no server in between), and the Hrana 2/3 and HTTP API v2
 // specifications (docs/HRANA_2_SPEC.md, HRANA_3_SPEC.md, HTTP_V2_SPEC.md in tursodatabase/libsql)
 // for what goes over the wire.
@@ -235,6 +235,60 @@ describe('libSQL test server: idle streams and tokens', () => {
       withToken.close()
     }
     finally { await server.close() }
+  })
+})
+
+describe('libSQL test server over WebSocket (hrana2)', () => {
+  let server: LibsqlHttpServer
+  let ws: Client
+  const file = join(dir, 'ws.db')
+  beforeAll(async () => {
+    server = await startLibsqlHttpServer({ file, authToken: 'ws-token' })
+    ws = createClient({ url: server.wsUrl, authToken: 'ws-token' })
+    await ws.execute('create table parts (id integer primary key, serial text not null unique)')
+  })
+  afterAll(async () => { ws?.close(); await server?.close() })
+
+  it('round-trips every value type exactly as the local-file client does', async () => {
+    const local = createClient({ url: `file:${join(dir, 'reference-ws.db')}`, intMode: 'bigint' })
+    const remote = createClient({ url: server.wsUrl, authToken: 'ws-token', intMode: 'bigint' })
+    try {
+      const values = [-9007199254740993n, 0.25, 'µm ✓', new Uint8Array([0, 255]).buffer, null] as const
+      const stmt: InStatement = { sql: `select ${values.map(() => '?, typeof(?)').join(', ')}`, args: values.flatMap(v => [v, v]) as never }
+      const [a, b] = await Promise.all([local.execute(stmt), remote.execute(stmt)])
+      const plain = (r: typeof a) => Array.from({ length: r.rows[0]!.length }, (_, i) => { const v = r.rows[0]![i]; return v instanceof ArrayBuffer ? [...new Uint8Array(v)] : v })
+      expect(plain(b)).toEqual(plain(a))
+      expect(plain(b).filter((_, i) => i % 2 === 1)).toEqual(['integer', 'real', 'text', 'blob', 'null'])
+    }
+    finally { local.close(); remote.close() }
+  })
+
+  it('rolls a failed batch back, and a second stream on the same connection waits for a transaction to commit', async () => {
+    await expect(ws.batch([
+      { sql: 'insert into parts (serial) values (?)', args: ['W-1'] },
+      { sql: 'insert into parts (serial) values (?)', args: ['W-1'] },
+    ], 'write')).rejects.toMatchObject({ code: 'SQLITE_CONSTRAINT' })
+    expect(Number((await ws.execute('select count(*) from parts')).rows[0]![0])).toBe(0)
+    const tx = await ws.transaction('write')
+    await tx.execute({ sql: 'insert into parts (serial) values (?)', args: ['W-2'] })
+    const order: string[] = []
+    const waiting = ws.execute({ sql: 'insert into parts (serial) values (?)', args: ['W-3'] }).then(() => order.push('other'))
+    await new Promise(r => setTimeout(r, 100))
+    order.push('commit')
+    await tx.commit()
+    await waiting
+    expect(order).toEqual(['commit', 'other'])
+    const direct = new Database(file, { readonly: true })
+    try { expect(direct.prepare('select serial from parts order by id').raw(true).all()).toEqual([['W-2'], ['W-3']]) }
+    finally { direct.close() }
+    expect((server.stats.requests.open_stream ?? 0)).toBeGreaterThan(0)
+    expect(server.openStreams()).toBe(0)
+  })
+
+  it('refuses a wrong token with hello_error', async () => {
+    const bad = createClient({ url: server.wsUrl, authToken: 'not-it' })
+    await expect(bad.execute('select 1')).rejects.toMatchObject({ code: 'UNAUTHORIZED' })
+    bad.close()
   })
 })
 
