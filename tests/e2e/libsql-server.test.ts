@@ -111,3 +111,45 @@ describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
     expect(bad).toEqual([])
   })
 })
+
+// The same server over Hrana over WebSocket (what ws:// and wss:// URLs use): the short version.
+describe('Owlshift on a libSQL server over WebSocket (DATABASE_URL=ws://…)', () => {
+  let dataDir: string
+  let dbFile: string
+  let libsql: LibsqlHttpServer
+  let server: ServerProcess
+  let mqttUrl: string
+  let file: Client
+  const count = async (sql: string, ...args: (string | number)[]) => Number((await file.execute({ sql, args })).rows[0]![0])
+
+  beforeAll(async () => {
+    dataDir = mkdtempSync(join(tmpdir(), 'owlshift-libsql-ws-'))
+    dbFile = join(mkdtempSync(join(tmpdir(), 'owlshift-libsql-ws-server-')), 'plant.db')
+    libsql = await startLibsqlHttpServer({ file: dbFile, authToken: TOKEN })
+    const mqttPort = await freePort()
+    mqttUrl = `mqtt://127.0.0.1:${mqttPort}`
+    server = await startServer({ dataDir, port: await freePort(), env: { DATABASE_URL: libsql.wsUrl, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: String(mqttPort) } })
+    file = createClient({ url: `file:${dbFile}` })
+  })
+  afterAll(async () => {
+    if (process.env.OWLSHIFT_TEST_DEBUG) console.log(server?.log())
+    file?.close()
+    if (server) await killServer(server, 'SIGTERM')
+    await libsql?.close()
+  })
+
+  it('migrates, seeds, commits readings before their PUBACK, stores a redelivery once, and logs no error', async () => {
+    expect(await count('select count(*) from users')).toBe(demoShop.users.length)
+    const c = await machineClient(mqttUrl, 'cg-02', demoCredentials(dataDir)['cg-02']!.password)
+    await publishAcked(c, topicFor('cg-02', birth(1)), payloadOf(birth(1)))
+    for (let seq = 2; seq <= 8; seq++) {
+      await publishAcked(c, topicFor('cg-02', reading(seq, 0.1)), payloadOf(reading(seq, 0.1)))
+      expect(await count('select count(*) from readings where machine_id = ? and seq = ?', 'cg-02', seq)).toBe(1)
+    }
+    await publishAcked(c, topicFor('cg-02', reading(4, 0.1)), payloadOf(reading(4, 0.1)))
+    expect(await count(`select count(*) from readings where machine_id = 'cg-02'`)).toBe(7)
+    await c.endAsync()
+    expect(libsql.stats.requests.open_stream).toBeGreaterThan(0) // it really went over the WebSocket
+    expect(server.log().split('\n').filter(l => /"level":(40|50|60)/.test(l))).toEqual([])
+  })
+})

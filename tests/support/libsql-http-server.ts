@@ -18,8 +18,8 @@
 //   texts of ≤ 5 kB, as in sqld), get_autocommit (v3), close. POST /v3/cursor and the Protobuf
 //   endpoints answer 501. The bearer token (authToken) is checked on every HTTP request.
 // - WebSocket: subprotocol hrana2 (JSON); hello (token in `jwt`) → hello_ok / hello_error; requests
-//   open_stream, close_stream, execute, batch, sequence, store_sql / close_sql (per connection),
-//   answered by request_id. Hrana 3 over WebSocket (cursors, get_autocommit) is not offered.
+//   open_stream, close_stream, execute, batch, sequence, store_sql / close_sql (per connection, at
+//   most 150 texts, as in sqld), answered by request_id. Hrana 3 over WebSocket (cursors, get_autocommit) is not offered.
 // - Batches: conditions ok / error / not / and / or, and is_autocommit on v3.
 // - `describe` and unknown request types answer a Hrana error with code NOT_SUPPORTED.
 // - Values: null, integer (decimal string, 64-bit), float (JSON number), text, blob (base64);
@@ -79,8 +79,9 @@ class ProtocolError extends Error {}
 /** A request failed: reported in its result slot, the other requests go on. */
 class RequestError extends Error { constructor(message: string, readonly code: string) { super(message) } }
 
-const MAX_STORED_SQL = 50
-const MAX_STORED_SQL_BYTES = 5 * 1024
+const MAX_STORED_SQL_HTTP = 50
+const MAX_STORED_SQL_BYTES_HTTP = 5 * 1024
+const MAX_STORED_SQL_WS = 150
 const MAX_BODY_BYTES = 64 * 1024 * 1024
 const INT64 = /^-?\d{1,19}$/
 
@@ -300,12 +301,13 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
     }
   }
 
-  function storeSql(sqls: Map<number, string>, req: Json) {
+  /** sqld's limits: over HTTP 50 texts of at most 5 kB per stream, over WebSocket 150 per connection. */
+  function storeSql(sqls: Map<number, string>, req: Json, limit: { count: number, bytes?: number }) {
     const id = Number(req.sql_id)
     if (!Number.isInteger(id) || typeof req.sql !== 'string') throw new ProtocolError('store_sql needs an integer "sql_id" and a string "sql"')
     if (sqls.has(id)) throw new ProtocolError(`SQL text with id ${id} is already stored`)
-    if (sqls.size >= MAX_STORED_SQL) throw new RequestError(`The server already stores ${sqls.size} SQL texts, it cannot store more`, 'SQL_STORE_TOO_MANY')
-    if (Buffer.byteLength(req.sql) > MAX_STORED_SQL_BYTES) throw new RequestError(`The statement is too large to be stored: ${Buffer.byteLength(req.sql)} of ${MAX_STORED_SQL_BYTES} bytes`, 'SQL_STORE_TOO_LARGE')
+    if (sqls.size >= limit.count) throw new RequestError(`The server already stores ${sqls.size} SQL texts, it cannot store more`, 'SQL_STORE_TOO_MANY')
+    if (limit.bytes !== undefined && Buffer.byteLength(req.sql) > limit.bytes) throw new RequestError(`The statement is too large to be stored: ${Buffer.byteLength(req.sql)} of ${limit.bytes} bytes`, 'SQL_STORE_TOO_LARGE')
     sqls.set(id, req.sql)
   }
 
@@ -352,7 +354,7 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
         closeStream(s)
         return { type }
       case 'store_sql':
-        storeSql(s.sqls, req)
+        storeSql(s.sqls, req, { count: MAX_STORED_SQL_HTTP, bytes: MAX_STORED_SQL_BYTES_HTTP })
         return { type }
       case 'close_sql':
         s.sqls.delete(Number(req.sql_id))
@@ -453,7 +455,7 @@ export async function startLibsqlHttpServer(opts: LibsqlHttpServerOptions): Prom
             return
           }
           case 'store_sql':
-            storeSql(sqls, req)
+            storeSql(sqls, req, { count: MAX_STORED_SQL_WS })
             return answer(id, { type })
           case 'close_sql':
             sqls.delete(Number(req.sql_id))

@@ -285,6 +285,14 @@ describe('libSQL test server over WebSocket (hrana2)', () => {
     expect(server.openStreams()).toBe(0)
   })
 
+  it('keeps up to 150 stored SQL texts per connection, as sqld does (the client caches 100)', async () => {
+    // 120 distinct statements in one batch: the client stores 100 of them on the connection.
+    const stmts = Array.from({ length: 120 }, (_, i) => `select ${i} as n${i}`)
+    const results = await ws.batch(stmts, 'read')
+    expect(results.map(r => Number(r.rows[0]![0]))).toEqual(stmts.map((_, i) => i))
+    expect(server.stats.requests.store_sql).toBeGreaterThanOrEqual(100)
+  })
+
   it('refuses a wrong token with hello_error', async () => {
     const bad = createClient({ url: server.wsUrl, authToken: 'not-it' })
     await expect(bad.execute('select 1')).rejects.toMatchObject({ code: 'UNAUTHORIZED' })
