@@ -1,12 +1,17 @@
 // The overnight report against the simulator's ground truth, through the real server: the
 // simulator runs a short seeded scenario at high speed over MQTT into the embedded broker, then
 // the report's counts, scrap and scheduled downtime must equal what the simulator says it did.
-// Then the hand-over (notes, sign-off, audit), the parts CSV, bad input, and the screens.
+// Then the hand-over (notes, sign-off, audit), the parts and wheel-wear CSV, bad input, the screens,
+// and the shift-end summary e-mail through a local SMTP catcher (smtp-server + mailparser, the real
+// protocol) with a one-minute shift added to the plant calendar so that its end comes quickly.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { join } from 'node:path'
 import { writeFileSync } from 'node:fs'
 import { url } from '@nuxt/test-utils/e2e'
 import type { Client } from '@libsql/client'
+import { SMTPServer } from 'smtp-server'
+import { simpleParser, type ParsedMail } from 'mailparser'
+import type { AddressInfo } from 'node:net'
 import { setupOwlshift, demoCredentials, openTestDb, sessionCookie, demoUser, signedInPage, artifactsDir } from './harness'
 import { startSimulator } from '../../simulator/live'
 import { loadScenarioFile, parseScenario } from '../../simulator/scenario'
@@ -26,8 +31,21 @@ const scenario = parseScenario({
 const start = Date.parse(scenario.start)
 const end = start + 0.8 * H
 
+const inbox: { to: string[], mail: ParsedMail }[] = []
+const smtp = new SMTPServer({
+  authOptional: true, disabledCommands: ['STARTTLS'], logger: false,
+  onData(stream, session, done) { simpleParser(stream).then((mail) => { inbox.push({ to: session.envelope.rcptTo.map(r => r.address), mail }); done() }, done) },
+})
+await new Promise<void>(r => smtp.listen(0, '127.0.0.1', r))
+const smtpPort = (smtp.server.address() as AddressInfo).port
+
 describe('overnight report', async () => {
-  const owl = await setupOwlshift()
+  const owl = await setupOwlshift({
+    SMTP_URL: `smtp://127.0.0.1:${smtpPort}`,
+    SMTP_FROM: 'Owlshift <owlshift@larkspur.example>',
+    OWLSHIFT_PUBLIC_URL: 'https://owlshift.larkspur.example',
+    OWLSHIFT_SHIFT_SUMMARY_CHECK_S: '1',
+  })
   let db: Client
   let summary: Awaited<Awaited<ReturnType<typeof startSimulator>>['finished']>
   const cookies = new Map<string, string>()
@@ -53,7 +71,7 @@ describe('overnight report', async () => {
       await new Promise(r => setTimeout(r, 200))
     }
   }, 240_000)
-  afterAll(() => db?.close())
+  afterAll(async () => { db?.close(); await new Promise<void>(r => smtp.close(() => r())) })
 
   it('counts, scrap by reason and scheduled downtime equal the simulator ground truth', async () => {
     expect(summary.undelivered).toBe(0)
@@ -87,6 +105,23 @@ describe('overnight report', async () => {
     const readings = Number((await db.execute(`select count(*) n from readings where time >= ${start} and time < ${end}`)).rows[0]!.n)
     expect(lines.length).toBe(readings + 1)
     expect(lines[0]).toMatch(/^machine,part,gauged_at_utc,job,status,diameter_dev_um,offset_in_force_um,disposition/)
+  })
+
+  it('wheel wear: predicted and actual per machine in the JSON and as CSV', async () => {
+    const report = await (await call('viewer', 'GET', range)).json()
+    const worked = report.machines.filter((m: { compensation: { wheelWear: { range: { steps: number } } } }) => m.compensation.wheelWear.range.steps > 0)
+    expect(worked.length).toBeGreaterThan(0)
+    for (const m of worked) {
+      const w = m.compensation.wheelWear
+      expect(w.gain).toBeGreaterThan(0)
+      expect(w.range.differenceUmPerPart).toBeCloseTo(w.range.actualUmPerPart - w.range.predictedUmPerPart, 9)
+    }
+    const res = await call('viewer', 'GET', range.replace('/range?', '/wear.csv?'))
+    expect(res.status).toBe(200)
+    const lines = (await res.text()).trimEnd().split('\r\n')
+    expect(lines[0]).toBe('machine,scope,from_utc,to_utc,starts_at,ends_at,parts,predicted_um_per_part,actual_um_per_part,difference_um_per_part,predicted_um,actual_um,gain')
+    expect(lines.filter(l => /^cg-\d\d,range,/.test(l))).toHaveLength(report.machines.length)
+    expect((await call('viewer', 'GET', `/api/reports/wear.csv?cell=cell-a&from=${end}&to=${start}`)).status).toBe(400)
   })
 
   it('notes and the lead’s sign-off go into the report and the audit log; bad input is refused with the reason', async () => {
@@ -148,4 +183,47 @@ describe('overnight report', async () => {
       await page.close()
     }
   })
+  it('shift-end summary: a subscribed lead gets one e-mail with the link when a shift ends; bad input refused', async () => {
+    expect((await call('lead', 'PUT', '/api/reports/summary-subscription', { subscribed: 'yes' })).status).toBe(400)
+    const sub = await call('lead', 'PUT', '/api/reports/summary-subscription', { subscribed: true })
+    expect(sub.status).toBe(200)
+    expect(await sub.json()).toMatchObject({ subscribed: true, emailOn: true })
+    expect((await (await call('viewer', 'GET', '/api/reports/summary-subscription')).json()).subscribed).toBe(false)
+    expect(Number((await db.execute(`select count(*) n from audit_log where action = 'report.summary-subscription'`)).rows[0]!.n)).toBe(1)
+    // A one-minute shift ending at the next minute (at least 5 s away) in the plant's time zone.
+    const { calendar } = await (await call('viewer', 'GET', '/api/reports/shifts?cell=cell-a')).json()
+    let endAt = Math.ceil((Date.now() + 1) / MIN) * MIN
+    if (endAt - Date.now() < 5000) endAt += MIN
+    const hhmm = (ms: number) => new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZone: calendar.timeZone }).format(ms)
+    const shifts = [...calendar.shifts, { id: 'check', name: 'Hand-over check', start: hhmm(endAt - MIN), end: hhmm(endAt) }]
+    expect((await call('engineer', 'PUT', '/api/reports/calendar', { shifts })).status).toBe(200)
+    try {
+      const mine = () => inbox.filter(m => /Hand-over check/.test(m.mail.subject ?? ''))
+      for (let i = 0; i < 150 && !mine().length; i++) await new Promise(r => setTimeout(r, 500))
+      expect(mine()).toHaveLength(1)
+      const got = mine()[0]!
+      expect(Date.now()).toBeGreaterThanOrEqual(endAt) // not before the shift ended
+      expect(got.to).toEqual([demoUser('lead').email])
+      const date = new Intl.DateTimeFormat('en-CA', { timeZone: calendar.timeZone }).format(endAt - MIN)
+      expect(got.mail.text).toContain(`Report: https://owlshift.larkspur.example/report/cell-a/check/${date}`)
+      expect(got.mail.text).toMatch(/Parts: \d+ made, \d+ good, \d+ scrap/)
+      // once: three more checks (1 s apart) send nothing more
+      await new Promise(r => setTimeout(r, 3500))
+      expect(mine()).toHaveLength(1)
+      const row = (await db.execute(`select status, recipients, failed from shift_summary_sends where shift_id = 'check'`)).rows
+      expect(row.map(r => [r.status, Number(r.recipients), Number(r.failed)])).toEqual([['sent', 1, 0]])
+      expect(Number((await db.execute(`select count(*) n from audit_log where action = 'report.shift-summary' and target = 'shift:cell-a/check/${date}'`)).rows[0]!.n)).toBe(1)
+    }
+    finally {
+      await call('engineer', 'PUT', '/api/reports/calendar', { shifts: calendar.shifts })
+    }
+    // the subscription field on the Me page
+    for (const [name, viewport] of [['desktop', { width: 1440, height: 900 }], ['phone', { width: 390, height: 844 }]] as const) {
+      const page = await signedInPage('lead', viewport)
+      await page.goto(url('/me'), { waitUntil: 'networkidle' })
+      expect(await page.locator('[data-test="summary-subscribed"]').isChecked()).toBe(true)
+      await page.screenshot({ path: `${artifactsDir}/me-summary-${name}.png`, fullPage: true })
+      await page.close()
+    }
+  }, 150_000)
 })
