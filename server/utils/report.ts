@@ -682,7 +682,7 @@ function gainOf(tunings: Tuning[], machineId: string, jobId: number | null): { g
     const g = t?.settings.gain
     if (typeof g === 'number' && g > 0) return { gain: g, source }
   }
-  return { gain: DEFAULT_GAIN, source: 'the engine\'s default gain (no tuning sets one)' }
+  return { gain: DEFAULT_GAIN, source: 'the engine default: no tuning sets a gain' }
 }
 
 /** "hold: dress: waiting for post-dress parts (3 parts)" → "dress". */
