@@ -62,6 +62,33 @@ export interface ReportCapability {
   runRules: { rule: SpcRunRule; text: string; count: number; first: { part: number; time: number } }[]
 }
 
+/**
+ * What is left of readings older than the retention (server/utils/retention.ts): hourly count, sum,
+ * sum of squares, min and max per machine and job. Enough for the count, mean and overall σ (hence
+ * Pp, Ppk); σ within (Cp, Cpk), run rules and the size chart need the parts in order and are gone.
+ */
+export interface ReportFolded {
+  machineId: string
+  partNumber: string | null
+  /** hours that start inside the range (a summary cannot be cut inside its hour) */
+  hours: number
+  firstHour: number
+  lastHour: number
+  /** readings with a diameter, and those without (gauge fault, over range) */
+  n: number
+  gaugeFaults: number
+  mean: number | null
+  sigmaOverall: number | null
+  sigmaOverallMethod: string
+  min: number | null
+  max: number | null
+  lsl: number | null
+  usl: number | null
+  pp: number | null
+  ppk: number | null
+  note: string
+}
+
 export interface ReportCompensation {
   offsetsApplied: number
   offsetsRejected: number
@@ -102,6 +129,8 @@ export interface ReportMachine {
   repairs: KpiRepair[]
   mttrMs: number | null
   capability: ReportCapability[]
+  /** readings of the range already folded into hourly summaries by retention, per job */
+  folded: ReportFolded[]
   compensation: ReportCompensation
   chart: ReportChart
 }
@@ -128,6 +157,8 @@ export interface ReportAlarms {
 
 export interface ReportCompleteness {
   readings: number
+  /** readings of the range folded into hourly summaries by retention (no longer stored one by one) */
+  foldedReadings: number
   missingSequenceNumbers: number
   gaps: { machineId: string; fromSeq: number; toSeq: number; detectedAt: number }[]
   disconnections: { machineId: string; at: number; reason: string | null; backAt: number | null }[]
@@ -193,7 +224,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   // Bulk columns come back as one concatenated text per machine (and job): libSQL turns each row
   // into an object, which costs more than the query itself when a night has 20,000 parts.
   const US = '\u001f' // unit separator: never inside a number or a stored JSON text
-  const [jobs, readingLists, unloaded, marked, births, ackLists, ackOther] = await Promise.all([
+  const [jobs, readingLists, unloaded, marked, births, ackLists, ackOther, hourLists] = await Promise.all([
     db.select().from(schema.jobs),
     db.all<{ m: string; jobs: string; seqs: string; parts: string; offs: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
       select machine_id as m, group_concat(coalesce(job_part_number, ''), ${US}) as jobs,
@@ -224,6 +255,11 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     db.all<{ m: string; type: string; n: number }>(sql`
       select machine_id as m, type, count(*) as n from machine_messages
       where machine_id in ${idList} and type in ('offset:rejected', 'offset:expired') and time >= ${from} and time < ${to} group by 1, 2`),
+    // hourly summaries of readings older than the retention (their raw rows are gone)
+    db.all<{ m: string; job: string; hours: number; n: number; faults: number; s: number; ss: number; lo: number | null; hi: number | null; first: number; last: number }>(sql`
+      select machine_id as m, job_part_number as job, count(*) as hours, sum(n) as n, sum(faults) as faults, sum(sum_um) as s, sum(sum_sq_um) as ss,
+        min(min_um) as lo, max(max_um) as hi, min(hour_start) as first, max(hour_start) as last
+      from reading_hours where machine_id in ${idList} and hour_start >= ${from} and hour_start < ${to} group by 1, 2 order by 1, first`),
   ])
   // Columns, not one object per reading: a week is 300,000 readings, and objects cost more
   // (allocation and garbage collection) than everything computed from them.
@@ -352,7 +388,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
       id: m.id, name: m.name, partNumbers: [...byJob.keys()].filter(Boolean),
       produced, good, scrap: scrapCount, scrapByReason,
       kpiInputs, kpi, downtime: tm.downtime, repairs: tm.repairs, mttrMs: kpiMttr(tm.repairs.map((r) => r.to - r.from)),
-      capability, compensation: comp, chart,
+      capability, folded: hourLists.filter((h) => h.m === m.id).map((h) => foldedOf(h, jobInfo(h.job || (birth?.job?.partNumber ?? '')))), compensation: comp, chart,
     }
   })
 
@@ -363,7 +399,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
 
   const [alarms, completeness, notes, signoffs] = await Promise.all([
     alarmsOf(db, ids, from, to, !scope.machineId),
-    completenessOf(db, ids, from, to, readingCount),
+    completenessOf(db, ids, from, to, readingCount, hourLists.reduce((a, h) => a + Number(h.n) + Number(h.faults), 0)),
     notesOf(db, ids, from, to, !scope.machineId),
     scope.shift ? signoffsOf(db, scope.cellId, scope.shift) : Promise.resolve([]),
   ])
@@ -557,6 +593,27 @@ function capabilityOf(machineId: string, partNumber: string | null, mr: ReadingC
   return { ...out, ...c }
 }
 
+/**
+ * Count, mean and overall σ of folded readings from their sums: mean = Σx/n, s² = (Σx² − (Σx)²/n)/(n − 1)
+ * (the computational form of the sample variance; the folds keep no values to do two passes).
+ */
+function foldedOf(h: { m: string; job: string; hours: number; n: number; faults: number; s: number; ss: number; lo: number | null; hi: number | null; first: number; last: number }, tol: { lsl: number; usl: number } | null): ReportFolded {
+  const n = Number(h.n)
+  const mean = n ? Number(h.s) / n : null
+  const variance = n > 1 ? Math.max(0, (Number(h.ss) - (Number(h.s) * Number(h.s)) / n) / (n - 1)) : null
+  const sigma = variance === null ? null : Math.sqrt(variance)
+  // Pp and Ppk by the one formula (spcCapability); its Cp/Cpk are not used: there is no σ within here
+  const c = tol && mean !== null && sigma !== null && sigma > 0 ? spcCapability({ mean, withinSigma: sigma, overallSigma: sigma, usl: tol.usl, lsl: tol.lsl }) : null
+  const indices = { pp: c?.pp ?? null, ppk: c?.ppk ?? null }
+  return {
+    machineId: h.m, partNumber: h.job || null, hours: Number(h.hours), firstHour: Number(h.first), lastHour: Number(h.last),
+    n, gaugeFaults: Number(h.faults), mean, sigmaOverall: sigma,
+    sigmaOverallMethod: 'overall: sample standard deviation from the hourly sums (n − 1)',
+    min: h.lo === null ? null : Number(h.lo), max: h.hi === null ? null : Number(h.hi), lsl: tol?.lsl ?? null, usl: tol?.usl ?? null, ...indices,
+    note: n < 2 ? 'fewer than two measured parts' : !tol ? 'no tolerance known for this job' : 'folded by retention: σ within, Cp, Cpk, run rules and the chart need the parts one by one',
+  }
+}
+
 type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
 
 function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }, slopes: Float64Array | null, gain: { gain: number; source: string }) {
@@ -735,7 +792,7 @@ async function alarmsOf(db: ReportDb, ids: string[], from: number, to: number, i
   }
 }
 
-async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number): Promise<ReportCompleteness> {
+async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number, foldedReadings: number): Promise<ReportCompleteness> {
   const idList = ids.length ? ids : ['\u0000']
   const [gaps, presence, dead] = await Promise.all([
     db.select().from(schema.sequenceGaps).where(and(inArray(schema.sequenceGaps.machineId, idList), gte(schema.sequenceGaps.detectedAt, from), lt(schema.sequenceGaps.detectedAt, to))).orderBy(asc(schema.sequenceGaps.detectedAt)),
@@ -759,6 +816,7 @@ async function completenessOf(db: ReportDb, ids: string[], from: number, to: num
   }
   return {
     readings: readingCount,
+    foldedReadings,
     missingSequenceNumbers: gaps.reduce((a, g) => a + g.toSeq - g.fromSeq + 1, 0),
     gaps: gaps.map((g) => ({ machineId: g.machineId, fromSeq: g.fromSeq, toSeq: g.toSeq, detectedAt: g.detectedAt })),
     disconnections,

@@ -218,3 +218,66 @@ describe('reading columns are parsed without a string per number', () => {
     }), { seed: 9, numRuns: 300 })
   })
 })
+
+describe('a range older than the retention: the report reads the hourly summaries', () => {
+  // The real fold (server/utils/retention.ts) runs on the fixture; it reaches the database through
+  // Nitro's auto-imported useDb()/schema, given here as globals.
+  let fx: ReportFixture
+  let raw: Report
+  let values: Map<string, number[]>
+  let faults: Map<string, number>
+  let total: number
+  beforeAll(async () => {
+    fx = await openReportFixture()
+    await seedCell(fx, scenario, 4, 'Europe/Berlin')
+    await simulateInto(fx, { scenario, seed: 5, machines: 4, hours: 10 })
+    raw = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 10 * H })
+    const rows = await fx.db.select().from(schema.readings)
+    total = rows.length
+    values = new Map()
+    faults = new Map()
+    for (const r of rows) {
+      const k = `${r.machineId}/${r.jobPartNumber ?? ''}`
+      if (r.diameterUm === null) faults.set(k, (faults.get(k) ?? 0) + 1)
+      else values.set(k, [...(values.get(k) ?? []), r.diameterUm])
+    }
+    Object.assign(globalThis, { useDb: () => fx.db, schema })
+    const { foldOldReadings } = await import('../../server/utils/retention')
+    const { folded } = await foldOldReadings(1, Date.now() + 400 * 86_400_000)
+    expect(folded).toBe(total)
+  }, 60_000)
+  afterAll(() => fx?.close())
+
+  it('counts, scrap and downtime are unchanged (they come from the machine messages)', async () => {
+    const old = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 10 * H })
+    expect(old.totals).toEqual(raw.totals)
+    expect(old.completeness.readings).toBe(0)
+    expect(old.completeness.foldedReadings).toBe(total)
+  })
+
+  it('the SQL-aggregated capability (count, mean, σ overall, Pp, Ppk) equals simple-statistics on the same parts', async () => {
+    const old = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 10 * H })
+    let checked = 0
+    for (const m of old.machines) {
+      expect(m.capability).toEqual([]) // no raw parts left: no σ within, Cp, Cpk or run rules
+      for (const f of m.folded) {
+        const xs = values.get(`${m.id}/${f.partNumber ?? ''}`) ?? []
+        expect(f.n).toBe(xs.length)
+        expect(f.gaugeFaults).toBe(faults.get(`${m.id}/${f.partNumber ?? ''}`) ?? 0)
+        if (xs.length < 2) continue
+        // oracle: simple-statistics (npm registry), two-pass mean and sample standard deviation
+        expect(f.mean!).toBeCloseTo(ssMean(xs), 9)
+        expect(f.sigmaOverall! / sampleStandardDeviation(xs)).toBeCloseTo(1, 9)
+        expect(f.min).toBe(Math.min(...xs))
+        expect(f.max).toBe(Math.max(...xs))
+        // Pp = (USL − LSL) / 6σ, Ppk = min(USL − x̄, x̄ − LSL) / 3σ (ISO 22514-2)
+        expect(f.pp!).toBeCloseTo((f.usl! - f.lsl!) / (6 * sampleStandardDeviation(xs)), 9)
+        expect(f.ppk!).toBeCloseTo(Math.min(f.usl! - ssMean(xs), ssMean(xs) - f.lsl!) / (3 * sampleStandardDeviation(xs)), 9)
+        expect(f.note).toMatch(/σ within, Cp, Cpk/)
+        checked++
+      }
+      expect(m.folded.reduce((a, f) => a + f.hours, 0)).toBeGreaterThan(0)
+    }
+    expect(checked).toBeGreaterThanOrEqual(3)
+  })
+})
