@@ -60,7 +60,9 @@ async function flood(clients: MqttClient[], firstSeq: number, perMachine: number
 }
 
 async function startOwlshift(dataDir: string, port: number, mqttPort: number): Promise<ChildProcess> {
-  const child = spawn(process.execPath, ['.output/server/index.mjs'], {
+  // BENCH_NODE_ARGS (e.g. --cpu-prof) goes to the server's node, for profiling.
+  const nodeArgs = (process.env.BENCH_NODE_ARGS ?? '').split(' ').filter(Boolean)
+  const child = spawn(process.execPath, [...nodeArgs, '.output/server/index.mjs'], {
     env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'bench-session-password-long-enough-1234', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort) },
     stdio: ['ignore', 'inherit', 'pipe'],
   })
@@ -69,6 +71,19 @@ async function startOwlshift(dataDir: string, port: number, mqttPort: number): P
     child.once('exit', code => reject(new Error(`server exited ${code}`)))
   })
   return child
+}
+
+/** One counter from the server's Prometheus text at /metrics. */
+async function counter(port: number, name: string): Promise<number> {
+  const text = await (await fetch(`http://127.0.0.1:${port}/api/metrics`)).text()
+  const line = text.split('\n').find(l => l.startsWith(`${name} `))
+  return line ? Number(line.split(' ')[1]) : Number.NaN
+}
+
+/** CPU time (user + system) the process has used so far, in ms (from /proc; clock ticks of 10 ms). */
+function cpuMs(pid: number): number {
+  const fields = readFileSync(`/proc/${pid}/stat`, 'utf8').split(') ')[1]!.split(' ')
+  return (Number(fields[11]) + Number(fields[12])) * 10
 }
 
 function rssMiB(pid: number): number {
@@ -102,8 +117,14 @@ async function main() {
     await flood(clients, 2, 5_000) // warm-up: engines learning, JIT
     const rssStart = rssMiB(server.pid!)
     console.log('throughput…')
+    const only = process.env.BENCH_ONLY // profiling runs: one phase, no doc written
+    const cpuBefore = cpuMs(server.pid!)
+    const commitsBefore = await counter(port, 'owlshift_commits_total')
     const sustained = await flood(clients, 10_000, 50_000)
-    console.log(`  ${sustained.toFixed(0)} readings/s through Owlshift`)
+    const cpuPerReadingUs = ((cpuMs(server.pid!) - cpuBefore) * 1000) / (50_000 * clients.length)
+    const perCommit = (50_000 * clients.length) / (await counter(port, 'owlshift_commits_total') - commitsBefore)
+    console.log(`  ${sustained.toFixed(0)} readings/s through Owlshift; server CPU ${cpuPerReadingUs.toFixed(0)} µs per reading; ${perCommit.toFixed(0)} readings per commit`)
+    if (only === 'throughput') return
 
     console.log('latency at 500 readings/s…')
     const latencies: number[] = []
@@ -129,6 +150,9 @@ async function main() {
     latencies.sort((a, b) => a - b)
     const pct = (p: number) => latencies[Math.min(latencies.length - 1, Math.floor(p * latencies.length))]!
     console.log(`  p50 ${pct(0.5).toFixed(1)} ms, p99 ${pct(0.99).toFixed(1)} ms`)
+    const commitP99 = await counter(port, 'owlshift_commit_seconds{quantile="0.99"}')
+    console.log(`  server side: commit p99 ${(commitP99 * 1000).toFixed(1)} ms (last 1,000 commits)`)
+    if (only === 'latency') return
 
     console.log('memory over a million readings…')
     seq = 400_000
@@ -166,6 +190,7 @@ RSS samples (readings: MiB): ${samples.map(([n, m]) => `${n / 1000}k: ${m.toFixe
   }
   finally {
     server.kill('SIGTERM')
+    await new Promise(r => server.once('exit', r))
   }
 }
 

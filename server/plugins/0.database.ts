@@ -1,7 +1,8 @@
 // Opens the database, applies migrations and (for the demo) seeds the shop before any request
 // is served: server/middleware/0.ready.ts waits on `databaseReady`.
 import { useOwlshiftConfig, ConfigError } from '../utils/config'
-import { openDatabase, useDbClient, closeDatabase } from '../utils/db'
+import { openDatabase, useDbClient, closeDatabase, databaseFilePath } from '../utils/db'
+import { openNativeWriter } from '../utils/write-batch'
 import { applyMigrations, type MigrationFile } from '../database/migrate'
 import { seedDemoShop } from '../database/seed-demo'
 
@@ -27,6 +28,8 @@ export default defineNitroPlugin(async (nitroApp) => {
     const applied = await applyMigrations(useDbClient(), await loadMigrationFiles())
     if (applied) log.info(`[owlshift] applied ${applied} database migration(s)`)
     if (config.seedDemo && await seedDemoShop(db, hashPassword)) log.info('[owlshift] created the demo shop')
+    const file = databaseFilePath(config.databaseUrl)
+    if (file) openNativeWriter(file)
     resolveReady()
   }
   catch (err) {

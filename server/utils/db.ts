@@ -6,6 +6,7 @@ import { dirname } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import * as schema from '../database/schema'
 import { ConfigError, type OwlshiftConfig } from './config'
+import { closeNativeWriter } from './write-batch'
 
 export type Db = LibSQLDatabase<typeof schema>
 export { schema }
@@ -51,6 +52,7 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
   return db
 }
 
+
 export function useDb(): Db {
   if (!db) throw new Error('The database is not open yet (server/plugins/database.ts opens it at start).')
   return db
@@ -62,6 +64,7 @@ export function useDbClient(): Client {
 }
 
 export function closeDatabase() {
+  closeNativeWriter()
   client?.close()
   client = undefined
   db = undefined

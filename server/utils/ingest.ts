@@ -63,7 +63,7 @@ function commandId(machineId: string, seq: number, type: string) { return `${mac
 /** The offset command (or dress / hold) a decision calls for, in the contract's shape. */
 function commandsFor(decision: CompensationDecision, machineId: string, seq: number, machineTimeMs: number, cycleTimeS: number): CommandMessage[] {
   const issuedAt = new Date(machineTimeMs).toISOString()
-  const expiresAt = new Date(machineTimeMs + Math.max(60, 3 * cycleTimeS) * 1000).toISOString()
+  const expiresAt = new Date(machineTimeMs + commandLifeMs(cycleTimeS)).toISOString()
   const out: CommandMessage[] = []
   const reason = decision.reason.slice(0, 200)
   if (decision.command) out.push({ kind: 'command', type: 'offset', id: commandId(machineId, seq, 'offset'), issuedAt, expiresAt, offsetUm: round3(decision.command.newOffsetUm), reason })
@@ -72,7 +72,12 @@ function commandsFor(decision: CompensationDecision, machineId: string, seq: num
   return out
 }
 
+/** How long a machine may act on a command: three cycles, at least a minute. */
+const commandLifeMs = (cycleTimeS: number) => Math.max(60, 3 * cycleTimeS) * 1000
+
 const round3 = (x: number) => Math.round(x * 1000) / 1000
+
+const ENGINE_ALARM_CODES = ['budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const
 
 function actionOf(d: CompensationDecision): string {
   if (d.stop) return 'stop'
@@ -195,10 +200,13 @@ export class IngestPipeline {
     }
 
     // 3. Apply, machine by machine, on working copies (memory changes only after the commit).
-    const work = new Map<string, { ctx: MachineContext, status: StatusRow, engine: CompensationState | null, changed: boolean }>()
+    const work = new Map<string, { ctx: MachineContext, status: StatusRow, engine: CompensationState | null, changed: boolean, outstanding: OutstandingCommands, reported: Map<string, boolean> }>()
     const workFor = (ctx: MachineContext) => {
       let w = work.get(ctx.id)
-      if (!w) { w = { ctx, status: { ...ctx.status, activeFaults: [...ctx.status.activeFaults] }, engine: ctx.engine, changed: false }; work.set(ctx.id, w) }
+      if (!w) {
+        w = { ctx, status: { ...ctx.status, activeFaults: [...ctx.status.activeFaults] }, engine: ctx.engine, changed: false, outstanding: { ...ctx.outstanding }, reported: new Map(ctx.reportedConditions) }
+        work.set(ctx.id, w)
+      }
       return w
     }
     let duplicates = 0
@@ -232,16 +240,24 @@ export class IngestPipeline {
       }
       const record = (decision: CompensationDecision | null, seq: number) => {
         if (!decision || decision.kind === 'ignored') return
-        const cmds = commandsFor(decision, ctx.id, seq, time, st.cycleTimeS ?? 20)
+        const cmds = commandsFor(decision, ctx.id, seq, time, st.cycleTimeS ?? 20).filter((c) => {
+          // A dress or hold stays due part after part until the machine does it: ask once, and
+          // again only when the machine has answered or the request has run out.
+          if (c.type !== 'dress' && c.type !== 'hold') return true
+          const earlier = w.outstanding[c.type]
+          return !earlier || earlier.expiresAt <= now
+        })
         decisionRows.push({
           machineId: ctx.id, seq, at: now, action: actionOf(decision), correctionUm: decision.command?.correctionUm ?? null,
           offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason: decision.reason, inputs: decision.inputs,
           alerts: decision.alerts.length ? decision.alerts : null,
         })
         for (const c of cmds) {
-          commandRows.push({ id: c.id, machineId: ctx.id, type: c.type, origin: 'engine', payload: c, issuedAt: now, expiresAt: now + (msOf(c.expiresAt) - msOf(c.issuedAt)), status: 'sent', requestedOffsetUm: c.type === 'offset' ? c.offsetUm : null })
+          const expiresAt = now + commandLifeMs(st.cycleTimeS ?? 20)
+          commandRows.push({ id: c.id, machineId: ctx.id, type: c.type, origin: 'engine', payload: c, issuedAt: now, expiresAt, status: 'sent', requestedOffsetUm: c.type === 'offset' ? c.offsetUm : null })
           effects.commands.push({ cellId: ctx.cellId, machineId: ctx.id, command: c })
           if (c.type === 'offset') st.requestedOffsetUm = c.offsetUm
+          else if (c.type === 'dress' || c.type === 'hold') w.outstanding[c.type] = { id: c.id, expiresAt }
         }
         const eng = w.engine
         st.prediction = {
@@ -253,15 +269,20 @@ export class IngestPipeline {
             halfToleranceUm: (eng.settings.upperSpecUm - eng.settings.lowerSpecUm) / 2, stopRequested: decision.stop,
           }) : decision.prediction.minutesToSpecLimit,
         }
-        const codes = new Set(decision.alerts.map(a => a.code))
         // The engine's own "trend nears limit" stays advisory (decision log, cards); the alarm that
         // wakes people is "size will meet tolerance soon", raised from minutesAtRisk by notify.ts.
-        for (const code of ['budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const) {
+        for (const code of ENGINE_ALARM_CODES) {
           const alert = decision.alerts.find(a => a.code === code)
-          effects.conditions.push({ machineId: ctx.id, condition: `engine:${code}`, active: codes.has(code), message: alert ? `${ctx.name}: ${alert.message}` : '', at: now })
+          reportCondition(`engine:${code}`, !!alert, () => `${ctx.name}: ${alert!.message}`)
         }
-        effects.conditions.push({ machineId: ctx.id, condition: 'engine:stop-requested', active: decision.stop, message: `${ctx.name}: the engine asks to stop — ${decision.reason}`, at: now })
+        reportCondition('engine:stop-requested', decision.stop, () => `${ctx.name}: the engine asks to stop — ${decision.reason}`)
         effects.live.push({ type: 'decision', machineId: ctx.id, seq, action: actionOf(decision), reason: decision.reason, offsetUm: decision.offsetUm, correctionUm: decision.command?.correctionUm ?? null })
+      }
+      /** Tells the alarm engine about an engine condition when it changes (every part would be thousands of no-ops a second). */
+      const reportCondition = (condition: string, active: boolean, message: () => string) => {
+        if (w.reported.get(condition) === active && !active) return
+        w.reported.set(condition, active)
+        effects.conditions.push({ machineId: ctx.id, condition, active, message: active ? message() : '', at: now })
       }
       const startEngine = (job: JobInfo | null, offsetUm: number, pipeline?: number) => {
         try { w.engine = newEngine(compensationSettingsFor(job, ctx.job, pipeline, st.cycleTimeS ?? undefined, ctx.tuning), offsetUm) }
@@ -320,6 +341,7 @@ export class IngestPipeline {
       }
       else if (message.kind === 'ack') {
         commandUpdates.push({ id: message.commandId, set: { status: message.result, appliedOffsetUm: message.offsetUm, ackAt: now, ackReason: message.reason ?? null } })
+        for (const type of ['dress', 'hold'] as const) if (w.outstanding[type]?.id === message.commandId) delete w.outstanding[type]
         st.appliedOffsetUm = message.offsetUm
         if (message.result === 'applied' && message.command === 'offset') record(step({ type: 'offset-applied', offsetUm: message.offsetUm, time }, message.seq), message.seq)
         effects.live.push({ type: 'command', machineId: ctx.id, id: message.commandId, command: message.command, status: message.result })
@@ -330,7 +352,10 @@ export class IngestPipeline {
           case 'pallet_change': st.blanksLeft = message.blanks; break
           case 'part_ground': st.lastCycleAt = time; break
           case 'part_unloaded': if (message.disposition === 'good') st.partsGood++; else st.partsScrap++; break
-          case 'dress': record(step({ type: 'dress', time }, message.seq), message.seq); break
+          case 'dress':
+            delete w.outstanding.dress // whoever asked, the wheel is dressed
+            record(step({ type: 'dress', time }, message.seq), message.seq)
+            break
           case 'wheel_change': record(step({ type: 'wheel-change', time }, message.seq), message.seq); break
           case 'mastering': record(step({ type: 'mastered', time }, message.seq), message.seq); break
           case 'job_change':
@@ -365,12 +390,14 @@ export class IngestPipeline {
     }
     const changed = [...work.values()].filter(w => w.changed)
     statements.push(...insertStatements(schema.machineStatus, changed.map(w => ({ ...w.status, engineState: w.engine, updatedAt: now })), { onConflict: { update: 'machineId' } }))
-    if (statements.length) await useDbClient().batch(statements, 'write')
+    await writeBatch(statements)
 
     // 5. Committed: memory follows, counters move.
     for (const w of changed) {
       w.ctx.status = { ...w.status, engineState: null, updatedAt: now }
       w.ctx.engine = w.engine
+      w.ctx.outstanding = w.outstanding
+      w.ctx.reportedConditions = w.reported
       effects.live.push({ type: 'status', machineId: w.ctx.id, status: publicStatus(w.ctx) })
     }
     for (const d of dead) if (d.machineId) effects.conditions.push({ machineId: d.machineId, condition: 'link:bad-data', active: true, message: `bad data from ${d.machineId}: ${d.reason}`, at: now })

@@ -18,7 +18,13 @@ export interface MachineContext {
   engine: CompensationState | null
   /** the active compensation settings version for this machine's job (null: engine defaults) */
   tuning: CompensationTuning | null
+  /** dress and hold commands sent and not yet answered, so a due dress is asked for once, not every part (memory only) */
+  outstanding?: OutstandingCommands
+  /** the last state ingest reported to the alarm engine for each engine condition (memory only) */
+  reportedConditions?: Map<string, boolean>
 }
+
+export type OutstandingCommands = Partial<Record<'dress' | 'hold', { id: string, expiresAt: number }>>
 
 const registry = new Map<string, MachineContext>()
 
@@ -60,7 +66,7 @@ export async function refreshMachineContext(id: string) {
   const [job] = m.currentJobId ? await db.select().from(schema.jobs).where(eq(schema.jobs.id, m.currentJobId)) : []
   const prev = registry.get(id)
   const tuning = job ? await activeTuningFor(job.id, id) : null
-  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning })
+  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning, outstanding: prev?.outstanding, reportedConditions: prev?.reportedConditions })
 }
 
 /**
