@@ -3,7 +3,8 @@
 // Both figures are µm of part DIAMETER per part ground, the way wear shows on the parts:
 //   predicted — what the compensation engine believed while grinding: its slope estimate (the
 //               drift of the disturbance r = y − gain·u per part, shared/utils/compensation.ts),
-//               averaged over the interval's readings.
+//               averaged over the interval's readings. Only the drift strategy estimates a
+//               slope; under step or ewma it stays 0, so predicted reads 0.
 //   actual    — what the offsets really did: the net movement of the offset in force from the
 //               first to the last part of the interval, turned into diameter by the model gain and
 //               with the sign of wear (the offset moves down to undo parts growing):
