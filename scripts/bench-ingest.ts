@@ -119,11 +119,13 @@ async function main() {
     console.log('throughput…')
     const only = process.env.BENCH_ONLY // profiling runs: one phase, no doc written
     const cpuBefore = cpuMs(server.pid!)
+    const clientCpuBefore = cpuMs(process.pid)
     const commitsBefore = await counter(port, 'owlshift_commits_total')
     const sustained = await flood(clients, 10_000, 50_000)
     const cpuPerReadingUs = ((cpuMs(server.pid!) - cpuBefore) * 1000) / (50_000 * clients.length)
+    const clientCpuPerReadingUs = ((cpuMs(process.pid) - clientCpuBefore) * 1000) / (50_000 * clients.length)
     const perCommit = (50_000 * clients.length) / (await counter(port, 'owlshift_commits_total') - commitsBefore)
-    console.log(`  ${sustained.toFixed(0)} readings/s through Owlshift; server CPU ${cpuPerReadingUs.toFixed(0)} µs per reading; ${perCommit.toFixed(0)} readings per commit`)
+    console.log(`  ${sustained.toFixed(0)} readings/s through Owlshift; server CPU ${cpuPerReadingUs.toFixed(0)} µs per reading (benchmark clients ${clientCpuPerReadingUs.toFixed(0)} µs); ${perCommit.toFixed(0)} readings per commit`)
     if (only === 'throughput') return
 
     console.log('latency at 500 readings/s…')

@@ -3,14 +3,16 @@
 import { databaseReady } from './0.database'
 
 export default defineNitroPlugin((nitroApp) => {
-  const { maintenance } = useOwlshiftConfig()
+  const { maintenance, databaseUrl } = useOwlshiftConfig()
   const timers: NodeJS.Timeout[] = []
   const every = (ms: number, job: () => Promise<unknown>, what: string) => {
     const t = setInterval(() => { databaseReady.then(job).catch(err => log.error(`[maintenance] ${what} failed: ${(err as Error).message}`)) }, ms)
     t.unref()
     timers.push(t)
   }
-  if (maintenance.backupEveryH > 0) {
+  if (maintenance.backupEveryH > 0 && !databaseFilePath(databaseUrl))
+    log.info('[maintenance] no scheduled backups: the database is on a libSQL server, which keeps its own')
+  else if (maintenance.backupEveryH > 0) {
     every(maintenance.backupEveryH * 3_600_000, async () => {
       const f = await backupDatabase(maintenance.backupKeep)
       log.info(`[maintenance] backup ${f.name} (${(f.bytes / 1e6).toFixed(1)} MB)`)

@@ -32,7 +32,8 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
       throw new ConfigError(`Owlshift cannot start: the data folder "${dir}" is not writable (${(err as Error).message}). Set OWLSHIFT_DATA_DIR to a folder this user may write, or fix its permissions.`)
     }
   }
-  const c = createClient({ url: config.databaseUrl, authToken: config.databaseAuthToken })
+  const raw = createClient({ url: config.databaseUrl, authToken: config.databaseAuthToken })
+  const c = file ? reconnectAfterBusy(raw) : raw
   try {
     if (file) {
       // WAL lets readers go on while ingest writes; the busy timeout rides out short lock waits.
@@ -52,6 +53,33 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
   return db
 }
 
+
+/**
+ * On a local file, a statement refused with SQLITE_BUSY (another process held the write lock past
+ * the busy timeout) is left unfinished by the native driver under @libsql/client 0.18, and the
+ * writes that follow on that connection report success but are thrown away with the next batch.
+ * A fresh set of connections after such a refusal keeps them. Safe here: no transaction in this
+ * process is held across an await, so no other call has a connection borrowed at that moment.
+ */
+export function reconnectAfterBusy(c: Client): Client {
+  const guarded = <A extends unknown[], R>(fn: (...args: A) => Promise<R>) => async (...args: A): Promise<R> => {
+    try { return await fn.apply(c, args) }
+    catch (err) {
+      if (String((err as { code?: unknown }).code ?? '').startsWith('SQLITE_BUSY')) await c.reconnect()
+      throw err
+    }
+  }
+  const execute = guarded(c.execute)
+  const batch = guarded(c.batch)
+  return new Proxy(c, {
+    get(target, prop) {
+      if (prop === 'execute') return execute
+      if (prop === 'batch') return batch
+      const v = Reflect.get(target, prop, target)
+      return typeof v === 'function' ? v.bind(target) : v
+    },
+  })
+}
 
 export function useDb(): Db {
   if (!db) throw new Error('The database is not open yet (server/plugins/database.ts opens it at start).')

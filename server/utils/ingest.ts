@@ -7,6 +7,7 @@ import {
   decodeMachineMessage, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
+import { gateCommands, commandAnswered, type OutstandingCommands } from '#shared/utils/command-gate'
 import { stepCompensation, type CompensationDecision, type CompensationInput, type CompensationState } from '#shared/utils/compensation'
 
 export interface Arrival {
@@ -240,24 +241,17 @@ export class IngestPipeline {
       }
       const record = (decision: CompensationDecision | null, seq: number) => {
         if (!decision || decision.kind === 'ignored') return
-        const cmds = commandsFor(decision, ctx.id, seq, time, st.cycleTimeS ?? 20).filter((c) => {
-          // A dress or hold stays due part after part until the machine does it: ask once, and
-          // again only when the machine has answered or the request has run out.
-          if (c.type !== 'dress' && c.type !== 'hold') return true
-          const earlier = w.outstanding[c.type]
-          return !earlier || earlier.expiresAt <= now
-        })
+        const expiresAt = now + commandLifeMs(st.cycleTimeS ?? 20)
+        const cmds = gateCommands(commandsFor(decision, ctx.id, seq, time, st.cycleTimeS ?? 20), w.outstanding, now, expiresAt)
         decisionRows.push({
           machineId: ctx.id, seq, at: now, action: actionOf(decision), correctionUm: decision.command?.correctionUm ?? null,
           offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason: decision.reason, inputs: decision.inputs,
           alerts: decision.alerts.length ? decision.alerts : null,
         })
         for (const c of cmds) {
-          const expiresAt = now + commandLifeMs(st.cycleTimeS ?? 20)
           commandRows.push({ id: c.id, machineId: ctx.id, type: c.type, origin: 'engine', payload: c, issuedAt: now, expiresAt, status: 'sent', requestedOffsetUm: c.type === 'offset' ? c.offsetUm : null })
           effects.commands.push({ cellId: ctx.cellId, machineId: ctx.id, command: c })
           if (c.type === 'offset') st.requestedOffsetUm = c.offsetUm
-          else if (c.type === 'dress' || c.type === 'hold') w.outstanding[c.type] = { id: c.id, expiresAt }
         }
         const eng = w.engine
         st.prediction = {
@@ -341,7 +335,7 @@ export class IngestPipeline {
       }
       else if (message.kind === 'ack') {
         commandUpdates.push({ id: message.commandId, set: { status: message.result, appliedOffsetUm: message.offsetUm, ackAt: now, ackReason: message.reason ?? null } })
-        for (const type of ['dress', 'hold'] as const) if (w.outstanding[type]?.id === message.commandId) delete w.outstanding[type]
+        commandAnswered(w.outstanding, message.commandId)
         st.appliedOffsetUm = message.offsetUm
         if (message.result === 'applied' && message.command === 'offset') record(step({ type: 'offset-applied', offsetUm: message.offsetUm, time }, message.seq), message.seq)
         effects.live.push({ type: 'command', machineId: ctx.id, id: message.commandId, command: message.command, status: message.result })

@@ -5,6 +5,7 @@ import { eq } from 'drizzle-orm'
 import type { JobInfo } from '#shared/utils/contract'
 import { createCompensationState, restoreCompensationState, stepCompensation, type CompensationSettingsInput, type CompensationState } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
+import type { OutstandingCommands } from '#shared/utils/command-gate'
 
 export type JobRow = typeof schema.jobs.$inferSelect
 export type StatusRow = typeof schema.machineStatus.$inferSelect
@@ -23,8 +24,6 @@ export interface MachineContext {
   /** the last state ingest reported to the alarm engine for each engine condition (memory only) */
   reportedConditions?: Map<string, boolean>
 }
-
-export type OutstandingCommands = Partial<Record<'dress' | 'hold', { id: string, expiresAt: number }>>
 
 const registry = new Map<string, MachineContext>()
 
