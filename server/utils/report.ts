@@ -141,7 +141,9 @@ export interface ReportChart {
   thinned: boolean
   lsl: number | null
   usl: number | null
+  /** applied offsets (each with its own step); beyond REPORT_CHART_MAX_POINTS the lowest and highest of each slice */
   offsets: { at: number; offsetUm: number; stepUm: number }[]
+  offsetsThinned: boolean
   dresses: { at: number; trigger: string }[]
   events: { at: number; type: string }[]
 }
@@ -379,11 +381,12 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
       thinned: mr.n > REPORT_CHART_MAX_POINTS,
       lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
       offsets: compensation.offsetMarks,
+      offsetsThinned: compensation.offsetsThinned,
       dresses: mk.filter((e) => e.type === 'dress').map((e) => ({ at: e.time, trigger: String((e.payload as { trigger?: string }).trigger ?? '') })),
       events: mk.filter((e) => e.type === 'fault_raised' || e.type === 'wheel_change' || e.type === 'mastering' || e.type === 'job_change')
         .map((e) => ({ at: e.time, type: e.type === 'fault_raised' ? `fault: ${(e.payload as { fault: string }).fault}` : e.type! })),
     }
-    const { offsetMarks: _o, ...comp } = compensation
+    const { offsetMarks: _o, offsetsThinned: _t, ...comp } = compensation
     return {
       id: m.id, name: m.name, partNumbers: [...byJob.keys()].filter(Boolean),
       produced, good, scrap: scrapCount, scrapByReason,
@@ -626,17 +629,18 @@ function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64
   let applied = 0, total = 0, largest = 0
   const { rejected, expired } = refused
   let first: number | null = offset
-  const offsetMarks: { at: number; offsetUm: number; stepUm: number }[] = []
+  const steps = new Float64Array(acks.n)
   const dressEvents: { time: number; parts: number; trigger: string }[] = []
   let wheelChanges = 0, masterings = 0
   for (let k = 0; k < acks.n; k++) {
     const a = { time: acks.time[k]!, offsetUm: acks.offsetUm[k]! }
+    // (a week can hold 100,000 offsets; the chart gets at most REPORT_CHART_MAX_POINTS of them below)
     applied++
     const step = offset === null ? 0 : a.offsetUm - offset
     first ??= offset ?? a.offsetUm
     total += Math.abs(step)
     largest = Math.max(largest, Math.abs(step))
-    offsetMarks.push({ at: a.time, offsetUm: a.offsetUm, stepUm: round3(step) })
+    steps[k] = step
     offset = a.offsetUm
   }
   for (const e of mk) {
@@ -690,7 +694,9 @@ function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64
         mk.filter((e) => e.type === 'dress' || e.type === 'wheel_change').map((e) => ({ at: e.time, kind: e.type as WearBoundaryKind })), gain.gain),
       gainSource: gain.source,
     },
-    offsetMarks,
+    // the offsets drawn: every applied offset, or the lowest and highest of each time slice beyond
+    offsetMarks: thinKeep(acks.n, (k) => acks.offsetUm[k]!).map((k) => ({ at: acks.time[k]!, offsetUm: acks.offsetUm[k]!, stepUm: round3(steps[k]!) })),
+    offsetsThinned: acks.n > REPORT_CHART_MAX_POINTS,
   }
 }
 
@@ -963,22 +969,28 @@ function sortCounts(m: Map<string, number>): { reason: string; count: number }[]
 function thinnedSizes(mr: ReadingColumns): [number, number][] {
   const idx: number[] = []
   for (let i = 0; i < mr.n; i++) if (!Number.isNaN(mr.dia[i]!)) idx.push(i)
-  const point = (k: number): [number, number] => [mr.time[idx[k]!]!, mr.dia[idx[k]!]!]
-  if (idx.length <= REPORT_CHART_MAX_POINTS) return idx.map((_, k) => point(k))
-  const y = (k: number) => mr.dia[idx[k]!]!
+  return thinKeep(idx.length, (k) => mr.dia[idx[k]!]!).map((k) => [mr.time[idx[k]!]!, mr.dia[idx[k]!]!])
+}
+
+/**
+ * Which of n time-ordered values a chart keeps: all of them up to REPORT_CHART_MAX_POINTS, beyond
+ * that the lowest and highest of each of REPORT_CHART_MAX_POINTS / 2 equal slices (in time order).
+ */
+function thinKeep(n: number, y: (k: number) => number): number[] {
+  if (n <= REPORT_CHART_MAX_POINTS) return Array.from({ length: n }, (_, k) => k)
   const buckets = REPORT_CHART_MAX_POINTS / 2
-  const size = idx.length / buckets
-  const out: [number, number][] = []
+  const size = n / buckets
+  const out: number[] = []
   for (let b = 0; b < buckets; b++) {
     const start = Math.floor(b * size)
-    const end = Math.min(idx.length, Math.floor((b + 1) * size))
+    const end = Math.min(n, Math.floor((b + 1) * size))
     let lo = start, hi = start
     for (let k = start; k < end; k++) {
       if (y(k) < y(lo)) lo = k
       if (y(k) > y(hi)) hi = k
     }
-    if (lo === hi) out.push(point(lo))
-    else out.push(point(Math.min(lo, hi)), point(Math.max(lo, hi)))
+    if (lo === hi) out.push(lo)
+    else out.push(Math.min(lo, hi), Math.max(lo, hi))
   }
   return out
 }

@@ -111,6 +111,12 @@ describe('overnight report from a simulated night', () => {
       expect(comp.largestStepUm).toBeLessThanOrEqual(comp.totalStepUm)
     }
     expect(report.machines.some((m) => m.compensation.offsetsApplied > 0)).toBe(true)
+    // a night has fewer offsets than the chart keeps: every applied offset is drawn, with its step
+    for (const m of report.machines) {
+      expect(m.chart.offsetsThinned).toBe(false)
+      expect(m.chart.offsets.length).toBe(m.compensation.offsetsApplied)
+      expect(m.chart.offsets.reduce((a, o) => a + Math.abs(o.stepUm), 0)).toBeCloseTo(m.compensation.totalStepUm, 2)
+    }
   })
 
   it('wheel wear: predicted is the mean engine slope, actual the net offset movement × gain, per dress interval', async () => {
