@@ -287,3 +287,24 @@ describe('a range older than the retention: the report reads the hourly summarie
     expect(checked).toBeGreaterThanOrEqual(3)
   })
 })
+
+describe('readings stored out of order', () => {
+  it('same-millisecond readings are taken in sequence order, whatever order they were stored in', async () => {
+    const fx = await openReportFixture()
+    try {
+      await seedCell(fx, scenario, 1, 'Europe/Berlin')
+      const t = start + H
+      // stored 3, 2, 1 at the same millisecond, then 4 a millisecond later
+      for (const [seq, time, dia] of [[3, t, 0.3], [2, t, 0.2], [1, t, 0.1], [4, t + 1, 0.4]] as const) {
+        await fx.db.insert(schema.readings).values({ machineId: 'cg-01', seq, part: seq, time, receivedAt: time, status: 'ok', diameterUm: dia, offsetUm: -seq, jobPartNumber: null })
+      }
+      const r = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 2 * H })
+      const m = r.machines.find((x) => x.id === 'cg-01')!
+      expect(m.chart.points).toEqual([[t, 0.1], [t, 0.2], [t, 0.3], [t + 1, 0.4]])
+      // actual wear over the four parts: −1.1 × (−4 − (−1)) / 3 = 1.1 µm/part (offsets in seq order)
+      expect(m.compensation.wheelWear.intervals[0]!.actualUmPerPart).toBeCloseTo(1.1, 12)
+      expect(r.completeness.readings).toBe(4)
+    }
+    finally { fx.close() }
+  })
+})
