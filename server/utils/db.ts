@@ -91,8 +91,8 @@ export function useDbClient(): Client {
   return client
 }
 
-export function closeDatabase() {
-  closeNativeWriter()
+export async function closeDatabase() {
+  await closeNativeWriter()
   client?.close()
   client = undefined
   db = undefined

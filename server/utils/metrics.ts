@@ -46,6 +46,11 @@ export async function prometheusText(): Promise<string> {
   metric('owlshift_ingest_queue_depth', 'gauge', 'Messages waiting for the next commit.', [['', ingest.queueDepth]])
   metric('owlshift_machines_connected', 'gauge', 'Machines connected to the broker.', [['', broker?.connectedMachines() ?? 0]])
   metric('owlshift_machines_online', 'gauge', 'Machines whose last presence message was a birth.', [['', machines.filter(m => m.status.online).length]])
+  const wal = await walCheckpointStats()
+  if (wal) {
+    metric('owlshift_wal_checkpoint_pages_total', 'counter', 'Database pages the checkpoint thread copied from the write-ahead log.', [['', wal.pages]])
+    metric('owlshift_wal_checkpoint_failures_total', 'counter', 'Checkpoint runs that failed (the writer then checkpoints by itself).', [['', wal.failures]])
+  }
   const alarms = await alarmCountsByState()
   metric('owlshift_alarms', 'gauge', 'Open alarms by ISA-18.2 state.', Object.entries(alarms).map(([state, n]) => [`{state="${state}"}`, n]))
   return `${lines.join('\n')}\n`

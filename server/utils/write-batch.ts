@@ -8,11 +8,13 @@
 // backup tool, a shell) is ridden out by the busy timeout.
 import Database from 'libsql'
 import type { InStatement, InValue } from '@libsql/client'
+import { startWalCheckpointer, WRITER_AUTOCHECKPOINT_PAGES, type WalCheckpointer } from './wal-checkpointer'
+import { useDbClient } from './db'
 
 type NativeDb = InstanceType<typeof Database>
 type NativeStatement = ReturnType<NativeDb['prepare']>
 
-let native: { db: NativeDb, prepared: Map<string, NativeStatement>, begin: NativeStatement, commit: NativeStatement, rollback: NativeStatement } | null = null
+let native: { db: NativeDb, prepared: Map<string, NativeStatement>, begin: NativeStatement, commit: NativeStatement, rollback: NativeStatement, checkpointer: WalCheckpointer } | null = null
 
 /** Opens the native connection for a local database file (called once the file is migrated). */
 export function openNativeWriter(file: string) {
@@ -22,13 +24,20 @@ export function openNativeWriter(file: string) {
   db.pragma('busy_timeout = 5000')
   db.pragma('synchronous = NORMAL')
   db.pragma('foreign_keys = ON')
-  native = { db, prepared: new Map(), begin: db.prepare('BEGIN IMMEDIATE'), commit: db.prepare('COMMIT'), rollback: db.prepare('ROLLBACK') }
+  db.pragma(`wal_autocheckpoint = ${WRITER_AUTOCHECKPOINT_PAGES}`)
+  native = { db, prepared: new Map(), begin: db.prepare('BEGIN IMMEDIATE'), commit: db.prepare('COMMIT'), rollback: db.prepare('ROLLBACK'), checkpointer: startWalCheckpointer(file) }
 }
 
-export function closeNativeWriter() {
-  if (native?.db.open) native.db.close()
+export async function closeNativeWriter() {
+  const n = native
   native = null
+  if (!n) return
+  await n.checkpointer.stop()
+  if (n.db.open) n.db.close()
 }
+
+/** How the checkpoint thread is doing (for /api/metrics). */
+export const walCheckpointStats = () => native?.checkpointer.stats() ?? Promise.resolve(null)
 
 // Bounded: raw-insert.ts makes a handful of statement shapes per table, but a stray caller
 // building SQL text with values in it must not grow this map without end.
@@ -66,6 +75,7 @@ export async function writeBatch(statements: InStatement[]): Promise<void> {
       prepared(sql).run(plain ? list : list.map(toNative))
     }
     n.commit.run()
+    n.checkpointer.committed()
   }
   catch (err) {
     if (n.db.inTransaction) n.rollback.run()
