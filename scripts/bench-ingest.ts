@@ -7,13 +7,32 @@
 // Figures go to docs/benchmarks.md. Needs a build (`npm run build`) first.
 import { spawn, type ChildProcess } from 'node:child_process'
 import { mkdtempSync, readFileSync, existsSync } from 'node:fs'
-import { tmpdir, cpus } from 'node:os'
+import { tmpdir, cpus, loadavg } from 'node:os'
 import { join } from 'node:path'
 import net from 'node:net'
 import mqtt, { type MqttClient } from 'mqtt'
 import { Aedes } from 'aedes'
 import { mqttTopics } from '../shared/utils/contract'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
+
+// What the profiles said (\`BENCH_ONLY=throughput BENCH_NODE_ARGS="--cpu-prof" npx tsx scripts/bench-ingest.ts\`),
+// kept with the figures so the next person starts from them.
+const INGEST_PROFILE_NOTES = `Where the server's time goes (CPU profiles of the throughput phase, 2026-12-02):
+- Before this session's changes: 7,781 readings/s, about 150 µs of server CPU per reading. SQLite 33 % (9 % of it
+  preparing the multi-row INSERTs again on every commit: @libsql/client prepares each statement on every call),
+  garbage collection 17 %, JSON and argument building 7 %, the engine 5 %; every part past the dress interval sent
+  another dress command (316,728 commands for 220,000 readings) because the benchmark's machines never dress.
+- Now: ingest writes through a native connection of its own with statements prepared once (a few fixed multi-row
+  shapes), a due dress or hold is asked for once until answered or run out, engine conditions reach the alarm engine
+  only when they change, and WAL checkpoints run on a thread of their own after each commit (in the commit they took
+  about a third of SQLite's time and stalled the messages waiting on it). Left: SQLite inserting the reading and its
+  decision row with their indexes (about 28 %), garbage collection (17 %), JSON of the decision inputs (6 %), MQTT
+  parsing and the broker (about 10 %), validation (4 %), the engine (5 %).
+- Why half the ceiling is out of reach here: the ceiling is the broker alone, about 13–20 µs per message for broker and
+  clients together. Half of it would leave about 35 µs of server time per reading for validation, the engine, storing
+  the reading and its decision and sending commands, which today take about 65 µs on one thread. Getting there would
+  take storing the decision inside the reading's row (one row and index fewer) and moving SQLite to a thread of its
+  own; neither is done.`
 
 const CELL = 'cell-a'
 const MACHINES = ['cg-01', 'cg-02', 'cg-03', 'cg-04']
@@ -91,6 +110,23 @@ function rssMiB(pid: number): number {
   return Number(line.replace(/\D+/g, '')) / 1024
 }
 
+/** The same flood against a bare aedes in a process of its own (as Owlshift's broker is). */
+async function ceilingSeparateProcess(): Promise<number> {
+  const child = spawn(process.execPath, ['--import', 'tsx', 'scripts/lib/bare-broker.ts'], { stdio: ['ignore', 'pipe', 'inherit'] })
+  const port = await new Promise<number>((resolve, reject) => {
+    child.stdout!.on('data', (d: Buffer) => { const m = /port (\d+)/.exec(d.toString()); if (m) resolve(Number(m[1])) })
+    child.once('exit', code => reject(new Error(`bare broker exited ${code}`)))
+  })
+  try {
+    const clients = await connectAll(`mqtt://127.0.0.1:${port}`, null)
+    await flood(clients, 1, 5_000) // warm-up
+    const rate = await flood(clients, 10_000, 25_000)
+    await Promise.all(clients.map(c => c.endAsync()))
+    return rate
+  }
+  finally { child.kill('SIGTERM') }
+}
+
 async function ceiling(): Promise<number> {
   const broker = await Aedes.createBroker({ authorizePublish: (_c, _p, done) => done(null) })
   const server = net.createServer(s => broker.handle(s))
@@ -105,6 +141,10 @@ async function ceiling(): Promise<number> {
 }
 
 async function main() {
+  if (process.env.BENCH_ONLY === 'ceiling') {
+    console.log(`ceiling: ${(await ceiling()).toFixed(0)} messages/s (broker in this process), ${(await ceilingSeparateProcess()).toFixed(0)} (broker apart)`)
+    return
+  }
   if (!existsSync('.output/server/index.mjs')) throw new Error('build first: npm run build')
   const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-bench-'))
   const [port, mqttPort] = [await freePort(), await freePort()]
@@ -118,19 +158,29 @@ async function main() {
     const rssStart = rssMiB(server.pid!)
     console.log('throughput…')
     const only = process.env.BENCH_ONLY // profiling runs: one phase, no doc written
-    const cpuBefore = cpuMs(server.pid!)
-    const clientCpuBefore = cpuMs(process.pid)
-    const commitsBefore = await counter(port, 'owlshift_commits_total')
-    const sustained = await flood(clients, 10_000, 50_000)
-    const cpuPerReadingUs = ((cpuMs(server.pid!) - cpuBefore) * 1000) / (50_000 * clients.length)
-    const clientCpuPerReadingUs = ((cpuMs(process.pid) - clientCpuBefore) * 1000) / (50_000 * clients.length)
-    const perCommit = (50_000 * clients.length) / (await counter(port, 'owlshift_commits_total') - commitsBefore)
-    console.log(`  ${sustained.toFixed(0)} readings/s through Owlshift; server CPU ${cpuPerReadingUs.toFixed(0)} µs per reading (benchmark clients ${clientCpuPerReadingUs.toFixed(0)} µs); ${perCommit.toFixed(0)} readings per commit`)
+    // Three runs of 200,000 readings; the median is the figure (the machine is shared, runs vary).
+    const runs: { rate: number, serverUs: number, clientUs: number, perCommit: number, load: number }[] = []
+    for (let r = 0; r < (only ? 1 : 3); r++) {
+      const cpuBefore = cpuMs(server.pid!)
+      const clientCpuBefore = cpuMs(process.pid)
+      const commitsBefore = await counter(port, 'owlshift_commits_total')
+      const rate = await flood(clients, 10_000 + r * 50_000, 50_000)
+      const n = 50_000 * clients.length
+      runs.push({
+        rate, load: loadavg()[0]!, serverUs: ((cpuMs(server.pid!) - cpuBefore) * 1000) / n, clientUs: ((cpuMs(process.pid) - clientCpuBefore) * 1000) / n,
+        perCommit: n / (await counter(port, 'owlshift_commits_total') - commitsBefore),
+      })
+      const x = runs.at(-1)!
+      console.log(`  ${x.rate.toFixed(0)} readings/s through Owlshift; server CPU ${x.serverUs.toFixed(0)} µs per reading (benchmark clients ${x.clientUs.toFixed(0)} µs); ${x.perCommit.toFixed(0)} readings per commit; load ${x.load.toFixed(1)}`)
+    }
+    const median = [...runs].sort((a, b) => a.rate - b.rate)[Math.floor(runs.length / 2)]!
+    const sustained = median.rate
     if (only === 'throughput') return
 
     console.log('latency at 500 readings/s…')
     const latencies: number[] = []
     let seq = 300_000
+    const latencyLoad = loadavg()[0]!
     const t0 = performance.now()
     const N = 500 * 20
     await new Promise<void>((resolve) => {
@@ -167,26 +217,36 @@ async function main() {
 
     console.log('ceiling: the same broker, no ingest…')
     const top = await ceiling()
-    console.log(`  ${top.toFixed(0)} messages/s`)
+    console.log(`  ${top.toFixed(0)} messages/s (broker in this process)`)
+    const topApart = await ceilingSeparateProcess()
+    console.log(`  ${topApart.toFixed(0)} messages/s (broker in a process of its own)`)
 
     const firstHalf = samples.filter(([n]) => n > 0 && n <= 500_000).map(([, m]) => m)
     const secondHalf = samples.filter(([n]) => n > 500_000).map(([, m]) => m)
     const avg = (a: number[]) => a.reduce((x, y) => x + y, 0) / Math.max(1, a.length)
+    const share = (ceil: number) => `${((100 * sustained) / ceil).toFixed(0)} %`
     const body = `Command: \`npm run build && npm run bench:ingest\` (scripts/bench-ingest.ts) — run ${new Date().toISOString().slice(0, 10)} on this machine (${cpus().length} cores, Node ${process.version}); the benchmark's own MQTT clients share the two cores with the server.
 
-Setup: the built server, embedded broker, SQLite file (WAL), 4 machines each publishing QoS 1 readings with ${IN_FLIGHT} in flight; every reading is validated, stored, run through the compensation engine (drift strategy) with its decision stored, then acknowledged.
+Setup: the built server, embedded broker, SQLite file (WAL), 4 machines each publishing QoS 1 readings with ${IN_FLIGHT} in flight; every reading is validated, stored, run through the compensation engine (drift strategy) with its decision stored, then acknowledged. The benchmark's machines never answer a command, so the engine asks for an offset on about half the readings and a dress whenever one is due (sent once until it runs out).
 
 | measure | result | target |
 |---|---|---|
-| sustained readings/s, end to end | ${sustained.toFixed(0)} | ≥ 10,000 |
-| same broker with no ingest (ceiling), messages/s | ${top.toFixed(0)} | — |
-| share of the ceiling | ${((100 * sustained) / top).toFixed(0)} % | ≥ 50 % |
+| sustained readings/s, end to end (median of ${runs.length} runs of 200,000) | **${sustained.toFixed(0)}** | ≥ 10,000 — ${sustained >= 10_000 ? 'met' : 'MISSED'} |
+| the runs (readings/s; 1-min load average) | ${runs.map(x => `${x.rate.toFixed(0)} (${x.load.toFixed(1)})`).join(', ')} | — |
+| server CPU per reading (all its threads) / benchmark clients' CPU per reading | ${median.serverUs.toFixed(0)} µs / ${median.clientUs.toFixed(0)} µs | — |
+| readings per commit (group commit) | ${median.perCommit.toFixed(0)} | — |
+| ceiling: bare aedes in a process of its own (as Owlshift's broker is), messages/s | ${topApart.toFixed(0)} | — |
+| ceiling: bare aedes in the benchmark's own process, messages/s | ${top.toFixed(0)} | — |
+| share of the ceiling (broker apart / broker in the benchmark's process) | ${share(topApart)} / ${share(top)} | ≥ 50 % — ${sustained >= topApart / 2 ? 'met' : 'MISSED'} |
 | publish → PUBACK (after commit) at 500 readings/s, p50 | ${pct(0.5).toFixed(1)} ms | — |
-| same, p99 | ${pct(0.99).toFixed(1)} ms | ≤ 50 ms |
+| same, p99 (1-min load average ${latencyLoad.toFixed(1)}) | **${pct(0.99).toFixed(1)} ms** | ≤ 50 ms — ${pct(0.99) <= 50 ? 'met' : 'MISSED'} |
+| server side: commit p99 over the last 1,000 commits of that phase | ${(commitP99 * 1000).toFixed(1)} ms | — |
 | server RSS before the million / after | ${samples[0]![1].toFixed(0)} / ${samples.at(-1)![1].toFixed(0)} MiB | flat |
 | RSS mean, first half / second half of the million | ${avg(firstHalf).toFixed(0)} / ${avg(secondHalf).toFixed(0)} MiB | flat |
 
-RSS samples (readings: MiB): ${samples.map(([n, m]) => `${n / 1000}k: ${m.toFixed(0)}`).join(', ')}. RSS after warm-up, before the throughput run: ${rssStart.toFixed(0)} MiB.`
+RSS samples (readings: MiB): ${samples.map(([n, m]) => `${n / 1000}k: ${m.toFixed(0)}`).join(', ')}. RSS after warm-up, before the throughput run: ${rssStart.toFixed(0)} MiB.
+
+${INGEST_PROFILE_NOTES}`
     writeBenchmarkSection('Ingest (npm run bench:ingest)', body)
     console.log('\nwritten to docs/benchmarks.md')
   }

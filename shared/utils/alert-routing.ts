@@ -110,11 +110,20 @@ export function alertParseRules(raw: unknown): { rules: AlertRoutingRules } | { 
 
 export interface AlertLocalTime { date: string, weekday: number, minute: number }
 
+// Making a formatter costs far more than using one, and ingest asks the time after every commit.
+const localTimeFormats = new Map<string, Intl.DateTimeFormat>()
+function localTimeFormat(timeZone: string): Intl.DateTimeFormat {
+  let f = localTimeFormats.get(timeZone)
+  if (!f) {
+    f = new Intl.DateTimeFormat('en-US', { timeZone, hourCycle: 'h23', year: 'numeric', month: '2-digit', day: '2-digit', hour: '2-digit', minute: '2-digit', weekday: 'short' })
+    localTimeFormats.set(timeZone, f)
+  }
+  return f
+}
+
 /** Local date, weekday (0 = Sunday) and minute of the day of `now` in `timeZone` (Intl, no library). */
 export function alertLocalTime(now: number, timeZone: string): AlertLocalTime {
-  const parts = new Intl.DateTimeFormat('en-US', {
-    timeZone, hourCycle: 'h23', year: 'numeric', month: '2-digit', day: '2-digit', hour: '2-digit', minute: '2-digit', weekday: 'short',
-  }).formatToParts(new Date(now))
+  const parts = localTimeFormat(timeZone).formatToParts(new Date(now))
   const get = (t: string) => parts.find(p => p.type === t)!.value
   const weekday = ['Sun', 'Mon', 'Tue', 'Wed', 'Thu', 'Fri', 'Sat'].indexOf(get('weekday'))
   return { date: `${get('year')}-${get('month')}-${get('day')}`, weekday, minute: Number(get('hour')) * 60 + Number(get('minute')) }

@@ -48,7 +48,20 @@ export const mqttTopics = {
 
 export type ParsedTopic = { ok: true; cell: string; machine: string; kind: TopicKind } | { ok: false; reason: string }
 
+// A cell's topics are few and come again with every message: parse each once.
+const parsedTopics = new Map<string, ParsedTopic>()
+
 export function parseMqttTopic(raw: string): ParsedTopic {
+  let parsed = parsedTopics.get(raw)
+  if (!parsed) {
+    parsed = Object.freeze(parseTopicText(raw))
+    if (parsedTopics.size >= 10_000) parsedTopics.clear() // a bound against a flood of made-up topics
+    parsedTopics.set(raw, parsed)
+  }
+  return parsed
+}
+
+function parseTopicText(raw: string): ParsedTopic {
   const parts = raw.split('/')
   if (parts.length !== 5 || `${parts[0]}/${parts[1]}` !== mqttNamespace) {
     return { ok: false, reason: `topic "${raw}" is not of the form ${mqttNamespace}/<cell>/<machine>/<kind>` }
@@ -221,10 +234,12 @@ export function topicKindOf(message: MachineMessage): MachineTopicKind {
 
 export type Decoded<T> = { ok: true; value: T } | { ok: false; reason: string }
 
+const utf8 = new TextDecoder('utf-8', { fatal: false })
+
 function decodeJson(payload: string | Uint8Array): Decoded<unknown> {
   const size = typeof payload === 'string' ? new TextEncoder().encode(payload).length : payload.byteLength
   if (size > mqttMaxPayloadBytes) return { ok: false, reason: `payload is ${size} bytes, more than the ${mqttMaxPayloadBytes} allowed` }
-  const text = typeof payload === 'string' ? payload : new TextDecoder('utf-8', { fatal: false }).decode(payload)
+  const text = typeof payload === 'string' ? payload : utf8.decode(payload)
   try {
     return { ok: true, value: JSON.parse(text) as unknown }
   } catch (error) {
