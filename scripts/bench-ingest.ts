@@ -14,6 +14,7 @@ import mqtt, { type MqttClient } from 'mqtt'
 import { Aedes } from 'aedes'
 import { mqttTopics } from '../shared/utils/contract'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
+import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
 // What the profiles said (\`BENCH_ONLY=throughput BENCH_NODE_ARGS="--cpu-prof" npx tsx scripts/bench-ingest.ts\`),
 // kept with the figures so the next person starts from them.
@@ -81,7 +82,7 @@ async function flood(clients: MqttClient[], firstSeq: number, perMachine: number
 async function startOwlshift(dataDir: string, port: number, mqttPort: number): Promise<ChildProcess> {
   // BENCH_NODE_ARGS (e.g. --cpu-prof) goes to the server's node, for profiling.
   const nodeArgs = (process.env.BENCH_NODE_ARGS ?? '').split(' ').filter(Boolean)
-  const child = spawn(process.execPath, [...nodeArgs, '.output/server/index.mjs'], {
+  const child = spawn(process.execPath, [...nodeArgs, ...SERVER_NODE_ARGS, SERVER_ENTRY], {
     env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'bench-session-password-long-enough-1234', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort) },
     stdio: ['ignore', 'inherit', 'pipe'],
   })

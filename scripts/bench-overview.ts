@@ -21,6 +21,7 @@ import { loadScenarioFile, machinesFor } from '../simulator/scenario'
 import { demoShop } from '../shared/utils/demo-shop'
 import { LIVE_CPK_WINDOW } from '../shared/utils/live-view'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
+import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
 const MACHINES = 24
 const RATE = 50 // readings/s, the whole cell
@@ -42,7 +43,7 @@ const mqttPort = await freePort()
 const base = `http://127.0.0.1:${port}`
 
 async function startServer(): Promise<ChildProcess> {
-  const child = spawn(process.execPath, ['.output/server/index.mjs'], {
+  const child = spawn(process.execPath, [...SERVER_NODE_ARGS, SERVER_ENTRY], {
     env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'bench-session-password-long-enough-1234', NUXT_SESSION_COOKIE_SECURE: 'false', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort) },
     stdio: ['ignore', 'ignore', 'inherit'],
   })

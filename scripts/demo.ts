@@ -8,6 +8,7 @@ import { demoShop } from '../shared/utils/demo-shop'
 import { startSimulator, type RunningSimulator } from '../simulator/live'
 import { loadScenarioFile } from '../simulator/scenario'
 import { startMailCatcher } from './mail-catcher'
+import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
 const dataDir = resolve(process.env.OWLSHIFT_DATA_DIR ?? 'data')
 mkdirSync(dataDir, { recursive: true })
@@ -43,7 +44,7 @@ const env = {
   OWLSHIFT_PUBLIC_URL: process.env.OWLSHIFT_PUBLIC_URL ?? `http://localhost:${port}`,
   ...(mail ? { SMTP_URL: `smtp://127.0.0.1:${mail.smtpPort}` } : {}),
 }
-const server = spawn(process.execPath, ['.output/server/index.mjs'], { stdio: 'inherit', env })
+const server = spawn(process.execPath, [...SERVER_NODE_ARGS, SERVER_ENTRY], { stdio: 'inherit', env })
 
 // The bundled simulator brings the demo shop to life: four machines at a few times real speed,
 // speaking MQTT to the embedded broker with the credentials the server made for them.

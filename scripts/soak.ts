@@ -14,6 +14,7 @@ import { startSimulator } from '../simulator/live'
 import { loadScenarioFile } from '../simulator/scenario'
 import { demoShop } from '../shared/utils/demo-shop'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
+import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
 const { values: args } = parseArgs({ options: { days: { type: 'string', default: '7' }, machines: { type: 'string', default: '24' }, speed: { type: 'string', default: '600' } } })
 const days = Number(args.days)
@@ -32,7 +33,7 @@ async function main() {
   const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-soak-'))
   const [port, mqttPort] = [await freePort(), await freePort()]
   const base = `http://127.0.0.1:${port}`
-  const server = spawn(process.execPath, ['.output/server/index.mjs'], {
+  const server = spawn(process.execPath, [...SERVER_NODE_ARGS, SERVER_ENTRY], {
     env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'soak-session-password-long-enough-123', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort), OWLSHIFT_BACKUP_EVERY_H: '0' },
     stdio: ['ignore', 'inherit', 'pipe'],
   })
