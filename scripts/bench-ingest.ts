@@ -23,17 +23,22 @@ const INGEST_PROFILE_NOTES = `Where the server's time goes (CPU profiles of the 
   preparing the multi-row INSERTs again on every commit: @libsql/client prepares each statement on every call),
   garbage collection 17 %, JSON and argument building 7 %, the engine 5 %; every part past the dress interval sent
   another dress command (316,728 commands for 220,000 readings) because the benchmark's machines never dress.
-- Now: ingest writes through a native connection of its own with statements prepared once (a few fixed multi-row
-  shapes), a due dress or hold is asked for once until answered or run out, engine conditions reach the alarm engine
-  only when they change, and WAL checkpoints run on a thread of their own after each commit (in the commit they took
-  about a third of SQLite's time and stalled the messages waiting on it). Left: SQLite inserting the reading and its
-  decision row with their indexes (about 28 %), garbage collection (17 %), JSON of the decision inputs (6 %), MQTT
-  parsing and the broker (about 10 %), validation (4 %), the engine (5 %).
-- Why half the ceiling is out of reach here: the ceiling is the broker alone, about 13–20 µs per message for broker and
-  clients together. Half of it would leave about 35 µs of server time per reading for validation, the engine, storing
-  the reading and its decision and sending commands, which today take about 65 µs on one thread. Getting there would
-  take storing the decision inside the reading's row (one row and index fewer) and moving SQLite to a thread of its
-  own; neither is done.`
+- Changed: ingest writes through a native connection of its own with statements prepared once (a few fixed multi-row
+  shapes); a due dress or hold is asked for once until answered or run out; engine conditions reach the alarm engine
+  only when they change; WAL checkpoints run on a thread of their own after each commit (inside the commit they took
+  about a third of SQLite's time and stalled the messages waiting on it); topics, UTF-8 decoding and time-zone
+  formatting are done once, not per message; the server runs with a 32 MB young generation
+  (scripts/lib/server-start.ts), which took server CPU per reading from about 76 to 62–66 µs in paired runs.
+- Left (profile before the young-generation change): SQLite inserting the reading and its decision row with their
+  indexes 21 %, garbage collection 19 %, JSON of the decision inputs 6 %, MQTT parsing and the broker about 10 %,
+  validation 4 %, the engine 5 %.
+- Why half the ceiling is out of reach on two cores: half of the broker-apart ceiling is about 37,000 readings/s, which
+  leaves the server about 27 µs per reading for the broker's own work, validation, the engine, storing the reading and
+  its decision and sending commands; today that is about 55 µs, most of it on one thread. Getting there would take
+  storing the decision inside the reading's row (one row and one index fewer per part) and moving SQLite to a thread
+  of its own, with the next batch prepared while the last one is written; neither is done.
+- The throughput varies with what else runs on the machine: the same build gave 10,000–15,000 readings/s while other
+  builds and tests were running (load average 3–4) and about 19,000–20,000 with the load at 2.6–2.9.`
 
 const CELL = 'cell-a'
 const MACHINES = ['cg-01', 'cg-02', 'cg-03', 'cg-04']
