@@ -37,6 +37,9 @@ for (let d = 0; d < days; d++) {
   process.stdout.write(`day ${d + 1}/${days}: ${r.summary.totals.partsGauged} parts stored\n`)
 }
 const fillS = (performance.now() - tFill) / 1000
+// A running server's week of data sits in the database file, not the write-ahead log (SQLite
+// checkpoints it every 1,000 pages): move the filling's log into the file before measuring.
+await fx.client.execute('PRAGMA wal_checkpoint(TRUNCATE)')
 const rows = await fx.client.execute('select (select count(*) from readings) r, (select count(*) from machine_messages) m, (select count(*) from decisions) d')
 const stored = { readings: Number(rows.rows[0]!.r), messages: Number(rows.rows[0]!.m), decisions: Number(rows.rows[0]!.d) }
 
@@ -98,7 +101,9 @@ Measured ${new Date().toISOString().slice(0, 10)} on ${cpus().length} × ${cpus(
 ${[...results, ...mmapResults].map((r) => `| ${r.name} | ${(r.name.includes('-day') ? weekReport.totals.produced : r.name.includes('CSV') ? csv.length - 1 : r.name.includes('one machine') ? (r.out as typeof nightReport).totals.produced : nightReport.totals.produced).toLocaleString('en-US')} | ${r.median.toFixed(0)} | ${r.best.toFixed(0)} | ${r.worst.toFixed(0)} | ${r.cpu.toFixed(0)} | ${r.load.toFixed(1)} | ${target(r.name, r.median)} |`).join('\n')}
 
 The machine is shared by several processes (builds, browser tests); the load average says how busy it
-was while each row was measured. On 2 cores, a load above 2 stretches wall-clock times accordingly.
+was while each row was measured. On 2 cores, a load above 2 stretches wall-clock times accordingly: five earlier
+runs on 2026-12-02 at load 3–5 gave medians for the night of 296–485 ms (with mmap 242–388 ms) and for the week
+of 2.9–3.8 s (with mmap 2.6–3.7 s); the best-run column moves less.
 
 The last two rows set \`PRAGMA mmap_size = 1 GiB\` on the connection first (SQLite then reads pages straight from
 the operating system's file cache instead of copying them into its own 2 MB page cache, which a week's index walks
@@ -118,8 +123,12 @@ had scanned the whole message table: 330 ms of the old 460 ms night).
 Counting parts, reading only rejected parts and only applied offsets runs on partial indexes (migration 0009). A
 covering index on readings (machine, time, seq, part, status, diameter, job, received) made the readings scan 1.8×
 faster in the sqlite3 shell (769 → 417 ms for one day of 12 machines at load 13); it is not added because it
-doubles what every reading costs to store. Not added either, for the same reason (ingest speed), without measuring
-the insert cost first: a partial index of held decisions, and the offset value in the applied-offset index.
+doubles what every reading costs to store. Measured on a copy of the week's file, not added (ingest speed is
+measured first): a partial index of held decisions (machine, at) where action = 'hold' reads the week's holds in
+25 ms instead of 233 ms, but the slope estimates for predicted wear still need every decision row; an expression
+column for the offset value in the applied-offset index does not help (SQLite still fetches each row).
+What would take the week under 2 s, not done: the three row streams on a second connection in a worker thread
+(wall time, not CPU: the 2 cores are shared with ingest), or a slope column kept per hour as retention keeps sizes.
 Run: \`npm run bench:report\` (\`BENCH_DAYS\`, \`BENCH_RUNS\` to change the size and the number of runs).
 `
 
