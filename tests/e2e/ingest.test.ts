@@ -8,7 +8,7 @@ import { url } from '@nuxt/test-utils/e2e'
 import fc from 'fast-check'
 import mqtt from 'mqtt'
 import type { Client } from '@libsql/client'
-import { setupOwlshift, demoCredentials, openTestDb } from './harness'
+import { setupOwlshift, demoCredentials, openTestDb, sessionCookie } from './harness'
 import { birth, reading, payloadOf, topicFor, machineClient, publishAcked, CELL, at } from './mqtt-helpers'
 import { mqttTopics, mqttMaxPayloadBytes } from '../../shared/utils/contract'
 
@@ -34,6 +34,11 @@ describe('ingest', async () => {
     expect(await count('select count(*) from readings where machine_id = ?', 'cg-01')).toBe(20)
     // Every reading got a stored decision with a reason.
     expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 21 and length(reason) > 0`)).toBeGreaterThanOrEqual(20)
+    // The decision log carries the machine's time of the part each decision answered (the chart's clock).
+    const cookie = await sessionCookie('bram@larkspur.example')
+    const log = await (await fetch(url('/api/machines/cg-01/decisions?all=1&limit=500'), { headers: { cookie } })).json() as { seq: number, machineTime: number | null }[]
+    const d21 = log.find(d => d.seq === 21)!
+    expect(d21.machineTime).toBe(Date.parse(reading(21, 0.1).time))
     await c.endAsync()
   })
 

@@ -15,9 +15,20 @@ export default defineEventHandler(async (event) => {
   const cmdIds = rows.map(r => r.commandId).filter((x): x is string => !!x)
   const cmds = cmdIds.length ? await useDb().select().from(schema.commands).where(inArray(schema.commands.id, cmdIds)) : []
   const byId = new Map(cmds.map(c => [c.id, c]))
+  // The machine's clock for the part or event each decision answered, so the table lines up with
+  // the size chart and the event log (both on machine time); `at` is when the server decided.
+  const seqs = [...new Set(rows.map(r => r.seq))]
+  const machineTimes = new Map<number, number>()
+  if (seqs.length) {
+    const [rs, ms] = await Promise.all([
+      useDb().select({ seq: schema.readings.seq, time: schema.readings.time }).from(schema.readings).where(and(eq(schema.readings.machineId, ctx.id), inArray(schema.readings.seq, seqs))),
+      useDb().select({ seq: schema.machineMessages.seq, time: schema.machineMessages.time }).from(schema.machineMessages).where(and(eq(schema.machineMessages.machineId, ctx.id), inArray(schema.machineMessages.seq, seqs))),
+    ])
+    for (const x of [...rs, ...ms]) machineTimes.set(x.seq, x.time)
+  }
   return rows.map(r => {
     const c = r.commandId ? byId.get(r.commandId) : undefined
-    return { id: r.id, seq: r.seq, at: r.at, action: r.action, correctionUm: r.correctionUm, offsetUm: r.offsetUm, reason: r.reason, alerts: r.alerts,
+    return { id: r.id, seq: r.seq, at: r.at, machineTime: machineTimes.get(r.seq) ?? null, action: r.action, correctionUm: r.correctionUm, offsetUm: r.offsetUm, reason: r.reason, alerts: r.alerts,
       command: c ? { id: c.id, status: c.status, requestedOffsetUm: c.requestedOffsetUm, appliedOffsetUm: c.appliedOffsetUm, ackReason: c.ackReason } : null }
   })
 })
