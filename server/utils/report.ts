@@ -268,6 +268,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   // Columns, not one object per reading: a week is 300,000 readings, and objects cost more
   // (allocation and garbage collection) than everything computed from them.
   const readingsByMachine = new Map(readingLists.map((g) => [g.m, readingColumns(g.st.length, g.seqs, g.parts, g.offs, g.times, g.dia, g.st, g.jobs, US)]))
+  const readingSeqText = new Map(readingLists.map((g) => [g.m, g.seqs]))
   const readingCount = readingLists.reduce((a, g) => a + g.st.length, 0)
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
   const acksByMachine = new Map(ackLists.map((g) => {
@@ -303,7 +304,11 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
       heldByMachine.set(d.m, new Map(seqs.map((q, i) => [Number(q), reasons[i]!])))
     }
     const mr = readingsByMachine.get(d.m)
-    if (mr) {
+    if (!mr) continue
+    // Usually one decision per reading, in the same order: then the two seq texts are equal and
+    // the slopes line up with the readings without parsing and matching the seqs.
+    if (mr.n && !mr.reordered && d.seqs === readingSeqText.get(d.m)) slopesByMachine.set(d.m, reportParseNumberList(d.slopes, mr.n))
+    else {
       const n = countFields(d.seqs)
       slopesByMachine.set(d.m, slopeAtReadings(mr, reportParseNumberList(d.seqs, n), reportParseNumberList(d.slopes, n)))
     }
@@ -497,6 +502,8 @@ export interface ReadingColumns {
   /** per reading, an index into `jobs` (part number, or null before the first birth) */
   job: Uint16Array
   jobs: (string | null)[]
+  /** true when the rows came out of SQLite in another order and were sorted here */
+  reordered?: boolean
 }
 
 const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), offsetUm: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
@@ -515,7 +522,7 @@ function readingColumns(n: number, seqs: string, parts: string, offs: string, ti
   if (sorted) return c
   const order = Array.from({ length: n }, (_, i) => i).sort((a, b) => c.time[a]! - c.time[b]! || c.seq[a]! - c.seq[b]!)
   const pick = (col: Float64Array) => Float64Array.from(order, (i) => col[i]!)
-  return { n, seq: pick(c.seq), part: pick(c.part), offsetUm: pick(c.offsetUm), time: pick(c.time), dia: pick(c.dia), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs }
+  return { n, seq: pick(c.seq), part: pick(c.part), offsetUm: pick(c.offsetUm), time: pick(c.time), dia: pick(c.dia), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs, reordered: true }
 }
 
 /** Fills c.job and c.jobs from the separator-joined part numbers ('' = none). */
@@ -582,8 +589,13 @@ function parseDecimal(s: string, from: number, to: number): number {
 }
 
 function capabilityOf(machineId: string, partNumber: string | null, mr: ReadingColumns, rows: readonly number[], tol: { lsl: number; usl: number } | null): ReportCapability {
-  const ok = rows.filter((i) => mr.status.charCodeAt(i) === 111 /* o */ && !Number.isNaN(mr.dia[i]!))
-  const values = ok.map((i) => mr.dia[i]!)
+  // the measured parts (gauge ok, a size), in time order; one loop, no closure per part
+  const ok: number[] = []
+  const values: number[] = []
+  for (const i of rows) {
+    const d = mr.dia[i]!
+    if (mr.status.charCodeAt(i) === 111 /* o */ && !Number.isNaN(d)) { ok.push(i); values.push(d) }
+  }
   const base: ReportCapability = {
     machineId, partNumber, n: values.length, mean: values.length ? spcMean(values) : null, lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
     sigmaWithin: null, sigmaOverall: null,
