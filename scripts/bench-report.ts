@@ -72,15 +72,6 @@ const results = [
   await time(`${days}-day range, whole cell`, () => reportBuild(fx.db, week)),
   await time('night, parts CSV (every part)', () => reportPartsCsv(fx.db, night)),
 ]
-// The same two reports with memory-mapped reads (a connection setting the server does not make yet):
-// the week reads most of the file, and with SQLite's default 2 MB page cache each page is copied in
-// again for every machine's index walk.
-const MMAP = 1 << 30
-await fx.client.execute(`PRAGMA mmap_size = ${MMAP}`)
-const mmapResults = [
-  await time('night, whole cell (12 machines × 10 h) — with PRAGMA mmap_size = 1 GiB', () => reportBuild(fx.db, night)),
-  await time(`${days}-day range, whole cell — with PRAGMA mmap_size = 1 GiB`, () => reportBuild(fx.db, week)),
-]
 const nightReport = results[0]!.out as Awaited<ReturnType<typeof reportBuild>>
 const weekReport = results[2]!.out as Awaited<ReturnType<typeof reportBuild>>
 const csv = results[3]!.out as string[]
@@ -98,28 +89,38 @@ Measured ${new Date().toISOString().slice(0, 10)} on ${cpus().length} × ${cpus(
 
 | report | parts in range | median ms | best ms | worst ms | CPU ms (median, all threads) | 1-min load average | target (median) |
 |---|---|---|---|---|---|---|---|
-${[...results, ...mmapResults].map((r) => `| ${r.name} | ${(r.name.includes('-day') ? weekReport.totals.produced : r.name.includes('CSV') ? csv.length - 1 : r.name.includes('one machine') ? (r.out as typeof nightReport).totals.produced : nightReport.totals.produced).toLocaleString('en-US')} | ${r.median.toFixed(0)} | ${r.best.toFixed(0)} | ${r.worst.toFixed(0)} | ${r.cpu.toFixed(0)} | ${r.load.toFixed(1)} | ${target(r.name, r.median)} |`).join('\n')}
+${results.map((r) => `| ${r.name} | ${(r.name.includes('-day') ? weekReport.totals.produced : r.name.includes('CSV') ? csv.length - 1 : r.name.includes('one machine') ? (r.out as typeof nightReport).totals.produced : nightReport.totals.produced).toLocaleString('en-US')} | ${r.median.toFixed(0)} | ${r.best.toFixed(0)} | ${r.worst.toFixed(0)} | ${r.cpu.toFixed(0)} | ${r.load.toFixed(1)} | ${target(r.name, r.median)} |`).join('\n')}
 
 The machine is shared by several processes (builds, browser tests); the load average says how busy it
-was while each row was measured. On 2 cores, a load above 2 stretches wall-clock times accordingly: five earlier
-runs on 2026-12-02 at load 3–5 gave medians for the night of 296–485 ms (with mmap 242–388 ms) and for the week
-of 2.9–3.8 s (with mmap 2.6–3.7 s); the best-run column moves less.
-
-The last two rows set \`PRAGMA mmap_size = 1 GiB\` on the connection first (SQLite then reads pages straight from
-the operating system's file cache instead of copying them into its own 2 MB page cache, which a week's index walks
-overflow). The server's connection (server/utils/db.ts) does not set it yet; it is a connection setting, no change
-to what is stored or to insert costs.
+was while each row was measured. On 2 cores, a load above 2 stretches wall-clock times accordingly; the best-run
+column moves less. Before the change described below, five runs on 2026-12-02 at load 3–5 gave medians for the night
+of 296–485 ms and for the week of 2.9–4.4 s.
 
 Not in these figures: HTTP, session check and JSON encoding of the answer (the night's report is
 ${(JSON.stringify(nightReport).length / 1024).toFixed(0)} KiB of JSON, most of it the size charts, thinned to ≤ 2,400 points per machine).
 
-Where the time goes (profiled 2026-12-02): SQLite stepping through three row streams of the range, each one
-table row fetched per index entry — the readings (one per part), the engine's decisions (one per part: held
-readings and the slope estimate for predicted wear) and the applied-offset acks (one per offset; the row fetch
-costs, not the JSON: reading only the payload length takes as long). The JavaScript side keeps readings and acks
-as typed columns parsed from concatenated text (no object per reading), which removed most of the garbage
-collection. The situation before the window is found by single index probes (a row-value IN over a VALUES list
-had scanned the whole message table: 330 ms of the old 460 ms night).
+Where the time goes (profiled 2026-12-02, week, load 1.5): about 1.2 s in SQLite, 0.5 s in JavaScript. SQLite
+steps through three row streams of the range, each on its per-machine index: the readings (one per part; ~350 ms,
+most of it turning the REAL sizes and offsets into text for the concatenated columns), the engine's decisions (one
+per part: held readings and the slope estimate for predicted wear; ~500 ms, more than half of it json_extract of the
+slope and its text) and the applied-offset acks (one per offset; ~260 ms); the states, events and counts take
+~100 ms. The JavaScript side parses the concatenated columns into typed arrays (no object per reading; ~100 ms),
+then capability and run rules, chart thinning, compensation and wear. When the decisions' seq list is the same
+text as the readings' (one decision per reading, in the same order) the slopes are taken in order instead of being
+parsed and matched by seq.
+The report's bulk reads run as one batch on one connection with \`PRAGMA mmap_size = 1 GiB\` (server/utils/report.ts,
+readPrelude): SQLite then reads pages straight from the operating system's file cache. Without it, each machine's
+index walk copied every table page it touched into a 2 MB page cache that a week overflows, and the pages of
+interleaved machines were copied in again for each machine: on a copy of the week's file the week took 2.9–3.5 s
+(load 2.1), with it 1.5–1.8 s (load 1.5), every output identical (same SHA-1 of the report's JSON). It is set per batch, not once when the server opens the database, because @libsql/client keeps a
+pool of connections and opens a new one whenever statements overlap (the report's reads used to run in a
+Promise.all: eight connections, the pragma on at most one of them, each with a cold cache). A connection setting
+only: nothing stored changes, writes and ingest are unaffected.
+Measured and not used (week, with mmap, medians of 5 at load 5): reading each stream by its rowid range — exact
+id bounds from covering-index probes (min(id), max(id) on (machine, time)), then one sequential scan of that id range
+— instead of the per-machine index walk: readings 351 → 404 ms, decisions 533 → 496 ms, acks 277 → 274 ms; the
+10-hour night was slower on all three (38 → 46, 49 → 57, 29 → 33 ms). With mmap a row fetched through the index costs
+little more than a row met in a scan, and the scan must also read the rows of the range it does not want.
 Counting parts, reading only rejected parts and only applied offsets runs on partial indexes (migration 0009). A
 covering index on readings (machine, time, seq, part, status, diameter, job, received) made the readings scan 1.8×
 faster in the sqlite3 shell (769 → 417 ms for one day of 12 machines at load 13); it is not added because it
@@ -127,8 +128,6 @@ doubles what every reading costs to store. Measured on a copy of the week's file
 measured first): a partial index of held decisions (machine, at) where action = 'hold' reads the week's holds in
 25 ms instead of 233 ms, but the slope estimates for predicted wear still need every decision row; an expression
 column for the offset value in the applied-offset index does not help (SQLite still fetches each row).
-What would take the week under 2 s, not done: the three row streams on a second connection in a worker thread
-(wall time, not CPU: the 2 cores are shared with ingest), or a slope column kept per hour as retention keeps sizes.
 Run: \`npm run bench:report\` (\`BENCH_DAYS\`, \`BENCH_RUNS\` to change the size and the number of runs).
 `
 
