@@ -108,8 +108,9 @@ slope and its text) and the applied-offset acks (one per offset; ~260 ms); the s
 then capability and run rules, chart thinning, compensation and wear. When the decisions' seq list is the same
 text as the readings' (one decision per reading, in the same order) the slopes are taken in order instead of being
 parsed and matched by seq.
-The report's bulk reads run as one batch on one connection with \`PRAGMA mmap_size = 1 GiB\` (server/utils/report.ts,
-readPrelude): SQLite then reads pages straight from the operating system's file cache. Without it, each machine's
+The report's bulk reads run as one batch on one connection with \`PRAGMA mmap_size\` at SQLite's cap of 2 GiB
+(server/utils/report.ts, readPrelude): SQLite then reads pages straight from the operating system's file cache (a
+file beyond 2 GiB is mapped from its start; the rest, where the newest rows are, is read as before). Without it, each machine's
 index walk copied every table page it touched into a 2 MB page cache that a week overflows, and the pages of
 interleaved machines were copied in again for each machine: on a copy of the week's file the week took 2.9–3.5 s
 (load 2.1), with it 1.5–1.8 s (load 1.5), every output identical (same SHA-1 of the report's JSON). It is set per batch, not once when the server opens the database, because @libsql/client keeps a

@@ -437,7 +437,8 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
 function readPrelude(db: ReportDb) {
   return db.$client.protocol === 'file' ? db.run(sql.raw(`PRAGMA mmap_size = ${REPORT_MMAP_BYTES}`)) : db.run(sql`select 1`)
 }
-const REPORT_MMAP_BYTES = 1 << 30
+// SQLite caps this at its build's maximum (2 GiB − 64 KiB here); beyond it a file is read as before
+const REPORT_MMAP_BYTES = 2 ** 31
 
 async function situationBefore(db: ReportDb, ids: string[], from: number, to: number) {
   if (!ids.length) return []
