@@ -435,7 +435,9 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
  * setting only: nothing stored changes, writes are unaffected, the pages stay in the OS file cache.
  */
 function readPrelude(db: ReportDb) {
-  return db.$client.protocol === 'file' ? db.run(sql.raw(`PRAGMA mmap_size = ${REPORT_MMAP_BYTES}`)) : db.run(sql`select 1`)
+  // drizzle() puts the client on the handle as $client (not in the LibSQLDatabase type); without it, no pragma
+  const client = (db as ReportDb & { $client?: { protocol?: string } }).$client
+  return client?.protocol === 'file' ? db.run(sql.raw(`PRAGMA mmap_size = ${REPORT_MMAP_BYTES}`)) : db.run(sql`select 1`)
 }
 // SQLite caps this at its build's maximum (2 GiB − 64 KiB here); beyond it a file is read as before
 const REPORT_MMAP_BYTES = 2 ** 31
