@@ -94,8 +94,8 @@ ${results.map((r) => `| ${r.name} | ${(r.name.includes('-day') ? weekReport.tota
 The machine is shared by several processes (builds, browser tests); the load average says how busy it
 was while each row was measured. On 2 cores, a load above 2 stretches wall-clock times accordingly; the best-run
 column moves less. Before the change described below, five runs on 2026-12-02 at load 3–5 gave medians for the night
-of 296–485 ms and for the week of 2.9–4.4 s. After it, five runs at load 1.1–1.8 (02:34–02:44 UTC) gave the night
-125–192 ms and the week 1622–2242 ms (four of the five under 2 s). The week is near the target, not clear of it: its
+of 296–485 ms and for the week of 2.9–4.4 s. After it, seven earlier runs at load 1.1–1.8 (02:34–02:49 UTC) gave the
+night 123–192 ms and the week 1565–2429 ms (five of the seven under 2 s). The week is near the target, not clear of it: its
 CPU time alone is 1.7–2.4 s, the same code on a copy of the file took 1.5–2.7 s from one minute to the next at a load
 of about 1, and at a load of 4 or more the week is expected above 2 s again.
 
@@ -124,7 +124,13 @@ Measured and not used (week, with mmap, medians of 5 at load 5): reading each st
 id bounds from covering-index probes (min(id), max(id) on (machine, time)), then one sequential scan of that id range
 — instead of the per-machine index walk: readings 351 → 404 ms, decisions 533 → 496 ms, acks 277 → 274 ms; the
 10-hour night was slower on all three (38 → 46, 49 → 57, 29 → 33 ms). With mmap a row fetched through the index costs
-little more than a row met in a scan, and the scan must also read the rows of the range it does not want.
+little more than a row met in a scan; one scan gives the machines' rows mixed, and telling them apart (a machine code
+per row, or a GROUP BY that sorts) costs what the scan saves; for the acks the scan also steps over the other
+1.16 million messages of the range.
+Not used either: taking the slope out of the decision's JSON text by position (instr/substr) instead of json_extract
+was ~200 ms faster for the week but is exact only for the key order the engine writes today. What would take the week
+clearly under 2 s: the three streams on a second connection in a worker thread (wall time, not CPU), or the slope
+kept in its own column (a schema change, costed against ingest first).
 Counting parts, reading only rejected parts and only applied offsets runs on partial indexes (migration 0009). A
 covering index on readings (machine, time, seq, part, status, diameter, job, received) made the readings scan 1.8×
 faster in the sqlite3 shell (769 → 417 ms for one day of 12 machines at load 13); it is not added because it
