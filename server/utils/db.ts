@@ -32,15 +32,17 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
       throw new ConfigError(`Owlshift cannot start: the data folder "${dir}" is not writable (${(err as Error).message}). Set OWLSHIFT_DATA_DIR to a folder this user may write, or fix its permissions.`)
     }
   }
-  const raw = createClient({ url: config.databaseUrl, authToken: config.databaseAuthToken })
-  const c = file ? reconnectAfterBusy(raw) : raw
+  // One connection for a local file: @libsql/client opens another for every overlapping call, and
+  // pragmas (busy timeout, synchronous, foreign keys, the report's mmap) hold per connection, so
+  // the extra ones ran without them and with a cold cache. Every call here is a short synchronous
+  // step (no transaction spans an await), so one connection only makes overlapping calls queue.
+  const raw = createClient({ url: config.databaseUrl, authToken: config.databaseAuthToken, ...(file ? { concurrency: 1, timeout: BUSY_TIMEOUT_MS } : {}) })
+  const c = file ? reconnectAfterBusy(raw, CONNECTION_PRAGMAS) : raw
   try {
     if (file) {
       // WAL lets readers go on while ingest writes; the busy timeout rides out short lock waits.
       await c.execute('PRAGMA journal_mode = WAL')
-      await c.execute('PRAGMA busy_timeout = 5000')
-      await c.execute('PRAGMA synchronous = NORMAL')
-      await c.execute('PRAGMA foreign_keys = ON')
+      for (const p of CONNECTION_PRAGMAS) await c.execute(p)
     }
     await c.execute('SELECT 1')
   }
@@ -53,6 +55,9 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
   return db
 }
 
+const BUSY_TIMEOUT_MS = 5000
+/** Set on each connection to a local file (WAL mode itself is kept in the file). */
+const CONNECTION_PRAGMAS = [`PRAGMA busy_timeout = ${BUSY_TIMEOUT_MS}`, 'PRAGMA synchronous = NORMAL', 'PRAGMA foreign_keys = ON']
 
 /**
  * On a local file, a statement refused with SQLITE_BUSY (another process held the write lock past
@@ -61,11 +66,14 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
  * A fresh set of connections after such a refusal keeps them. Safe here: no transaction in this
  * process is held across an await, so no other call has a connection borrowed at that moment.
  */
-export function reconnectAfterBusy(c: Client): Client {
+export function reconnectAfterBusy(c: Client, pragmas: readonly string[] = []): Client {
   const guarded = <A extends unknown[], R>(fn: (...args: A) => Promise<R>) => async (...args: A): Promise<R> => {
     try { return await fn.apply(c, args) }
     catch (err) {
-      if (String((err as { code?: unknown }).code ?? '').startsWith('SQLITE_BUSY')) await c.reconnect()
+      if (String((err as { code?: unknown }).code ?? '').startsWith('SQLITE_BUSY')) {
+        await c.reconnect()
+        for (const p of pragmas) await c.execute(p) // the fresh connection starts with SQLite's defaults
+      }
       throw err
     }
   }
