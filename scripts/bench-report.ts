@@ -119,7 +119,9 @@ interleaved machines were copied in again for each machine: on a copy of the wee
 (load 2.1), with it 1.5–1.8 s (load 1.5), every output identical (same SHA-1 of the report's JSON). It is set per batch, not once when the server opens the database, because @libsql/client keeps a
 pool of connections and opens a new one whenever statements overlap (the report's reads used to run in a
 Promise.all: eight connections, the pragma on at most one of them, each with a cold cache). A connection setting
-only: nothing stored changes, writes and ingest are unaffected.
+only: nothing stored changes, writes and ingest are unaffected. Since then the server keeps a single connection to a
+local file (server/utils/db.ts), so overlapping calls queue instead of opening cold connections without its settings;
+the per-batch pragma stays so the report does not depend on that.
 Measured and not used (week, with mmap, medians of 5 at load 5): reading each stream by its rowid range — exact
 id bounds from covering-index probes (min(id), max(id) on (machine, time)), then one sequential scan of that id range
 — instead of the per-machine index walk: readings 351 → 404 ms, decisions 533 → 496 ms, acks 277 → 274 ms; the
