@@ -80,7 +80,7 @@ export class MessageRows {
     const action = moved ? 'offset' : held ? 'hold' : 'none'
     const reason = held ? `hold: ${before!.holdReason ?? 'hold'}` : moved ? `offset ${after.offsetUm} µm` : 'no change'
     const inputs = { levelUm: after.level, slopeUmPerPart: after.slope, ewmaLevelUm: after.ewmaLevel, stepMeanUm: null, outOfTolerance: after.outOfToleranceRun > 0, outlier: after.outlierRun > 0 }
-    this.decisions.push([machineId, seq, at, action, moved ? after.offsetUm - before!.offsetUm : null, after.offsetUm, null, reason, JSON.stringify(inputs), null])
+    this.decisions.push([machineId, seq, at, action, moved ? after.offsetUm - before!.offsetUm : null, after.offsetUm, null, reason, JSON.stringify(inputs), null, Number.isFinite(inputs.slopeUmPerPart) ? inputs.slopeUmPerPart + 0 : null])
   }
   async flush(client: Client): Promise<void> {
     const stmts: InStatement[] = []
@@ -95,7 +95,7 @@ export class MessageRows {
     }
     for (let i = 0; i < this.decisions.length; i += chunk) {
       const rows = this.decisions.slice(i, i + chunk)
-      stmts.push({ sql: `insert into decisions (machine_id, seq, at, action, correction_um, offset_um, command_id, reason, inputs, alerts) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
+      stmts.push({ sql: `insert into decisions (machine_id, seq, at, action, correction_um, offset_um, command_id, reason, inputs, alerts, slope_um_per_part) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
     }
     for (let i = 0; i < stmts.length; i += 500) await client.batch(stmts.slice(i, i + 500), 'write')
     this.readings = []

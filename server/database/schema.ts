@@ -192,6 +192,8 @@ export const decisions = sqliteTable('decisions', {
   reason: text('reason').notNull(),
   inputs: text('inputs', { mode: 'json' }).notNull(),
   alerts: text('alerts', { mode: 'json' }),
+  /** the engine's wear slope (µm per part) from `inputs`, as a column so the report reads it without parsing JSON; null before migration 0011 */
+  slopeUmPerPart: real('slope_um_per_part'),
 }, t => [index('decisions_machine_at').on(t.machineId, t.at)])
 
 /** Commands sent to machines and what became of them. */

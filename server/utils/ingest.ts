@@ -78,6 +78,12 @@ const commandLifeMs = (cycleTimeS: number) => Math.max(60, 3 * cycleTimeS) * 100
 
 const round3 = (x: number) => Math.round(x * 1000) / 1000
 
+/** The engine's wear slope from a decision's inputs (only the drift strategy has one). */
+export function slopeOf(d: CompensationDecision): number | null {
+  const x = d.inputs.slopeUmPerPart
+  return typeof x === 'number' && Number.isFinite(x) ? x + 0 : null // + 0: no −0, as in the JSON
+}
+
 const ENGINE_ALARM_CODES = ['budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const
 
 function actionOf(d: CompensationDecision): string {
@@ -246,7 +252,7 @@ export class IngestPipeline {
         decisionRows.push({
           machineId: ctx.id, seq, at: now, action: actionOf(decision), correctionUm: decision.command?.correctionUm ?? null,
           offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason: decision.reason, inputs: decision.inputs,
-          alerts: decision.alerts.length ? decision.alerts : null,
+          alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: slopeOf(decision),
         })
         for (const c of cmds) {
           commandRows.push({ id: c.id, machineId: ctx.id, type: c.type, origin: 'engine', payload: c, issuedAt: now, expiresAt, status: 'sent', requestedOffsetUm: c.type === 'offset' ? c.offsetUm : null })

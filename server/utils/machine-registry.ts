@@ -108,7 +108,7 @@ export async function setMachineJob(machineId: string, job: JobRow | null, tunin
   const db = useDb()
   await db.update(schema.machineStatus).set({ engineState: state }).where(eq(schema.machineStatus.machineId, machineId))
   if (decision.kind !== 'ignored') {
-    await db.insert(schema.decisions).values({ machineId, seq: ctx.status.lastSeq, at: Date.now(), action: decision.hold ? 'hold' : 'none', correctionUm: null, offsetUm: decision.offsetUm, commandId: null, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null })
+    await db.insert(schema.decisions).values({ machineId, seq: ctx.status.lastSeq, at: Date.now(), action: decision.hold ? 'hold' : 'none', correctionUm: null, offsetUm: decision.offsetUm, commandId: null, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: slopeOf(decision) })
   }
   return decision
 }

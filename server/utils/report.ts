@@ -286,12 +286,13 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   const beforeById = new Map(before.map((b) => [b.id, b]))
 
   // The engine's decisions on the window's readings (found by server time around them), in one
-  // pass: the held readings with their reasons, and the engine's slope estimate (predicted wear).
+  // pass: the held readings with their reasons, and the engine's slope estimate (predicted wear) —
+  // from its own column, or from the inputs' JSON for decisions stored before migration 0011.
   const rcv = received[0]
   const decided = rcv?.lo != null && rcv.hi != null
     ? (await db.batch([readPrelude(db), db.all<{ m: string; seqs: string; slopes: string; heldSeqs: string | null; heldReasons: string | null }>(sql`
       select machine_id as m, group_concat(seq, ',') as seqs,
-        group_concat(coalesce(json_extract(inputs, '$.slopeUmPerPart'), ''), ',') as slopes,
+        group_concat(coalesce(slope_um_per_part, json_extract(inputs, '$.slopeUmPerPart'), ''), ',') as slopes,
         group_concat(case when action = 'hold' then seq end, ',') as heldSeqs,
         group_concat(case when action = 'hold' then reason end, ${US}) as heldReasons
       from decisions where machine_id in ${idList} and at >= ${Number(rcv.lo)} and at < ${Number(rcv.hi) + 1} group by machine_id`)]))[1]

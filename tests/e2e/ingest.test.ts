@@ -34,6 +34,8 @@ describe('ingest', async () => {
     expect(await count('select count(*) from readings where machine_id = ?', 'cg-01')).toBe(20)
     // Every reading got a stored decision with a reason.
     expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 21 and length(reason) > 0`)).toBeGreaterThanOrEqual(20)
+    // The drift strategy's wear slope is kept in its own column, equal to the one in the inputs (read by the report).
+    expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 21 and slope_um_per_part = json_extract(inputs, '$.slopeUmPerPart')`)).toBeGreaterThanOrEqual(20)
     // The decision log carries the machine's time of the part each decision answered (the chart's clock).
     const cookie = await sessionCookie('bram@larkspur.example')
     const log = await (await fetch(url('/api/machines/cg-01/decisions?all=1&limit=500'), { headers: { cookie } })).json() as { seq: number, machineTime: number | null }[]

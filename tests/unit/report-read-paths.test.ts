@@ -28,7 +28,11 @@ const parts = [1, 2, 3, 4, 5].map((seq) => ({ seq, time: start + H + seq * MIN, 
 const outside = { seq: 0, time: from - MIN, slope: 64, offsetUm: 0 }
 const dressAt = start + H + 3.5 * MIN
 
-async function reportWithStoreOrder(order: (typeof parts[number])[]): Promise<Report> {
+/**
+ * `slopeColumn`: the decision carries its slope in the column ingest fills since migration 0011 (else only in its
+ * inputs' JSON, as before). The JSON then says 999, so a report that read it instead would differ.
+ */
+async function reportWithStoreOrder(order: (typeof parts[number])[], slopeColumn = false): Promise<Report> {
   const fx = await openReportFixture()
   try {
     await seedCell(fx, scenario, 1, 'Europe/Berlin')
@@ -37,7 +41,7 @@ async function reportWithStoreOrder(order: (typeof parts[number])[]): Promise<Re
     for (const p of order) {
       received += 1000
       await fx.db.insert(schema.readings).values({ machineId: 'cg-01', seq: p.seq + 10, part: p.seq + 10, time: p.time, receivedAt: received, status: 'ok', diameterUm: p.seq / 10, offsetUm: p.offsetUm, jobPartNumber: null })
-      await fx.db.insert(schema.decisions).values({ machineId: 'cg-01', seq: p.seq + 10, at: received, action: 'none', offsetUm: p.offsetUm, reason: 'no change', inputs: { levelUm: 0, slopeUmPerPart: p.slope } })
+      await fx.db.insert(schema.decisions).values({ machineId: 'cg-01', seq: p.seq + 10, at: received, action: 'none', offsetUm: p.offsetUm, reason: 'no change', inputs: { levelUm: 0, slopeUmPerPart: slopeColumn ? 999 : p.slope }, slopeUmPerPart: slopeColumn ? p.slope : null })
     }
     await fx.db.insert(schema.machineMessages).values({ machineId: 'cg-01', seq: 100, kind: 'event', type: 'dress', time: dressAt, receivedAt: dressAt, payload: { kind: 'event', type: 'dress', trigger: 'interval', partsSinceDress: 3 } })
     return await reportBuild(fx.db, { cellId: 'cell-a', from, to })
@@ -60,5 +64,13 @@ describe('slopes reach the right parts whatever order the readings were stored i
     }
     const same = (r: Report) => JSON.stringify({ ...r, scope: { ...r.scope, generatedAt: 0 } })
     expect(same(late)).toBe(same(inOrder))
+  })
+
+  it('reads the slope from its column (decisions stored since migration 0011) with the same result as from the JSON', async () => {
+    const fromJson = await reportWithStoreOrder([outside, ...parts])
+    const fromColumn = await reportWithStoreOrder([outside, ...parts], true)
+    const same = (r: Report) => JSON.stringify({ ...r, scope: { ...r.scope, generatedAt: 0 } })
+    expect(fromColumn.machines[0]!.compensation.wheelWear.intervals[1]!.predictedUmPerPart).toBeCloseTo(1.5, 12)
+    expect(same(fromColumn)).toBe(same(fromJson))
   })
 })

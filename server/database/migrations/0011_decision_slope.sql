@@ -1,0 +1,1 @@
+ALTER TABLE `decisions` ADD `slope_um_per_part` real;
