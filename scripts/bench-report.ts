@@ -105,8 +105,9 @@ ${(JSON.stringify(nightReport).length / 1024).toFixed(0)} KiB of JSON, most of i
 Where the time goes (profiled 2026-12-02, week, load 1.5): about 1.2 s in SQLite, 0.5 s in JavaScript. SQLite
 steps through three row streams of the range, each on its per-machine index: the readings (one per part; ~350 ms,
 most of it turning the REAL sizes and offsets into text for the concatenated columns), the engine's decisions (one
-per part: held readings and the slope estimate for predicted wear; ~500 ms, more than half of it json_extract of the
-slope and its text) and the applied-offset acks (one per offset; ~260 ms); the states, events and counts take
+per part: held readings and the slope estimate for predicted wear; ~500 ms before migration 0011, more than half of it
+json_extract of the slope from the decision's JSON — the slope now has a column of its own, filled by ingest, and
+took the week from 1.6–2.4 s to 1.34 s at load 1.5) and the applied-offset acks (one per offset; ~260 ms); the states, events and counts take
 ~100 ms. The JavaScript side parses the concatenated columns into typed arrays (no object per reading; ~100 ms),
 then capability and run rules, chart thinning, compensation and wear. When the decisions' seq list is the same
 text as the readings' (one decision per reading, in the same order) the slopes are taken in order instead of being
@@ -130,9 +131,9 @@ little more than a row met in a scan; one scan gives the machines' rows mixed, a
 per row, or a GROUP BY that sorts) costs what the scan saves; for the acks the scan also steps over the other
 1.16 million messages of the range.
 Not used either: taking the slope out of the decision's JSON text by position (instr/substr) instead of json_extract
-was ~200 ms faster for the week but is exact only for the key order the engine writes today. What would take the week
-clearly under 2 s: the three streams on a second connection in a worker thread (wall time, not CPU), or the slope
-kept in its own column (a schema change, costed against ingest first).
+was ~200 ms faster for the week but is exact only for the key order the engine writes today; the slope column
+(migration 0011: one REAL per decision row, no index) replaced both. Still open for the week under heavy load: the
+three streams on a second connection in a worker thread (wall time, not CPU).
 Counting parts, reading only rejected parts and only applied offsets runs on partial indexes (migration 0009). A
 covering index on readings (machine, time, seq, part, status, diameter, job, received) made the readings scan 1.8×
 faster in the sqlite3 shell (769 → 417 ms for one day of 12 machines at load 13); it is not added because it
