@@ -116,34 +116,34 @@ function rssMiB(pid: number): number {
   return Number(line.replace(/\D+/g, '')) / 1024
 }
 
-/** The same flood against a bare aedes in a process of its own (as Owlshift's broker is). */
+/** Messages/s of the flood against a bare broker at `url` (after a warm-up), the ceiling. */
+async function floodRate(url: string): Promise<number> {
+  const clients = await connectAll(url, null)
+  await flood(clients, 1, 5_000) // warm-up
+  const rate = await flood(clients, 10_000, 25_000)
+  await Promise.all(clients.map(c => c.endAsync()))
+  return rate
+}
+
+/** The ceiling with a bare aedes in a process of its own (as Owlshift's broker is). */
 async function ceilingSeparateProcess(): Promise<number> {
   const child = spawn(process.execPath, ['--import', 'tsx', 'scripts/lib/bare-broker.ts'], { stdio: ['ignore', 'pipe', 'inherit'] })
   const port = await new Promise<number>((resolve, reject) => {
     child.stdout!.on('data', (d: Buffer) => { const m = /port (\d+)/.exec(d.toString()); if (m) resolve(Number(m[1])) })
     child.once('exit', code => reject(new Error(`bare broker exited ${code}`)))
   })
-  try {
-    const clients = await connectAll(`mqtt://127.0.0.1:${port}`, null)
-    await flood(clients, 1, 5_000) // warm-up
-    const rate = await flood(clients, 10_000, 25_000)
-    await Promise.all(clients.map(c => c.endAsync()))
-    return rate
-  }
+  try { return await floodRate(`mqtt://127.0.0.1:${port}`) }
   finally { child.kill('SIGTERM') }
 }
 
+/** The ceiling with a bare aedes in this process, beside the benchmark's clients. */
 async function ceiling(): Promise<number> {
   const broker = await Aedes.createBroker({ authorizePublish: (_c, _p, done) => done(null) })
   const server = net.createServer(s => broker.handle(s))
   const port = await freePort()
   await new Promise<void>(r => server.listen(port, '127.0.0.1', r))
-  const clients = await connectAll(`mqtt://127.0.0.1:${port}`, null)
-  await flood(clients, 1, 5_000) // warm-up
-  const rate = await flood(clients, 10_000, 25_000)
-  await Promise.all(clients.map(c => c.endAsync()))
-  await new Promise(r => server.close(r)); await new Promise<void>(r => broker.close(() => r()))
-  return rate
+  try { return await floodRate(`mqtt://127.0.0.1:${port}`) }
+  finally { await new Promise(r => server.close(r)); await new Promise<void>(r => broker.close(() => r())) }
 }
 
 async function main() {

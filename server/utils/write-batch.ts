@@ -54,8 +54,6 @@ function prepared(sql: string): NativeStatement {
   return s
 }
 
-const toNative = (v: InValue | undefined): unknown => (v === undefined ? null : typeof v === 'boolean' ? (v ? 1 : 0) : v instanceof Date ? v.getTime() : v)
-
 /** All statements commit together or not at all. */
 export async function writeBatch(statements: InStatement[]): Promise<void> {
   if (!statements.length) return
@@ -68,11 +66,9 @@ export async function writeBatch(statements: InStatement[]): Promise<void> {
   try {
     for (const st of statements) {
       const { sql, args = [] } = typeof st === 'string' ? { sql: st } : st
+      // Values arrive as the driver takes them: raw-insert.ts maps them through Drizzle's columns.
       if (!Array.isArray(args)) throw new Error('writeBatch takes positional arguments only')
-      const list = args as InValue[]
-      let plain = true
-      for (const v of list) if (v === undefined || typeof v === 'boolean' || v instanceof Date) { plain = false; break }
-      prepared(sql).run(plain ? list : list.map(toNative))
+      prepared(sql).run(args as InValue[])
     }
     n.commit.run()
     n.checkpointer.committed()

@@ -17,41 +17,44 @@ import { demoShop } from '../../shared/utils/demo-shop'
 
 const TOKEN = 'libsql-test-token-7f3a'
 
-describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
-  let dataDir: string
-  let dbFile: string
-  let libsql: LibsqlHttpServer
-  let server: ServerProcess
-  let mqttUrl: string
-  let file: Client
-  const base = () => `http://127.0.0.1:${server.port}`
-  const count = async (sql: string, ...args: (string | number)[]) => Number((await file.execute({ sql, args })).rows[0]![0])
-
+/**
+ * The built server on the libSQL test server, over HTTP or WebSocket, for one describe block: its
+ * fields are filled in beforeAll. `file` reads straight from the SQLite file behind the libSQL server
+ * (WAL: reading never blocks it).
+ */
+function owlshiftOnLibsql(transport: 'url' | 'wsUrl') {
+  const t = {} as { dataDir: string, dbFile: string, libsql: LibsqlHttpServer, server: ServerProcess, mqttUrl: string, file: Client }
   beforeAll(async () => {
-    dataDir = mkdtempSync(join(tmpdir(), 'owlshift-libsql-'))
-    dbFile = join(mkdtempSync(join(tmpdir(), 'owlshift-libsql-server-')), 'plant.db')
-    libsql = await startLibsqlHttpServer({ file: dbFile, authToken: TOKEN })
+    t.dataDir = mkdtempSync(join(tmpdir(), 'owlshift-libsql-'))
+    t.dbFile = join(mkdtempSync(join(tmpdir(), 'owlshift-libsql-server-')), 'plant.db')
+    t.libsql = await startLibsqlHttpServer({ file: t.dbFile, authToken: TOKEN })
     const mqttPort = await freePort()
-    mqttUrl = `mqtt://127.0.0.1:${mqttPort}`
-    server = await startServer({ dataDir, port: await freePort(), env: { DATABASE_URL: libsql.url, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: String(mqttPort) } })
-    // A read connection straight to the file behind the server (WAL: reading never blocks it).
-    file = createClient({ url: `file:${dbFile}` })
+    t.mqttUrl = `mqtt://127.0.0.1:${mqttPort}`
+    t.server = await startServer({ dataDir: t.dataDir, port: await freePort(), env: { DATABASE_URL: t.libsql[transport], DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: String(mqttPort) } })
+    t.file = createClient({ url: `file:${t.dbFile}` })
   })
   afterAll(async () => {
-    if (process.env.OWLSHIFT_TEST_DEBUG) console.log(server?.log())
-    file?.close()
-    if (server) await killServer(server, 'SIGTERM')
-    await libsql?.close()
+    if (process.env.OWLSHIFT_TEST_DEBUG) console.log(t.server?.log())
+    t.file?.close()
+    if (t.server) await killServer(t.server, 'SIGTERM')
+    await t.libsql?.close()
   })
+  const count = async (sql: string, ...args: (string | number)[]) => Number((await t.file.execute({ sql, args })).rows[0]![0])
+  return { t, count }
+}
+
+describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
+  const { t, count } = owlshiftOnLibsql('url')
+  const base = () => `http://127.0.0.1:${t.server.port}`
 
   it('applies every migration and seeds the demo shop in the server\'s file, and keeps its own data folder free of a database', async () => {
     const journal = JSON.parse(readFileSync(join(rootDir, 'server/database/migrations/meta/_journal.json'), 'utf8')) as { entries: unknown[] }
     expect(await count('select count(*) from "__drizzle_migrations"')).toBe(journal.entries.length)
     expect(await count('select count(*) from users')).toBe(demoShop.users.length)
     expect(await count(`select count(*) from machines where id = 'cg-01'`)).toBe(1)
-    expect(readdirSync(dataDir).filter(f => f.endsWith('.db'))).toEqual([])
-    expect(server.log()).toMatch(/applied \d+ database migration/)
-    expect(server.log()).toMatch(/created the demo shop/)
+    expect(readdirSync(t.dataDir).filter(f => f.endsWith('.db'))).toEqual([])
+    expect(t.server.log()).toMatch(/applied \d+ database migration/)
+    expect(t.server.log()).toMatch(/created the demo shop/)
   })
 
   it('lets a person sign in and read the plant', async () => {
@@ -66,8 +69,8 @@ describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
   })
 
   it('commits each reading before its PUBACK and stores a redelivered reading once', async () => {
-    const creds = demoCredentials(dataDir)
-    const c = await machineClient(mqttUrl, 'cg-01', creds['cg-01']!.password)
+    const creds = demoCredentials(t.dataDir)
+    const c = await machineClient(t.mqttUrl, 'cg-01', creds['cg-01']!.password)
     await publishAcked(c, topicFor('cg-01', birth(1)), payloadOf(birth(1)))
     for (let seq = 2; seq <= 16; seq++) {
       await publishAcked(c, topicFor('cg-01', reading(seq, 0.1 * (seq % 5))), payloadOf(reading(seq, 0.1 * (seq % 5))))
@@ -81,19 +84,19 @@ describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
     expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 16`)).toBeGreaterThanOrEqual(15)
     await c.endAsync()
     // Owlshift wrote through client.batch (one transaction per ingest batch) and met no HTTP error.
-    expect(libsql.stats.requests.batch).toBeGreaterThan(0)
-    expect(libsql.stats.httpErrors).toBe(0)
+    expect(t.libsql.stats.requests.batch).toBeGreaterThan(0)
+    expect(t.libsql.stats.httpErrors).toBe(0)
   })
 
   it('starts again on the same server without re-applying migrations or re-seeding, and goes on storing', async () => {
     const users = await count('select count(*) from users')
     await killServer(server, 'SIGTERM')
-    // Every request closed its stream: nothing is left open on the libSQL server.
-    expect(libsql.openStreams()).toBe(0)
-    server = await startServer({ dataDir, port: server.port, env: { DATABASE_URL: libsql.url, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: new URL(mqttUrl).port } })
-    expect(server.log()).not.toMatch(/applied \d+ database migration|created the demo shop/)
+    // Every request closed its stream: nothing is left open on the libSQL t.server.
+    expect(t.libsql.openStreams()).toBe(0)
+    t.server = await startServer({ t.dataDir, port: t.server.port, env: { DATABASE_URL: t.libsql.url, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: new URL(t.mqttUrl).port } })
+    expect(t.server.log()).not.toMatch(/applied \d+ database migration|created the demo shop/)
     expect(await count('select count(*) from users')).toBe(users)
-    const c = await machineClient(mqttUrl, 'cg-01', demoCredentials(dataDir)['cg-01']!.password)
+    const c = await machineClient(t.mqttUrl, 'cg-01', demoCredentials(t.dataDir)['cg-01']!.password)
     await publishAcked(c, topicFor('cg-01', reading(17, 0.2)), payloadOf(reading(17, 0.2)))
     expect(await count(`select count(*) from readings where machine_id = 'cg-01' and seq = 17`)).toBe(1)
     await c.endAsync()
@@ -107,42 +110,20 @@ describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
     expect(backup.status).toBe(409)
     expect(await backup.text()).toMatch(/libSQL server/)
     // pino levels: 40 warn, 50 error, 60 fatal.
-    const bad = server.log().split('\n').filter(l => /"level":(40|50|60)/.test(l) || /start-up failed|cannot start/.test(l))
+    const bad = t.server.log().split('\n').filter(l => /"level":(40|50|60)/.test(l) || /start-up failed|cannot start/.test(l))
     expect(bad).toEqual([])
     // No backup timer either: it would fail on every run (server/plugins/4.maintenance.ts).
-    expect(server.log()).toMatch(/no scheduled backups: the database is on a libSQL server/)
+    expect(t.server.log()).toMatch(/no scheduled backups: the database is on a libSQL server/)
   })
 })
 
 // The same server over Hrana over WebSocket (what ws:// and wss:// URLs use): the short version.
 describe('Owlshift on a libSQL server over WebSocket (DATABASE_URL=ws://…)', () => {
-  let dataDir: string
-  let dbFile: string
-  let libsql: LibsqlHttpServer
-  let server: ServerProcess
-  let mqttUrl: string
-  let file: Client
-  const count = async (sql: string, ...args: (string | number)[]) => Number((await file.execute({ sql, args })).rows[0]![0])
-
-  beforeAll(async () => {
-    dataDir = mkdtempSync(join(tmpdir(), 'owlshift-libsql-ws-'))
-    dbFile = join(mkdtempSync(join(tmpdir(), 'owlshift-libsql-ws-server-')), 'plant.db')
-    libsql = await startLibsqlHttpServer({ file: dbFile, authToken: TOKEN })
-    const mqttPort = await freePort()
-    mqttUrl = `mqtt://127.0.0.1:${mqttPort}`
-    server = await startServer({ dataDir, port: await freePort(), env: { DATABASE_URL: libsql.wsUrl, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: String(mqttPort) } })
-    file = createClient({ url: `file:${dbFile}` })
-  })
-  afterAll(async () => {
-    if (process.env.OWLSHIFT_TEST_DEBUG) console.log(server?.log())
-    file?.close()
-    if (server) await killServer(server, 'SIGTERM')
-    await libsql?.close()
-  })
+  const { t, count } = owlshiftOnLibsql('wsUrl')
 
   it('migrates, seeds, commits readings before their PUBACK, stores a redelivery once, and logs no error', async () => {
     expect(await count('select count(*) from users')).toBe(demoShop.users.length)
-    const c = await machineClient(mqttUrl, 'cg-02', demoCredentials(dataDir)['cg-02']!.password)
+    const c = await machineClient(t.mqttUrl, 'cg-02', demoCredentials(t.dataDir)['cg-02']!.password)
     await publishAcked(c, topicFor('cg-02', birth(1)), payloadOf(birth(1)))
     for (let seq = 2; seq <= 8; seq++) {
       await publishAcked(c, topicFor('cg-02', reading(seq, 0.1)), payloadOf(reading(seq, 0.1)))
@@ -151,7 +132,7 @@ describe('Owlshift on a libSQL server over WebSocket (DATABASE_URL=ws://…)', (
     await publishAcked(c, topicFor('cg-02', reading(4, 0.1)), payloadOf(reading(4, 0.1)))
     expect(await count(`select count(*) from readings where machine_id = 'cg-02'`)).toBe(7)
     await c.endAsync()
-    expect(libsql.stats.requests.open_stream).toBeGreaterThan(0) // it really went over the WebSocket
-    expect(server.log().split('\n').filter(l => /"level":(40|50|60)/.test(l))).toEqual([])
+    expect(t.libsql.stats.requests.open_stream).toBeGreaterThan(0) // it really went over the WebSocket
+    expect(t.server.log().split('\n').filter(l => /"level":(40|50|60)/.test(l))).toEqual([])
   })
 })

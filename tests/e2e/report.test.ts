@@ -9,9 +9,7 @@ import { join } from 'node:path'
 import { writeFileSync } from 'node:fs'
 import { url } from '@nuxt/test-utils/e2e'
 import type { Client } from '@libsql/client'
-import { SMTPServer } from 'smtp-server'
-import { simpleParser, type ParsedMail } from 'mailparser'
-import type { AddressInfo } from 'node:net'
+import { startMailCatcher } from '../../scripts/mail-catcher'
 import { setupOwlshift, demoCredentials, openTestDb, sessionCookie, demoUser, signedInPage, artifactsDir } from './harness'
 import { startSimulator } from '../../simulator/live'
 import { loadScenarioFile, parseScenario } from '../../simulator/scenario'
@@ -31,13 +29,9 @@ const scenario = parseScenario({
 const start = Date.parse(scenario.start)
 const end = start + 0.8 * H
 
-const inbox: { to: string[], mail: ParsedMail }[] = []
-const smtp = new SMTPServer({
-  authOptional: true, disabledCommands: ['STARTTLS'], logger: false,
-  onData(stream, session, done) { simpleParser(stream).then((mail) => { inbox.push({ to: session.envelope.rcptTo.map(r => r.address), mail }); done() }, done) },
-})
-await new Promise<void>(r => smtp.listen(0, '127.0.0.1', r))
-const smtpPort = (smtp.server.address() as AddressInfo).port
+// The demo's mail catcher on free ports: real SMTP in, parsed messages out.
+const mail = await startMailCatcher({ smtpPort: 0, httpPort: 0 })
+const smtpPort = mail.smtpPort
 
 describe('overnight report', async () => {
   const owl = await setupOwlshift({
@@ -71,7 +65,7 @@ describe('overnight report', async () => {
       await new Promise(r => setTimeout(r, 200))
     }
   }, 240_000)
-  afterAll(async () => { db?.close(); await new Promise<void>(r => smtp.close(() => r())) })
+  afterAll(async () => { db?.close(); await mail.close() })
 
   it('counts, scrap by reason and scheduled downtime equal the simulator ground truth', async () => {
     expect(summary.undelivered).toBe(0)
@@ -198,15 +192,15 @@ describe('overnight report', async () => {
     const shifts = [...calendar.shifts, { id: 'check', name: 'Hand-over check', start: hhmm(endAt - MIN), end: hhmm(endAt) }]
     expect((await call('engineer', 'PUT', '/api/reports/calendar', { shifts })).status).toBe(200)
     try {
-      const mine = () => inbox.filter(m => /Hand-over check/.test(m.mail.subject ?? ''))
+      const mine = () => mail.messages.filter(m => /Hand-over check/.test(m.subject))
       for (let i = 0; i < 150 && !mine().length; i++) await new Promise(r => setTimeout(r, 500))
       expect(mine()).toHaveLength(1)
       const got = mine()[0]!
       expect(Date.now()).toBeGreaterThanOrEqual(endAt) // not before the shift ended
       expect(got.to).toEqual([demoUser('lead').email])
       const date = new Intl.DateTimeFormat('en-CA', { timeZone: calendar.timeZone }).format(endAt - MIN)
-      expect(got.mail.text).toContain(`Report: https://owlshift.larkspur.example/report/cell-a/check/${date}`)
-      expect(got.mail.text).toMatch(/Parts: \d+ made, \d+ good, \d+ scrap/)
+      expect(got.text).toContain(`Report: https://owlshift.larkspur.example/report/cell-a/check/${date}`)
+      expect(got.text).toMatch(/Parts: \d+ made, \d+ good, \d+ scrap/)
       // once: three more checks (1 s apart) send nothing more
       await new Promise(r => setTimeout(r, 3500))
       expect(mine()).toHaveLength(1)
