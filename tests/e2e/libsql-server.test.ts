@@ -90,10 +90,10 @@ describe('Owlshift on a libSQL server (DATABASE_URL=http://…)', () => {
 
   it('starts again on the same server without re-applying migrations or re-seeding, and goes on storing', async () => {
     const users = await count('select count(*) from users')
-    await killServer(server, 'SIGTERM')
-    // Every request closed its stream: nothing is left open on the libSQL t.server.
+    await killServer(t.server, 'SIGTERM')
+    // Every request closed its stream: nothing is left open on the libSQL server.
     expect(t.libsql.openStreams()).toBe(0)
-    t.server = await startServer({ t.dataDir, port: t.server.port, env: { DATABASE_URL: t.libsql.url, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: new URL(t.mqttUrl).port } })
+    t.server = await startServer({ dataDir: t.dataDir, port: t.server.port, env: { DATABASE_URL: t.libsql.url, DATABASE_AUTH_TOKEN: TOKEN, MQTT_PORT: new URL(t.mqttUrl).port } })
     expect(t.server.log()).not.toMatch(/applied \d+ database migration|created the demo shop/)
     expect(await count('select count(*) from users')).toBe(users)
     const c = await machineClient(t.mqttUrl, 'cg-01', demoCredentials(t.dataDir)['cg-01']!.password)
