@@ -1,0 +1,110 @@
+// The least work issue 5 asks of every reading, with nothing of the product around it: an aedes
+// broker in a process of its own whose authorizePublish queues each message; every 2 ms (or 1,000
+// messages) the queue is decoded and validated with the contract's own schemas, run through the
+// compensation engine, and the reading, its decision and any offset command are written with the
+// product's statements (raw-insert.ts over the real migrations, one native write transaction, the
+// WAL checkpointer thread) together with each machine's engine state; only then are the PUBACKs
+// released and the commands published at QoS 1. No web server, alarm engine, live stream, status,
+// dead letters, duplicate lookups or metrics.
+// bench:ingest floods it like the bare broker, so "required work only" sits beside the ceiling and
+// beside Owlshift itself. Prints "port <n>" when listening.
+import net from 'node:net'
+import { mkdtempSync } from 'node:fs'
+import { tmpdir } from 'node:os'
+import { join } from 'node:path'
+import { fileURLToPath } from 'node:url'
+import { Aedes, type PublishPacket } from 'aedes'
+import Database from 'libsql'
+import { createClient } from '@libsql/client'
+import { drizzle } from 'drizzle-orm/libsql'
+import { migrate } from 'drizzle-orm/libsql/migrator'
+import * as schema from '../../server/database/schema'
+import { insertStatements } from '../../server/utils/raw-insert'
+import { startWalCheckpointer, WRITER_AUTOCHECKPOINT_PAGES } from '../../server/utils/wal-checkpointer'
+import { decodeMachineMessage, mqttTopics, type CommandMessage } from '../../shared/utils/contract'
+import { createCompensationState, stepCompensation, type CompensationState } from '../../shared/utils/compensation'
+
+const root = fileURLToPath(new URL('../..', import.meta.url))
+const file = join(mkdtempSync(join(tmpdir(), 'owlshift-floor-')), 'floor.db')
+const client = createClient({ url: `file:${file}` })
+await migrate(drizzle(client, { schema }), { migrationsFolder: join(root, 'server/database/migrations') })
+client.close()
+
+const db = new Database(file)
+db.pragma('journal_mode = WAL')
+db.pragma('synchronous = NORMAL')
+db.pragma(`wal_autocheckpoint = ${WRITER_AUTOCHECKPOINT_PAGES}`)
+db.exec('CREATE TABLE floor_engine_state (machine_id TEXT PRIMARY KEY, state TEXT NOT NULL)')
+const checkpointer = startWalCheckpointer(file)
+const prepared = new Map<string, ReturnType<typeof db.prepare>>()
+const run = (sql: string, args: unknown[]) => {
+  let s = prepared.get(sql)
+  if (!s) prepared.set(sql, s = db.prepare(sql))
+  s.run(args)
+}
+const saveState = db.prepare('INSERT INTO floor_engine_state (machine_id, state) VALUES (?, ?) ON CONFLICT (machine_id) DO UPDATE SET state = excluded.state')
+const begin = db.prepare('BEGIN IMMEDIATE')
+const commit = db.prepare('COMMIT')
+
+// The benchmark's job (LTP-0630-R, ±2 µm, 3 parts in the pipeline, 20 s cycle), as the server sets it up.
+const settings = { upperSpecUm: 2, lowerSpecUm: -2, pipelineParts: 3, cycleTimeS: 20 }
+const engines = new Map<string, CompensationState>()
+
+let queue: { packet: PublishPacket, done: (err: Error | null) => void }[] = []
+let timer: NodeJS.Timeout | null = null
+
+function flush() {
+  timer = null
+  const batch = queue
+  queue = []
+  const now = Date.now()
+  const readings: (typeof schema.readings.$inferInsert)[] = []
+  const decisions: (typeof schema.decisions.$inferInsert)[] = []
+  const commands: (typeof schema.commands.$inferInsert)[] = []
+  const outgoing: { topic: string, command: CommandMessage }[] = []
+  const touched = new Set<string>()
+  for (const { packet } of batch) {
+    const decoded = decodeMachineMessage(packet.topic, packet.payload as Buffer)
+    if (!decoded.ok || decoded.value.message.kind !== 'reading') continue
+    const { machine, cell, message: m } = decoded.value
+    const time = Date.parse(m.time)
+    readings.push({ machineId: machine, seq: m.seq, part: m.part, time, receivedAt: now, status: m.status, diameterUm: m.diameterUm, roundnessUm: m.roundnessUm ?? null, lengthUm: m.lengthUm ?? null, offsetUm: m.offsetUm, jobPartNumber: 'LTP-0630-R' })
+    const state = engines.get(machine) ?? createCompensationState(settings, { offsetUm: 0 })
+    const { state: next, decision } = stepCompensation(state, { type: 'reading', seq: state.lastSeq + 1, time, deviationUm: m.diameterUm, status: m.status, roundnessUm: m.roundnessUm ?? undefined, offsetInForceUm: m.offsetUm })
+    engines.set(machine, next)
+    touched.add(machine)
+    let commandId: string | null = null
+    if (decision.command) {
+      commandId = `${machine}.${m.seq}.offset`
+      const command: CommandMessage = { kind: 'command', type: 'offset', id: commandId, issuedAt: new Date(time).toISOString(), expiresAt: new Date(time + 60_000).toISOString(), offsetUm: Math.round(decision.command.newOffsetUm * 1000) / 1000, reason: decision.reason.slice(0, 200) }
+      commands.push({ id: commandId, machineId: machine, type: 'offset', origin: 'engine', payload: command, issuedAt: now, expiresAt: now + 60_000, status: 'sent', requestedOffsetUm: command.offsetUm })
+      outgoing.push({ topic: mqttTopics.command(cell, machine), command })
+    }
+    decisions.push({ machineId: machine, seq: m.seq, at: now, action: decision.command ? 'offset' : decision.dress.now ? 'dress' : 'none', correctionUm: decision.command?.correctionUm ?? null, offsetUm: decision.offsetUm, commandId, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: typeof decision.inputs.slopeUmPerPart === 'number' ? decision.inputs.slopeUmPerPart : null })
+  }
+  begin.run()
+  for (const st of [
+    ...insertStatements(schema.readings, readings, { onConflict: 'nothing' }),
+    ...insertStatements(schema.decisions, decisions),
+    ...insertStatements(schema.commands, commands, { onConflict: 'nothing' }),
+  ]) run(st.sql, st.args as unknown[])
+  for (const machine of touched) saveState.run([machine, JSON.stringify(engines.get(machine))])
+  commit.run()
+  checkpointer.committed()
+  for (const { done } of batch) done(null)
+  for (const { topic, command } of outgoing) broker.publish({ cmd: 'publish', topic, payload: Buffer.from(JSON.stringify(command)), qos: 1, retain: false, dup: false, messageId: 0 } as PublishPacket, () => {})
+}
+
+const broker = await Aedes.createBroker({
+  authorizePublish: (_client, packet, done) => {
+    queue.push({ packet, done })
+    if (queue.length >= 1000) {
+      if (timer) clearTimeout(timer)
+      flush()
+    }
+    else timer ??= setTimeout(flush, 2)
+  },
+})
+const server = net.createServer(s => broker.handle(s))
+server.listen(0, '127.0.0.1', () => console.log(`port ${(server.address() as net.AddressInfo).port}`))
+process.on('SIGTERM', () => { server.close(); broker.close(() => { void checkpointer.stop().then(() => process.exit(0)) }) })
