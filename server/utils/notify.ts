@@ -9,9 +9,11 @@ import type { Agent } from 'node:https'
 import type { AlarmPriority } from '#shared/utils/alarm-model'
 import {
   type AlertTrendPrediction,
-  alertDefaultRules, alertParseRules, alertStep, alertTrendStep, alertTrendThreshold,
+  alertDefaultRules, alertParseRules, alertStep, alertTrendStep, alertTrendThreshold, alertUpgradeStoredRules,
   type AlertAlarm, type AlertRoutingRules, type AlertSend, type AlertTrack,
 } from '#shared/utils/alert-routing'
+import type { ShiftCalendar } from '#shared/utils/shift-calendar'
+import { plantAlertCalendar } from './report'
 import { alertEmail, alertPushPayload, type AlertMessageInput } from '#shared/utils/alert-message'
 import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'
 import { sendMail } from './mailer'
@@ -72,12 +74,23 @@ export async function loadAlertRules(): Promise<AlertRoutingRules> {
   const db = useDb()
   const [row] = await db.select().from(schema.settingsKv).where(eq(schema.settingsKv.key, RULES_KEY))
   if (row) {
-    const parsed = alertParseRules(row.value)
+    // Older rules carried shift times of their own: dropped, their on-call entries kept.
+    const parsed = alertParseRules(alertUpgradeStoredRules(row.value, (await alertCalendar()).calendar))
     if ('rules' in parsed) return (rules = parsed.rules)
     log.warn(`[notify] stored routing rules are not valid (${parsed.problems.join('; ')}); using the defaults until an admin saves new ones`)
   }
-  const [cell] = await db.select().from(schema.cells).limit(1)
-  return (rules = alertDefaultRules(cell?.timeZone ?? 'UTC'))
+  return (rules = alertDefaultRules())
+}
+
+/**
+ * The plant shift calendar (report.ts, the one source of shift times) in the cell's time zone.
+ * Read afresh for every decision, so a calendar change counts from the next alarm on. When it is
+ * not usable the router wakes everyone allowed (alertRecipients) and this says why in the log.
+ */
+export async function alertCalendar(): Promise<{ calendar: ShiftCalendar, problems: string[] }> {
+  const out = await plantAlertCalendar(useDb())
+  if (out.problems.length) log.warn(`[notify] the plant shift calendar is not usable (${out.problems.join('; ')}); alerts go to everyone allowed until it is fixed`)
+  return out
 }
 
 export async function saveAlertRules(next: AlertRoutingRules) {
@@ -114,10 +127,11 @@ export function routeAlarm(a: AlarmView, now = Date.now()) {
 
 async function routeAlarmNow(a: AlarmView, now: number) {
   const r = await loadAlertRules()
+  const { calendar } = await alertCalendar()
   const before = tracks.get(a.id) ?? null
   const key = keyOf(a)
   const ppl = await people()
-  const result = alertStep({ alarm: toAlertAlarm(a), now, rules: r, people: ppl, track: before, announcedAt: announced.get(key) ?? [] })
+  const result = alertStep({ alarm: toAlertAlarm(a), now, rules: r, calendar, people: ppl, track: before, announcedAt: announced.get(key) ?? [] })
   if (result.track && result.track !== before) await saveTrack(result.track)
   const rows: DeliveryRow[] = result.notes.map(n => ({
     at: now, alarmId: a.id, userId: null, channel: 'none', level: result.track?.level ?? 0, status: n.kind, detail: n.why,
@@ -130,7 +144,7 @@ async function routeAlarmNow(a: AlarmView, now: number) {
   await logRows(rows)
   if (result.sends.length) {
     if (result.sends.some(s => s.level === 0)) announced.set(key, [...(announced.get(key) ?? []).filter(t => t > now - 24 * 3600_000), now])
-    await deliver(a, result.sends, ppl, r, now)
+    await deliver(a, result.sends, ppl, calendar.timeZone, now)
   }
   schedule(a.id, result.nextCheckAt, now)
 }
@@ -160,7 +174,7 @@ export async function sweepAlerts() {
 
 // ---------------------------------------------------------------- delivery
 
-async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType<typeof people>>, r: AlertRoutingRules, now: number) {
+async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType<typeof people>>, timeZone: string, now: number) {
   const db = useDb()
   const keys = await useVapidKeys()
   const machine = a.machineId ? machineContext(a.machineId) : undefined
@@ -190,7 +204,7 @@ async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType
       }
     }
     if (s.email) {
-      const mail = alertEmail(msg, publicUrl, r.timeZone)
+      const mail = alertEmail(msg, publicUrl, timeZone)
       const out = await sendMail({ to: person.email, ...mail })
       await logRows([{ at: now, alarmId: a.id, userId: s.userId, channel: 'email', level: s.level, status: out.ok ? 'sent' : 'failed', detail: out.ok ? `${s.why} · ${out.messageId}` : out.detail }])
     }

@@ -186,13 +186,29 @@ export interface Report {
 
 export const SHIFT_CALENDAR_KEY = 'shift-calendar'
 
+/** The plant's shifts as stored in settings (the default pattern until someone saves them). */
+export async function plantShifts(db: ReportDb): Promise<ShiftDefinition[]> {
+  const [row] = await db.select().from(schema.settingsKv).where(eq(schema.settingsKv.key, SHIFT_CALENDAR_KEY))
+  const stored = (row?.value as { shifts?: ShiftDefinition[] } | undefined)?.shifts
+  return stored?.length ? stored : [...SHIFT_DEFAULT_PATTERN]
+}
+
+/**
+ * The calendar alert routing works by: the stored shifts in the time zone of the first cell (by id;
+ * UTC before any cell exists). Never throws: an unusable stored calendar comes back with its
+ * problems, and the router then wakes everyone allowed instead of no one.
+ */
+export async function plantAlertCalendar(db: ReportDb): Promise<{ calendar: ShiftCalendar; problems: string[] }> {
+  const [cell] = await db.select({ timeZone: schema.cells.timeZone }).from(schema.cells).orderBy(asc(schema.cells.id)).limit(1)
+  const calendar: ShiftCalendar = { timeZone: cell?.timeZone ?? 'UTC', shifts: await plantShifts(db) }
+  return { calendar, problems: shiftCalendarProblems(calendar) }
+}
+
 /** The cell's calendar: its time zone and the shifts stored in settings (default pattern otherwise). */
 export async function reportCalendar(db: ReportDb, cellId: string): Promise<ShiftCalendar & { cellName: string }> {
   const [cell] = await db.select().from(schema.cells).where(eq(schema.cells.id, cellId))
   if (!cell) throw new ReportInputError(`no cell "${cellId}"`)
-  const [row] = await db.select().from(schema.settingsKv).where(eq(schema.settingsKv.key, SHIFT_CALENDAR_KEY))
-  const stored = (row?.value as { shifts?: ShiftDefinition[] } | undefined)?.shifts
-  const calendar: ShiftCalendar = { timeZone: cell.timeZone, shifts: stored?.length ? stored : [...SHIFT_DEFAULT_PATTERN] }
+  const calendar: ShiftCalendar = { timeZone: cell.timeZone, shifts: await plantShifts(db) }
   const problems = shiftCalendarProblems(calendar)
   if (problems.length) throw new ReportInputError(`the shift calendar of cell "${cellId}" is not usable: ${problems.join('; ')}`)
   return { ...calendar, cellName: cell.name }

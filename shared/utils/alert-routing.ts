@@ -3,8 +3,10 @@
 // Exports are prefixed `alert`/`Alert` because Nuxt auto-imports shared/utils/* into one namespace.
 //
 // The model:
-//   - the plant day is cut into shifts (local time of the plant's time zone);
-//   - an on-call table names, per shift and weekday (or for one date), the contacts in escalation order;
+//   - the plant day is cut into the shifts of the plant's shift calendar (shared/utils/shift-calendar.ts,
+//     the same calendar the reports use; local time of the cell's time zone). The rules carry no shift
+//     times of their own: the caller passes the calendar in;
+//   - an on-call table names, per calendar shift and weekday (or for one date), the contacts in escalation order;
 //   - each priority says which roles may be woken, whether it is pushed, from which escalation level
 //     it also goes by e-mail, after how many unacknowledged minutes it moves to the next contact,
 //     and whether quiet hours hold it back;
@@ -15,6 +17,7 @@
 import { z } from 'zod'
 import type { AlarmPriority } from './alarm-model'
 import { ROLE_NAMES, type Role } from '../types/auth'
+import { shiftAt, type ShiftCalendar } from './shift-calendar'
 
 // ---------------------------------------------------------------- rules
 
@@ -35,10 +38,9 @@ const priorityRuleSchema = z.object({
   quietHours: z.boolean().default(false),
 })
 
+// Unknown keys are dropped (zod's default): older stored rules carried `timeZone` and `shifts` of
+// their own; see alertUpgradeStoredRules for how their on-call entries are kept.
 export const alertRoutingRulesSchema = z.object({
-  timeZone: z.string().min(1).refine(isTimeZone, 'unknown time zone (use an IANA name such as Europe/Berlin)'),
-  shifts: z.array(z.object({ id: z.string().min(1).max(40), name: z.string().min(1).max(60), start: hhmm, end: hhmm }))
-    .min(1, 'define at least one shift'),
   onCall: z.array(z.object({
     shiftId: z.string().min(1),
     /** weekdays of the shift's start, 0 = Sunday … 6 = Saturday */
@@ -58,33 +60,14 @@ export const alertRoutingRulesSchema = z.object({
     perJob: z.record(z.string(), minutes(24 * 60).refine(v => v > 0, 'must be above 0')),
     clearFactor: z.number().min(1.05).max(5),
   }),
-}).superRefine((r, ctx) => {
-  const ids = new Set(r.shifts.map(s => s.id))
-  if (ids.size !== r.shifts.length) ctx.addIssue({ code: 'custom', path: ['shifts'], message: 'shift ids must be unique' })
-  r.onCall.forEach((e, i) => {
-    if (!ids.has(e.shiftId)) ctx.addIssue({ code: 'custom', path: ['onCall', i, 'shiftId'], message: `no shift "${e.shiftId}"` })
-  })
-  // Every minute of the day belongs to exactly one shift, so "who is on call" always has an answer.
-  const cover = new Array<number>(1440).fill(0)
-  for (const s of r.shifts) for (const m of minutesOf(s.start, s.end)) cover[m]!++
-  const gap = cover.findIndex(c => c === 0)
-  const overlap = cover.findIndex(c => c > 1)
-  if (gap >= 0) ctx.addIssue({ code: 'custom', path: ['shifts'], message: `no shift covers ${fmtMinute(gap)}` })
-  if (overlap >= 0) ctx.addIssue({ code: 'custom', path: ['shifts'], message: `shifts overlap at ${fmtMinute(overlap)}` })
 })
 
 export type AlertRoutingRules = z.infer<typeof alertRoutingRulesSchema>
 export type AlertPriorityRule = z.infer<typeof priorityRuleSchema>
 
 /** Starting rules for a new shop (choices, not a standard: adjust per plant). */
-export function alertDefaultRules(timeZone = 'UTC'): AlertRoutingRules {
+export function alertDefaultRules(): AlertRoutingRules {
   return alertRoutingRulesSchema.parse({
-    timeZone,
-    shifts: [
-      { id: 'early', name: 'Early', start: '06:00', end: '14:00' },
-      { id: 'late', name: 'Late', start: '14:00', end: '22:00' },
-      { id: 'night', name: 'Night', start: '22:00', end: '06:00' },
-    ],
     onCall: [],
     priorities: {
       1: { roles: ['lead', 'engineer', 'admin'], allAtOnce: true, emailFromLevel: 0, escalateAfterMin: 5 },
@@ -104,6 +87,50 @@ export function alertParseRules(raw: unknown): { rules: AlertRoutingRules } | { 
   const r = alertRoutingRulesSchema.safeParse(raw)
   if (r.success) return { rules: r.data }
   return { problems: r.error.issues.map(i => `${i.path.join('.') || 'rules'}: ${i.message}`) }
+}
+
+/**
+ * Stored rules from before the plant calendar was their only source of shifts carry `timeZone` and
+ * `shifts` of their own (early/late/night by default). Those fields are dropped; an on-call entry
+ * whose shift id the calendar lacks moves to the calendar shift with the same start and end (the old
+ * "early" 06:00–14:00 becomes the calendar's "day" 06:00–14:00). An entry with no such twin is kept
+ * as it was: alertOnCallProblems names it, and nobody's name is lost.
+ */
+export function alertUpgradeStoredRules(raw: unknown, calendar: ShiftCalendar): unknown {
+  if (!raw || typeof raw !== 'object' || Array.isArray(raw)) return raw
+  const { timeZone: _zone, shifts: oldShifts, ...rest } = raw as Record<string, unknown>
+  if (!Array.isArray(oldShifts) || !Array.isArray(rest.onCall)) return rest
+  const known = new Set(calendar.shifts.map(s => s.id))
+  const renamed = new Map<string, string>()
+  for (const old of oldShifts as { id?: unknown, start?: unknown, end?: unknown }[]) {
+    if (typeof old?.id !== 'string' || known.has(old.id)) continue
+    const twin = calendar.shifts.find(s => s.start === old.start && s.end === old.end)
+    if (twin) renamed.set(old.id, twin.id)
+  }
+  const onCall = (rest.onCall as unknown[]).map((e) => {
+    const id = (e as { shiftId?: unknown })?.shiftId
+    return typeof id === 'string' && renamed.has(id) ? { ...(e as object), shiftId: renamed.get(id) } : e
+  })
+  return { ...rest, onCall }
+}
+
+/**
+ * On-call entries that name a shift the plant calendar does not have, as sentences naming the entry.
+ * The rules PUT refuses them; stored rules with such an entry still load (the entry is kept and shown).
+ */
+export function alertOnCallProblems(rules: Pick<AlertRoutingRules, 'onCall'>, calendar: ShiftCalendar, nameOf: (id: number) => string = id => `#${id}`): string[] {
+  const ids = calendar.shifts.map(s => s.id)
+  return rules.onCall.flatMap((e, i) => ids.includes(e.shiftId)
+    ? []
+    : [`onCall.${i}: on-call entry ${alertDescribeEntry(e, nameOf)} names shift "${e.shiftId}", which the plant shift calendar does not have (shifts: ${ids.join(', ')})`])
+}
+
+const WEEKDAY_NAMES = ['Sun', 'Mon', 'Tue', 'Wed', 'Thu', 'Fri', 'Sat']
+
+/** "night, Mon–Sun: Cleo → Bram" style words for an on-call entry (messages, the editor). */
+export function alertDescribeEntry(e: AlertRoutingRules['onCall'][number], nameOf: (id: number) => string = id => `#${id}`): string {
+  const days = e.date ?? (e.weekdays?.length === 7 ? 'every day' : (e.weekdays ?? []).map(d => WEEKDAY_NAMES[d]).join(' '))
+  return `"${e.shiftId}, ${days}: ${e.contacts.map(nameOf).join(' → ')}"`
 }
 
 // ---------------------------------------------------------------- plant clock, shifts, on call
@@ -131,44 +158,42 @@ export function alertLocalTime(now: number, timeZone: string): AlertLocalTime {
 
 export interface AlertShiftNow { shiftId: string, shiftName: string, /** local date the shift started */ date: string, weekday: number }
 
-/** The shift running at `now`; a shift that spans midnight belongs to the day it started. */
-export function alertShiftAt(rules: AlertRoutingRules, now: number): AlertShiftNow {
-  const t = alertLocalTime(now, rules.timeZone)
-  for (const s of rules.shifts) {
-    const start = toMinute(s.start)
-    const end = toMinute(s.end)
-    const wraps = end <= start
-    const inside = wraps ? t.minute >= start || t.minute < end : t.minute >= start && t.minute < end
-    if (!inside) continue
-    if (wraps && t.minute < end) return { shiftId: s.id, shiftName: s.name, date: previousDate(t.date), weekday: (t.weekday + 6) % 7 }
-    return { shiftId: s.id, shiftName: s.name, date: t.date, weekday: t.weekday }
-  }
-  // The schema guarantees full cover; rules built by hand without it fall back to the first shift.
-  const s = rules.shifts[0]!
-  return { shiftId: s.id, shiftName: s.name, date: t.date, weekday: t.weekday }
+/**
+ * The calendar shift running at `now` (a shift that spans midnight belongs to the day it started),
+ * or null when the calendar gives none: its validation demands full cover, so null means a stored
+ * calendar that is not usable — alertRecipients then wakes everyone allowed rather than no one.
+ */
+export function alertShiftAt(calendar: ShiftCalendar, now: number): AlertShiftNow | null {
+  let w
+  try { w = shiftAt(calendar, now) }
+  catch { return null }
+  if (!w) return null
+  const [y, m, d] = w.date.split('-').map(Number)
+  return { shiftId: w.shiftId, shiftName: w.name, date: w.date, weekday: new Date(Date.UTC(y!, m! - 1, d!)).getUTCDay() }
 }
 
-/** The on-call contacts (user ids, escalation order) for the shift at `now`: a dated entry wins. */
-export function alertOnCallAt(rules: AlertRoutingRules, now: number): { shift: AlertShiftNow, contacts: number[] } {
-  const shift = alertShiftAt(rules, now)
+/** The on-call contacts (user ids, escalation order) for the calendar shift at `now`: a dated entry wins. */
+export function alertOnCallAt(rules: AlertRoutingRules, calendar: ShiftCalendar, now: number): { shift: AlertShiftNow | null, contacts: number[] } {
+  const shift = alertShiftAt(calendar, now)
+  if (!shift) return { shift, contacts: [] }
   const dated = rules.onCall.find(e => e.shiftId === shift.shiftId && e.date === shift.date)
   const weekly = rules.onCall.find(e => e.shiftId === shift.shiftId && !e.date && e.weekdays?.includes(shift.weekday))
   return { shift, contacts: [...(dated ?? weekly)?.contacts ?? []] }
 }
 
-/** True when `now` lies in the quiet hours (local time). */
-export function alertInQuietHours(rules: AlertRoutingRules, now: number): boolean {
+/** True when `now` lies in the quiet hours (local time of `timeZone`, the cell's). */
+export function alertInQuietHours(rules: AlertRoutingRules, timeZone: string, now: number): boolean {
   if (!rules.quietHours) return false
-  const m = alertLocalTime(now, rules.timeZone).minute
+  const m = alertLocalTime(now, timeZone).minute
   const start = toMinute(rules.quietHours.start)
   const end = toMinute(rules.quietHours.end)
   return end <= start ? m >= start || m < end : m >= start && m < end
 }
 
 /** First instant (minute resolution) at or after `now` outside the quiet hours. */
-export function alertQuietHoursEnd(rules: AlertRoutingRules, now: number): number {
+export function alertQuietHoursEnd(rules: AlertRoutingRules, timeZone: string, now: number): number {
   let t = Math.floor(now / 60_000) * 60_000
-  for (let i = 0; i < 1500 && alertInQuietHours(rules, t); i++) t += 60_000
+  for (let i = 0; i < 1500 && alertInQuietHours(rules, timeZone, t); i++) t += 60_000
   return Math.max(t, now)
 }
 
@@ -189,16 +214,17 @@ export interface AlertRecipients {
  * suitable is on call, everyone with an allowed role is woken at level 0, and again (by the
  * channels of level 1) at level 1 — a hole in the rota must never silence an alarm.
  */
-export function alertRecipients(rules: AlertRoutingRules, people: readonly AlertPerson[], priority: AlarmPriority, now: number, level: number): AlertRecipients {
+export function alertRecipients(rules: AlertRoutingRules, calendar: ShiftCalendar, people: readonly AlertPerson[], priority: AlarmPriority, now: number, level: number): AlertRecipients {
   const rule = rules.priorities[priority]
   const active = new Map(people.filter(p => !p.disabled && rule.roles.includes(p.role)).map(p => [p.id, p]))
-  const { shift, contacts } = alertOnCallAt(rules, now)
+  const { shift, contacts } = alertOnCallAt(rules, calendar, now)
   const chain = [...new Set(contacts)].filter(id => active.has(id))
-  if (!rule.allAtOnce && chain.length) {
+  if (!rule.allAtOnce && shift && chain.length) {
     return { userIds: level < chain.length ? [chain[level]!] : [], levels: chain.length, why: `${shift.shiftName} shift ${shift.date}, on-call contact ${level + 1} of ${chain.length}` }
   }
   const everyone = [...active.keys()].sort((a, b) => a - b)
-  const why = rule.allAtOnce ? `priority ${priority}: everyone with role ${rule.roles.join('/')}` : `nobody suitable on call for the ${shift.shiftName} shift ${shift.date}: everyone with role ${rule.roles.join('/')}`
+  const hole = shift ? `nobody suitable on call for the ${shift.shiftName} shift ${shift.date}` : 'the plant shift calendar gives no shift for this time'
+  const why = rule.allAtOnce ? `priority ${priority}: everyone with role ${rule.roles.join('/')}` : `${hole}: everyone with role ${rule.roles.join('/')}`
   return { userIds: level <= 1 ? everyone : [], levels: everyone.length ? 2 : 0, why }
 }
 
@@ -255,6 +281,8 @@ export interface AlertStepInput {
   alarm: AlertAlarm
   now: number
   rules: AlertRoutingRules
+  /** the plant shift calendar (cell's time zone): shifts for on-call, zone for quiet hours */
+  calendar: ShiftCalendar
   people: readonly AlertPerson[]
   track: AlertTrack | null
   /** when this machine+condition was announced before (any alarm row), for de-duplication and the rate limit */
@@ -274,7 +302,7 @@ export function alertIsOwed(a: AlertAlarm): boolean {
  * Acknowledged / cleared / shelved → done.
  */
 export function alertStep(input: AlertStepInput): AlertStepResult {
-  const { alarm, now, rules } = input
+  const { alarm, now, rules, calendar } = input
   const rule = rules.priorities[alarm.priority]
   let track = input.track
   if (!alertIsOwed(alarm)) {
@@ -296,8 +324,8 @@ export function alertStep(input: AlertStepInput): AlertStepResult {
     if (inWindow >= rules.rateLimit.max) {
       return { track: base, sends: [], notes: [{ kind: 'rate-limited', why: `already announced ${inWindow} times in ${rules.rateLimit.windowMin} min (limit ${rules.rateLimit.max})` }], nextCheckAt: escalationDue(rule, now) }
     }
-    if (rule.quietHours && alertInQuietHours(rules, now)) {
-      const until = alertQuietHoursEnd(rules, now)
+    if (rule.quietHours && alertInQuietHours(rules, calendar.timeZone, now)) {
+      const until = alertQuietHoursEnd(rules, calendar.timeZone, now)
       return { track: { ...base, level: -1, heldUntil: until }, sends: [], notes: [{ kind: 'held', until, why: `priority ${alarm.priority} waits for the end of quiet hours` }], nextCheckAt: until }
     }
     return announce(input, base, 0)
@@ -316,7 +344,7 @@ export function alertStep(input: AlertStepInput): AlertStepResult {
 function announce(input: AlertStepInput, track: AlertTrack, level: number): AlertStepResult {
   const { alarm, now, rules } = input
   const rule = rules.priorities[alarm.priority]
-  const who = alertRecipients(rules, input.people, alarm.priority, now, level)
+  const who = alertRecipients(rules, input.calendar, input.people, alarm.priority, now, level)
   if (!who.userIds.length) {
     const note: AlertNote = level === 0
       ? { kind: 'no-recipient', why: `no enabled person with role ${rule.roles.join('/')}` }
@@ -371,19 +399,4 @@ export function alertTrendStep(wasRaised: boolean, p: AlertTrendPrediction | nul
 // ---------------------------------------------------------------- helpers
 
 function toMinute(s: string): number { return Number(s.slice(0, 2)) * 60 + Number(s.slice(3, 5)) }
-function fmtMinute(m: number): string { return `${String(Math.floor(m / 60)).padStart(2, '0')}:${String(m % 60).padStart(2, '0')}` }
-function minutesOf(start: string, end: string): number[] {
-  const a = toMinute(start)
-  const b = toMinute(end)
-  const n = b > a ? b - a : 1440 - a + b
-  return Array.from({ length: n }, (_, i) => (a + i) % 1440)
-}
-function previousDate(date: string): string {
-  const [y, m, d] = date.split('-').map(Number)
-  return new Date(Date.UTC(y!, m! - 1, d! - 1)).toISOString().slice(0, 10)
-}
 function fmtAgo(ms: number): string { return ms < 60_000 ? `${Math.round(ms / 1000)} s` : `${Math.round(ms / 60_000)} min` }
-function isTimeZone(tz: string): boolean {
-  try { new Intl.DateTimeFormat('en-US', { timeZone: tz }); return true }
-  catch { return false }
-}

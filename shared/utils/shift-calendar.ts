@@ -118,7 +118,39 @@ export function shiftCalendarProblems(calendar: ShiftCalendar): string[] {
       catch (e) { out.push((e as Error).message) }
     }
   })
+  if (!out.length) out.push(...coverProblems(calendar.shifts))
   return out
+}
+
+// Every wall-clock minute of the day belongs to exactly one shift: reports then count each part
+// once, and "who is on call now" (alert routing) always has exactly one answer.
+function coverProblems(shifts: readonly ShiftDefinition[]): string[] {
+  const owners: string[][] = Array.from({ length: 1440 }, () => [])
+  for (const s of shifts) {
+    const [sh, sm] = parseTime(s.start, 'start')
+    const [eh, em] = parseTime(s.end, 'end')
+    const a = sh * 60 + sm
+    const b = eh * 60 + em
+    const n = b > a ? b - a : 1440 - a + b // end at or before start: runs past midnight
+    for (let k = 0; k < n; k++) owners[(a + k) % 1440]!.push(s.id)
+  }
+  const out: string[] = []
+  const gap = owners.findIndex((o) => o.length === 0)
+  if (gap >= 0) out.push(`no shift covers ${fmtMinute(gap)}–${fmtMinute(runEnd(owners, gap, (o) => o.length === 0))} (the shifts must cover all 24 hours)`)
+  const overlap = owners.findIndex((o) => o.length > 1)
+  if (overlap >= 0) out.push(`shifts ${owners[overlap]!.map((id) => `"${id}"`).join(' and ')} overlap from ${fmtMinute(overlap)} to ${fmtMinute(runEnd(owners, overlap, (o) => o.length > 1))}`)
+  return out
+}
+
+/** The minute after the run of minutes from `start` that satisfy `same`. */
+function runEnd(owners: string[][], start: number, same: (o: string[]) => boolean): number {
+  let m = start
+  while (m < start + 1440 && same(owners[m % 1440]!)) m++
+  return m % 1440
+}
+
+function fmtMinute(m: number): string {
+  return `${String(Math.floor(m / 60)).padStart(2, '0')}:${String(m % 60).padStart(2, '0')}`
 }
 
 function assertCalendar(calendar: ShiftCalendar): void {

@@ -60,11 +60,11 @@ describe('notifications', async () => {
     const bad = await api('lead', '/api/push/subscribe', { method: 'POST', body: { endpoint: 'http://push.example/x', keys: { p256dh: 'AAAA', auth: 'BB' } } })
     expect(bad.status).toBe(400)
     expect(bad.body.message).toMatch(/endpoint must be https:\/\/.*keys\.p256dh must be 65 bytes.*keys\.auth must be 16 bytes/)
-    const rules = { ...alertDefaultRules('Europe/Berlin'), quietHours: { start: '25:00', end: '05:00' } }
+    const rules = { ...alertDefaultRules(), quietHours: { start: '25:00', end: '05:00' } }
     const r = await api('admin', '/api/notifications/rules', { method: 'PUT', body: rules })
     expect(r.status).toBe(400)
     expect(r.body.message).toMatch(/quietHours\.start: use HH:MM/)
-    const unknown = await api('admin', '/api/notifications/rules', { method: 'PUT', body: { ...alertDefaultRules('Europe/Berlin'), onCall: [{ shiftId: 'night', weekdays: [1], contacts: [9999] }] } })
+    const unknown = await api('admin', '/api/notifications/rules', { method: 'PUT', body: { ...alertDefaultRules(), onCall: [{ shiftId: 'night', weekdays: [1], contacts: [9999] }] } })
     expect(unknown.body.message).toMatch(/unknown people: 9999/)
     expect(Number((await db.execute(`select count(*) from settings_kv where key = 'alert-routing'`)).rows[0]![0])).toBe(0)
     expect(Number((await db.execute('select count(*) from push_subscriptions')).rows[0]![0])).toBe(0)
@@ -74,8 +74,9 @@ describe('notifications', async () => {
     const lead = await idOf('lead')
     const engineer = await idOf('engineer')
     // Everyone on the rota every day: lead first, then engineer. High priority escalates after 3 s.
-    const rules = alertDefaultRules('Europe/Berlin')
-    rules.onCall = rules.shifts.map(s => ({ shiftId: s.id, weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [lead, engineer] }))
+    const rules = alertDefaultRules()
+    const { calendar } = (await api('admin', '/api/notifications/rules')).body // shifts come from the plant shift calendar
+    rules.onCall = calendar.shifts.map((s: { id: string }) => ({ shiftId: s.id, weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [lead, engineer] }))
     rules.priorities[2] = { ...rules.priorities[2], escalateAfterMin: 0.05, emailFromLevel: 1 }
     rules.quietHours = null
     rules.trend.perJob['LTP-2000-S'] = 240 // minutes: early warning for this job
@@ -209,7 +210,7 @@ describe('notifications', async () => {
 
   it('lets an admin set who is on call and shows the delivery log; a lead may only read', async () => {
     // Starts from the rules of the escalation test above (night: lead → engineer, no quiet hours) and its log.
-    const start = alertDefaultRules('Europe/Berlin')
+    const start = alertDefaultRules()
     start.onCall = [{ shiftId: 'night', weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [await idOf('lead'), await idOf('engineer')] }]
     start.quietHours = null
     expect((await api('admin', '/api/notifications/rules', { method: 'PUT', body: start })).status).toBe(200)
@@ -252,5 +253,95 @@ describe('notifications', async () => {
     expect(await leadPage.locator('[data-test=save-rules]').count()).toBe(0)
     await leadPage.screenshot({ path: join(artifactsDir, 'alerts-phone-dark-lead.png'), fullPage: true })
     await leadPage.close()
+  })
+
+  it('takes shift times from the plant shift calendar only; refuses on-call entries for unknown shifts and dropping a shift in use', async () => {
+    const lead = await idOf('lead')
+    const engineer = await idOf('engineer')
+    const admin = await idOf('admin')
+    const before = (await api('admin', '/api/notifications/rules')).body
+    expect(before.rules).not.toHaveProperty('shifts')
+    expect(before.rules).not.toHaveProperty('timeZone')
+    const calendar = before.calendar as { timeZone: string, shifts: { id: string, name: string, start: string, end: string }[] }
+    expect(calendar.shifts.map(s => s.id)).toEqual(['day', 'late', 'night'])
+    const rules = { ...before.rules, onCall: [
+      { shiftId: 'day', weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [engineer] },
+      { shiftId: 'late', weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [engineer] },
+      { shiftId: 'night', weekdays: [0, 1, 2, 3, 4, 5, 6], contacts: [lead, admin] },
+    ] }
+    expect((await api('admin', '/api/notifications/rules', { method: 'PUT', body: rules })).status).toBe(200)
+    const savedRules = (await api('admin', '/api/notifications/rules')).body.rules
+    const calendarNow = async () => (await api('viewer', '/api/reports/shifts')).body.calendar.shifts
+
+    // An on-call entry for a shift the calendar does not have: refused, naming the entry; nothing saved.
+    const early = await api('admin', '/api/notifications/rules', { method: 'PUT', body: { ...rules, onCall: [...rules.onCall, { shiftId: 'early', weekdays: [1], contacts: [lead] }] } })
+    expect(early.status).toBe(400)
+    expect(early.body.message).toMatch(/onCall\.3: on-call entry "early, Mon: Cleo Marchetti" names shift "early", which the plant shift calendar does not have \(shifts: day, late, night\)/)
+    expect((await api('admin', '/api/notifications/rules')).body.rules).toEqual(savedRules)
+
+    // Dropping the night shift while the night on-call chain names it: refused, naming the entry; calendar kept.
+    const noNight = [{ ...calendar.shifts[0]!, end: '18:00' }, { ...calendar.shifts[1]!, start: '18:00', end: '06:00' }]
+    const drop = await api('engineer', '/api/reports/calendar', { method: 'PUT', body: { shifts: noNight } })
+    expect(drop.status).toBe(400)
+    expect(drop.body.message).toMatch(/not saved — on-call entries still use shift "night": "night, every day: Cleo Marchetti → Ada Lindqvist"\. Remove or move them on the Alerts page first/)
+    expect(await calendarNow()).toEqual(calendar.shifts)
+
+    // The night moved to 21:30 while the late shift still ends at 22:00: refused with the overlap named.
+    const overlap = calendar.shifts.map(s => (s.id === 'night' ? { ...s, start: '21:30' } : s))
+    const o = await api('engineer', '/api/reports/calendar', { method: 'PUT', body: { shifts: overlap } })
+    expect(o.status).toBe(400)
+    expect(o.body.message).toMatch(/shifts "late" and "night" overlap from 21:30 to 22:00/)
+    expect(await calendarNow()).toEqual(calendar.shifts)
+
+    // A calendar whose night shift holds this very minute: "who is on call now" follows it at once.
+    const MIN = 60_000
+    const hhmm = (ms: number) => new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZone: calendar.timeZone }).format(ms)
+    const t = Math.floor(Date.now() / MIN) * MIN
+    const moved = [
+      { id: 'day', name: 'Day', start: hhmm(t + 60 * MIN), end: hhmm(t + 8 * 60 * MIN) },
+      { id: 'late', name: 'Late', start: hhmm(t + 8 * 60 * MIN), end: hhmm(t) },
+      { id: 'night', name: 'Night', start: hhmm(t), end: hhmm(t + 60 * MIN) },
+    ]
+    try {
+      expect((await api('engineer', '/api/reports/calendar', { method: 'PUT', body: { shifts: moved } })).status).toBe(200)
+      const onCall = (await api('lead', '/api/notifications/on-call')).body
+      expect(onCall.shift.shiftId).toBe('night')
+      expect(onCall.timeZone).toBe(calendar.timeZone)
+      expect(onCall.contacts.map((c: { id: number }) => c.id)).toEqual([lead, admin])
+      expect((await api('admin', '/api/notifications/rules')).body.calendar.shifts).toEqual(moved)
+    }
+    finally {
+      expect((await api('engineer', '/api/reports/calendar', { method: 'PUT', body: { shifts: calendar.shifts } })).status).toBe(200)
+    }
+
+    // The Alerts page shows the calendar's shifts read-only, with the way to where they are edited.
+    const page = await createPage(undefined, { viewport: { width: 1440, height: 900 } })
+    await signIn(page, demoUser('admin').email)
+    await page.waitForURL(u => !u.pathname.startsWith('/sign-in'))
+    await page.goto(url('/alerts'), { waitUntil: 'networkidle' })
+    const shiftsCard = page.locator('[data-test=plant-shifts]')
+    expect(await shiftsCard.innerText()).toMatch(/Night 22:00–06:00/)
+    expect(await shiftsCard.locator('input').count()).toBe(0)
+    for (const theme of ['light', 'dark']) {
+      await page.evaluate(th => document.documentElement.classList.toggle('dark', th === 'dark'), theme)
+      await page.screenshot({ path: join(artifactsDir, `alerts-calendar-shifts-desktop-${theme}.png`), fullPage: true })
+    }
+    await page.setViewportSize({ width: 390, height: 844 })
+    await page.screenshot({ path: join(artifactsDir, 'alerts-calendar-shifts-phone-dark.png'), fullPage: false })
+    await page.locator('[data-test=edit-shifts-link]').click()
+    await page.waitForURL(u => u.pathname === '/report')
+    await page.locator('[data-test=edit-calendar]').click()
+    // The calendar editor names the refusal: dropping the night shift still used on call.
+    await page.getByRole('button', { name: 'Remove shift Night' }).click()
+    await page.getByLabel('Shift 2 end (HH:MM)').fill('06:00')
+    await page.locator('[data-test=save-calendar]').click()
+    await expect.poll(() => page.locator('[data-test=calendar-problem]').innerText()).toMatch(/on-call entries still use shift "night"/)
+    await page.locator('[data-test=shift-calendar]').scrollIntoViewIfNeeded()
+    await page.screenshot({ path: join(artifactsDir, 'report-calendar-refused-phone-dark.png'), fullPage: false })
+    await page.evaluate(() => { document.documentElement.classList.toggle('dark', false); window.scrollTo(0, 0) })
+    await page.setViewportSize({ width: 1440, height: 900 })
+    await page.screenshot({ path: join(artifactsDir, 'report-calendar-refused-desktop-light.png'), fullPage: true })
+    expect(await calendarNow()).toEqual(calendar.shifts)
+    await page.close()
   })
 })

@@ -3,7 +3,7 @@
 // the report's counts, scrap and scheduled downtime must equal what the simulator says it did.
 // Then the hand-over (notes, sign-off, audit), the parts and wheel-wear CSV, bad input, the screens,
 // and the shift-end summary e-mail through a local SMTP catcher (smtp-server + mailparser, the real
-// protocol) with a one-minute shift added to the plant calendar so that its end comes quickly.
+// protocol) with the plant calendar set to a one-minute shift and the rest of the day, so that its end comes quickly.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { join } from 'node:path'
 import { writeFileSync } from 'node:fs'
@@ -189,7 +189,11 @@ describe('overnight report', async () => {
     let endAt = Math.ceil((Date.now() + 1) / MIN) * MIN
     if (endAt - Date.now() < 5000) endAt += MIN
     const hhmm = (ms: number) => new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZone: calendar.timeZone }).format(ms)
-    const shifts = [...calendar.shifts, { id: 'check', name: 'Hand-over check', start: hhmm(endAt - MIN), end: hhmm(endAt) }]
+    // The shifts must cover the day exactly once: the one-minute shift and the rest of the day.
+    const shifts = [{ id: 'check', name: 'Hand-over check', start: hhmm(endAt - MIN), end: hhmm(endAt) }, { id: 'rest', name: 'Rest of the day', start: hhmm(endAt), end: hhmm(endAt - MIN) }]
+    const overlapping = await call('engineer', 'PUT', '/api/reports/calendar', { shifts: [...calendar.shifts, shifts[0]] })
+    expect(overlapping.status).toBe(400)
+    expect((await overlapping.json()).message).toMatch(/shifts "[a-z]+" and "check" overlap from \d\d:\d\d to \d\d:\d\d/)
     expect((await call('engineer', 'PUT', '/api/reports/calendar', { shifts })).status).toBe(200)
     try {
       const mine = () => mail.messages.filter(m => /Hand-over check/.test(m.subject))

@@ -1,6 +1,7 @@
 // Shift windows in the plant's zone. DST facts: EU Directive 2000/84/EC — summer time starts at
 // 01:00 UTC on the last Sunday of March and ends at 01:00 UTC on the last Sunday of October
 // (Berlin: CET = UTC+1, CEST = UTC+2).
+import fc from 'fast-check'
 import { describe, it, expect } from 'vitest'
 import {
   SHIFT_DEFAULT_PATTERN, shiftWindow, shiftAt, shiftsBetween, shiftHours, shiftLocalToUtc, shiftZoneOffsetMs,
@@ -69,5 +70,37 @@ describe('shift calendar', () => {
     expect(shiftCalendarProblems({ timeZone: 'UTC', shifts: [{ id: 'a', name: 'A', start: '01:00', end: '06:00' }, { id: 'a', name: 'B', start: '06:00', end: '07:00' }] })[0]).toMatch(/used twice/)
     expect(() => shiftWindow(berlin, 'graveyard', '2026-03-28')).toThrow(/no shift "graveyard"/)
     expect(() => shiftWindow(berlin, 'night', '2026-02-30')).toThrow(/not a date/)
+  })
+
+  it('demands that the shifts cover the day exactly once, naming the gap or the overlap', () => {
+    const cal = (shifts: ShiftCalendar['shifts']): ShiftCalendar => ({ timeZone: 'Europe/Berlin', shifts })
+    // the night moved to 21:30 but the late shift still ends at 22:00
+    const moved = SHIFT_DEFAULT_PATTERN.map((s) => (s.id === 'night' ? { ...s, start: '21:30' } : s))
+    expect(shiftCalendarProblems(cal(moved))).toEqual(['shifts "late" and "night" overlap from 21:30 to 22:00'])
+    const gap = SHIFT_DEFAULT_PATTERN.filter((s) => s.id !== 'late')
+    expect(shiftCalendarProblems(cal(gap))).toEqual(['no shift covers 14:00–22:00 (the shifts must cover all 24 hours)'])
+    expect(() => shiftAt(cal(gap), Date.parse('2026-03-28T15:00:00Z'))).toThrow(/no shift covers 14:00–22:00/)
+    // one shift round the clock, two 12-hour shifts, and a one-minute shift with the rest of the day
+    expect(shiftCalendarProblems(cal([{ id: 'all', name: 'All day', start: '00:00', end: '00:00' }]))).toEqual([])
+    expect(shiftCalendarProblems(cal([{ id: 'a', name: 'A', start: '06:00', end: '18:00' }, { id: 'b', name: 'B', start: '18:00', end: '06:00' }]))).toEqual([])
+    expect(shiftCalendarProblems(cal([{ id: 'check', name: 'Check', start: '13:59', end: '14:00' }, { id: 'rest', name: 'Rest', start: '14:00', end: '13:59' }]))).toEqual([])
+  })
+
+  it('an accepted calendar has exactly one shift at every instant, daylight-saving days included', () => {
+    // Any set of distinct cut minutes makes a full cover (shift i runs from cut i to cut i+1).
+    const cuts = fc.uniqueArray(fc.integer({ min: 0, max: 1439 }), { minLength: 1, maxLength: 6 }).map((a) => [...a].sort((x, y) => x - y))
+    const hm = (m: number) => `${String(Math.floor(m / 60)).padStart(2, '0')}:${String(m % 60).padStart(2, '0')}`
+    // 2026-03-27 … 2026-04-01 and 2026-10-23 … 2026-10-28 hold Berlin's two changes (EU rule, Directive 2000/84/EC)
+    const instant = fc.oneof(
+      fc.integer({ min: Date.parse('2026-03-27T00:00:00Z'), max: Date.parse('2026-04-01T00:00:00Z') }),
+      fc.integer({ min: Date.parse('2026-10-23T00:00:00Z'), max: Date.parse('2026-10-28T00:00:00Z') }),
+    )
+    fc.assert(fc.property(cuts, instant, (c, t) => {
+      const calendar: ShiftCalendar = { timeZone: 'Europe/Berlin', shifts: c.map((m, i) => ({ id: `s${i}`, name: `S${i}`, start: hm(m), end: hm(c[(i + 1) % c.length]!) })) }
+      expect(shiftCalendarProblems(calendar)).toEqual([])
+      const holding = shiftsBetween(calendar, t, t + 1).filter((w) => w.from <= t && t < w.to)
+      expect(holding).toHaveLength(1)
+      expect(shiftAt(calendar, t)).toEqual(holding[0])
+    }), { numRuns: 150 })
   })
 })
