@@ -314,6 +314,32 @@ describe('notifications', async () => {
       expect((await api('engineer', '/api/reports/calendar', { method: 'PUT', body: { shifts: calendar.shifts } })).status).toBe(200)
     }
 
+    // A stored calendar with a gap (saved before full cover was required): nobody is silently off call.
+    const withGap = calendar.shifts.filter(s => s.id !== 'late')
+    await db.execute({ sql: `update settings_kv set value = ? where key = 'shift-calendar'`, args: [JSON.stringify({ shifts: withGap })] })
+    try {
+      const shown = (await api('viewer', '/api/reports/shifts')).body
+      expect(shown.calendarProblems).toEqual(['no shift covers 14:00–22:00 (the shifts must cover all 24 hours)'])
+      expect(shown.shifts).toEqual([])
+      const onCall = (await api('lead', '/api/notifications/on-call')).body
+      expect(onCall.calendarProblems).toEqual(shown.calendarProblems)
+      expect(onCall.shift).toBeNull()
+      expect((await api('admin', '/api/notifications/rules')).body.calendarProblems).toEqual(shown.calendarProblems)
+      const phone = await createPage(undefined, { viewport: { width: 390, height: 844 } })
+      await signIn(phone, demoUser('engineer').email)
+      await phone.waitForURL(u => !u.pathname.startsWith('/sign-in'))
+      await phone.goto(url('/me'), { waitUntil: 'networkidle' })
+      expect(await phone.locator('[data-test=on-call]').innerText()).toMatch(/the shift calendar gives no shift now\): nobody named — alerts go to everyone allowed/)
+      await phone.goto(url('/report'), { waitUntil: 'networkidle' })
+      expect(await phone.locator('[data-test=calendar-unusable]').innerText()).toMatch(/no shift covers 14:00–22:00/)
+      await phone.locator('[data-test=edit-calendar]').waitFor() // and it can be fixed there
+      await phone.screenshot({ path: join(artifactsDir, 'report-calendar-unusable-phone.png'), fullPage: true })
+      await phone.close()
+    }
+    finally {
+      expect((await api('engineer', '/api/reports/calendar', { method: 'PUT', body: { shifts: calendar.shifts } })).status).toBe(200)
+    }
+
     // The Alerts page shows the calendar's shifts read-only, with the way to where they are edited.
     const page = await createPage(undefined, { viewport: { width: 1440, height: 900 } })
     await signIn(page, demoUser('admin').email)

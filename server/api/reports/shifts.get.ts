@@ -12,6 +12,14 @@ export default defineEventHandler(async (event) => {
   const cell = q.cell ?? cells[0]?.id
   if (!cell) return { cells, cell: null, calendar: null, shifts: [] }
   const now = Date.now()
+  // A stored calendar that is not usable (saved before full cover was required) comes back with its
+  // problems and no shifts, so the page can show it and an engineer can fix it there.
+  const [row] = await useDb().select({ timeZone: schema.cells.timeZone }).from(schema.cells).where(eq(schema.cells.id, cell))
+  if (row) {
+    const stored = { timeZone: row.timeZone, shifts: await plantShifts(useDb()) }
+    const calendarProblems = shiftCalendarProblems(stored)
+    if (calendarProblems.length) return { cells, cell, calendar: stored, calendarProblems, shifts: [] }
+  }
   return reportAnswer(async () => {
     const calendar = await reportCalendar(useDb(), cell)
     const shifts = shiftsBetween(calendar, now - 7 * 86_400_000, now).reverse()
@@ -20,7 +28,7 @@ export default defineEventHandler(async (event) => {
       .innerJoin(schema.users, eq(schema.users.id, s.userId))
       .where(and(eq(s.cellId, cell), gte(s.at, now - 8 * 86_400_000)))
     return {
-      cells, cell, calendar,
+      cells, cell, calendar, calendarProblems: [] as string[],
       shifts: shifts.map(w => ({ ...w, ended: w.to <= now, signedBy: signed.filter(x => x.shiftId === w.shiftId && x.date === w.date).map(x => ({ name: x.name, at: x.at })) })),
     }
   })
