@@ -194,16 +194,42 @@ describe('notifications', async () => {
         if (r) resolve(r.registrationId)
       })
     })
+    // The browser's own record of each push event ending ("Push event completed", after every
+    // promise the worker passed to waitUntil has settled) tells us when a notification is on display.
+    const pushEnds: { registrationId: string, status: string | undefined }[] = []
+    cdp.on('BackgroundService.backgroundServiceEventReceived', ({ backgroundServiceEvent: e }: { backgroundServiceEvent: { serviceWorkerRegistrationId: string, eventName: string, eventMetadata: { key: string, value: string }[] } }) => {
+      if (e.eventName === 'Push event completed') pushEnds.push({ registrationId: e.serviceWorkerRegistrationId, status: e.eventMetadata.find(m => m.key === 'Status')?.value })
+    })
+    await cdp.send('BackgroundService.setRecording', { shouldRecord: true, service: 'pushMessaging' })
+    await cdp.send('BackgroundService.startObserving', { service: 'pushMessaging' })
     await cdp.send('ServiceWorker.enable')
-    await page.evaluate(() => navigator.serviceWorker.register('/sw.js', { scope: '/' }).then(() => navigator.serviceWorker.ready))
+    // Push only to an activated worker (the page's own registration may still be installing).
+    await page.evaluate(() => navigator.serviceWorker.register('/sw.js', { scope: '/' }).then(() => navigator.serviceWorker.ready).then(r => new Promise<void>((resolve) => {
+      const w = r.active!
+      if (w.state === 'activated') return resolve()
+      w.addEventListener('statechange', () => { if (w.state === 'activated') resolve() })
+    })))
     const registrationId = await registered
+    // Read the notifications only once no push is being shown. Chromium's getNotifications() deletes
+    // from its store every notification the platform does not yet report as displayed, unless created
+    // after the read began; a read that lands between the worker's write and the display loses that
+    // notification for good (it stays on screen, no later read lists it). Polling getNotifications()
+    // while the push was handled did exactly that under load, and the test failed with [] (or
+    // without alarm-78) now and then.
+    const deliver = async (data: object) => {
+      const ended = pushEnds.length
+      await cdp.send('ServiceWorker.deliverPushMessage', { origin: new URL(url('/')).origin, registrationId, data: JSON.stringify(data) })
+      await expect.poll(() => pushEnds.length, { timeout: 10_000 }).toBe(ended + 1)
+      expect(pushEnds[ended]).toEqual({ registrationId, status: 'Success' }) // not a rejected showNotification
+    }
+    const shown = () => page.evaluate(() => navigator.serviceWorker.ready.then(r => r.getNotifications()).then(ns => ns.map(n => ({ title: n.title, body: n.body, tag: n.tag, data: n.data, requireInteraction: n.requireInteraction })).sort((a, b) => a.tag.localeCompare(b.tag))))
     const payload = { title: 'Grinder 1: Size will meet tolerance soon', body: 'size meets tolerance in about 12 min', url: '/alarms?open=77', alarmId: 77, deliveryId: 5, tag: 'alarm-77', priority: 2, requireInteraction: true }
-    await cdp.send('ServiceWorker.deliverPushMessage', { origin: new URL(url('/')).origin, registrationId, data: JSON.stringify(payload) })
-    const shown = () => page.evaluate(() => navigator.serviceWorker.ready.then(r => r.getNotifications()).then(ns => ns.map(n => ({ title: n.title, body: n.body, tag: n.tag, data: n.data, requireInteraction: n.requireInteraction }))))
-    await expect.poll(shown, { timeout: 10_000 }).toEqual([{ title: payload.title, body: payload.body, tag: 'alarm-77', data: { url: '/alarms?open=77', alarmId: 77, deliveryId: 5 }, requireInteraction: true }])
+    await deliver(payload)
+    const alert77 = { title: payload.title, body: payload.body, tag: 'alarm-77', data: { url: '/alarms?open=77', alarmId: 77, deliveryId: 5 }, requireInteraction: true }
+    expect(await shown()).toEqual([alert77])
     // A payload that tries to send the browser elsewhere gets the home page instead.
-    await cdp.send('ServiceWorker.deliverPushMessage', { origin: new URL(url('/')).origin, registrationId, data: JSON.stringify({ ...payload, tag: 'alarm-78', url: 'https://elsewhere.example/' }) })
-    await expect.poll(async () => (await shown()).find(n => n.tag === 'alarm-78')?.data.url, { timeout: 10_000 }).toBe('/')
+    await deliver({ ...payload, tag: 'alarm-78', url: 'https://elsewhere.example/' })
+    expect(await shown()).toEqual([alert77, { ...alert77, tag: 'alarm-78', data: { ...alert77.data, url: '/' } }])
     await page.screenshot({ path: join(artifactsDir, 'me-device-alerts-phone.png'), fullPage: true })
     await page.close()
   })
