@@ -47,8 +47,11 @@ const INGEST_PROFILE_NOTES = `Where the server's time goes (CPU profiles of the 
   the required work alone took 70–83 µs with its clients, and it runs on one thread: the floor is main-thread bound
   at about one core (45–62 µs per reading, 18,000–24,000 readings/s) while the second core is partly idle. Half
   the ceiling would need the main thread at about 29 µs per reading. Reaching it would take both cutting the
-  required work and spreading it over both cores (a second thread for SQLite takes about a quarter off the main
-  thread, but messages would cross threads twice, and the total CPU is already at the two cores' budget). More
+  required work and spreading it over both cores, and the total CPU is already at the two cores' budget. Tried:
+  the required work with its SQLite transaction on a worker thread (FLOOR_SQLITE_THREAD=1, one batch in flight,
+  the next gathered meanwhile; `BENCH_ONLY=ceiling npx tsx scripts/bench-ingest.ts`, three rounds) gave
+  19,580–20,114 readings/s against 18,547–22,382 on one thread, at 56 µs instead of 48–58 µs per reading:
+  handing each batch's rows to the thread costs about what the thread takes off the main one. More
   cores, or the clients on another machine, change the picture; the share is a property of this 2-core box as
   much as of the code.
 - The throughput varies with what else runs on the machine: the same build gave 10,000–15,000 readings/s while other
@@ -148,8 +151,8 @@ async function floodRate(url: string, brokerPid?: number): Promise<FloodRate> {
 }
 
 /** Floods a broker script that runs in a process of its own and prints "port <n>". */
-async function floodRateApart(script: string): Promise<FloodRate> {
-  const child = spawn(process.execPath, [...benchNodeArgs(), ...SERVER_NODE_ARGS, '--import', 'tsx', script], { stdio: ['ignore', 'pipe', 'inherit'] })
+async function floodRateApart(script: string, env: Record<string, string> = {}): Promise<FloodRate> {
+  const child = spawn(process.execPath, [...benchNodeArgs(), ...SERVER_NODE_ARGS, '--import', 'tsx', script], { stdio: ['ignore', 'pipe', 'inherit'], env: { ...process.env, ...env } })
   const port = await new Promise<number>((resolve, reject) => {
     child.stdout!.on('data', (d: Buffer) => { const m = /port (\d+)/.exec(d.toString()); if (m) resolve(Number(m[1])) })
     child.once('exit', code => reject(new Error(`${script} exited ${code}`)))
@@ -162,7 +165,7 @@ async function floodRateApart(script: string): Promise<FloodRate> {
 const ceilingSeparateProcess = () => floodRateApart('scripts/lib/bare-broker.ts')
 
 /** The required work alone (scripts/lib/ingest-floor-broker.ts): what no ingest can go below. */
-const requiredWorkOnly = () => floodRateApart('scripts/lib/ingest-floor-broker.ts')
+const requiredWorkOnly = (sqliteThread = false) => floodRateApart('scripts/lib/ingest-floor-broker.ts', { FLOOR_SQLITE_THREAD: sqliteThread ? '1' : '0' })
 
 /** The ceiling with a bare aedes in this process, beside the benchmark's clients. */
 async function ceiling(): Promise<number> {
@@ -176,10 +179,14 @@ async function ceiling(): Promise<number> {
 
 async function main() {
   if (process.env.BENCH_ONLY === 'ceiling') {
-    const apart = await ceilingSeparateProcess()
-    const floor = await requiredWorkOnly()
-    console.log(`ceiling: ${(await ceiling()).toFixed(0)} messages/s (broker in this process), ${apart.rate.toFixed(0)} (broker apart: ${apart.brokerUs.toFixed(1)} µs broker, ${apart.clientUs.toFixed(1)} µs clients per message)`)
-    console.log(`required work only: ${floor.rate.toFixed(0)} readings/s (${floor.brokerUs.toFixed(1)} µs server, ${floor.clientUs.toFixed(1)} µs clients per reading)`)
+    // Also the experiment of the required work with SQLite on a thread of its own; three rounds.
+    const show = (what: string, x: FloodRate) => console.log(`  ${what}: ${x.rate.toFixed(0)}/s (${x.brokerUs.toFixed(1)} µs broker process, ${x.clientUs.toFixed(1)} µs clients per message)`)
+    for (let r = 0; r < 3; r++) {
+      show('bare broker, apart', await ceilingSeparateProcess())
+      show('required work only', await requiredWorkOnly())
+      show('required work only, SQLite on a thread', await requiredWorkOnly(true))
+    }
+    console.log(`  bare broker in this process: ${(await ceiling()).toFixed(0)}/s`)
     return
   }
   if (!existsSync('.output/server/index.mjs')) throw new Error('build first: npm run build')

@@ -8,7 +8,12 @@
 // dead letters, duplicate lookups or metrics.
 // bench:ingest floods it like the bare broker, so "required work only" sits beside the ceiling and
 // beside Owlshift itself. Prints "port <n>" when listening.
+// With FLOOR_SQLITE_THREAD=1 the transaction runs on a worker thread instead (one batch in flight,
+// the next gathered meanwhile): the experiment of moving SQLite off the main thread, measured by
+// `BENCH_ONLY=ceiling npx tsx scripts/bench-ingest.ts`.
 import net from 'node:net'
+import { Worker } from 'node:worker_threads'
+import { createRequire } from 'node:module'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
@@ -42,9 +47,32 @@ const run = (sql: string, args: unknown[]) => {
   if (!s) prepared.set(sql, s = db.prepare(sql))
   s.run(args)
 }
-const saveState = db.prepare('INSERT INTO floor_engine_state (machine_id, state) VALUES (?, ?) ON CONFLICT (machine_id) DO UPDATE SET state = excluded.state')
+const SAVE_STATE = 'INSERT INTO floor_engine_state (machine_id, state) VALUES (?, ?) ON CONFLICT (machine_id) DO UPDATE SET state = excluded.state'
 const begin = db.prepare('BEGIN IMMEDIATE')
 const commit = db.prepare('COMMIT')
+type Statement = { sql: string, args: unknown[] }
+
+/** The experiment: the same transaction on a thread of its own; resolves once committed. */
+const writer = process.env.FLOOR_SQLITE_THREAD === '1' ? sqliteThread() : null
+function sqliteThread() {
+  const worker = new Worker(`
+    const { parentPort, workerData } = require('node:worker_threads')
+    const db = new (require(workerData.driver))(workerData.file)
+    db.pragma('busy_timeout = 5000'); db.pragma('synchronous = NORMAL'); db.pragma('wal_autocheckpoint = ${WRITER_AUTOCHECKPOINT_PAGES}')
+    const prepared = new Map()
+    const begin = db.prepare('BEGIN IMMEDIATE'), commit = db.prepare('COMMIT')
+    parentPort.on('message', (statements) => {
+      begin.run()
+      for (const st of statements) { let s = prepared.get(st.sql); if (!s) prepared.set(st.sql, s = db.prepare(st.sql)); s.run(st.args) }
+      commit.run()
+      parentPort.postMessage('committed')
+    })`, { eval: true, workerData: { file, driver: createRequire(import.meta.url).resolve('libsql') } })
+  let committed: (() => void) | null = null
+  worker.on('message', () => committed?.())
+  worker.on('error', (err) => { console.error(err); process.exit(1) })
+  return (statements: Statement[]) => new Promise<void>((resolve) => { committed = resolve; worker.postMessage(statements) })
+}
+let writing = false
 
 // The benchmark's job (LTP-0630-R, ±2 µm, 3 parts in the pipeline, 20 s cycle), as the server sets it up.
 const settings = { upperSpecUm: 2, lowerSpecUm: -2, pipelineParts: 3, cycleTimeS: 20 }
@@ -55,6 +83,7 @@ let timer: NodeJS.Timeout | null = null
 
 function flush() {
   timer = null
+  if (writing || !queue.length) return // the running write flushes what gathered meanwhile
   const batch = queue
   queue = []
   const now = Date.now()
@@ -82,17 +111,26 @@ function flush() {
     }
     decisions.push({ machineId: machine, seq: m.seq, at: now, action: decision.command ? 'offset' : decision.dress.now ? 'dress' : 'none', correctionUm: decision.command?.correctionUm ?? null, offsetUm: decision.offsetUm, commandId, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: typeof decision.inputs.slopeUmPerPart === 'number' ? decision.inputs.slopeUmPerPart : null })
   }
-  begin.run()
-  for (const st of [
+  const statements: Statement[] = [
     ...insertStatements(schema.readings, readings, { onConflict: 'nothing' }),
     ...insertStatements(schema.decisions, decisions),
     ...insertStatements(schema.commands, commands, { onConflict: 'nothing' }),
-  ]) run(st.sql, st.args as unknown[])
-  for (const machine of touched) saveState.run([machine, JSON.stringify(engines.get(machine))])
+    ...[...touched].map(machine => ({ sql: SAVE_STATE, args: [machine, JSON.stringify(engines.get(machine))] })),
+  ] as Statement[]
+  const committed = () => {
+    checkpointer.committed()
+    for (const { done } of batch) done(null)
+    for (const { topic, command } of outgoing) broker.publish({ cmd: 'publish', topic, payload: Buffer.from(JSON.stringify(command)), qos: 1, retain: false, dup: false, messageId: 0 } as PublishPacket, () => {})
+  }
+  if (writer) {
+    writing = true
+    void writer(statements).then(() => { writing = false; committed(); flush() })
+    return
+  }
+  begin.run()
+  for (const st of statements) run(st.sql, st.args)
   commit.run()
-  checkpointer.committed()
-  for (const { done } of batch) done(null)
-  for (const { topic, command } of outgoing) broker.publish({ cmd: 'publish', topic, payload: Buffer.from(JSON.stringify(command)), qos: 1, retain: false, dup: false, messageId: 0 } as PublishPacket, () => {})
+  committed()
 }
 
 const broker = await Aedes.createBroker({
