@@ -4,7 +4,7 @@
 import { and, eq, inArray } from 'drizzle-orm'
 import type { InStatement } from '@libsql/client'
 import {
-  decodeMachineMessage, type MachineMessage, type CommandMessage, type JobInfo,
+  decodeMachineMessage, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
 import { gateCommands, commandAnswered, type OutstandingCommands } from '#shared/utils/command-gate'
@@ -58,6 +58,11 @@ export function deadLetterPayload(buf: Buffer): string {
 }
 
 const msOf = (iso: string) => Date.parse(iso)
+
+function knownMachineOfTopic(topic: string): string | null {
+  const t = parseMqttTopic(topic)
+  return t.ok && machineContext(t.machine) ? t.machine : null
+}
 
 function commandId(machineId: string, seq: number, type: string) { return `${machineId}.${seq}.${type}` }
 
@@ -175,12 +180,14 @@ export class IngestPipeline {
     const commandRows: CommandRow[] = []
     const presenceRows: (typeof schema.presenceLog.$inferInsert)[] = []
     const gapRows: (typeof schema.sequenceGaps.$inferInsert)[] = []
-    const commandUpdates: { id: string, set: Partial<CommandRow> }[] = []
+    const commandUpdates: { id: string, machineId: string, set: Partial<CommandRow> }[] = []
 
     // 1. Decode and check identity; everything that fails is a dead letter with its reason.
     const decoded: { ctx: MachineContext, message: MachineMessage }[] = []
     for (const a of arrivals) {
-      const fail = (reason: string, machineId: string | null = a.machineIdentity) => {
+      // Through an external broker there is no broker identity: charge bad data to the machine the
+      // topic names, if it is one of ours (never a key made up by a client).
+      const fail = (reason: string, machineId: string | null = a.machineIdentity ?? knownMachineOfTopic(a.topic)) => {
         dead.push({ receivedAt: now, clientId: a.clientId, machineId, topic: a.topic.slice(0, 500), reason, payload: deadLetterPayload(a.payload), payloadBytes: a.payload.length })
       }
       const d = decodeMachineMessage(a.topic, a.payload)
@@ -340,7 +347,7 @@ export class IngestPipeline {
         effects.conditions.push({ machineId: ctx.id, condition: 'machine:stopped', active: message.execution === 'STOPPED', message: `${ctx.name} stopped${message.reason ? `: ${message.reason}` : ''}`, at: now })
       }
       else if (message.kind === 'ack') {
-        commandUpdates.push({ id: message.commandId, set: { status: message.result, appliedOffsetUm: message.offsetUm, ackAt: now, ackReason: message.reason ?? null } })
+        commandUpdates.push({ id: message.commandId, machineId: ctx.id, set: { status: message.result, appliedOffsetUm: message.offsetUm, ackAt: now, ackReason: message.reason ?? null } })
         commandAnswered(w.outstanding, message.commandId)
         st.appliedOffsetUm = message.offsetUm
         if (message.result === 'applied' && message.command === 'offset') record(step({ type: 'offset-applied', offsetUm: message.offsetUm, time }, message.seq), message.seq)
@@ -386,7 +393,8 @@ export class IngestPipeline {
       ...insertStatements(schema.sequenceGaps, gapRows),
     ]
     for (const u of commandUpdates) {
-      statements.push({ sql: 'UPDATE "commands" SET "status" = ?, "applied_offset_um" = ?, "ack_at" = ?, "ack_reason" = ? WHERE "id" = ?', args: [u.set.status ?? null, u.set.appliedOffsetUm ?? null, u.set.ackAt ?? null, u.set.ackReason ?? null, u.id] })
+      // Only the machine the command went to may answer it (an ack naming another machine's command changes nothing).
+      statements.push({ sql: 'UPDATE "commands" SET "status" = ?, "applied_offset_um" = ?, "ack_at" = ?, "ack_reason" = ? WHERE "id" = ? AND "machine_id" = ?', args: [u.set.status ?? null, u.set.appliedOffsetUm ?? null, u.set.ackAt ?? null, u.set.ackReason ?? null, u.id, u.machineId] })
     }
     const changed = [...work.values()].filter(w => w.changed)
     statements.push(...insertStatements(schema.machineStatus, changed.map(w => ({ ...w.status, engineState: w.engine, updatedAt: now })), { onConflict: { update: 'machineId' } }))

@@ -41,7 +41,8 @@ export async function loadMachineRegistry() {
   const rows = await db.select().from(schema.machines)
   const jobs = new Map((await db.select().from(schema.jobs)).map(j => [j.id, j]))
   const statuses = new Map((await db.select().from(schema.machineStatus)).map(s => [s.machineId, s]))
-  registry.clear()
+  const outstanding = await outstandingCommandsFromDb(Date.now())
+  const next = new Map<string, MachineContext>()
   for (const m of rows) {
     const status = statuses.get(m.id) ?? emptyStatus(m.id)
     let engine: CompensationState | null = null
@@ -50,8 +51,37 @@ export async function loadMachineRegistry() {
       catch (err) { log.warn(`[ingest] engine state of ${m.id} could not be restored (${(err as Error).message}); it starts afresh`) }
     }
     const tuning = m.currentJobId ? await activeTuningFor(m.currentJobId, m.id) : null
-    registry.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning })
+    // What was last told to the alarm engine stays true across a reload (it is not in the database).
+    const reportedConditions = registry.get(m.id)?.reportedConditions
+    next.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning, outstanding: outstanding.get(m.id) ?? {}, reportedConditions })
   }
+  // Swapped in at once: a machine connecting during the reload must not find itself missing.
+  registry.clear()
+  for (const [id, ctx] of next) registry.set(id, ctx)
+}
+
+/**
+ * The dress and hold requests the engine sent and the machine has not answered, as committed:
+ * the gate in ingest rebuilt after a restart or a failed commit (a dress the machine reported
+ * since answers a dress request).
+ */
+async function outstandingCommandsFromDb(now: number): Promise<Map<string, OutstandingCommands>> {
+  const rows = await useDbClient().execute({
+    sql: `SELECT c.machine_id, c.type, c.id, c.expires_at FROM commands c
+          WHERE c.origin = 'engine' AND c.status = 'sent' AND c.type IN ('dress', 'hold') AND c.expires_at > ?
+            AND NOT (c.type = 'dress' AND EXISTS (SELECT 1 FROM machine_messages m
+              WHERE m.machine_id = c.machine_id AND m.kind = 'event' AND m.type = 'dress' AND m.received_at >= c.issued_at))
+          ORDER BY c.issued_at`,
+    args: [now],
+  })
+  const out = new Map<string, OutstandingCommands>()
+  for (const r of rows.rows) {
+    const machineId = String(r.machine_id)
+    const gate = out.get(machineId) ?? {}
+    gate[r.type as 'dress' | 'hold'] = { id: String(r.id), expiresAt: Number(r.expires_at) }
+    out.set(machineId, gate)
+  }
+  return out
 }
 
 export const machineContext = (id: string) => registry.get(id)
