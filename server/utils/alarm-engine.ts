@@ -90,8 +90,9 @@ export function alarmView(row: AlarmRow) {
 export function applyAlarmConditions(conditions: AlarmCondition[]): Promise<void> {
   return serial(async () => {
     await loadOpenAlarms()
-    // Keep the last report of each condition in the batch, but never lose a momentary one.
-    const last = new Map<string, AlarmCondition>()
+    // Repeated reports of the same state in a batch count once (the last one), but every change
+    // is kept in order: a fault raised and cleared within one commit still has to be acknowledged.
+    const changes = new Map<string, AlarmCondition[]>()
     const momentary: AlarmCondition[] = []
     for (const c of conditions) {
       if (c.condition === 'link:sequence-gap') { momentary.push(c); continue }
@@ -102,9 +103,13 @@ export function applyAlarmConditions(conditions: AlarmCondition[]): Promise<void
         if (times.length === BAD_DATA_THRESHOLD) momentary.push({ ...c, message: `${times.length} bad messages in 10 minutes; last: ${c.message}` })
         continue
       }
-      last.set(keyOf(c.machineId, c.condition), c)
+      const key = keyOf(c.machineId, c.condition)
+      const seen = changes.get(key)
+      if (!seen) changes.set(key, [c])
+      else if (seen.at(-1)!.active === c.active) seen[seen.length - 1] = c
+      else seen.push(c)
     }
-    for (const c of [...last.values(), ...momentary]) {
+    for (const c of [...[...changes.values()].flat(), ...momentary]) {
       const key = keyOf(c.machineId, c.condition)
       const row = open.get(key)
       const momentaryOne = momentary.includes(c)
