@@ -95,7 +95,14 @@ async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<
   client.handleMessage = (packet, callback) => {
     const topic = packet.cmd === 'publish' ? packet.topic : ''
     ingest.accept({ topic, payload: Buffer.from((packet as { payload: Buffer | string }).payload), clientId: null, machineIdentity: null })
-      .then(() => callback(), err => callback(err as Error))
+      .then(() => callback(), (err) => {
+        callback(err as Error)
+        // Not acknowledged, and an MQTT 3.1.1 broker sends an unacknowledged message again only on
+        // a new connection of the session: drop this one (mqtt.js reconnects after reconnectPeriod),
+        // as the embedded broker drops a machine whose message could not be committed.
+        log.warn('[owlshift] a commit failed: reconnecting to the external MQTT broker so it delivers the message again')
+        client.stream?.destroy()
+      })
   }
   client.on('connect', (ack) => {
     log.info(`[owlshift] connected to the external MQTT broker ${url} (session ${ack.sessionPresent ? 'resumed' : 'new'})`)

@@ -7,6 +7,7 @@ import { mkdtempSync, writeFileSync, existsSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import mqtt from 'mqtt'
+import Database from 'libsql'
 import { freePort, openTestDb } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { birth, reading, payloadOf, topicFor, CELL } from './mqtt-helpers'
@@ -74,5 +75,21 @@ describe('external broker (Mosquitto)', () => {
     server = await startServer({ dataDir, port: server.port, env: env() })
     await until(async () => (await count(`select count(*) from readings where machine_id = 'cg-01'`)) === before + 40, 'the 40 readings queued by the broker')
     expect(await count(`select count(*) from machine_messages where machine_id = 'cg-01' and kind = 'birth'`)).toBe(1)
+  })
+
+  it('a message whose commit failed is delivered again and stored once the database writes again', async () => {
+    pub('cg-02', birth(1))
+    await until(async () => (await count(`select count(*) from machine_messages where machine_id = 'cg-02' and kind = 'birth'`)) === 1, 'the birth')
+    // Another process (a backup tool, a shell) holds the write lock past the 5 s busy timeout:
+    // the commit of the next reading fails and it is not acknowledged.
+    const other = new Database(join(dataDir, 'owlshift.db'))
+    other.pragma('busy_timeout = 1000')
+    other.exec('BEGIN IMMEDIATE')
+    pub('cg-02', reading(2, 0.1))
+    await until(async () => /commit failed/.test(server.log()), 'the failed commit')
+    other.exec('COMMIT')
+    other.close()
+    // The broker still holds it for Owlshift's session; it must come again without a restart.
+    await until(async () => (await count(`select count(*) from readings where machine_id = 'cg-02' and seq = 2`)) === 1, 'the reading after the lock is gone')
   })
 })
