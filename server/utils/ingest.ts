@@ -214,11 +214,11 @@ export class IngestPipeline {
     }
 
     // 3. Apply, machine by machine, on working copies (memory changes only after the commit).
-    const work = new Map<string, { ctx: MachineContext, status: StatusRow, engine: CompensationState | null, changed: boolean, outstanding: OutstandingCommands, reported: Map<string, boolean> }>()
+    const work = new Map<string, { ctx: MachineContext, status: StatusRow, engine: CompensationState | null, changed: boolean, outstanding: OutstandingCommands, reported: Map<string, boolean>, clockOffsetMs: number | undefined }>()
     const workFor = (ctx: MachineContext) => {
       let w = work.get(ctx.id)
       if (!w) {
-        w = { ctx, status: { ...ctx.status, activeFaults: [...ctx.status.activeFaults] }, engine: ctx.engine, changed: false, outstanding: { ...ctx.outstanding }, reported: new Map(ctx.reportedConditions) }
+        w = { ctx, status: { ...ctx.status, activeFaults: [...ctx.status.activeFaults] }, engine: ctx.engine, changed: false, outstanding: { ...ctx.outstanding }, reported: new Map(ctx.reportedConditions), clockOffsetMs: ctx.clockOffsetMs }
         work.set(ctx.id, w)
       }
       return w
@@ -242,6 +242,7 @@ export class IngestPipeline {
         gapRows.push({ machineId: ctx.id, fromSeq: st.lastSeq + 1, toSeq: message.seq - 1, detectedAt: now })
         effects.conditions.push({ machineId: ctx.id, condition: 'link:sequence-gap', active: true, message: `${ctx.name}: messages ${st.lastSeq + 1}–${message.seq - 1} never arrived`, at: now })
       }
+      if (message.seq >= st.lastSeq) w.clockOffsetMs = msOf(message.time) - now
       st.lastSeq = Math.max(st.lastSeq, message.seq)
       st.lastMessageAt = now
       w.changed = true
@@ -406,6 +407,7 @@ export class IngestPipeline {
       w.ctx.engine = w.engine
       w.ctx.outstanding = w.outstanding
       w.ctx.reportedConditions = w.reported
+      w.ctx.clockOffsetMs = w.clockOffsetMs
       effects.live.push({ type: 'status', machineId: w.ctx.id, status: publicStatus(w.ctx) })
     }
     for (const d of dead) if (d.machineId) effects.conditions.push({ machineId: d.machineId, condition: 'link:bad-data', active: true, message: `bad data from ${d.machineId}: ${d.reason}`, at: now })

@@ -23,6 +23,8 @@ export interface MachineContext {
   outstanding?: OutstandingCommands
   /** the last state ingest reported to the alarm engine for each engine condition (memory only) */
   reportedConditions?: Map<string, boolean>
+  /** the machine's clock minus the server's, from its newest message: how a command decided here is dated for it (memory only) */
+  clockOffsetMs?: number
 }
 
 const registry = new Map<string, MachineContext>()
@@ -53,7 +55,7 @@ export async function loadMachineRegistry() {
     const tuning = m.currentJobId ? await activeTuningFor(m.currentJobId, m.id) : null
     // What was last told to the alarm engine stays true across a reload (it is not in the database).
     const reportedConditions = registry.get(m.id)?.reportedConditions
-    next.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning, outstanding: outstanding.get(m.id) ?? {}, reportedConditions })
+    next.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning, outstanding: outstanding.get(m.id) ?? {}, reportedConditions, clockOffsetMs: registry.get(m.id)?.clockOffsetMs })
   }
   // Swapped in at once: a machine connecting during the reload must not find itself missing.
   registry.clear()
@@ -95,7 +97,7 @@ export async function refreshMachineContext(id: string) {
   const [job] = m.currentJobId ? await db.select().from(schema.jobs).where(eq(schema.jobs.id, m.currentJobId)) : []
   const prev = registry.get(id)
   const tuning = job ? await activeTuningFor(job.id, id) : null
-  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning, outstanding: prev?.outstanding, reportedConditions: prev?.reportedConditions })
+  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning, outstanding: prev?.outstanding, reportedConditions: prev?.reportedConditions, clockOffsetMs: prev?.clockOffsetMs })
 }
 
 /**

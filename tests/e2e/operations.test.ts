@@ -8,7 +8,8 @@ import { join } from 'node:path'
 import { createClient } from '@libsql/client'
 import { freePort, demoCredentials, openTestDb } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
-import { birth, reading, payloadOf, topicFor, machineClient } from './mqtt-helpers'
+import { birth, reading, payloadOf, topicFor, machineClient, at, CELL } from './mqtt-helpers'
+import { mqttTopics, type CommandMessage, type MachineMessage } from '../../shared/utils/contract'
 import { demoShop } from '../../shared/utils/demo-shop'
 
 const started: ServerProcess[] = []
@@ -27,7 +28,37 @@ async function adminCookie(base: string) {
   return r.headers.getSetCookie().map(c => c.split(';')[0]).join('; ')
 }
 
+async function cookieFor(base: string, role: string) {
+  const user = demoShop.users.find(u => u.role === role)!
+  const r = await fetch(`${base}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: user.email, password: demoShop.password }) })
+  return r.headers.getSetCookie().map(c => c.split(';')[0]).join('; ')
+}
+
 describe('operations', () => {
+  it('a lead\'s hold reaches the machine unexpired on the machine\'s own clock, however long ago its last part was', async () => {
+    const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-ops-'))
+    const { mqttUrl, base } = await boot(dataDir)
+    const c = await machineClient(mqttUrl, 'cg-03', demoCredentials(dataDir)['cg-03']!.password)
+    await c.subscribeAsync(mqttTopics.command(CELL, 'cg-03'), { qos: 1 })
+    const received: CommandMessage[] = []
+    c.on('message', (_t, p) => received.push(JSON.parse(p.toString()) as CommandMessage))
+    // The machine's clock runs days apart from the server's (the test times are fixed); its last
+    // part was gauged at at(40), then it waited 20 minutes for blanks and said so on its clock.
+    const waiting: MachineMessage = { kind: 'state', seq: 3, time: at(40 + 1200), execution: 'WAIT', activeFaults: [] }
+    for (const m of [birth(1), reading(2, 0.1), waiting]) await c.publishAsync(topicFor('cg-03', m), payloadOf(m), { qos: 1 })
+    const res = await fetch(`${base}/api/machines/cg-03/commands`, {
+      method: 'POST', headers: { 'content-type': 'application/json', cookie: await cookieFor(base, 'lead') }, body: JSON.stringify({ type: 'hold', confirmed: true }),
+    })
+    expect(res.status, await res.text()).toBe(200)
+    await expect.poll(() => received.filter(m => m.type === 'hold').length).toBe(1)
+    const hold = received.find(m => m.type === 'hold')!
+    // On the machine's clock the command is issued no earlier than the last thing it told us and
+    // stays valid for the five minutes the route promises.
+    expect(Date.parse(hold.issuedAt)).toBeGreaterThanOrEqual(Date.parse(waiting.time))
+    expect(Date.parse(hold.expiresAt) - Date.parse(waiting.time)).toBeGreaterThanOrEqual(5 * 60_000)
+    await c.endAsync()
+  })
+
   it('reports health and Prometheus metrics that follow the readings stored', async () => {
     const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-ops-'))
     const { mqttUrl, base } = await boot(dataDir)

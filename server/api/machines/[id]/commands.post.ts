@@ -17,8 +17,9 @@ export default defineEventHandler(async (event) => {
   if (!ctx.status.online) throw createError({ statusCode: 409, message: `${ctx.name} is offline; the command could not reach it.` })
   const now = Date.now()
   const id = `${ctx.id}.u${user.id}.${now}.${type}`
-  // The machine's clock decides expiry; anchor on its last reading time when it runs its own clock.
-  const machineNow = ctx.status.lastReadingAt ?? now
+  // The machine's clock decides expiry: date the command on that clock as it reads now (its newest
+  // message's offset from ours), not at its last part, which may be long past (waiting, held).
+  const machineNow = now + (ctx.clockOffsetMs ?? 0)
   const command = { kind: 'command' as const, type, id, issuedAt: new Date(machineNow).toISOString(), expiresAt: new Date(machineNow + EXPIRES_MS).toISOString(), reason: (reason || `${type} by ${user.name}`).slice(0, 200) }
   await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type, origin: `user:${user.id}`, payload: command, issuedAt: now, expiresAt: now + EXPIRES_MS, status: 'sent' })
   const sent = await sendCommand(ctx.cellId, ctx.id, command)
