@@ -67,14 +67,20 @@ export async function loadMachineRegistry() {
  * the gate in ingest rebuilt after a restart or a failed commit (a dress the machine reported
  * since answers a dress request).
  */
+const OUTSTANDING_LOOKBACK_MS = 7 * 86_400_000
+
 async function outstandingCommandsFromDb(now: number): Promise<Map<string, OutstandingCommands>> {
   const rows = await useDbClient().execute({
     sql: `SELECT c.machine_id, c.type, c.id, c.expires_at FROM commands c
-          WHERE c.origin = 'engine' AND c.status = 'sent' AND c.type IN ('dress', 'hold') AND c.expires_at > ?
+          WHERE c.machine_id IN (SELECT id FROM machines) AND c.issued_at > ?
+            AND c.origin = 'engine' AND c.status = 'sent' AND c.type IN ('dress', 'hold') AND c.expires_at > ?
             AND NOT (c.type = 'dress' AND EXISTS (SELECT 1 FROM machine_messages m
               WHERE m.machine_id = c.machine_id AND m.kind = 'event' AND m.type = 'dress' AND m.received_at >= c.issued_at))
           ORDER BY c.issued_at`,
-    args: [now],
+    // Commands are kept for good: the first two terms let SQLite range over (machine, issued) in
+    // commands_machine_issued instead of reading the whole table at every start. A command lives
+    // three cycles (at least a minute), far less than the week looked back here.
+    args: [now - OUTSTANDING_LOOKBACK_MS, now],
   })
   const out = new Map<string, OutstandingCommands>()
   for (const r of rows.rows) {
