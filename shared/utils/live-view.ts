@@ -54,6 +54,51 @@ export function liveMachineState(f: LiveCardFacts): { tone: LiveTone, word: stri
   return { tone: 'idle', word: f.execution ? f.execution.toLowerCase().replaceAll('_', ' ') : 'No data' }
 }
 
+/**
+ * Which of hold / resume to offer for a machine's execution state (MTConnect Execution values):
+ * hold while it grinds, resume once it stands held or stopped, both when it waits, is offline or
+ * its state is unknown — the machine itself decides then.
+ */
+export function liveCommandChoices(execution: string | null, online: boolean): { hold: boolean, resume: boolean } {
+  if (!online || !execution) return { hold: true, resume: true }
+  if (execution === 'ACTIVE') return { hold: true, resume: false }
+  if (['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP', 'STOPPED', 'INTERRUPTED'].includes(execution)) return { hold: false, resume: true }
+  return { hold: true, resume: true }
+}
+
+/** Machine message types the event log leaves out: every part's own steps, and the machine's
+ * "offset applied" answers, which the decisions list already shows as "applied". */
+export const LIVE_EVENT_LOG_QUIET_TYPES = ['part_loaded', 'part_ground', 'part_gauged', 'part_unloaded', 'offset:applied'] as const
+
+const EXECUTION_WORDS: Record<string, string> = {
+  ACTIVE: 'grinding', FEED_HOLD: 'held', READY: 'ready', WAIT: 'waiting', STOPPED: 'stopped',
+  INTERRUPTED: 'interrupted', PROGRAM_STOPPED: 'program stopped', OPTIONAL_STOP: 'optional stop',
+}
+const EVENT_WORDS: Record<string, string> = {
+  dress: 'wheel dressed', wheel_change: 'wheel changed', pallet_change: 'pallet changed', mastering: 'gauge mastered',
+  job_change: 'job changed', fault_raised: 'fault raised', fault_cleared: 'fault cleared',
+}
+const COMMAND_WORDS: Record<string, string> = { offset: 'offset', dress: 'dress', hold: 'hold', resume: 'resume' }
+const STATION_WORDS: Record<string, string> = { 'dress': 'dress logged', 'wheel-change': 'wheel change logged', 'mastering': 'gauge mastering logged', 'note': 'note' }
+
+/** A machine message (kind and stored type) or a station log kind in the event log's words. */
+export function liveEventWords(kind: string, type: string | null): string {
+  if (kind === 'station') return STATION_WORDS[type ?? ''] ?? `${type ?? 'work'} logged`
+  if (kind === 'birth') return 'machine connected'
+  if (kind === 'death') return 'machine disconnected'
+  if (kind === 'state') return type ? `now ${EXECUTION_WORDS[type] ?? type.toLowerCase().replaceAll('_', ' ')}` : 'state changed'
+  if (kind === 'event') return EVENT_WORDS[type ?? ''] ?? (type ?? 'event').replaceAll('_', ' ')
+  if (kind === 'ack') {
+    const [command = '', result = ''] = (type ?? '').split(':')
+    const what = COMMAND_WORDS[command] ?? command
+    if (result === 'applied') return `machine carried out the ${what}`
+    if (result === 'rejected') return `machine refused the ${what}`
+    if (result === 'expired') return `${what} expired before the machine took it`
+    return `machine answered the ${what}`
+  }
+  return type ? `${kind} ${type}` : kind
+}
+
 /** Lower ranks first: what needs a person soonest. */
 export function liveAttentionRank(f: LiveCardFacts): number {
   const topAlarm = f.alarmPriorities.length ? Math.min(...f.alarmPriorities) : 9

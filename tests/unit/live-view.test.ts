@@ -7,7 +7,7 @@ import * as ss from 'simple-statistics'
 import fc from 'fast-check'
 import {
   LIVE_CPK_WINDOW, liveRollingCpk, liveTolerancePosition, liveMachineState, liveAttentionRank, liveSpan,
-  liveShiftStart, liveRangeWindow, livePhotoType, liveAlarmStateWord, type LiveCardFacts,
+  liveShiftStart, liveRangeWindow, livePhotoType, liveAlarmStateWord, liveCommandChoices, liveEventWords, type LiveCardFacts,
 } from '../../shared/utils/live-view'
 
 /** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
@@ -172,5 +172,52 @@ describe('livePhotoType (by content, never by name)', () => {
     expect(livePhotoType(bytes('RIFF', 0x24, 0, 0, 0, 'WAVEfmt '))).toBeNull() // a RIFF that is sound
     expect(livePhotoType(bytes(0xFF, 0xD8))).toBeNull() // cut short
     expect(livePhotoType(new Uint8Array())).toBeNull()
+  })
+})
+
+describe('liveCommandChoices (hold / resume offered by execution state)', () => {
+  // Execution values from the MTConnect standard (Part 2, Execution DataItem).
+  it('offers only hold while the machine grinds', () => {
+    expect(liveCommandChoices('ACTIVE', true)).toEqual({ hold: true, resume: false })
+  })
+  it('offers only resume once it stands held or stopped', () => {
+    for (const e of ['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP', 'STOPPED', 'INTERRUPTED'])
+      expect(liveCommandChoices(e, true), e).toEqual({ hold: false, resume: true })
+  })
+  it('offers both while it waits, when offline or when the state is unknown', () => {
+    expect(liveCommandChoices('READY', true)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices('WAIT', true)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices('ACTIVE', false)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices(null, true)).toEqual({ hold: true, resume: true })
+  })
+})
+
+describe('liveEventWords (the event log in shop words, never raw message ids)', () => {
+  it('names machine events, presence and state changes', () => {
+    expect(liveEventWords('event', 'dress')).toBe('wheel dressed')
+    expect(liveEventWords('event', 'wheel_change')).toBe('wheel changed')
+    expect(liveEventWords('event', 'mastering')).toBe('gauge mastered')
+    expect(liveEventWords('event', 'fault_raised')).toBe('fault raised')
+    expect(liveEventWords('birth', null)).toBe('machine connected')
+    expect(liveEventWords('death', null)).toBe('machine disconnected')
+    expect(liveEventWords('state', 'FEED_HOLD')).toBe('now held')
+    expect(liveEventWords('state', 'ACTIVE')).toBe('now grinding')
+  })
+  it('says what the machine did with a command', () => {
+    expect(liveEventWords('ack', 'hold:applied')).toBe('machine carried out the hold')
+    expect(liveEventWords('ack', 'offset:rejected')).toBe('machine refused the offset')
+    expect(liveEventWords('ack', 'dress:expired')).toBe('dress expired before the machine took it')
+  })
+  it('names station logs', () => {
+    expect(liveEventWords('station', 'wheel-change')).toBe('wheel change logged')
+    expect(liveEventWords('station', 'mastering')).toBe('gauge mastering logged')
+  })
+  it('never shows an underscore or a kind:result pair for any stored type', () => {
+    const stored: [string, string | null][] = [
+      ...['dress', 'wheel_change', 'pallet_change', 'mastering', 'job_change', 'fault_raised', 'fault_cleared'].map(t => ['event', t] as [string, string]),
+      ...['offset', 'dress', 'hold', 'resume'].flatMap(c => ['applied', 'rejected', 'expired'].map(r => ['ack', `${c}:${r}`] as [string, string])),
+      ...['ACTIVE', 'FEED_HOLD', 'READY', 'WAIT', 'STOPPED', 'INTERRUPTED', 'PROGRAM_STOPPED', 'OPTIONAL_STOP'].map(e => ['state', e] as [string, string]),
+    ]
+    for (const [k, t] of stored) expect(liveEventWords(k, t), `${k} ${t}`).not.toMatch(/[_:]|[A-Z]{2}/)
   })
 })

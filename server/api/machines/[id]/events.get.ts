@@ -1,5 +1,6 @@
 // The event log: machine events and state changes, presence, commands and station logs, newest first.
-import { and, between, desc, eq } from 'drizzle-orm'
+import { and, between, desc, eq, isNull, notInArray, or } from 'drizzle-orm'
+import { LIVE_EVENT_LOG_QUIET_TYPES, liveEventWords } from '#shared/utils/live-view'
 
 export default defineEventHandler(async (event) => {
   await requireUser(event)
@@ -9,13 +10,13 @@ export default defineEventHandler(async (event) => {
   const db = useDb()
   const m = schema.machineMessages
   const msgs = await db.select({ t: m.time, kind: m.kind, type: m.type, seq: m.seq }).from(m)
-    .where(and(eq(m.machineId, ctx.id), between(m.time, from, to))).orderBy(desc(m.time)).limit(300)
+    .where(and(eq(m.machineId, ctx.id), between(m.time, from, to), or(isNull(m.type), notInArray(m.type, [...LIVE_EVENT_LOG_QUIET_TYPES])))).orderBy(desc(m.time)).limit(300)
   const logs = await db.select().from(schema.stationLog).where(eq(schema.stationLog.machineId, ctx.id)).orderBy(desc(schema.stationLog.at)).limit(100)
   const users = new Map((await db.select({ id: schema.users.id, name: schema.users.name }).from(schema.users)).map(u => [u.id, u.name]))
   const cmds = await db.select().from(schema.commands).where(and(eq(schema.commands.machineId, ctx.id))).orderBy(desc(schema.commands.issuedAt)).limit(100)
   const list = [
-    ...msgs.filter(x => !(x.kind === 'event' && ['part_loaded', 'part_ground', 'part_gauged', 'part_unloaded'].includes(x.type ?? ''))).map(x => ({ t: x.t, clock: 'machine', what: x.kind === 'event' ? x.type! : `${x.kind}${x.type ? ` ${x.type}` : ''}`, who: null as string | null, note: null as string | null })),
-    ...logs.map(l => ({ t: l.machineTime ?? l.at, clock: 'station', what: `logged ${l.kind}`, who: users.get(l.userId) ?? null, note: l.note })),
+    ...msgs.map(x => ({ t: x.t, clock: 'machine', what: liveEventWords(x.kind, x.type), who: null as string | null, note: null as string | null })),
+    ...logs.map(l => ({ t: l.machineTime ?? l.at, clock: 'station', what: liveEventWords('station', l.kind), who: users.get(l.userId) ?? null, note: l.note })),
     ...cmds.filter(c => c.origin !== 'engine').map(c => ({ t: c.issuedAt, clock: 'server', what: `${c.type} command: ${c.status}`, who: c.origin.startsWith('user:') ? users.get(Number(c.origin.slice(5))) ?? null : null, note: (c.payload as { reason?: string }).reason ?? null })),
   ].sort((a, b) => b.t - a.t)
   return { from, to, events: list.slice(0, 300) }
