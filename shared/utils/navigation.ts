@@ -10,6 +10,7 @@ export const navEntries: NavEntry[] = [
   { to: '/report', label: 'Reports', icon: 'report', roles: 'all' },
   { to: '/jobs', label: 'Jobs', icon: 'jobs', roles: 'all' },
   { to: '/people', label: 'People', icon: 'people', roles: ['admin'] },
+  { to: '/alerts', label: 'Alerts', icon: 'alerts', roles: ['admin', 'lead', 'engineer'] },
   { to: '/me', label: 'Me', icon: 'me', roles: 'all' },
 ]
 
