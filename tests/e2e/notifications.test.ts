@@ -246,6 +246,11 @@ describe('notifications', async () => {
     await page.goto(url('/alerts'), { waitUntil: 'networkidle' })
     const night = page.locator('[data-test=shift-night]')
     await night.getByRole('button', { name: /^Remove Bram Okonjo/ }).click()
+    // Only roles some priority may wake are offered (the default rules wake admin, lead, engineer):
+    // a viewer or an operator on call would be skipped when an alarm comes.
+    const offered = await night.getByLabel('Add a person to Night').locator('option').allInnerTexts()
+    expect(offered.some(o => o.endsWith('· viewer') || o.endsWith('· operator'))).toBe(false)
+    expect(offered).toContain(`${demoUser('engineer').name} · engineer`)
     await night.getByLabel('Add a person to Night').selectOption({ label: `${demoUser('admin').name} · admin` })
     await night.getByRole('button', { name: 'Add', exact: true }).click()
     await page.getByLabel('Quiet hours', { exact: true }).check() // the earlier test turned them off
