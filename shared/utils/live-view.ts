@@ -3,6 +3,7 @@
 // `downsample` package's LTTB, in the readings route.)
 // Exports are prefixed `live` because Nuxt auto-imports shared/utils/* into one namespace.
 import { spcCapability, spcMean, spcOverallSigma, spcWithinSigmaMovingRange } from './spc'
+import type { AlarmActionKind } from './alarm-model'
 
 export const LIVE_CPK_WINDOW = 125 // common practice: ≥ 100 individual parts for a capability figure
 export const LIVE_TREND_POINTS = 60
@@ -122,6 +123,30 @@ export function liveSpan(minutes: number | null): string {
 /** ISA-18.2 alarm states in the words the screens use (one place, so every screen says the same). */
 export function liveAlarmStateWord(state: string): string {
   return ({ 'unacknowledged': 'new', 'acknowledged': 'acknowledged', 'rtn-unacknowledged': 'cleared, not acknowledged', 'latched': 'latched: reset at machine', 'shelved': 'shelved', 'out-of-service': 'out of service', 'normal': 'closed' } as Record<string, string>)[state] ?? state
+}
+
+/** What was done to an alarm (its history), in the same plain words: the stored action ids are for machines. */
+export const LIVE_ALARM_ACTION_WORDS: Readonly<Record<AlarmActionKind, string>> = {
+  'condition-active': 'condition came',
+  'condition-cleared': 'condition went',
+  'acknowledge': 'acknowledged',
+  'reset': 'reset',
+  'shelve': 'shelved',
+  'unshelve': 'taken off the shelf',
+  'shelve-expired': 'shelf time ran out',
+  'remove-from-service': 'taken out of service',
+  'return-to-service': 'back in service',
+}
+export function liveAlarmActionWord(action: string): string {
+  return (LIVE_ALARM_ACTION_WORDS as Record<string, string>)[action] ?? action
+}
+
+/** Who changed an alarm and from where: the server itself, or a person on the web or at a station. */
+export function liveAlarmActor(who: string | null, where: string): string {
+  if (where === 'system') return who ?? 'Owlshift'
+  // stations.ts writes "station:<machine id>" or "web <address>"
+  const place = where.startsWith('station:') ? `at the station of ${where.slice(8)}` : where.startsWith('web ') ? `on the web (${where.slice(4)})` : where
+  return `${who ?? 'Owlshift'}, ${place}`
 }
 
 export const LIVE_RANGES = ['1h', 'shift', '24h', '7d'] as const

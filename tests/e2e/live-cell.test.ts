@@ -109,6 +109,12 @@ describe('live cell', async () => {
     await lead.fill('[data-test=shelve-reason]', 'loader fitter on site at 6')
     await lead.click('[data-test=shelve]')
     await lead.waitForSelector('[data-test=alarm-detail][data-state=shelved]')
+    // The history in plain words: who did what and from where, not the stored action ids.
+    const history = await lead.locator('[data-test=alarm-history]').innerText()
+    expect(history).toMatch(/closed → new \(condition came\) · Owlshift/)
+    expect(history).toMatch(/new → acknowledged \(acknowledged\) · Cleo Marchetti, on the web/)
+    expect(history).toMatch(/acknowledged → shelved \(shelved\) · Cleo Marchetti, on the web .* — loader fitter on site at 6/)
+    expect(history).not.toMatch(/condition-active|· system/)
     const alarmId = Number(new URL(lead.url()).searchParams.get('open'))
     // A shelve without a reason is refused with its message.
     const cookie = await sessionCookie(demoUser('lead').email)

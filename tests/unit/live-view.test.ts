@@ -5,9 +5,10 @@
 import { describe, it, expect } from 'vitest'
 import * as ss from 'simple-statistics'
 import fc from 'fast-check'
+import type { AlarmActionKind } from '../../shared/utils/alarm-model'
 import {
   LIVE_CPK_WINDOW, liveRollingCpk, liveTolerancePosition, liveMachineState, liveAttentionRank, liveSpan,
-  liveShiftStart, liveRangeWindow, livePhotoType, liveAlarmStateWord, liveCommandChoices, liveEventWords, type LiveCardFacts,
+  liveShiftStart, liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveEventWords, type LiveCardFacts,
 } from '../../shared/utils/live-view'
 
 /** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
@@ -118,6 +119,25 @@ describe('liveAlarmStateWord', () => {
     expect(liveAlarmStateWord('latched')).toBe('latched: reset at machine')
     expect(liveAlarmStateWord('out-of-service')).toBe('out of service')
     expect(liveAlarmStateWord('suppressed-by-design')).toBe('suppressed-by-design')
+  })
+})
+
+describe('alarm history words', () => {
+  // The action kinds of shared/utils/alarm-model.ts (ISA-18.2 operator actions and condition changes).
+  const kinds: AlarmActionKind[] = ['condition-active', 'condition-cleared', 'acknowledge', 'reset', 'shelve', 'unshelve', 'shelve-expired', 'remove-from-service', 'return-to-service']
+  it('has plain words for every action, never the stored id', () => {
+    for (const k of kinds) {
+      const w = liveAlarmActionWord(k)
+      expect(w).not.toMatch(/-/) // every stored id with a hyphen gets words; "reset" is a word already
+      expect(w.length).toBeGreaterThan(0)
+    }
+    expect(liveAlarmActionWord('acknowledge')).toBe('acknowledged')
+    expect(liveAlarmActionWord('condition-active')).toBe('condition came')
+  })
+  it('names who and where without the server’s internal words', () => {
+    expect(liveAlarmActor(null, 'system')).toBe('Owlshift')
+    expect(liveAlarmActor('Cleo Marchetti', 'web 203.0.113.7')).toBe('Cleo Marchetti, on the web (203.0.113.7)')
+    expect(liveAlarmActor('Dara Nowak', 'station:cg-02')).toBe('Dara Nowak, at the station of cg-02')
   })
 })
 
