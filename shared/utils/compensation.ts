@@ -558,7 +558,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
           st.stepWindow = []
           st.stepSkip = s.pipelineParts
         }
-        why = `${desired.why} → offset ${fmt(c.newOffsetUm)} µm (Δ ${fmt(c.offsetDeltaUm)} µm)${c.limitedBy.length ? ` limited by ${c.limitedBy.join(', ')}` : ''}`
+        why = `${desired.why} → offset ${fmt(c.newOffsetUm)} µm (Δ ${fmt(c.offsetDeltaUm)})${c.limitedBy.length ? ` limited by ${c.limitedBy.join(', ')}` : ''}`
       }
     }
   }
