@@ -69,5 +69,5 @@ export async function cellTimeZone(cellId: string) {
 /** The window for a range, anchored at the machine's latest reading (or now). */
 export async function machineWindow(ctx: MachineContext, range: LiveRange) {
   const end = ctx.status.lastReadingAt ?? Date.now()
-  return liveRangeWindow(range, end, await cellTimeZone(ctx.cellId))
+  return liveRangeWindow(range, end, { timeZone: await cellTimeZone(ctx.cellId), shifts: await plantShifts(useDb()) })
 }

@@ -4,6 +4,7 @@
 // Exports are prefixed `live` because Nuxt auto-imports shared/utils/* into one namespace.
 import { spcCapability, spcMean, spcOverallSigma, spcWithinSigmaMovingRange } from './spc'
 import type { AlarmActionKind } from './alarm-model'
+import { shiftAt, type ShiftCalendar, type ShiftWindow } from './shift-calendar'
 
 export const LIVE_CPK_WINDOW = 125 // common practice: ≥ 100 individual parts for a capability figure
 export const LIVE_TREND_POINTS = 60
@@ -151,39 +152,20 @@ export function liveAlarmActor(who: string | null, where: string): string {
 
 export const LIVE_RANGES = ['1h', 'shift', '24h', '7d'] as const
 export type LiveRange = (typeof LIVE_RANGES)[number]
-/** Shift starts, local hours: three 8-hour shifts (common practice; a shift calendar may replace it). */
-export const LIVE_SHIFT_STARTS = [6, 14, 22] as const
-
-/** The wall-clock reading of `at` in `timeZone`, as if that wall clock were UTC (ms). */
-function liveWallClock(at: number, timeZone: string): number {
-  const parts = new Intl.DateTimeFormat('en-GB', { timeZone, year: 'numeric', month: 'numeric', day: 'numeric', hour: 'numeric', minute: 'numeric', second: 'numeric', hourCycle: 'h23' }).formatToParts(new Date(at))
-  const get = (t: string) => Number(parts.find(p => p.type === t)?.value ?? 0)
-  return Date.UTC(get('year'), get('month') - 1, get('day'), get('hour'), get('minute'), get('second'), ((at % 1000) + 1000) % 1000)
-}
-
 /**
- * Start of the shift holding `at`, in the plant's time zone. Worked out on the wall clock and
- * turned back into an instant with the zone's offset at the start itself, so a night shift that
- * spans a daylight-saving change still starts at its 22:00.
+ * [from, to] of a range ending at `end` (the machine's latest reading: machines keep their own
+ * clock). "shift" is the plant shift calendar's shift holding `end` (the same calendar reports and
+ * on-call use); a calendar that gives none (not usable) falls back to the last 8 hours.
  */
-export function liveShiftStart(at: number, timeZone: string): number {
-  const wall = liveWallClock(at, timeZone)
-  const day = 86_400_000
-  const hourOfDay = Math.floor((((wall % day) + day) % day) / 3_600_000)
-  const start = [...LIVE_SHIFT_STARTS].reverse().find(h => h <= hourOfDay)
-  const midnight = wall - (((wall % day) + day) % day)
-  const startWall = start === undefined ? midnight - day + LIVE_SHIFT_STARTS[LIVE_SHIFT_STARTS.length - 1]! * 3_600_000 : midnight + start * 3_600_000
-  // Offset at the start: guess with the offset now, then correct with the offset at the guess.
-  let instant = startWall - (wall - at)
-  instant = startWall - (liveWallClock(instant, timeZone) - instant)
-  return instant
-}
-
-/** [from, to] of a range ending at `end` (the machine's latest reading: machines keep their own clock). */
-export function liveRangeWindow(range: LiveRange, end: number, timeZone: string): { from: number, to: number } {
+export function liveRangeWindow(range: LiveRange, end: number, calendar: ShiftCalendar): { from: number, to: number } {
   const hour = 3_600_000
-  const from = range === '1h' ? end - hour : range === '24h' ? end - 24 * hour : range === '7d' ? end - 7 * 24 * hour : liveShiftStart(end, timeZone)
-  return { from, to: end }
+  if (range === 'shift') {
+    let shift: ShiftWindow | null = null
+    try { shift = shiftAt(calendar, end) }
+    catch { /* a stored calendar that is not usable: the pages that edit it say so */ }
+    return { from: shift?.from ?? end - 8 * hour, to: end }
+  }
+  return { from: end - (range === '1h' ? hour : range === '24h' ? 24 * hour : 7 * 24 * hour), to: end }
 }
 
 export const LIVE_PHOTO_MAX_BYTES = 5 * 1024 * 1024

@@ -8,11 +8,12 @@ import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { createPage, url } from '@nuxt/test-utils/e2e'
 import type { MqttClient } from 'mqtt'
-import { setupOwlshift, demoCredentials, sessionCookie, signedInPage, demoUser, artifactsDir, signIn } from './harness'
+import { setupOwlshift, demoCredentials, sessionCookie, signedInPage, demoUser, artifactsDir, signIn, openTestDb } from './harness'
 import { birth, payloadOf, topicFor, machineClient, publishAcked, at } from './mqtt-helpers'
 import { startSimulator, type RunningSimulator } from '../../simulator/live'
 import { loadScenarioFile } from '../../simulator/scenario'
 import type { MachineMessage } from '../../shared/utils/contract'
+import { shiftAt, SHIFT_DEFAULT_PATTERN, type ShiftDefinition } from '../../shared/utils/shift-calendar'
 
 const PHONE = { width: 390, height: 844 }
 const DESKTOP = { width: 1440, height: 900 }
@@ -73,6 +74,27 @@ describe('live cell', async () => {
     await machine.waitForFunction(n => Number(document.querySelector('[data-test=size-chart]')?.getAttribute('data-points')) > n, before, { timeout: 2000 })
     expect(Date.now() - t0).toBeLessThan(2000)
     await overview.close(); await machine.close()
+  })
+
+  it('the chart\'s "shift" range is the plant calendar\'s shift, and follows it when the plant moves its shifts', async () => {
+    const db = openTestDb(owl.dataDir)
+    const timeZone = String((await db.execute(`select time_zone from cells c join machines m on m.cell_id = c.id where m.id = '${M}'`)).rows[0]![0])
+    db.close()
+    const admin = await sessionCookie(demoUser('admin').email)
+    const get = async () => (await (await fetch(url(`/api/machines/${M}/readings?range=shift`), { headers: { cookie: admin } })).json()) as { from: number, to: number }
+    const expectedFrom = (shifts: ShiftDefinition[], to: number) => shiftAt({ timeZone, shifts }, to)!.from
+    const before = await get()
+    expect(before.from).toBe(expectedFrom([...SHIFT_DEFAULT_PATTERN], before.to))
+    // Every shift half an hour later (same ids, so on-call entries keep their shifts).
+    const later = SHIFT_DEFAULT_PATTERN.map(s => ({ ...s, start: `${s.start.slice(0, 2)}:30`, end: `${s.end.slice(0, 2)}:30` }))
+    const put = (shifts: ShiftDefinition[]) => fetch(url('/api/reports/calendar'), { method: 'PUT', headers: { 'cookie': admin, 'content-type': 'application/json', 'sec-fetch-site': 'same-origin' }, body: JSON.stringify({ shifts }) })
+    expect((await put(later)).status).toBe(200)
+    try {
+      const after = await get()
+      expect(after.from).toBe(expectedFrom(later, after.to))
+      expect(after.from).not.toBe(before.from)
+    }
+    finally { expect((await put([...SHIFT_DEFAULT_PATTERN])).status).toBe(200) }
   })
 
   it('resumes the stream after a reconnect with Last-Event-ID, without gaps', async () => {

@@ -6,9 +6,10 @@ import { describe, it, expect } from 'vitest'
 import * as ss from 'simple-statistics'
 import fc from 'fast-check'
 import type { AlarmActionKind } from '../../shared/utils/alarm-model'
+import { SHIFT_DEFAULT_PATTERN, type ShiftCalendar } from '../../shared/utils/shift-calendar'
 import {
   LIVE_CPK_WINDOW, liveRollingCpk, liveTolerancePosition, liveMachineState, liveAttentionRank, liveSpan,
-  liveShiftStart, liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveEventWords, type LiveCardFacts,
+  liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveEventWords, type LiveCardFacts,
 } from '../../shared/utils/live-view'
 
 /** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
@@ -153,29 +154,44 @@ describe('liveSpan', () => {
   })
 })
 
-describe('liveShiftStart and liveRangeWindow (shifts at 06, 14, 22 local: common practice)', () => {
+describe('liveRangeWindow: "shift" is the plant calendar\'s shift (default 06/14/22 local: common practice)', () => {
   const utc = (s: string) => Date.parse(s)
+  const berlin: ShiftCalendar = { timeZone: 'Europe/Berlin', shifts: [...SHIFT_DEFAULT_PATTERN] }
+  const plainUtc: ShiftCalendar = { timeZone: 'UTC', shifts: [...SHIFT_DEFAULT_PATTERN] }
+  const shiftFrom = (cal: ShiftCalendar, at: number) => liveRangeWindow('shift', at, cal).from
   it('finds the shift start in winter and summer time (Europe/Berlin: UTC+1 / UTC+2)', () => {
-    expect(liveShiftStart(utc('2026-01-15T10:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-01-15T05:00:00Z')) // 11:00 CET → 06:00 CET
-    expect(liveShiftStart(utc('2026-07-15T10:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-07-15T04:00:00Z')) // 12:00 CEST → 06:00 CEST
-    expect(liveShiftStart(utc('2026-01-15T02:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-01-14T21:00:00Z')) // 03:00 → 22:00 the day before
-    expect(liveShiftStart(utc('2026-01-15T13:00:00Z'), 'UTC')).toBe(utc('2026-01-15T06:00:00Z'))
-    expect(liveShiftStart(utc('2026-01-15T14:00:00Z'), 'UTC')).toBe(utc('2026-01-15T14:00:00Z')) // a shift starts on its own hour
+    expect(shiftFrom(berlin, utc('2026-01-15T10:00:00Z'))).toBe(utc('2026-01-15T05:00:00Z')) // 11:00 CET → 06:00 CET
+    expect(shiftFrom(berlin, utc('2026-07-15T10:00:00Z'))).toBe(utc('2026-07-15T04:00:00Z')) // 12:00 CEST → 06:00 CEST
+    expect(shiftFrom(berlin, utc('2026-01-15T02:00:00Z'))).toBe(utc('2026-01-14T21:00:00Z')) // 03:00 → 22:00 the day before
+    expect(shiftFrom(plainUtc, utc('2026-01-15T13:00:00Z'))).toBe(utc('2026-01-15T06:00:00Z'))
+    expect(shiftFrom(plainUtc, utc('2026-01-15T14:00:00Z'))).toBe(utc('2026-01-15T14:00:00Z')) // a shift starts on its own hour
   })
 
   it('a night shift across the spring change (29 March 2026, 02:00 CET → 03:00 CEST) started at 22:00 CET', () => {
     // 04:30 CEST = 02:30Z; the shift began 22:00 CET on the 28th = 21:00Z, 5.5 real hours earlier.
-    expect(liveShiftStart(utc('2026-03-29T02:30:00Z'), 'Europe/Berlin')).toBe(utc('2026-03-28T21:00:00Z'))
+    expect(shiftFrom(berlin, utc('2026-03-29T02:30:00Z'))).toBe(utc('2026-03-28T21:00:00Z'))
     // Autumn (25 October 2026, 03:00 CEST → 02:00 CET): 05:00 CET = 04:00Z; the shift began 22:00 CEST = 20:00Z.
-    expect(liveShiftStart(utc('2026-10-25T04:00:00Z'), 'Europe/Berlin')).toBe(utc('2026-10-24T20:00:00Z'))
+    expect(shiftFrom(berlin, utc('2026-10-25T04:00:00Z'))).toBe(utc('2026-10-24T20:00:00Z'))
+  })
+
+  it('follows the calendar when the plant moves its night shift (21:30–06:00)', () => {
+    const early: ShiftCalendar = { timeZone: 'UTC', shifts: [{ id: 'day', name: 'Day', start: '06:00', end: '14:00' }, { id: 'late', name: 'Late', start: '14:00', end: '21:30' }, { id: 'night', name: 'Night', start: '21:30', end: '06:00' }] }
+    expect(shiftFrom(early, utc('2026-01-15T21:45:00Z'))).toBe(utc('2026-01-15T21:30:00Z'))
+    expect(shiftFrom(plainUtc, utc('2026-01-15T21:45:00Z'))).toBe(utc('2026-01-15T14:00:00Z'))
+  })
+
+  it('falls back to the last 8 hours when the stored calendar gives no shift', () => {
+    const gap: ShiftCalendar = { timeZone: 'UTC', shifts: [{ id: 'day', name: 'Day', start: '06:00', end: '14:00' }] }
+    const end = utc('2026-01-15T20:00:00Z')
+    expect(liveRangeWindow('shift', end, gap)).toEqual({ from: end - 8 * 3_600_000, to: end })
   })
 
   it('ranges end at the machine\'s latest reading', () => {
     const end = utc('2026-01-15T10:00:00Z')
-    expect(liveRangeWindow('1h', end, 'UTC')).toEqual({ from: end - 3_600_000, to: end })
-    expect(liveRangeWindow('24h', end, 'UTC')).toEqual({ from: end - 86_400_000, to: end })
-    expect(liveRangeWindow('7d', end, 'UTC')).toEqual({ from: end - 7 * 86_400_000, to: end })
-    expect(liveRangeWindow('shift', end, 'UTC')).toEqual({ from: utc('2026-01-15T06:00:00Z'), to: end })
+    expect(liveRangeWindow('1h', end, plainUtc)).toEqual({ from: end - 3_600_000, to: end })
+    expect(liveRangeWindow('24h', end, plainUtc)).toEqual({ from: end - 86_400_000, to: end })
+    expect(liveRangeWindow('7d', end, plainUtc)).toEqual({ from: end - 7 * 86_400_000, to: end })
+    expect(liveRangeWindow('shift', end, plainUtc)).toEqual({ from: utc('2026-01-15T06:00:00Z'), to: end })
   })
 })
 
