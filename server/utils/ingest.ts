@@ -368,7 +368,16 @@ export class IngestPipeline {
           case 'mastering': record(step({ type: 'mastered', time }, message.seq), message.seq); break
           case 'job_change':
             st.jobPartNumber = message.job.partNumber
-            if (w.engine) record(step({ type: 'job-change', settings: compensationSettingsFor(message.job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined, ctx.tuning), time }, message.seq), message.seq)
+            if (w.engine) {
+              const d = step({ type: 'job-change', settings: compensationSettingsFor(message.job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined, ctx.tuning), time }, message.seq)
+              // A refused job change leaves the engine on the previous job's tolerances while the
+              // machine grinds the new one: that must wake someone, not vanish as an ignored input.
+              if (d?.kind === 'ignored') effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: new job ${message.job.partNumber} — compensation still uses the previous job's settings (${d.reason})`, at: now })
+              else {
+                record(d, message.seq)
+                effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: false, message: '', at: now })
+              }
+            }
             else startEngine(message.job, st.appliedOffsetUm ?? 0)
             break
           case 'fault_raised':

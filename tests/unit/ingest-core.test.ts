@@ -3,7 +3,7 @@
 import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'
-import { openServerHarness, arrival, birthOf, readingOf, machineTime, type ServerHarness } from '../support/server-harness'
+import { openServerHarness, arrival, birthOf, readingOf, machineTime, JOB, type ServerHarness } from '../support/server-harness'
 import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest'
 
 let h: ServerHarness
@@ -84,5 +84,29 @@ describe('memory follows the database after a failed commit', () => {
     for (const s of [seq, seq + 1, seq + 2]) await pipeline.accept(arrival('m1', 'reading', readingOf(s, 0.1, 2)))
     await pipeline.drain()
     expect(dresses()).toHaveLength(1)
+  })
+})
+
+describe('a job change the engine refuses', () => {
+  it('raises "compensation off: settings not valid" instead of passing silently', async () => {
+    await pipeline.accept(arrival('m1', 'presence', birthOf(1)))
+    // A job's active tuning that does not fit the settings the machine announces (here: a minimum
+    // step above the maximum) makes the engine refuse the job change and keep the old settings.
+    const { machineContext } = await import('../../server/utils/machine-registry')
+    machineContext('m1')!.tuning = { minStepUm: 50 } as never
+    await pipeline.accept(arrival('m1', 'event', { kind: 'event', seq: 2, time: machineTime(2), type: 'job_change', job: { ...JOB, jobId: 'j2' } }))
+    await pipeline.drain()
+    const raised = effects.flatMap(e => e.conditions).filter(c => c.condition === 'engine:settings')
+    expect(raised).toHaveLength(1)
+    expect(raised[0]).toMatchObject({ machineId: 'm1', active: true })
+    expect(raised[0]!.message).toMatch(/new job HX-410 — compensation still uses the previous job's settings \(job change refused, settings kept: .*minStepUm/)
+    // The job change itself is stored as the machine's numbered message.
+    const stored = await db().select().from(schema.machineMessages).where(eq(schema.machineMessages.machineId, 'm1'))
+    expect(stored.map(r => r.seq)).toEqual([1, 2])
+    // Once a job change goes through, the condition clears.
+    machineContext('m1')!.tuning = null
+    await pipeline.accept(arrival('m1', 'event', { kind: 'event', seq: 3, time: machineTime(3), type: 'job_change', job: { ...JOB, jobId: 'j3' } }))
+    await pipeline.drain()
+    expect(effects.flatMap(e => e.conditions).filter(c => c.condition === 'engine:settings').map(c => c.active)).toEqual([true, false])
   })
 })
