@@ -49,7 +49,7 @@ const INGEST_PROFILE_NOTES = `Where the server's time goes (CPU profiles of the 
   the ceiling would need the main thread at about 29 µs per reading. Reaching it would take both cutting the
   required work and spreading it over both cores, and the total CPU is already at the two cores' budget. Tried:
   the required work with its SQLite transaction on a worker thread (FLOOR_SQLITE_THREAD=1, one batch in flight,
-  the next gathered meanwhile; `BENCH_ONLY=ceiling npx tsx scripts/bench-ingest.ts`, three rounds) gave
+  the next gathered meanwhile; \`BENCH_ONLY=ceiling npx tsx scripts/bench-ingest.ts\`, three rounds) gave
   19,580–20,114 readings/s against 18,547–22,382 on one thread, at 56 µs instead of 48–58 µs per reading:
   handing each batch's rows to the thread costs about what the thread takes off the main one. More
   cores, or the clients on another machine, change the picture; the share is a property of this 2-core box as

@@ -19,13 +19,14 @@ import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import { Aedes, type PublishPacket } from 'aedes'
-import Database from 'libsql'
 import { createClient } from '@libsql/client'
 import { drizzle } from 'drizzle-orm/libsql'
 import { migrate } from 'drizzle-orm/libsql/migrator'
 import * as schema from '../../server/database/schema'
 import { insertStatements } from '../../server/utils/raw-insert'
-import { startWalCheckpointer, WRITER_AUTOCHECKPOINT_PAGES } from '../../server/utils/wal-checkpointer'
+import { WRITER_AUTOCHECKPOINT_PAGES } from '../../server/utils/wal-checkpointer'
+import { openNativeWriter, closeNativeWriter, writeBatch } from '../../server/utils/write-batch'
+import type { InValue } from '@libsql/client'
 import { decodeMachineMessage, mqttTopics, type CommandMessage } from '../../shared/utils/contract'
 import { createCompensationState, stepCompensation, type CompensationState } from '../../shared/utils/compensation'
 
@@ -35,22 +36,10 @@ const client = createClient({ url: `file:${file}` })
 await migrate(drizzle(client, { schema }), { migrationsFolder: join(root, 'server/database/migrations') })
 client.close()
 
-const db = new Database(file)
-db.pragma('journal_mode = WAL')
-db.pragma('synchronous = NORMAL')
-db.pragma(`wal_autocheckpoint = ${WRITER_AUTOCHECKPOINT_PAGES}`)
-db.exec('CREATE TABLE floor_engine_state (machine_id TEXT PRIMARY KEY, state TEXT NOT NULL)')
-const checkpointer = startWalCheckpointer(file)
-const prepared = new Map<string, ReturnType<typeof db.prepare>>()
-const run = (sql: string, args: unknown[]) => {
-  let s = prepared.get(sql)
-  if (!s) prepared.set(sql, s = db.prepare(sql))
-  s.run(args)
-}
+openNativeWriter(file)
+await writeBatch(['CREATE TABLE floor_engine_state (machine_id TEXT PRIMARY KEY, state TEXT NOT NULL)'])
 const SAVE_STATE = 'INSERT INTO floor_engine_state (machine_id, state) VALUES (?, ?) ON CONFLICT (machine_id) DO UPDATE SET state = excluded.state'
-const begin = db.prepare('BEGIN IMMEDIATE')
-const commit = db.prepare('COMMIT')
-type Statement = { sql: string, args: unknown[] }
+type Statement = { sql: string, args: InValue[] }
 
 /** The experiment: the same transaction on a thread of its own; resolves once committed. */
 const writer = process.env.FLOOR_SQLITE_THREAD === '1' ? sqliteThread() : null
@@ -118,19 +107,11 @@ function flush() {
     ...[...touched].map(machine => ({ sql: SAVE_STATE, args: [machine, JSON.stringify(engines.get(machine))] })),
   ] as Statement[]
   const committed = () => {
-    checkpointer.committed()
     for (const { done } of batch) done(null)
     for (const { topic, command } of outgoing) broker.publish({ cmd: 'publish', topic, payload: Buffer.from(JSON.stringify(command)), qos: 1, retain: false, dup: false, messageId: 0 } as PublishPacket, () => {})
   }
-  if (writer) {
-    writing = true
-    void writer(statements).then(() => { writing = false; committed(); flush() })
-    return
-  }
-  begin.run()
-  for (const st of statements) run(st.sql, st.args)
-  commit.run()
-  committed()
+  writing = true
+  void (writer ?? writeBatch)(statements).then(() => { writing = false; committed(); flush() })
 }
 
 const broker = await Aedes.createBroker({
@@ -145,4 +126,4 @@ const broker = await Aedes.createBroker({
 })
 const server = net.createServer(s => broker.handle(s))
 server.listen(0, '127.0.0.1', () => console.log(`port ${(server.address() as net.AddressInfo).port}`))
-process.on('SIGTERM', () => { server.close(); broker.close(() => { void checkpointer.stop().then(() => process.exit(0)) }) })
+process.on('SIGTERM', () => { server.close(); broker.close(() => { void closeNativeWriter().then(() => process.exit(0)) }) })
