@@ -17,7 +17,7 @@
 import { z } from 'zod'
 import type { AlarmPriority } from './alarm-model'
 import { ROLE_NAMES, type Role } from '../types/auth'
-import { shiftAt, type ShiftCalendar } from './shift-calendar'
+import { shiftAt, shiftLocalParts, type ShiftCalendar } from './shift-calendar'
 
 // ---------------------------------------------------------------- rules
 
@@ -135,27 +135,6 @@ export function alertDescribeEntry(e: AlertRoutingRules['onCall'][number], nameO
 
 // ---------------------------------------------------------------- plant clock, shifts, on call
 
-export interface AlertLocalTime { date: string, weekday: number, minute: number }
-
-// Making a formatter costs far more than using one, and ingest asks the time after every commit.
-const localTimeFormats = new Map<string, Intl.DateTimeFormat>()
-function localTimeFormat(timeZone: string): Intl.DateTimeFormat {
-  let f = localTimeFormats.get(timeZone)
-  if (!f) {
-    f = new Intl.DateTimeFormat('en-US', { timeZone, hourCycle: 'h23', year: 'numeric', month: '2-digit', day: '2-digit', hour: '2-digit', minute: '2-digit', weekday: 'short' })
-    localTimeFormats.set(timeZone, f)
-  }
-  return f
-}
-
-/** Local date, weekday (0 = Sunday) and minute of the day of `now` in `timeZone` (Intl, no library). */
-export function alertLocalTime(now: number, timeZone: string): AlertLocalTime {
-  const parts = localTimeFormat(timeZone).formatToParts(new Date(now))
-  const get = (t: string) => parts.find(p => p.type === t)!.value
-  const weekday = ['Sun', 'Mon', 'Tue', 'Wed', 'Thu', 'Fri', 'Sat'].indexOf(get('weekday'))
-  return { date: `${get('year')}-${get('month')}-${get('day')}`, weekday, minute: Number(get('hour')) * 60 + Number(get('minute')) }
-}
-
 export interface AlertShiftNow { shiftId: string, shiftName: string, /** local date the shift started */ date: string, weekday: number }
 
 /**
@@ -184,7 +163,8 @@ export function alertOnCallAt(rules: AlertRoutingRules, calendar: ShiftCalendar,
 /** True when `now` lies in the quiet hours (local time of `timeZone`, the cell's). */
 export function alertInQuietHours(rules: AlertRoutingRules, timeZone: string, now: number): boolean {
   if (!rules.quietHours) return false
-  const m = alertLocalTime(now, timeZone).minute
+  const { hour, minute } = shiftLocalParts(timeZone, now)
+  const m = hour * 60 + minute
   const start = toMinute(rules.quietHours.start)
   const end = toMinute(rules.quietHours.end)
   return end <= start ? m >= start || m < end : m >= start && m < end

@@ -5,11 +5,11 @@
 import { describe, it, expect } from 'vitest'
 import fc from 'fast-check'
 import {
-  alertDefaultRules, alertParseRules, alertLocalTime, alertShiftAt, alertOnCallAt, alertInQuietHours, alertQuietHoursEnd,
+  alertDefaultRules, alertParseRules, alertShiftAt, alertOnCallAt, alertInQuietHours, alertQuietHoursEnd,
   alertRecipients, alertStep, alertTrendStep, alertTrendThreshold, alertUpgradeStoredRules, alertOnCallProblems,
   type AlertRoutingRules, type AlertAlarm, type AlertPerson, type AlertTrack,
 } from '../../shared/utils/alert-routing'
-import { SHIFT_DEFAULT_PATTERN, type ShiftCalendar } from '../../shared/utils/shift-calendar'
+import { SHIFT_DEFAULT_PATTERN, shiftLocalParts, type ShiftCalendar } from '../../shared/utils/shift-calendar'
 
 const MIN = 60_000
 const people: AlertPerson[] = [
@@ -42,8 +42,11 @@ const alarm = (over: Partial<AlertAlarm> = {}): AlertAlarm => ({
 describe('plant clock and shifts', () => {
   it('reads local time across the spring daylight-saving change (EU rule)', () => {
     // 2025-03-30 00:30 UTC = 01:30 CET (UTC+1); 01:30 UTC = 03:30 CEST (UTC+2).
-    expect(alertLocalTime(Date.parse('2025-03-30T00:30:00Z'), 'Europe/Berlin')).toEqual({ date: '2025-03-30', weekday: 0, minute: 90 })
-    expect(alertLocalTime(Date.parse('2025-03-30T01:30:00Z'), 'Europe/Berlin')).toEqual({ date: '2025-03-30', weekday: 0, minute: 210 })
+    // (the plant clock is the shift calendar's: shiftLocalParts)
+    expect(shiftLocalParts('Europe/Berlin', Date.parse('2025-03-30T00:30:00Z'))).toMatchObject({ year: 2025, month: 3, day: 30, hour: 1, minute: 30 })
+    expect(shiftLocalParts('Europe/Berlin', Date.parse('2025-03-30T01:30:00Z'))).toMatchObject({ year: 2025, month: 3, day: 30, hour: 3, minute: 30 })
+    // 2025-03-30 was a Sunday, as the on-call weekdays count it (0 = Sunday).
+    expect(alertShiftAt({ timeZone: 'Europe/Berlin', shifts: [...SHIFT_DEFAULT_PATTERN] }, Date.parse('2025-03-30T08:00:00Z'))!.weekday).toBe(0)
   })
 
   it('gives a shift that spans midnight to the day it started', () => {
