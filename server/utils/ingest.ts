@@ -7,7 +7,7 @@ import {
   decodeMachineMessage, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
-import { gateCommands, commandAnswered, type OutstandingCommands } from '#shared/utils/command-gate'
+import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from '#shared/utils/command-gate'
 import { stepCompensation, type CompensationDecision, type CompensationInput, type CompensationState } from '#shared/utils/compensation'
 
 export interface Arrival {
@@ -274,6 +274,7 @@ export class IngestPipeline {
             prediction: decision.prediction, strategy: eng.settings.strategy, gain: eng.settings.gain, minStepUm: eng.settings.minStepUm,
             maxSinceDressUm: eng.settings.maxSinceDressUm, offsetRange: eng.settings.offsetRange, offsetUm: eng.offsetUm,
             offsetAtDressUm: eng.offsetAtDressUm, appliedOffsetUm: st.appliedOffsetUm, requestedOffsetUm: st.requestedOffsetUm,
+            offsetCommandInFlight: offsetCommandInFlight(w.outstanding, now), offsetRefused: !!w.outstanding.offsetRefused,
             halfToleranceUm: (eng.settings.upperSpecUm - eng.settings.lowerSpecUm) / 2, stopRequested: decision.stop,
           }) : decision.prediction.minutesToSpecLimit,
         }
@@ -349,7 +350,7 @@ export class IngestPipeline {
       }
       else if (message.kind === 'ack') {
         commandUpdates.push({ id: message.commandId, machineId: ctx.id, set: { status: message.result, appliedOffsetUm: message.offsetUm, ackAt: now, ackReason: message.reason ?? null } })
-        commandAnswered(w.outstanding, message.commandId)
+        commandAnswered(w.outstanding, message.commandId, message)
         st.appliedOffsetUm = message.offsetUm
         if (message.result === 'applied' && message.command === 'offset') record(step({ type: 'offset-applied', offsetUm: message.offsetUm, time }, message.seq), message.seq)
         effects.live.push({ type: 'command', machineId: ctx.id, id: message.commandId, command: message.command, status: message.result })

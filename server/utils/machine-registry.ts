@@ -63,9 +63,9 @@ export async function loadMachineRegistry() {
 }
 
 /**
- * The dress and hold requests the engine sent and the machine has not answered, as committed:
- * the gate in ingest rebuilt after a restart or a failed commit (a dress the machine reported
- * since answers a dress request).
+ * The dress, hold and offset requests the engine sent and the machine has not answered, as
+ * committed: the gate in ingest rebuilt after a restart or a failed commit (a dress the machine
+ * reported since answers a dress request; the latest offset is the one on its way).
  */
 const OUTSTANDING_LOOKBACK_MS = 7 * 86_400_000
 
@@ -73,7 +73,7 @@ async function outstandingCommandsFromDb(now: number): Promise<Map<string, Outst
   const rows = await useDbClient().execute({
     sql: `SELECT c.machine_id, c.type, c.id, c.expires_at FROM commands c
           WHERE c.machine_id IN (SELECT id FROM machines) AND c.issued_at > ?
-            AND c.origin = 'engine' AND c.status = 'sent' AND c.type IN ('dress', 'hold') AND c.expires_at > ?
+            AND c.origin = 'engine' AND c.status = 'sent' AND c.type IN ('dress', 'hold', 'offset') AND c.expires_at > ?
             AND NOT (c.type = 'dress' AND EXISTS (SELECT 1 FROM machine_messages m
               WHERE m.machine_id = c.machine_id AND m.kind = 'event' AND m.type = 'dress' AND m.received_at >= c.issued_at))
           ORDER BY c.issued_at`,
@@ -86,7 +86,7 @@ async function outstandingCommandsFromDb(now: number): Promise<Map<string, Outst
   for (const r of rows.rows) {
     const machineId = String(r.machine_id)
     const gate = out.get(machineId) ?? {}
-    gate[r.type as 'dress' | 'hold'] = { id: String(r.id), expiresAt: Number(r.expires_at) }
+    gate[r.type as 'dress' | 'hold' | 'offset'] = { id: String(r.id), expiresAt: Number(r.expires_at) } // the latest wins
     out.set(machineId, gate)
   }
   return out

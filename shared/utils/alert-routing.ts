@@ -358,9 +358,11 @@ export function alertTrendThreshold(rules: AlertRoutingRules, partNumber: string
 }
 
 /**
- * Hysteresis on the engine's "minutes until the predicted size meets the specification limit":
- * raise below `threshold`, clear only above `threshold × clearFactor` (or when the trend no longer
- * meets a limit at all). Without a level (engine learning after a start or a dress) nothing changes.
+ * Hysteresis on the minutes until the size is at risk (size-risk.ts; the engine's raw minutes to
+ * the specification limit when that is absent): raise below `threshold`, clear only above
+ * `threshold × clearFactor`, or when the trend meets no limit at all (null: no drift — size-risk
+ * gives a figure in every other case, so a null is a real return, not a gap in the data).
+ * Without a level (engine learning after a start or a dress) nothing changes.
  */
 export function alertTrendStep(wasRaised: boolean, p: AlertTrendPrediction | null, thresholdMin: number, clearFactor: number): AlertTrendResult {
   if (!(thresholdMin > 0) || !(clearFactor > 1)) throw new RangeError('trend threshold must be > 0 and the clear factor > 1')

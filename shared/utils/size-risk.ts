@@ -17,16 +17,26 @@ export interface SizeRiskInputs {
   /** offsets as the machine reports them: applied (in force) and last requested */
   appliedOffsetUm: number | null
   requestedOffsetUm: number | null
+  /** the last offset command is on its way (sent, unanswered, not run out) */
+  offsetCommandInFlight: boolean
+  /** the last offset the machine answered was rejected or ran out (e.g. at its own travel limit) */
+  offsetRefused: boolean
   /** half the tolerance band (µm of diameter): how far the size may wander once uncorrected */
   halfToleranceUm: number
   stopRequested: boolean
 }
 
-/** Minutes until the size is at risk, or null when the trend puts it at no risk. */
+/**
+ * Minutes until the size is at risk, or null when the trend meets no limit at all (no drift).
+ * Applied and requested offsets differ for a moment after every command, until the machine's
+ * answer arrives: that is not "not following" (taking it so made the alarm rise at every
+ * command and clear at every answer). A machine that refused its last offset is not following
+ * until it applies one again, however close the next request happens to be.
+ */
 export function minutesUntilSizeAtRisk(x: SizeRiskInputs): number | null {
   const p = x.prediction
-  const follows = x.appliedOffsetUm === null || x.requestedOffsetUm === null
-    || Math.abs(x.appliedOffsetUm - x.requestedOffsetUm) <= Math.max(2 * x.minStepUm, 1e-6)
+  const follows = !x.offsetRefused && (x.offsetCommandInFlight || x.appliedOffsetUm === null || x.requestedOffsetUm === null
+    || Math.abs(x.appliedOffsetUm - x.requestedOffsetUm) <= Math.max(2 * x.minStepUm, 1e-6))
   // Not compensating, or the machine is not applying the commands: the raw trend is the risk.
   if (x.strategy === 'none' || x.stopRequested || !follows) return p.minutesToSpecLimit
   const slope = p.slopeUmPerPart
@@ -38,8 +48,14 @@ export function minutesUntilSizeAtRisk(x: SizeRiskInputs): number | null {
   const roomRange = axisPerPart > 0 ? x.offsetRange.max - x.offsetUm : x.offsetUm - x.offsetRange.min
   const room = Math.max(0, Math.min(roomDress, roomRange))
   const partsOfBudget = room / Math.abs(axisPerPart)
-  // A dress due before the budget ends renews it (the budget since dress starts again).
-  if (p.partsToDress !== null && p.partsToDress < partsOfBudget && roomRange / Math.abs(axisPerPart) > p.partsToDress) return null
-  const partsToLimit = partsOfBudget + Math.max(0, x.halfToleranceUm) / Math.abs(slope)
-  return (partsToLimit * p.cycleTimeS) / 60
+  const partsToWalk = Math.max(0, x.halfToleranceUm) / Math.abs(slope)
+  // A dress due before the budget ends renews it (the budget since dress starts again): the risk
+  // is then the renewed budget after the dress, never "none" — a figure the alarm's hysteresis can
+  // weigh, where a null would clear it outright.
+  const partsOfRange = roomRange / Math.abs(axisPerPart)
+  if (p.partsToDress !== null && p.partsToDress < partsOfBudget && partsOfRange > p.partsToDress) {
+    const afterDress = Math.min(x.maxSinceDressUm / Math.abs(axisPerPart), partsOfRange - p.partsToDress)
+    return ((p.partsToDress + afterDress + partsToWalk) * p.cycleTimeS) / 60
+  }
+  return ((partsOfBudget + partsToWalk) * p.cycleTimeS) / 60
 }

@@ -2,7 +2,7 @@
 // The rule is ours: a machine that is told to dress on every part while it finishes the parts
 // already in its pipeline would queue a dress per part.
 import { describe, it, expect } from 'vitest'
-import { gateCommands, commandAnswered, type OutstandingCommands } from '../../shared/utils/command-gate'
+import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from '../../shared/utils/command-gate'
 
 const cmd = (type: string, id: string) => ({ type, id })
 
@@ -29,5 +29,20 @@ describe('command gate', () => {
     commandAnswered(out, 'd1')
     expect(out).toEqual({ hold: { id: 'h1', expiresAt: 60_000 } })
     expect(gateCommands([cmd('dress', 'd3'), cmd('hold', 'h2')], out, 2, 60_002).map(c => c.id)).toEqual(['d3'])
+  })
+  it('remembers the latest offset on its way until the machine answers it, and whether the machine refused it', () => {
+    const out: OutstandingCommands = {}
+    gateCommands([cmd('offset', 'o1')], out, 0, 60_000)
+    gateCommands([cmd('offset', 'o2')], out, 1000, 61_000)
+    expect(offsetCommandInFlight(out, 2000)).toBe(true)
+    commandAnswered(out, 'o1', { command: 'offset', result: 'applied' }) // the older one: o2 is still on its way
+    expect(offsetCommandInFlight(out, 2000)).toBe(true)
+    expect(offsetCommandInFlight(out, 61_000)).toBe(false) // run out
+    commandAnswered(out, 'o2', { command: 'offset', result: 'rejected' })
+    expect(offsetCommandInFlight(out, 2000)).toBe(false)
+    expect(out.offsetRefused).toBe(true)
+    gateCommands([cmd('offset', 'o3')], out, 3000, 63_000)
+    commandAnswered(out, 'o3', { command: 'offset', result: 'applied' })
+    expect(out.offsetRefused).toBe(false)
   })
 })
