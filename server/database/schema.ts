@@ -152,11 +152,18 @@ export const machineMessages = sqliteTable('machine_messages', {
 export const presenceLog = sqliteTable('presence_log', {
   id: integer('id').primaryKey({ autoIncrement: true }),
   machineId: text('machine_id').notNull(),
+  /** server's receive time */
   at: integer('at').notNull(),
   online: integer('online', { mode: 'boolean' }).notNull(),
   session: integer('session'),
   reason: text('reason'),
-}, t => [index('presence_machine_at').on(t.machineId, t.at)])
+  /**
+   * the machine's clock at the change: a birth's or a clean shutdown's own time; for a will (no time
+   * of its own) the server's receive time on the machine's clock (its offset at its latest message);
+   * null when neither is known. The report's time model reads this (docs/report-time-model.md).
+   */
+  machineTime: integer('machine_time'),
+}, t => [index('presence_machine_at').on(t.machineId, t.at), index('presence_machine_time').on(t.machineId, t.machineTime)])
 
 /** Numbers that never arrived: recorded, never silently filled. */
 export const sequenceGaps = sqliteTable('sequence_gaps', {
@@ -241,7 +248,9 @@ export const alarmTransitions = sqliteTable('alarm_transitions', {
   userId: integer('user_id'),
   where: text('where').notNull(), // system | web <address> | station:<machine>
   note: text('note'),
-}, t => [index('alarm_transitions_alarm').on(t.alarmId), index('alarm_transitions_at').on(t.at)])
+  /** the machine's clock when a machine message caused the transition (`at` is the server's); null otherwise */
+  machineAt: integer('machine_at'),
+}, t => [index('alarm_transitions_alarm').on(t.alarmId), index('alarm_transitions_at').on(t.at), index('alarm_transitions_machine_at').on(t.machineAt)])
 
 // ── Notifications: push devices, VAPID keys, escalation state, delivery log ────────────────
 

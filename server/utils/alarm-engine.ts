@@ -34,7 +34,8 @@ function serial<T>(fn: () => Promise<T>): Promise<T> {
 export interface Actor { userId: number | null, where: string }
 const SYSTEM: Actor = { userId: null, where: 'system' }
 
-async function transition(row: AlarmRow | undefined, machineId: string | null, condition: string, action: AlarmAction, now: number, actor: Actor, message?: string, note?: string) {
+// `machineAt`: the machine's clock when a machine message caused the change, stored beside the server's.
+async function transition(row: AlarmRow | undefined, machineId: string | null, condition: string, action: AlarmAction, now: number, actor: Actor, message?: string, note?: string, machineAt: number | null = null) {
   const kind = alarmKindFor(condition)
   const before: AlarmRecord = row ? (row.record as AlarmRecord) : alarmCreateRecord({ priority: kind.priority, latching: kind.latching, now })
   const result = applyAlarmAction(before, action, now)
@@ -66,7 +67,7 @@ async function transition(row: AlarmRow | undefined, machineId: string | null, c
     row = updated!
   }
   await db.insert(schema.alarmTransitions).values(result.transitions.map(t => ({
-    alarmId: row!.id, at: t.at, fromState: t.from, toState: t.to, action: t.action, userId: actor.userId, where: actor.where, note: note ?? null,
+    alarmId: row!.id, at: t.at, fromState: t.from, toState: t.to, action: t.action, userId: actor.userId, where: actor.where, note: note ?? null, machineAt,
   })))
   const key = keyOf(machineId, condition)
   if (closed) open.delete(key)
@@ -120,12 +121,12 @@ export function applyAlarmConditions(conditions: AlarmCondition[]): Promise<void
         activations.set(key, times)
         // Chattering: recorded on the open alarm, not raised again (common practice: 3 in 60 s).
         if (row && isAlarmChattering(times, c.at)) {
-          await transition(row, c.machineId, c.condition, { kind: 'condition-active' }, c.at, SYSTEM)
+          await transition(row, c.machineId, c.condition, { kind: 'condition-active' }, c.at, SYSTEM, undefined, undefined, c.machineAt)
           continue
         }
       }
-      const r = await transition(row, c.machineId, c.condition, { kind: c.active ? 'condition-active' : 'condition-cleared' }, c.at, SYSTEM, c.message)
-      if (momentaryOne && r.row) await transition(r.row, c.machineId, c.condition, { kind: 'condition-cleared' }, c.at, SYSTEM)
+      const r = await transition(row, c.machineId, c.condition, { kind: c.active ? 'condition-active' : 'condition-cleared' }, c.at, SYSTEM, c.message, undefined, c.machineAt)
+      if (momentaryOne && r.row) await transition(r.row, c.machineId, c.condition, { kind: 'condition-cleared' }, c.at, SYSTEM, undefined, undefined, c.machineAt)
     }
   })
 }

@@ -30,7 +30,10 @@ export interface AlarmCondition {
   condition: string
   active: boolean
   message: string
+  /** server's clock */
   at: number
+  /** the machine's clock when a machine message caused the condition (reports place alarms by it) */
+  machineAt?: number | null
 }
 
 const MAX_BATCH = 1000
@@ -230,8 +233,10 @@ export class IngestPipeline {
       if (message.kind === 'death') {
         if (st.session !== null && message.session !== st.session) continue // a stale will from an older connection
         st.online = false
-        presenceRows.push({ machineId: ctx.id, at: now, online: false, session: message.session, reason: message.reason })
-        effects.conditions.push({ machineId: ctx.id, condition: 'link:offline', active: true, message: `${ctx.name} went offline (${message.reason === 'shutdown' ? 'shut down' : 'connection lost'})`, at: now })
+        // A clean shutdown states its time; a will cannot, so its arrival is read on the machine's clock.
+        const deathTime = message.time ? msOf(message.time) : w.clockOffsetMs === undefined ? null : now + w.clockOffsetMs
+        presenceRows.push({ machineId: ctx.id, at: now, online: false, session: message.session, reason: message.reason, machineTime: deathTime })
+        effects.conditions.push({ machineId: ctx.id, condition: 'link:offline', active: true, message: `${ctx.name} went offline (${message.reason === 'shutdown' ? 'shut down' : 'connection lost'})`, at: now, machineAt: deathTime })
         w.changed = true
         continue
       }
@@ -240,7 +245,7 @@ export class IngestPipeline {
       seen.add(key)
       if (st.lastSeq > 0 && message.seq > st.lastSeq + 1) {
         gapRows.push({ machineId: ctx.id, fromSeq: st.lastSeq + 1, toSeq: message.seq - 1, detectedAt: now })
-        effects.conditions.push({ machineId: ctx.id, condition: 'link:sequence-gap', active: true, message: `${ctx.name}: messages ${st.lastSeq + 1}–${message.seq - 1} never arrived`, at: now })
+        effects.conditions.push({ machineId: ctx.id, condition: 'link:sequence-gap', active: true, message: `${ctx.name}: messages ${st.lastSeq + 1}–${message.seq - 1} never arrived`, at: now, machineAt: msOf(message.time) })
       }
       if (message.seq >= st.lastSeq) w.clockOffsetMs = msOf(message.time) - now
       st.lastSeq = Math.max(st.lastSeq, message.seq)
@@ -291,13 +296,13 @@ export class IngestPipeline {
       const reportCondition = (condition: string, active: boolean, message: () => string) => {
         if (w.reported.get(condition) === active && !active) return
         w.reported.set(condition, active)
-        effects.conditions.push({ machineId: ctx.id, condition, active, message: active ? message() : '', at: now })
+        effects.conditions.push({ machineId: ctx.id, condition, active, message: active ? message() : '', at: now, machineAt: time })
       }
       const startEngine = (job: JobInfo | null, offsetUm: number, pipeline?: number) => {
         try { w.engine = newEngine(compensationSettingsFor(job, ctx.job, pipeline, st.cycleTimeS ?? undefined, ctx.tuning), offsetUm) }
         catch (err) {
           w.engine = null
-          effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: compensation is off, its settings are not valid (${(err as Error).message})`, at: now })
+          effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: compensation is off, its settings are not valid (${(err as Error).message})`, at: now, machineAt: time })
         }
       }
 
@@ -332,8 +337,8 @@ export class IngestPipeline {
         st.cycleTimeS = message.cycleTimeS
         st.appliedOffsetUm = message.offsetUm
         st.jobPartNumber = message.job?.partNumber ?? st.jobPartNumber
-        presenceRows.push({ machineId: ctx.id, at: now, online: true, session: message.session, reason: wasRunning ? 'reconnected' : 'birth' })
-        effects.conditions.push({ machineId: ctx.id, condition: 'link:offline', active: false, message: '', at: now })
+        presenceRows.push({ machineId: ctx.id, at: now, online: true, session: message.session, reason: wasRunning ? 'reconnected' : 'birth', machineTime: time })
+        effects.conditions.push({ machineId: ctx.id, condition: 'link:offline', active: false, message: '', at: now, machineAt: time })
         if (!w.engine) startEngine(message.job, message.offsetUm, message.pipelineParts)
         else {
           record(step({ type: 'restart', time }, message.seq), message.seq)
@@ -346,7 +351,7 @@ export class IngestPipeline {
         st.activeFaults = [...message.activeFaults]
         if (before && ['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED'].includes(before) && message.execution === 'ACTIVE')
           record(step({ type: 'restart', time }, message.seq), message.seq)
-        effects.conditions.push({ machineId: ctx.id, condition: 'machine:stopped', active: message.execution === 'STOPPED', message: `${ctx.name} stopped${message.reason ? `: ${message.reason}` : ''}`, at: now })
+        effects.conditions.push({ machineId: ctx.id, condition: 'machine:stopped', active: message.execution === 'STOPPED', message: `${ctx.name} stopped${message.reason ? `: ${message.reason}` : ''}`, at: now, machineAt: time })
       }
       else if (message.kind === 'ack') {
         commandUpdates.push({ id: message.commandId, machineId: ctx.id, set: { status: message.result, appliedOffsetUm: message.offsetUm, ackAt: now, ackReason: message.reason ?? null } })
@@ -373,21 +378,21 @@ export class IngestPipeline {
               const d = step({ type: 'job-change', settings: compensationSettingsFor(message.job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined, ctx.tuning), time }, message.seq)
               // A refused job change leaves the engine on the previous job's tolerances while the
               // machine grinds the new one: that must wake someone, not vanish as an ignored input.
-              if (d?.kind === 'ignored') effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: new job ${message.job.partNumber} — compensation still uses the previous job's settings (${d.reason})`, at: now })
+              if (d?.kind === 'ignored') effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: new job ${message.job.partNumber} — compensation still uses the previous job's settings (${d.reason})`, at: now, machineAt: time })
               else {
                 record(d, message.seq)
-                effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: false, message: '', at: now })
+                effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: false, message: '', at: now, machineAt: time })
               }
             }
             else startEngine(message.job, st.appliedOffsetUm ?? 0)
             break
           case 'fault_raised':
             if (!st.activeFaults.includes(message.fault)) st.activeFaults.push(message.fault)
-            effects.conditions.push({ machineId: ctx.id, condition: `fault:${message.fault}`, active: true, message: `${ctx.name}: ${message.fault.replaceAll('_', ' ')}${message.message ? ` — ${message.message}` : ''}`, at: now })
+            effects.conditions.push({ machineId: ctx.id, condition: `fault:${message.fault}`, active: true, message: `${ctx.name}: ${message.fault.replaceAll('_', ' ')}${message.message ? ` — ${message.message}` : ''}`, at: now, machineAt: time })
             break
           case 'fault_cleared':
             st.activeFaults = st.activeFaults.filter(f => f !== message.fault)
-            effects.conditions.push({ machineId: ctx.id, condition: `fault:${message.fault}`, active: false, message: '', at: now })
+            effects.conditions.push({ machineId: ctx.id, condition: `fault:${message.fault}`, active: false, message: '', at: now, machineAt: time })
             break
         }
       }

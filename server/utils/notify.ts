@@ -249,7 +249,7 @@ async function watchTrend(machineId: string, status: Record<string, unknown>, no
   trendRaised.set(machineId, step.raised)
   if (!step.changed) return
   const name = machineContext(machineId)?.name ?? machineId
-  await applyAlarmConditions([{ machineId, condition: TREND_CONDITION, active: step.raised, message: `${name}: ${step.message}`, at: now }])
+  await applyAlarmConditions([{ machineId, condition: TREND_CONDITION, active: step.raised, message: `${name}: ${step.message}`, at: now, machineAt: (status.lastReadingAt as number | null) ?? null }])
 }
 
 // ---------------------------------------------------------------- start and stop
