@@ -152,6 +152,36 @@ describe('jobs', async () => {
     expect(archive.status).toBe(409) // on a machine: cannot be archived
   })
 
+  it('the settings editor keeps what the engineer types: a new draft typed in the browser saves those values', async () => {
+    const jobId = Number((await db.execute(`select id from jobs where part_number = 'LTP-0318-B'`)).rows[0]![0])
+    const page = await signedInPage('engineer', { width: 1440, height: 900 })
+    const pageErrors: string[] = []
+    page.on('pageerror', e => pageErrors.push(e.message))
+    page.on('console', m => { if (m.type() === 'error') pageErrors.push(m.text()) })
+    await page.goto(url(`/jobs/${jobId}`), { waitUntil: 'networkidle' })
+    await page.click('[data-test="new-draft"]')
+    const editor = page.locator('[data-test="settings-editor"]')
+    await editor.getByLabel('Strategy').selectOption('ewma')
+    await editor.getByLabel('Largest step (axis µm)').pressSequentially('0.8')
+    await editor.getByLabel('EWMA weight λ').pressSequentially('0.25')
+    // A value the engine refuses is named at its field, and Save waits until it is put right.
+    await editor.getByLabel('Stop after rejects in a row').pressSequentially('0')
+    await expect.poll(() => editor.locator('.field-error').count()).toBeGreaterThan(0)
+    expect(await editor.getByRole('button', { name: 'Save draft' }).isDisabled()).toBe(true)
+    await editor.getByLabel('Stop after rejects in a row').fill('')
+    await editor.getByLabel('Stop after rejects in a row').pressSequentially('4')
+    await editor.getByRole('button', { name: 'Save draft' }).click()
+    await page.locator('[data-test="notice"]', { hasText: 'Draft saved' }).waitFor()
+    // Read back: the saved version holds exactly what was typed, in the database and on the page.
+    const stored = JSON.parse(String((await db.execute(`select settings from compensation_settings where job_id = ${jobId} order by version desc limit 1`)).rows[0]![0]))
+    expect(stored).toEqual({ strategy: 'ewma', maxStepUm: 0.8, ewma: { lambda: 0.25 }, stopAfterOutOfTolerance: 4 })
+    const shown = await page.locator('[data-test="versions"] li[data-version="1"]').innerText()
+    expect(shown).not.toMatch(/all defaults/)
+    expect(pageErrors).toEqual([])
+    await page.screenshot({ path: `${artifactsDir}/job-draft-saved-desktop-dark.png`, fullPage: true })
+    await page.close()
+  })
+
   it('screens: jobs list and a job with its versions, phone and desktop, dark and light', async () => {
     for (const [name, viewport] of [['desktop', { width: 1440, height: 900 }], ['phone', { width: 390, height: 844 }]] as const) {
       const page = await signedInPage('engineer', viewport)
