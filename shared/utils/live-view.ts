@@ -59,13 +59,32 @@ export function liveMachineState(f: LiveCardFacts): { tone: LiveTone, word: stri
 /**
  * Which of hold / resume to offer for a machine's execution state (MTConnect Execution values):
  * hold while it grinds, resume once it stands held or stopped, both when it waits, is offline or
- * its state is unknown — the machine itself decides then.
+ * its state is unknown — the machine itself decides then. Never resume while a latched stop
+ * stands (see liveLatchedStops): that is reset at the machine first.
  */
-export function liveCommandChoices(execution: string | null, online: boolean): { hold: boolean, resume: boolean } {
-  if (!online || !execution) return { hold: true, resume: true }
-  if (execution === 'ACTIVE') return { hold: true, resume: false }
-  if (['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP', 'STOPPED', 'INTERRUPTED'].includes(execution)) return { hold: false, resume: true }
-  return { hold: true, resume: true }
+export function liveCommandChoices(execution: string | null, online: boolean, latchedStops: number): { hold: boolean, resume: boolean } {
+  const choices = !online || !execution ? { hold: true, resume: true }
+    : execution === 'ACTIVE' ? { hold: true, resume: false }
+      : ['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP', 'STOPPED', 'INTERRUPTED'].includes(execution) ? { hold: false, resume: true }
+        : { hold: true, resume: true }
+  return latchedStops > 0 ? { ...choices, resume: false } : choices
+}
+
+/**
+ * The open alarms that latch (fire, mist, coolant, wheel, loader, the engine's stop request):
+ * each stands until someone resets it at the machine's own station after fixing the cause, so
+ * while any stands no resume is offered or accepted from anywhere else (docs/remote-commands.md).
+ * Every state counts, shelved too: shelving from a phone must not open the way.
+ */
+export function liveLatchedStops<A extends { latching: boolean, closedAt: number | null }>(open: readonly A[]): A[] {
+  return open.filter(a => a.latching && a.closedAt === null)
+}
+
+/** Why a remote resume is refused while latched stops stand, in plain words (null: not refused). */
+export function liveResumeRefusal(machineName: string, latched: readonly { title: string }[]): string | null {
+  if (!latched.length) return null
+  const what = latched.map(a => a.title).join(', ')
+  return `${machineName} cannot be resumed from here: ${what} must first be reset at ${machineName}'s own station, once the cause is fixed. Reset it there, then resume.`
 }
 
 /** Machine message types the event log leaves out: every part's own steps, and the machine's

@@ -9,7 +9,7 @@ import type { AlarmActionKind } from '../../shared/utils/alarm-model'
 import { SHIFT_DEFAULT_PATTERN, type ShiftCalendar } from '../../shared/utils/shift-calendar'
 import {
   LIVE_CPK_WINDOW, liveRollingCpk, liveTolerancePosition, liveMachineState, liveAttentionRank, liveSpan,
-  liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveEventWords, type LiveCardFacts,
+  liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveLatchedStops, liveResumeRefusal, liveEventWords, type LiveCardFacts,
 } from '../../shared/utils/live-view'
 
 /** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
@@ -214,17 +214,34 @@ describe('livePhotoType (by content, never by name)', () => {
 describe('liveCommandChoices (hold / resume offered by execution state)', () => {
   // Execution values from the MTConnect standard (Part 2, Execution DataItem).
   it('offers only hold while the machine grinds', () => {
-    expect(liveCommandChoices('ACTIVE', true)).toEqual({ hold: true, resume: false })
+    expect(liveCommandChoices('ACTIVE', true, 0)).toEqual({ hold: true, resume: false })
   })
   it('offers only resume once it stands held or stopped', () => {
     for (const e of ['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP', 'STOPPED', 'INTERRUPTED'])
-      expect(liveCommandChoices(e, true), e).toEqual({ hold: false, resume: true })
+      expect(liveCommandChoices(e, true, 0), e).toEqual({ hold: false, resume: true })
   })
   it('offers both while it waits, when offline or when the state is unknown', () => {
-    expect(liveCommandChoices('READY', true)).toEqual({ hold: true, resume: true })
-    expect(liveCommandChoices('WAIT', true)).toEqual({ hold: true, resume: true })
-    expect(liveCommandChoices('ACTIVE', false)).toEqual({ hold: true, resume: true })
-    expect(liveCommandChoices(null, true)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices('READY', true, 0)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices('WAIT', true, 0)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices('ACTIVE', false, 0)).toEqual({ hold: true, resume: true })
+    expect(liveCommandChoices(null, true, 0)).toEqual({ hold: true, resume: true })
+  })
+  it('never offers resume while a latched stop stands, in any execution state', () => {
+    for (const e of ['FEED_HOLD', 'STOPPED', 'READY', 'WAIT', null])
+      expect(liveCommandChoices(e, true, 1).resume, String(e)).toBe(false)
+    expect(liveCommandChoices(null, false, 2).resume).toBe(false)
+  })
+})
+
+describe('liveLatchedStops / liveResumeRefusal (docs/remote-commands.md)', () => {
+  const alarm = (latching: boolean, state: string, closedAt: number | null = null) => ({ latching, state, closedAt, title: latching ? 'Stop requested by compensation' : 'Gauge suspect' })
+  it('counts every open latching alarm, whatever its state, shelved included', () => {
+    const open = [alarm(true, 'unacknowledged'), alarm(true, 'acknowledged'), alarm(true, 'latched'), alarm(true, 'shelved'), alarm(false, 'unacknowledged'), alarm(true, 'normal', 1)]
+    expect(liveLatchedStops(open).map(a => a.state)).toEqual(['unacknowledged', 'acknowledged', 'latched', 'shelved'])
+  })
+  it('names the alarm and where to reset it; nothing to say without one', () => {
+    expect(liveResumeRefusal('Heron', [alarm(true, 'latched')])).toBe('Heron cannot be resumed from here: Stop requested by compensation must first be reset at Heron\'s own station, once the cause is fixed. Reset it there, then resume.')
+    expect(liveResumeRefusal('Heron', [])).toBeNull()
   })
 })
 

@@ -15,6 +15,14 @@ export default defineEventHandler(async (event) => {
   const ctx = machineFromParams(event)
   const { type, reason } = await readValidBody(event, body)
   if (!ctx.status.online) throw createError({ statusCode: 409, message: `${ctx.name} is offline; the command could not reach it.` })
+  // A latched stop is reset at the machine before any resume (docs/remote-commands.md).
+  if (type === 'resume') {
+    const refusal = liveResumeRefusal(ctx.name, liveLatchedStops(await openAlarmViews(ctx.id)))
+    if (refusal) {
+      await audit(event, user, 'machine.resume-refused', `machine:${ctx.id}`, { reason: refusal })
+      throw createError({ statusCode: 409, message: refusal })
+    }
+  }
   const now = Date.now()
   const id = `${ctx.id}.u${user.id}.${now}.${type}`
   // The machine's clock decides expiry: date the command on that clock as it reads now (its newest
