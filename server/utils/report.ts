@@ -2,16 +2,19 @@
 // from the stored machine messages. Takes the database handle as a parameter and imports
 // everything explicitly, so the benchmark and tests can call it outside Nitro.
 //
-// Time: machine messages (states, events, readings) are placed by the machine's clock; alarms,
-// gaps, presence changes and dead letters by the server's receive time. A machine with a sane
-// clock puts both in the same window.
+// Time: machine messages (states, events, readings), presence changes and the alarm transitions a
+// machine message caused are placed by the machine's clock, so a backlog delivered hours late lands
+// in the shift it belongs to; people's actions, gap detections and dead letters by the server's.
+// The classes of time (running, stopped by cause, no contact, planned stop, no data) are described
+// in docs/report-time-model.md.
 import { and, asc, desc, eq, gte, inArray, isNull, lt, or, sql } from 'drizzle-orm'
 import type { LibSQLDatabase } from 'drizzle-orm/libsql'
 import * as schema from '../database/schema'
 import {
   kpiCombine, kpiIndices, kpiMergeDowntime, kpiMttr, kpiTimeModel,
-  type KpiDowntime, type KpiIndices, type KpiInputs, type KpiMachineEvent, type KpiRepair,
+  type KpiDowntime, type KpiIndices, type KpiInputs, type KpiMachineEvent, type KpiRepair, type KpiTimeModel,
 } from '../../shared/utils/kpi'
+import { reportContactEvents, reportGapEvents, type ReportKnownPresence } from './report-time'
 import {
   spcCapability, spcMean, spcOverallSigma, spcRunRules, spcWithinSigmaMovingRange, SPC_RUN_RULE_TEXT, SPC_WESTERN_ELECTRIC_RULES,
   type SpcRunRule,
@@ -115,6 +118,22 @@ export interface ReportCompensation {
   wheelWear: WearSummary & { gainSource: string }
 }
 
+/** One job a machine ran in the range: the range is split at each job change. */
+export interface ReportJobRun {
+  partNumber: string | null
+  from: number
+  to: number
+  produced: number
+  good: number
+  scrap: number
+  scrapByReason: { reason: string; count: number }[]
+  /** the ideal cycle time used for this job's planned run time per unit, and where it came from */
+  cycleTimeS: number | null
+  pruSource: string
+  lsl: number | null
+  usl: number | null
+}
+
 export interface ReportMachine {
   id: string
   name: string
@@ -123,10 +142,21 @@ export interface ReportMachine {
   good: number
   scrap: number
   scrapByReason: { reason: string; count: number }[]
+  /** the jobs run, split at each job change (one entry when there was none) */
+  jobs: ReportJobRun[]
   kpiInputs: KpiInputs & { pruSource: string }
   kpi: KpiIndices
   downtime: KpiDowntime[]
+  /** planned stops (stated reason "planned stop"); left out of planned busy time */
+  plannedStopMs: number
+  /** time with nothing known of the machine, by reason; left out of planned busy time */
+  noData: KpiDowntime[]
+  noDataMs: number
+  /** every failure in the range; only repaired ones count towards MTTR */
   repairs: KpiRepair[]
+  /** failures not repaired within the range (still down at its end, or contact lost while down) */
+  openFailures: KpiRepair[]
+  /** ISO 22400-2 MTTR = Σ TTR / FE over the failures repaired in the range */
   mttrMs: number | null
   capability: ReportCapability[]
   /** readings of the range already folded into hourly summaries by retention, per job */
@@ -139,8 +169,11 @@ export interface ReportChart {
   /** [machine time ms, diameter deviation µm]; thinned to min/max per bucket when long */
   points: [number, number][]
   thinned: boolean
+  /** the last job's tolerance (kept for older readers; the chart draws `limits`) */
   lsl: number | null
   usl: number | null
+  /** tolerance of each job over the time it ran */
+  limits: { from: number; to: number; partNumber: string | null; lsl: number | null; usl: number | null }[]
   /** applied offsets (each with its own step); beyond REPORT_CHART_MAX_POINTS the lowest and highest of each slice */
   offsets: { at: number; offsetUm: number; stepUm: number }[]
   offsetsThinned: boolean
@@ -153,7 +186,8 @@ export interface ReportAlarms {
   byPriority: Record<string, number>
   ackTimes: { count: number; medianMs: number | null; maxMs: number | null; unacknowledged: number }
   handlers: { userId: number | null; name: string; acknowledged: number; other: number; conditions: string[] }[]
-  list: { alarmId: number; at: number; machineId: string | null; priority: number; condition: string; message: string; ackMs: number | null; ackBy: string | null }[]
+  /** `at`: the machine's time of the message that raised it (the server's when none did); `serverAt` the server's */
+  list: { alarmId: number; at: number; serverAt: number; machineId: string | null; priority: number; condition: string; message: string; ackMs: number | null; ackBy: string | null }[]
   rates: AlarmRateMetrics
 }
 
@@ -170,10 +204,15 @@ export interface ReportCompleteness {
 }
 
 export interface Report {
-  scope: { cellId: string; cellName: string; timeZone: string; from: number; to: number; machineId: string | null; shift: ShiftWindow | null; generatedAt: number }
+  /** `measuredTo`: the end of the time measured, `to` or, while the range runs, the time it was made */
+  scope: { cellId: string; cellName: string; timeZone: string; from: number; to: number; measuredTo: number; machineId: string | null; shift: ShiftWindow | null; generatedAt: number }
   totals: {
     produced: number; good: number; scrap: number; scrapByReason: { reason: string; count: number }[]
-    kpiInputs: KpiInputs; kpi: KpiIndices; downtime: KpiDowntime[]; mttrMs: number | null; failures: number
+    kpiInputs: KpiInputs; kpi: KpiIndices; downtime: KpiDowntime[]; plannedStopMs: number
+    /** machine time with nothing known, by reason (all machines together), and the machines with no data at all */
+    noData: KpiDowntime[]; noDataMs: number; machinesWithoutData: string[]
+    /** MTTR over repaired failures; `failures` repaired ones, `openFailures` the others */
+    mttrMs: number | null; failures: number; openFailures: number
   }
   machines: ReportMachine[]
   alarms: ReportAlarms
@@ -225,11 +264,16 @@ export async function reportShiftScope(db: ReportDb, cellId: string, shiftId: st
 
 // ---------------------------------------------------------------- the report
 
-/** Builds the report of a cell (or one of its machines) over [from, to). */
-export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Report> {
+/**
+ * Builds the report of a cell (or one of its machines) over [from, to). Time is measured up to
+ * `now` while the range runs (a running shift plans only its elapsed part).
+ */
+export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?: number } = {}): Promise<Report> {
   const { from, to } = scope
   if (!(Number.isFinite(from) && Number.isFinite(to) && from < to)) throw new ReportInputError('the range needs from < to (epoch ms)')
   if (to - from > REPORT_MAX_RANGE_MS) throw new ReportInputError('the range is longer than 31 days; ask for a shorter one')
+  const generatedAt = opts.now ?? Date.now()
+  const measuredTo = Math.min(to, Math.max(from, generatedAt))
   const cal = await reportCalendar(db, scope.cellId)
   const machineRows = await db.select().from(schema.machines).where(eq(schema.machines.cellId, scope.cellId)).orderBy(asc(schema.machines.sortOrder), asc(schema.machines.id))
   const chosen = scope.machineId ? machineRows.filter((m) => m.id === scope.machineId) : machineRows
@@ -300,6 +344,15 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   // and its latest birth. One statement of correlated max() lookups, each a single index probe.
   const before = await situationBefore(db, ids, from, to)
   const beforeById = new Map(before.map((b) => [b.id, b]))
+  // Contact (deaths, births no death announced) and messages that never arrived, in machine time.
+  const known = new Map<string, ReportKnownPresence>(before.map((b) => [b.id, {
+    stateAt: b.state?.time ?? null,
+    birthBefore: b.birthBefore ? { at: b.birthBefore.time, execution: String(b.birthBefore.payload.execution) } : null,
+    births: births.filter((r) => r.machineId === b.id).map((r) => r.time),
+  }]))
+  const [contactEvents, gapEvents] = measuredTo > from
+    ? await Promise.all([reportContactEvents(db, ids, from, measuredTo, known), reportGapEvents(db, ids, from, measuredTo)])
+    : [new Map<string, KpiMachineEvent[]>(), new Map<string, KpiMachineEvent[]>()]
 
   // The engine's decisions on the window's readings (found by server time around them), in one
   // pass: the held readings with their reasons, and the engine's slope estimate (predicted wear) —
@@ -335,7 +388,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
   const marksByMachine = groupBy(marks, (r) => r.machineId)
   const unloadedByMachine = groupBy(unloaded, (r) => r.m)
 
-  const machines: ReportMachine[] = chosen.map((m) => {
+  const machines: ReportMachine[] = await Promise.all(chosen.map(async (m): Promise<ReportMachine> => {
     const b = beforeById.get(m.id)!
     const mr = readingsByMachine.get(m.id) ?? NO_READINGS
     const mk = marksByMachine.get(m.id) ?? []
@@ -355,7 +408,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     const produced = unloadedCount
     const good = produced - scrapCount
 
-    // Time model from states and faults
+    // Time model from states, faults, births, deaths and gaps (docs/report-time-model.md)
     const bs = b.state?.payload as { execution: string; activeFaults?: string[]; reason?: string } | undefined
     let beforeFaults = [...(bs?.activeFaults ?? [])]
     for (const f of b.faults) {
@@ -366,15 +419,25 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     for (const e of mk) {
       const p = e.payload as Record<string, unknown>
       if (e.kind === 'state') events.push({ at: e.time, type: 'state', execution: String(p.execution), activeFaults: (p.activeFaults as string[]) ?? [], reason: (p.reason as string) ?? null })
-      else if (e.kind === 'birth' && !bs && events.length === 0) events.push({ at: e.time, type: 'state', execution: String(p.execution), activeFaults: [] })
+      else if (e.kind === 'birth') events.push({ at: e.time, type: 'birth', execution: String(p.execution) })
       else if (e.type === 'fault_raised') events.push({ at: e.time, type: 'fault-raised', fault: String(p.fault) })
       else if (e.type === 'fault_cleared') events.push({ at: e.time, type: 'fault-cleared', fault: String(p.fault) })
     }
-    const tm = kpiTimeModel({ from, to, before: bs ? { execution: bs.execution, activeFaults: beforeFaults, reason: bs.reason ?? null } : null, events })
-    const cycle = birth?.cycleTimeS ?? currentJob?.cycleTimeS ?? null
-    const pruSource = birth?.cycleTimeS ? 'nominal cycle time announced by the machine' : currentJob ? 'cycle time of the job' : 'no cycle time known'
-    const kpiInputs = { pbt: tm.pbtMs, apt: tm.aptMs, pru: cycle ? cycle * 1000 : 0, pq: produced, gq: good, pruSource }
-    const kpi = cycle ? kpiIndices(kpiInputs) : { ...kpiIndices(kpiInputs), effectiveness: null, oee: null }
+    // after the machine's own messages of the same millisecond (a shutdown follows its last state)
+    events.push(...(contactEvents.get(m.id) ?? []), ...(gapEvents.get(m.id) ?? []))
+    const tm = measuredTo > from
+      ? kpiTimeModel({ from, to: measuredTo, before: bs ? { execution: bs.execution, activeFaults: beforeFaults, reason: bs.reason ?? null, since: b.state!.time } : null, events })
+      : emptyTimeModel(from)
+
+    // The jobs run, split at each job change, each with its own tolerance and ideal cycle time
+    const jobs = await jobRunsOf(db, m.id, { from, to }, mk, b, jobByPart, currentJob ?? null, { produced, good, scrapByReason })
+    const pruMissing = jobs.filter((j) => j.produced > 0 && j.cycleTimeS === null)
+    const plannedRunMs = jobs.reduce((a, j) => a + (j.cycleTimeS ?? 0) * 1000 * j.produced, 0)
+    const pruSource = pruMissing.length ? `no cycle time known for ${pruMissing.map((j) => j.partNumber ?? 'the job without a part number').join(', ')}`
+      : [...new Set(jobs.filter((j) => j.cycleTimeS !== null).map((j) => j.pruSource))].join('; ') || 'no cycle time known'
+    const pru = produced > 0 ? plannedRunMs / produced : (jobs.find((j) => j.cycleTimeS !== null)?.cycleTimeS ?? 0) * 1000
+    const kpiInputs = { pbt: tm.pbtMs, apt: tm.aptMs, pru: pruMissing.length ? 0 : pru, pq: produced, gq: good, pruSource }
+    const kpi = pruMissing.length || !pru ? { ...kpiIndices(kpiInputs), effectiveness: null, oee: null } : kpiIndices(kpiInputs)
 
     // Capability per job
     // readings stored before the machine's first birth carry no job: they belong to the job it announced
@@ -404,6 +467,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
       points: thinnedSizes(mr),
       thinned: mr.n > REPORT_CHART_MAX_POINTS,
       lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
+      limits: jobs.map((j) => ({ from: j.from, to: j.to, partNumber: j.partNumber, lsl: j.lsl, usl: j.usl })),
       offsets: compensation.offsetMarks,
       offsetsThinned: compensation.offsetsThinned,
       dresses: mk.filter((e) => e.type === 'dress').map((e) => ({ at: e.time, trigger: String((e.payload as { trigger?: string }).trigger ?? '') })),
@@ -413,31 +477,38 @@ export async function reportBuild(db: ReportDb, scope: ReportScope): Promise<Rep
     const { offsetMarks: _o, offsetsThinned: _t, ...comp } = compensation
     return {
       id: m.id, name: m.name, partNumbers: [...byJob.keys()].filter(Boolean),
-      produced, good, scrap: scrapCount, scrapByReason,
-      kpiInputs, kpi, downtime: tm.downtime, repairs: tm.repairs, mttrMs: kpiMttr(tm.repairs.map((r) => r.to - r.from)),
+      produced, good, scrap: scrapCount, scrapByReason, jobs,
+      kpiInputs, kpi, downtime: tm.downtime, plannedStopMs: tm.plannedDowntimeMs, noData: tm.noData, noDataMs: tm.noDataMs,
+      repairs: tm.repairs, openFailures: tm.repairs.filter((r) => !r.repaired), mttrMs: repairedMttr(tm.repairs),
       capability, folded: hourLists.filter((h) => h.m === m.id).map((h) => foldedOf(h, jobInfo(h.job || (birth?.job?.partNumber ?? '')))), compensation: comp, chart,
     }
-  })
+  }))
 
-  const combined = kpiCombine(machines.filter((m) => m.kpiInputs.pru > 0 || m.produced === 0).map(({ kpiInputs: { pruSource: _s, ...k } }) => k))
+  // Every machine's time counts towards the cell's availability; effectiveness needs every machine
+  // that made parts to have a cycle time (otherwise it is not known, not understated).
+  const combined = kpiCombine(machines.map(({ kpiInputs: { pruSource: _s, ...k } }) => k))
+  const pruUnknown = machines.some((m) => m.produced > 0 && !(m.kpiInputs.pru > 0))
   const allRepairs = machines.flatMap((m) => m.repairs)
+  const noData = kpiMergeDowntime(machines.map((m) => m.noData))
   const scrapAll = new Map<string, number>()
   for (const m of machines) for (const s of m.scrapByReason) scrapAll.set(s.reason, (scrapAll.get(s.reason) ?? 0) + s.count)
 
   const [alarms, completeness, notes, signoffs] = await Promise.all([
-    alarmsOf(db, ids, from, to, !scope.machineId),
-    completenessOf(db, ids, from, to, readingCount, hourLists.reduce((a, h) => a + Number(h.n) + Number(h.faults), 0)),
+    alarmsOf(db, ids, from, to, measuredTo, !scope.machineId),
+    completenessOf(db, ids, from, Math.max(measuredTo, from + 1), readingCount, hourLists.reduce((a, h) => a + Number(h.n) + Number(h.faults), 0)),
     notesOf(db, ids, from, to, !scope.machineId),
     scope.shift ? signoffsOf(db, scope.cellId, scope.shift) : Promise.resolve([]),
   ])
 
   return {
-    scope: { cellId: scope.cellId, cellName: cal.cellName, timeZone: cal.timeZone, from, to, machineId: scope.machineId ?? null, shift: scope.shift ?? null, generatedAt: Date.now() },
+    scope: { cellId: scope.cellId, cellName: cal.cellName, timeZone: cal.timeZone, from, to, measuredTo, machineId: scope.machineId ?? null, shift: scope.shift ?? null, generatedAt },
     totals: {
       produced: machines.reduce((a, m) => a + m.produced, 0), good: machines.reduce((a, m) => a + m.good, 0),
       scrap: machines.reduce((a, m) => a + m.scrap, 0), scrapByReason: sortCounts(scrapAll),
-      kpiInputs: combined, kpi: kpiIndices(combined), downtime: kpiMergeDowntime(machines.map((m) => m.downtime)),
-      mttrMs: kpiMttr(allRepairs.map((r) => r.to - r.from)), failures: allRepairs.length,
+      kpiInputs: combined, kpi: pruUnknown ? { ...kpiIndices(combined), effectiveness: null, oee: null } : kpiIndices(combined), downtime: kpiMergeDowntime(machines.map((m) => m.downtime)),
+      plannedStopMs: machines.reduce((a, m) => a + m.plannedStopMs, 0), noData, noDataMs: noData.reduce((a, d) => a + d.ms, 0),
+      machinesWithoutData: machines.filter((m) => m.noDataMs > 0 && m.kpiInputs.pbt === 0).map((m) => m.id),
+      mttrMs: repairedMttr(allRepairs), failures: allRepairs.filter((r) => r.repaired).length, openFailures: allRepairs.filter((r) => !r.repaired).length,
     },
     machines, alarms, completeness, notes, signoffs,
   }
@@ -463,21 +534,22 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
   if (!ids.length) return []
   const mm = schema.machineMessages
   const idRows = sql.join(ids.map((id) => sql`select ${id} as id`), sql` union all `)
-  const lookups = await db.all<{ id: string; stateT: number | null; ackT: number | null; birthBeforeT: number | null; birthT: number | null }>(sql`
+  const lookups = await db.all<{ id: string; stateT: number | null; ackT: number | null; birthBeforeT: number | null; birthT: number | null; jobT: number | null }>(sql`
     select ids.id as id,
       (select max(time) from machine_messages where machine_id = ids.id and type in ${STATE_TYPES} and time < ${from}) as stateT,
       (select max(time) from machine_messages where machine_id = ids.id and type = 'offset:applied' and time < ${from}) as ackT,
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${from}) as birthBeforeT,
-      (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${to}) as birthT
+      (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${to}) as birthT,
+      (select max(time) from machine_messages where machine_id = ids.id and type = 'job_change' and time < ${from}) as jobT
     from (${idRows}) as ids`)
-  const wanted = [...new Map(lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT].filter((t): t is number => t !== null)
+  const wanted = [...new Map(lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT, l.jobT].filter((t): t is number => t !== null)
     .map((t) => [`${l.id}/${t}`, { id: l.id, t: Number(t) }] as const))).values()]
   // One probe of the (machine, time) index per wanted row: a row-value IN over a VALUES list is
   // not planned as index probes and scanned the whole table (330 ms on a week of 12 machines).
   const rows = wanted.length
     ? await db.all<{ machine_id: string; seq: number; type: string | null; time: number; payload: string }>(sql.join(wanted.map((w) => sql`
       select machine_id, seq, type, time, payload from machine_messages indexed by messages_machine_time
-      where machine_id = ${w.id} and time = ${w.t} and (type in ${STATE_TYPES} or type = 'offset:applied' or type is null)`), sql` union all `))
+      where machine_id = ${w.id} and time = ${w.t} and (type in ${STATE_TYPES} or type in ('offset:applied', 'job_change') or type is null)`), sql` union all `))
     : []
   const earliestState = Math.min(...lookups.map((l) => (l.stateT === null ? Infinity : Number(l.stateT))))
   const faults = Number.isFinite(earliestState)
@@ -498,12 +570,86 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
     return {
       id: l.id, state, faults: state ? faults.filter((f) => f.machineId === l.id && f.time >= state.time) : [],
       offsetUm: (offsetRow?.payload as { offsetUm?: number } | undefined)?.offsetUm ?? null,
+      birthBefore: lastBirth,
+      jobChangeBefore: pick(l.id, l.jobT, (t) => t === 'job_change'),
       birth: pick(l.id, l.birthT, (t) => t === null)?.payload as BirthLike | undefined,
     }
   })
 }
 
 interface BirthLike { cycleTimeS?: number; offsetUm?: number; job?: { partNumber: string; lowerToleranceUm: number; upperToleranceUm: number } | null }
+
+/** A range that has not begun yet: no time measured. */
+function emptyTimeModel(at: number): KpiTimeModel {
+  return { from: at, to: at, noDataMs: 0, noData: [], plannedDowntimeMs: 0, pbtMs: 0, aptMs: 0, downtime: [], repairs: [] }
+}
+
+/** ISO 22400-2 MTTR = Σ TTR / FE over the failures repaired in the range, each from when it began. */
+function repairedMttr(repairs: readonly KpiRepair[]): number | null {
+  return kpiMttr(repairs.filter((r) => r.repaired).map((r) => r.to - r.startedAt))
+}
+
+type JobRow = typeof schema.jobs.$inferSelect
+type Situation = Awaited<ReturnType<typeof situationBefore>>[number]
+
+/**
+ * The jobs a machine ran in the range, split at each job change (or a birth announcing another
+ * job). Each gets the parts unloaded while it ran, its tolerance and its ideal cycle time: the one
+ * the machine announced in its birth for that job, else the job record's (a job change carries no
+ * cycle time, and the birth's belongs to the job before it).
+ */
+async function jobRunsOf(db: ReportDb, machineId: string, w: { from: number; to: number }, mk: readonly MarkRow[], b: Situation,
+  jobByPart: ReadonlyMap<string, JobRow>, currentJob: JobRow | null, totals: { produced: number; good: number; scrapByReason: { reason: string; count: number }[] }): Promise<ReportJobRun[]> {
+  type Start = { at: number; partNumber: string | null; info: BirthLike['job']; announcedCycleS: number | null }
+  const fromBirth = (at: number, p: BirthLike): Start => ({ at, partNumber: p.job?.partNumber ?? null, info: p.job ?? null, announcedCycleS: p.cycleTimeS ?? null })
+  const fromChange = (at: number, p: { job?: BirthLike['job'] }): Start => ({ at, partNumber: p.job?.partNumber ?? null, info: p.job ?? null, announcedCycleS: null })
+  const birthBefore = b.birthBefore ? fromBirth(b.birthBefore.time, b.birthBefore.payload as BirthLike) : null
+  const changeBefore = b.jobChangeBefore ? fromChange(b.jobChangeBefore.time, b.jobChangeBefore.payload as { job?: BirthLike['job'] }) : null
+  const starts: Start[] = mk.filter((e) => e.kind === 'birth' || e.type === 'job_change')
+    .map((e) => (e.kind === 'birth' ? fromBirth(e.time, e.payload as BirthLike) : fromChange(e.time, e.payload as { job?: BirthLike['job'] })))
+  let first = [birthBefore, changeBefore].filter((x): x is Start => x !== null).sort((x, y) => y.at - x.at)[0] ?? starts[0] ?? null
+  if (!first && currentJob) first = { at: w.from, partNumber: currentJob.partNumber, info: null, announcedCycleS: null }
+  const runs: (Start & { from: number; to: number })[] = [{ ...(first ?? { at: w.from, partNumber: null, info: null, announcedCycleS: null }), from: w.from, to: w.to }]
+  for (const st of starts) {
+    const cur = runs[runs.length - 1]!
+    if (st.partNumber === cur.partNumber || st.partNumber === null) {
+      // the same job again (a reconnect): it may now state the cycle time
+      if (st.announcedCycleS !== null && cur.announcedCycleS === null) cur.announcedCycleS = st.announcedCycleS
+      continue
+    }
+    if (st.at <= cur.from) { runs[runs.length - 1] = { ...st, from: cur.from, to: w.to }; continue }
+    cur.to = st.at
+    runs.push({ ...st, from: st.at, to: w.to })
+  }
+  // Parts by job: one machine's unload events, read only when the range holds a job change.
+  let counts: { produced: number; scrap: Map<string, number> }[]
+  if (runs.length === 1) counts = [{ produced: totals.produced, scrap: new Map(totals.scrapByReason.map((r) => [r.reason, r.count])) }]
+  else {
+    counts = runs.map(() => ({ produced: 0, scrap: new Map() }))
+    const rows = await db.all<{ t: number; d: string | null; r: string | null }>(sql`
+      select time as t, json_extract(payload, '$.disposition') as d, json_extract(payload, '$.rejectReason') as r from machine_messages
+      where machine_id = ${machineId} and type = 'part_unloaded' and time >= ${w.from} and time < ${w.to}`)
+    for (const row of rows) {
+      const k = runs.findIndex((r) => Number(row.t) < r.to)
+      const c = counts[k < 0 ? runs.length - 1 : k]!
+      c.produced++
+      if (row.d === 'reject') c.scrap.set(row.r ?? 'unspecified', (c.scrap.get(row.r ?? 'unspecified') ?? 0) + 1)
+    }
+  }
+  return runs.map((r, k) => {
+    const record = r.partNumber ? jobByPart.get(r.partNumber) : undefined
+    const scrapByReason = sortCounts(counts[k]!.scrap)
+    const scrap = scrapByReason.reduce((a, x) => a + x.count, 0)
+    const cycleTimeS = r.announcedCycleS ?? record?.cycleTimeS ?? null
+    const pruSource = r.announcedCycleS !== null ? 'nominal cycle time announced by the machine'
+      : record?.cycleTimeS ? 'cycle time of the job record' : 'no cycle time known'
+    const tol = record ? { lsl: record.lowerTolNm / 1000, usl: record.upperTolNm / 1000 } : r.info ? { lsl: r.info.lowerToleranceUm, usl: r.info.upperToleranceUm } : null
+    return {
+      partNumber: r.partNumber, from: r.from, to: r.to, produced: counts[k]!.produced, good: counts[k]!.produced - scrap, scrap, scrapByReason,
+      cycleTimeS, pruSource, lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
+    }
+  })
+}
 
 // ---------------------------------------------------------------- parts of the report
 
@@ -802,54 +948,63 @@ export function holdCategory(reason: string): string {
   return (cut > 0 ? text.slice(0, cut) : text).trim() || 'hold'
 }
 
-async function alarmsOf(db: ReportDb, ids: string[], from: number, to: number, includeCellWide: boolean): Promise<ReportAlarms> {
+async function alarmsOf(db: ReportDb, ids: string[], from: number, to: number, measuredTo: number, includeCellWide: boolean): Promise<ReportAlarms> {
   const t = schema.alarmTransitions
   const a = schema.alarms
   const scopeCond = includeCellWide ? or(inArray(a.machineId, ids.length ? ids : ['\u0000']), sql`${a.machineId} is null`) : inArray(a.machineId, ids)
-  // Acknowledgements may come after the end of the window: look a day further for them.
-  const rows = await db.select({ alarmId: t.alarmId, at: t.at, toState: t.toState, action: t.action, userId: t.userId, machineId: a.machineId, priority: a.priority, condition: a.condition, message: a.message })
-    .from(t).innerJoin(a, eq(a.id, t.alarmId)).where(and(gte(t.at, from), lt(t.at, to + 86_400_000), scopeCond)).orderBy(asc(t.at), asc(t.id))
+  const cols = { alarmId: t.alarmId, at: t.at, machineAt: t.machineAt, toState: t.toState, action: t.action, userId: t.userId, machineId: a.machineId, priority: a.priority, condition: a.condition, message: a.message }
+  // Alarms are placed where the machine message that raised them belongs (its machine time; the
+  // server's when no machine message did), so a backlog's alarms land in their own shift.
+  const raised = await db.select(cols).from(t).innerJoin(a, eq(a.id, t.alarmId))
+    .where(and(eq(t.toState, 'unacknowledged'), scopeCond, or(and(gte(t.machineAt, from), lt(t.machineAt, to)), and(isNull(t.machineAt), gte(t.at, from), lt(t.at, to)))))
+    .orderBy(asc(t.id))
+  // Acknowledgements are people's, on the server's clock, whenever they came.
+  const acks = raised.length
+    ? await db.select(cols).from(t).innerJoin(a, eq(a.id, t.alarmId)).where(and(inArray(t.alarmId, [...new Set(raised.map((r) => r.alarmId))]), eq(t.action, 'acknowledge'))).orderBy(asc(t.at), asc(t.id))
+    : []
+  // What people did in the window (on the server's clock).
+  const acted = await db.select(cols).from(t).innerJoin(a, eq(a.id, t.alarmId)).where(and(gte(t.at, from), lt(t.at, to), scopeCond, sql`${t.userId} is not null`)).orderBy(asc(t.at), asc(t.id))
   const users = await db.select({ id: schema.users.id, name: schema.users.name }).from(schema.users)
   const nameOf = (id: number | null) => (id === null ? 'the system' : users.find((u) => u.id === id)?.name ?? `user ${id}`)
-  const list: ReportAlarms['list'] = []
-  const open = new Map<number, ReportAlarms['list'][number]>()
-  const handlers = new Map<string, ReportAlarms['handlers'][number]>()
-  for (const r of rows) {
-    if (r.toState === 'unacknowledged' && r.at < to) {
-      const item = { alarmId: r.alarmId, at: r.at, machineId: r.machineId, priority: r.priority, condition: r.condition, message: r.message, ackMs: null, ackBy: null }
-      list.push(item)
-      open.set(r.alarmId, item)
-    }
-    if (r.action === 'acknowledge') {
-      const item = open.get(r.alarmId)
-      if (item) { item.ackMs = r.at - item.at; item.ackBy = nameOf(r.userId); open.delete(r.alarmId) }
-    }
-    if (r.userId !== null && r.at < to && r.action !== 'condition-active' && r.action !== 'condition-cleared') {
-      const key = String(r.userId)
-      const h = handlers.get(key) ?? { userId: r.userId, name: nameOf(r.userId), acknowledged: 0, other: 0, conditions: [] }
-      if (r.action === 'acknowledge') h.acknowledged++
-      else h.other++
-      if (!h.conditions.includes(r.condition)) h.conditions.push(r.condition)
-      handlers.set(key, h)
-    }
+  const list: ReportAlarms['list'] = raised.map((r) => ({ alarmId: r.alarmId, at: r.machineAt ?? r.at, serverAt: r.at, machineId: r.machineId, priority: r.priority, condition: r.condition, message: r.message, ackMs: null, ackBy: null }))
+    .sort((x, y) => x.at - y.at || x.serverAt - y.serverAt)
+  // each acknowledgement answers the annunciation of its alarm that came before it (server times)
+  for (const ack of acks) {
+    const item = list.filter((l) => l.alarmId === ack.alarmId && l.ackMs === null && l.serverAt <= ack.at).sort((x, y) => y.serverAt - x.serverAt)[0]
+    if (item) { item.ackMs = ack.at - item.serverAt; item.ackBy = nameOf(ack.userId) }
   }
-  const acks = list.filter((l) => l.ackMs !== null).map((l) => l.ackMs!).sort((x, y) => x - y)
+  const handlers = new Map<string, ReportAlarms['handlers'][number]>()
+  for (const r of acted) {
+    if (r.action === 'condition-active' || r.action === 'condition-cleared') continue
+    const key = String(r.userId)
+    const h = handlers.get(key) ?? { userId: r.userId, name: nameOf(r.userId), acknowledged: 0, other: 0, conditions: [] }
+    if (r.action === 'acknowledge') h.acknowledged++
+    else h.other++
+    if (!h.conditions.includes(r.condition)) h.conditions.push(r.condition)
+    handlers.set(key, h)
+  }
+  const ackTimes = list.filter((l) => l.ackMs !== null).map((l) => l.ackMs!).sort((x, y) => x - y)
   const byPriority: Record<string, number> = { top: 0, high: 0, medium: 0, low: 0 }
   for (const l of list) byPriority[ALARM_PRIORITY_NAMES[l.priority as AlarmPriority] ?? 'low']!++
   return {
     annunciations: list.length, byPriority,
-    ackTimes: { count: acks.length, medianMs: acks.length ? median(acks) : null, maxMs: acks.at(-1) ?? null, unacknowledged: list.length - acks.length },
+    ackTimes: { count: ackTimes.length, medianMs: ackTimes.length ? median(ackTimes) : null, maxMs: ackTimes.at(-1) ?? null, unacknowledged: list.length - ackTimes.length },
     handlers: [...handlers.values()].sort((x, y) => y.acknowledged + y.other - x.acknowledged - x.other),
     list,
-    rates: alarmRateMetrics(list.map((l) => ({ at: l.at, priority: l.priority as AlarmPriority })), { from, to }),
+    // the load over the time measured so far (a running shift is not diluted by its future hours)
+    rates: alarmRateMetrics(list.filter((l) => l.at < measuredTo).map((l) => ({ at: l.at, priority: l.priority as AlarmPriority })), { from, to: Math.max(measuredTo, from + 1) }),
   }
 }
+
+const presencePlaced = sql<number>`coalesce(${schema.presenceLog.machineTime}, ${schema.presenceLog.at})`
 
 async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number, foldedReadings: number): Promise<ReportCompleteness> {
   const idList = ids.length ? ids : ['\u0000']
   const [gaps, presence, dead] = await Promise.all([
     db.select().from(schema.sequenceGaps).where(and(inArray(schema.sequenceGaps.machineId, idList), gte(schema.sequenceGaps.detectedAt, from), lt(schema.sequenceGaps.detectedAt, to))).orderBy(asc(schema.sequenceGaps.detectedAt)),
-    db.select().from(schema.presenceLog).where(and(inArray(schema.presenceLog.machineId, idList), gte(schema.presenceLog.at, from), lt(schema.presenceLog.at, to))).orderBy(asc(schema.presenceLog.at)),
+    // presence by the machine's clock (a shutdown's own time; a will's arrival read on the machine clock)
+    db.select({ machineId: schema.presenceLog.machineId, at: presencePlaced, online: schema.presenceLog.online, reason: schema.presenceLog.reason }).from(schema.presenceLog)
+      .where(and(inArray(schema.presenceLog.machineId, idList), gte(presencePlaced, from), lt(presencePlaced, to))).orderBy(asc(presencePlaced), asc(schema.presenceLog.id)),
     db.select({ reason: schema.deadLetters.reason, n: sql<number>`count(*)` }).from(schema.deadLetters)
       .where(and(or(inArray(schema.deadLetters.machineId, idList), sql`${schema.deadLetters.machineId} is null`), gte(schema.deadLetters.receivedAt, from), lt(schema.deadLetters.receivedAt, to)))
       .groupBy(schema.deadLetters.reason),
@@ -979,11 +1134,14 @@ export async function buildShiftSummary(db: ReportDb, cellId: string, shift: Pic
   const pct = (x: number | null) => (x === null ? '—' : `${(x * 100).toFixed(1)} %`)
   const link = `${baseUrl}/report/${encodeURIComponent(cellId)}/${encodeURIComponent(shift.shiftId)}/${shift.date}`
   const top = r.totals.downtime[0]
+  const noData = r.totals.kpiInputs.pbt === 0
+  const unseen = r.totals.machinesWithoutData.map((id) => r.machines.find((m) => m.id === id)?.name ?? id)
   const lines = [
     `${r.scope.cellName} — ${scope.shift!.name} shift of ${shift.date}`,
     `Parts: ${r.totals.produced} made, ${r.totals.good} good, ${r.totals.scrap} scrap${r.totals.scrapByReason.length ? ` (${r.totals.scrapByReason.map((s) => `${s.reason} ${s.count}`).join(', ')})` : ''}.`,
-    `OEE ${pct(r.totals.kpi.oee)} (availability ${pct(r.totals.kpi.availability)}, effectiveness ${pct(r.totals.kpi.effectiveness)}, quality ${pct(r.totals.kpi.qualityRatio)}).`,
-    top ? `Largest stop: ${top.cause}, ${Math.round(top.ms / 60_000)} min.` : 'No unplanned stops.',
+    noData ? 'OEE: no data — no machine was heard from.' : `OEE ${pct(r.totals.kpi.oee)} (availability ${pct(r.totals.kpi.availability)}, effectiveness ${pct(r.totals.kpi.effectiveness)}, quality ${pct(r.totals.kpi.qualityRatio)}).`,
+    noData ? '' : top ? `Largest stop: ${top.cause}, ${Math.round(top.ms / 60_000)} min.` : 'No unplanned stops.',
+    unseen.length && !noData ? `No data from ${unseen.join(', ')} (left out of the figures).` : '',
     `Alarms: ${r.alarms.annunciations}${r.alarms.ackTimes.unacknowledged ? `, ${r.alarms.ackTimes.unacknowledged} not acknowledged` : ''}.`,
     r.completeness.missingSequenceNumbers || r.completeness.deadLetters ? `Data: ${r.completeness.missingSequenceNumbers} messages missing, ${r.completeness.deadLetters} refused.` : 'Data: complete.',
     r.notes.length ? `${r.notes.length} note(s) left during the shift.` : '',

@@ -1,14 +1,16 @@
-// ISO 22400-2 KPI formulas (reference-values §7: Availability = APT/PBT, Effectiveness =
-// PRU·PQ/APT, Quality ratio = GQ/PQ, OEE = product) and the time model from machine events.
+// ISO 22400-2 KPI formulas (Availability = APT/PBT, Effectiveness = PRU·PQ/APT, Quality ratio =
+// GQ/PQ, OEE = their product, MTTR = Σ TTR / FE; written out in docs/report-time-model.md) and the
+// time model from machine events (the classes of time defined there).
 import { describe, it, expect } from 'vitest'
 import fc from 'fast-check'
-import { kpiIndices, kpiCombine, kpiMttr, kpiTimeModel, kpiMergeDowntime, KPI_CAUSE } from '../../shared/utils/kpi'
+import { kpiIndices, kpiCombine, kpiMttr, kpiTimeModel, kpiMergeDowntime, KPI_CAUSE, KPI_NO_DATA, KPI_KEEP_ALIVE_MS, type KpiMachineEvent } from '../../shared/utils/kpi'
 
 const MIN = 60_000
 
 describe('ISO 22400-2 indices', () => {
-  it('reproduce the derived check values of reference-values §7', () => {
-    // Derived check (§7): PBT 480 min, APT 420 min, PRU 1.0 min, PQ 380, GQ 361
+  it('reproduce a worked example (docs/report-time-model.md)', () => {
+    // Worked by hand from the ISO 22400-2 formulas: PBT 480 min, APT 420 min, PRU 1.0 min, PQ 380, GQ 361
+    // → A = 420/480 = 0.875, E = 380/420 = 0.904762, QR = 361/380 = 0.95, OEE = 0.752083
     const k = kpiIndices({ pbt: 480, apt: 420, pru: 1.0, pq: 380, gq: 361 })
     expect(k.availability).toBeCloseTo(0.875, 6)
     expect(k.effectiveness).toBeCloseTo(0.904762, 6)
@@ -97,20 +99,112 @@ describe('time model from machine events', () => {
   it('uses the situation before the window, and calls unknown time "no data"', () => {
     const down = kpiTimeModel({ from: t0, to: at(60), before: { execution: 'INTERRUPTED', activeFaults: ['gauge_fault', 'loader_jam'] }, events: [{ at: at(-5), type: 'state', execution: 'INTERRUPTED', activeFaults: ['loader_jam'] }, { at: at(20), type: 'state', execution: 'ACTIVE', activeFaults: [] }] })
     expect(down.downtime).toEqual([{ cause: 'loader_jam', ms: 20 * MIN, occurrences: 1 }])
+    // Time with nothing known is left out of planned busy time (it used to be downtime: a shift that
+    // ended before data existed read OEE 9 %).
     const unknown = kpiTimeModel({ from: t0, to: at(60), before: null, events: [{ at: at(15), type: 'state', execution: 'ACTIVE' }] })
-    expect(unknown.downtime).toEqual([{ cause: KPI_CAUSE.noData, ms: 15 * MIN, occurrences: 1 }])
+    expect(unknown.downtime).toEqual([])
+    expect(unknown.noData).toEqual([{ cause: KPI_NO_DATA.unknown, ms: 15 * MIN, occurrences: 1 }])
     expect(unknown.aptMs).toBe(45 * MIN)
+    expect(unknown.pbtMs).toBe(45 * MIN)
     expect(() => kpiTimeModel({ from: t0, to: t0, before: null, events: [] })).toThrow(/from < to/)
   })
 
-  it('time always adds up: APT + downtime + planned = window (property)', () => {
+  it('time always adds up: APT + downtime + planned + no data = window (property)', () => {
     const states = ['ACTIVE', 'INTERRUPTED', 'FEED_HOLD', 'STOPPED', 'READY']
     fc.assert(fc.property(fc.array(fc.record({ at: fc.integer({ min: -100, max: 700 }), s: fc.integer({ min: 0, max: 4 }), f: fc.boolean(), planned: fc.boolean() }), { maxLength: 40 }), (raw) => {
       const events = raw.map((r) => ({ at: at(r.at), type: 'state' as const, execution: states[r.s]!, activeFaults: r.f ? ['coolant_fault'] : [], reason: r.planned ? 'planned stop' : null }))
       const m = kpiTimeModel({ from: t0, to: at(600), before: null, events })
       const down = m.downtime.reduce((a, d) => a + d.ms, 0)
-      return m.aptMs + down + m.plannedDowntimeMs === 600 * MIN && m.pbtMs === 600 * MIN - m.plannedDowntimeMs
+      return m.aptMs + down + m.plannedDowntimeMs + m.noDataMs === 600 * MIN && m.pbtMs === 600 * MIN - m.plannedDowntimeMs - m.noDataMs
     }))
+  })
+
+  it('a machine that stops talking is down for "no contact" from its death, not running on', () => {
+    // Shut down at 3 h into an 8 h night while grinding: 3 h running, 5 h without contact.
+    // ISO 22400-2: A = APT / PBT = 180 / 480 = 0.375 (before the fix: 480 / 480 = 1).
+    const active = { execution: 'ACTIVE', activeFaults: [] }
+    const m = kpiTimeModel({ from: t0, to: at(480), before: active, events: [{ at: at(180), type: 'death' }] })
+    expect(m.aptMs).toBe(180 * MIN)
+    expect(m.downtime).toEqual([{ cause: KPI_CAUSE.noContact, ms: 300 * MIN, occurrences: 1 }])
+    expect(m.pbtMs).toBe(480 * MIN)
+    expect(kpiIndices({ pbt: m.pbtMs, apt: m.aptMs, pru: MIN, pq: 100, gq: 100 }).availability).toBe(0.375)
+    // It comes back at 6 h (birth): no contact ends there and its state is the birth's.
+    const back = kpiTimeModel({ from: t0, to: at(480), before: active, events: [{ at: at(180), type: 'death' }, { at: at(360), type: 'birth', execution: 'ACTIVE' }] })
+    expect(back.downtime).toEqual([{ cause: KPI_CAUSE.noContact, ms: 180 * MIN, occurrences: 1 }])
+    expect(back.aptMs).toBe(300 * MIN)
+  })
+
+  it('a backlog recorded while the connection was down counts: contact is back at its first message', () => {
+    // The will fires at 100 min; the machine kept grinding and delivered its messages later.
+    const m = kpiTimeModel({
+      from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] },
+      events: [{ at: at(100), type: 'death' }, { at: at(101), type: 'message' }, { at: at(220), type: 'birth', execution: 'ACTIVE' }],
+    })
+    expect(m.downtime).toEqual([{ cause: KPI_CAUSE.noContact, ms: 1 * MIN, occurrences: 1 }])
+    expect(m.aptMs).toBe(479 * MIN)
+  })
+
+  it('a birth no death announced: a running machine lost contact from its last message plus the keep-alive', () => {
+    const quiet = at(200) + KPI_KEEP_ALIVE_MS
+    const events = (execution: string): KpiMachineEvent[] => [
+      { at: at(100), type: 'state', execution, activeFaults: [] },
+      { at: quiet, type: 'quiet' },
+      { at: at(260), type: 'birth', execution: 'ACTIVE' },
+    ]
+    const running = kpiTimeModel({ from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] }, events: events('ACTIVE') })
+    expect(running.downtime).toEqual([{ cause: KPI_CAUSE.noContact, ms: at(260) - quiet, occurrences: 1 }])
+    // A stopped machine may rightly say nothing for hours: its stop runs on until the birth.
+    const stopped = kpiTimeModel({ from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] }, events: events('READY') })
+    expect(stopped.downtime).toEqual([{ cause: 'idle (READY)', ms: 160 * MIN, occurrences: 1 }])
+  })
+
+  it('a machine not heard from all window is "no data", left out of planned time (not 0 % or 100 %)', () => {
+    // Dead since before the window; nothing in it.
+    const m = kpiTimeModel({ from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] }, events: [{ at: at(-60), type: 'death' }] })
+    expect(m.noData).toEqual([{ cause: KPI_NO_DATA.unseen, ms: 480 * MIN, occurrences: 1 }])
+    expect(m.downtime).toEqual([])
+    expect(m.pbtMs).toBe(0)
+    expect(kpiIndices({ pbt: m.pbtMs, apt: m.aptMs, pru: MIN, pq: 0, gq: 0 })).toEqual({ availability: null, effectiveness: null, qualityRatio: null, oee: null })
+    // Messages that never arrived: nothing known between the messages around them.
+    const gap = kpiTimeModel({ from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] }, events: [{ at: at(100), type: 'gap', until: at(130) }] })
+    expect(gap.noData).toEqual([{ cause: KPI_NO_DATA.missing, ms: 30 * MIN, occurrences: 1 }])
+    expect(gap.aptMs).toBe(450 * MIN)
+    expect(gap.pbtMs).toBe(450 * MIN)
+  })
+
+  it('a stop is booked to the fault its state names, then to the fault that became active at the stop', () => {
+    // The mist collector faulted first (the machine interrupted), then the cell's fire alarm stopped it.
+    const events: KpiMachineEvent[] = [
+      { at: at(240), type: 'fault-raised', fault: 'mist_collector_fault' },
+      { at: at(240), type: 'state', execution: 'INTERRUPTED', activeFaults: ['mist_collector_fault'], reason: 'fault: mist_collector_fault' },
+      { at: at(252), type: 'fault-raised', fault: 'fire_alarm' },
+      { at: at(252), type: 'state', execution: 'STOPPED', activeFaults: ['mist_collector_fault', 'fire_alarm'], reason: 'fault: fire_alarm' },
+    ]
+    const m = kpiTimeModel({ from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] }, events })
+    expect(m.downtime).toEqual([{ cause: 'fire_alarm', ms: 228 * MIN, occurrences: 1 }, { cause: 'mist_collector_fault', ms: 12 * MIN, occurrences: 1 }])
+    // Without a stated reason: the fault raised last, not the first in the list.
+    const plain = events.map((e) => (e.type === 'state' ? { ...e, reason: null } : e))
+    expect(kpiTimeModel({ from: t0, to: at(480), before: { execution: 'ACTIVE', activeFaults: [] }, events: plain }).downtime[0]).toEqual({ cause: 'fire_alarm', ms: 228 * MIN, occurrences: 1 })
+  })
+
+  it('only repaired failures count towards MTTR; open ones are listed apart (ISO 22400-2: MTTR = Σ TTR / FE)', () => {
+    const m = kpiTimeModel({
+      from: t0, to: at(480), before: { execution: 'INTERRUPTED', activeFaults: ['loader_jam'], reason: 'fault: loader_jam', since: at(-20) },
+      events: [
+        { at: at(10), type: 'state', execution: 'ACTIVE', activeFaults: [] }, // jammed since 20 min before the window: TTR 30 min
+        { at: at(100), type: 'state', execution: 'INTERRUPTED', activeFaults: ['coolant_fault'], reason: 'fault: coolant_fault' },
+        { at: at(115), type: 'state', execution: 'ACTIVE', activeFaults: [] }, // TTR 15 min
+        { at: at(300), type: 'state', execution: 'INTERRUPTED', activeFaults: ['empty_pallet'], reason: 'fault: empty_pallet' }, // still down at the end
+        { at: at(200), type: 'state', execution: 'INTERRUPTED', activeFaults: ['loader_jam'], reason: 'fault: loader_jam' },
+        { at: at(210), type: 'death' }, // shut down while jammed: repair time unknown
+        { at: at(250), type: 'birth', execution: 'ACTIVE' },
+      ],
+    })
+    const repaired = m.repairs.filter((r) => r.repaired)
+    expect(repaired.map((r) => [r.cause, (r.to - r.startedAt) / MIN])).toEqual([['loader_jam', 30], ['coolant_fault', 15]])
+    expect(m.repairs.filter((r) => !r.repaired).map((r) => [r.cause, r.end])).toEqual([['loader_jam', 'contact lost'], ['empty_pallet', 'still down']])
+    // MTTR = (30 + 15) / 2 = 22.5 min; before the fix the open failures were averaged in, cut at the window end
+    expect(kpiMttr(repaired.map((r) => r.to - r.startedAt))).toBe(22.5 * MIN)
   })
 
   it('merges downtime of several machines by cause', () => {
