@@ -430,12 +430,12 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
       : emptyTimeModel(from)
 
     // The jobs run, split at each job change, each with its own tolerance and ideal cycle time
-    const jobs = await jobRunsOf(db, m.id, { from, to }, mk, b, jobByPart, currentJob ?? null, { produced, good, scrapByReason })
-    const pruMissing = jobs.filter((j) => j.produced > 0 && j.cycleTimeS === null)
-    const plannedRunMs = jobs.reduce((a, j) => a + (j.cycleTimeS ?? 0) * 1000 * j.produced, 0)
+    const jobRuns = await jobRunsOf(db, m.id, { from, to }, mk, b, jobByPart, currentJob ?? null, { produced, good, scrapByReason })
+    const pruMissing = jobRuns.filter((j) => j.produced > 0 && j.cycleTimeS === null)
+    const plannedRunMs = jobRuns.reduce((a, j) => a + (j.cycleTimeS ?? 0) * 1000 * j.produced, 0)
     const pruSource = pruMissing.length ? `no cycle time known for ${pruMissing.map((j) => j.partNumber ?? 'the job without a part number').join(', ')}`
-      : [...new Set(jobs.filter((j) => j.cycleTimeS !== null).map((j) => j.pruSource))].join('; ') || 'no cycle time known'
-    const pru = produced > 0 ? plannedRunMs / produced : (jobs.find((j) => j.cycleTimeS !== null)?.cycleTimeS ?? 0) * 1000
+      : [...new Set(jobRuns.filter((j) => j.cycleTimeS !== null).map((j) => j.pruSource))].join('; ') || 'no cycle time known'
+    const pru = produced > 0 ? plannedRunMs / produced : (jobRuns.find((j) => j.cycleTimeS !== null)?.cycleTimeS ?? 0) * 1000
     const kpiInputs = { pbt: tm.pbtMs, apt: tm.aptMs, pru: pruMissing.length ? 0 : pru, pq: produced, gq: good, pruSource }
     const kpi = pruMissing.length || !pru ? { ...kpiIndices(kpiInputs), effectiveness: null, oee: null } : kpiIndices(kpiInputs)
 
@@ -467,7 +467,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
       points: thinnedSizes(mr),
       thinned: mr.n > REPORT_CHART_MAX_POINTS,
       lsl: tol?.lsl ?? null, usl: tol?.usl ?? null,
-      limits: jobs.map((j) => ({ from: j.from, to: j.to, partNumber: j.partNumber, lsl: j.lsl, usl: j.usl })),
+      limits: jobRuns.map((j) => ({ from: j.from, to: j.to, partNumber: j.partNumber, lsl: j.lsl, usl: j.usl })),
       offsets: compensation.offsetMarks,
       offsetsThinned: compensation.offsetsThinned,
       dresses: mk.filter((e) => e.type === 'dress').map((e) => ({ at: e.time, trigger: String((e.payload as { trigger?: string }).trigger ?? '') })),
@@ -476,8 +476,8 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
     }
     const { offsetMarks: _o, offsetsThinned: _t, ...comp } = compensation
     return {
-      id: m.id, name: m.name, partNumbers: [...byJob.keys()].filter(Boolean),
-      produced, good, scrap: scrapCount, scrapByReason, jobs,
+      id: m.id, name: m.name, partNumbers: [...new Set([...jobRuns.map((j) => j.partNumber ?? ''), ...byJob.keys()])].filter(Boolean),
+      produced, good, scrap: scrapCount, scrapByReason, jobs: jobRuns,
       kpiInputs, kpi, downtime: tm.downtime, plannedStopMs: tm.plannedDowntimeMs, noData: tm.noData, noDataMs: tm.noDataMs,
       repairs: tm.repairs, openFailures: tm.repairs.filter((r) => !r.repaired), mttrMs: repairedMttr(tm.repairs),
       capability, folded: hourLists.filter((h) => h.m === m.id).map((h) => foldedOf(h, jobInfo(h.job || (birth?.job?.partNumber ?? '')))), compensation: comp, chart,

@@ -99,7 +99,17 @@ export interface KpiDowntime { cause: string; ms: number; occurrences: number }
  * left the failure within the window (to run, hold, idle or a planned stop). Not repaired: still
  * down at the end (`ongoing`), or contact or data lost while down — the repair time is unknown.
  */
-export interface KpiRepair { cause: string; from: number; to: number; startedAt: number; ongoing: boolean; repaired: boolean; end: 'repaired' | 'still down' | 'contact lost' | 'no data' }
+export interface KpiRepair {
+  /** the fault that began it; `causes` every fault it was booked to in turn (a jam, then the coolant…) */
+  cause: string
+  causes: string[]
+  from: number
+  to: number
+  startedAt: number
+  ongoing: boolean
+  repaired: boolean
+  end: 'repaired' | 'still down' | 'contact lost' | 'no data'
+}
 
 export interface KpiTimeModel {
   from: number
@@ -243,7 +253,8 @@ export function kpiTimeModel(input: {
     }
     else lastCause = null
     if (seg.kind === 'down' && seg.failure) {
-      if (!openRepair) openRepair = { cause: seg.cause, from: at, to: at, startedAt, ongoing: true, repaired: false, end: 'still down' }
+      if (!openRepair) openRepair = { cause: seg.cause, causes: [seg.cause], from: at, to: at, startedAt, ongoing: true, repaired: false, end: 'still down' }
+      else if (openRepair.causes.at(-1) !== seg.cause) openRepair.causes.push(seg.cause)
       return
     }
     if (seg.kind === 'no-data') closeRepair(at, 'no data')

@@ -21,11 +21,12 @@ const seqs = new Map<string, number>()
 
 async function seed(machines: string[]) {
   await fx.db.insert(schema.cells).values({ id: 'cell-a', name: 'Cell A', timeZone: 'Europe/Berlin' })
-  await fx.db.insert(schema.jobs).values([
+  const jobs = await fx.db.insert(schema.jobs).values([
     { partNumber: 'PN-A', description: 'a', material: 'steel', method: 'through-feed', nominalMm: '10', upperTolNm: 4000, lowerTolNm: -4000, cycleTimeS: 60, createdAt: 0 },
     { partNumber: 'PN-B', description: 'b', material: 'steel', method: 'through-feed', nominalMm: '12', upperTolNm: 1000, lowerTolNm: -2000, cycleTimeS: 90, createdAt: 0 },
-  ] as never)
-  await fx.db.insert(schema.machines).values(machines.map((id, i) => ({ id, cellId: 'cell-a', name: id.toUpperCase(), model: 't', sortOrder: i, createdAt: 0 })))
+  ] as never).returning()
+  // each machine's job in the job list is PN-A (the server sets it when a job is assigned)
+  await fx.db.insert(schema.machines).values(machines.map((id, i) => ({ id, cellId: 'cell-a', name: id.toUpperCase(), model: 't', sortOrder: i, currentJobId: jobs[0]!.id, createdAt: 0 })))
 }
 
 /** Stores one machine message as ingest does (received `late` ms after its machine time). */

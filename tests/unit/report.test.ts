@@ -94,7 +94,7 @@ describe('overnight report from a simulated night', () => {
     expect(c.sigmaOverall!).toBeCloseTo(sampleStandardDeviation(values), 9)
     let mr = 0
     for (let i = 1; i < values.length; i++) mr += Math.abs(values[i]! - values[i - 1]!)
-    const within = mr / (values.length - 1) / 1.128 // d2(2) = 1.128 (reference-values §1)
+    const within = mr / (values.length - 1) / 1.128 // d2(2) = 2/√π = 1.128 (docs/report-time-model.md)
     expect(c.sigmaWithin!).toBeCloseTo(within, 3)
     // tolerance of LTP-1200-P is −8 … 0 µm
     expect(c.cp!).toBeCloseTo(8 / (6 * c.sigmaWithin!), 9)
