@@ -8,17 +8,16 @@
 //   npx tsx scripts/bench-engine.ts --no-write                    print only
 //   npx tsx scripts/bench-engine.ts --compare=<git rev>   also time the engine of that commit, runs interleaved
 //                                                         in the same process (same machine load for both)
-import { execFileSync } from 'node:child_process'
-import { mkdtempSync, writeFileSync } from 'node:fs'
-import { cpus, loadavg, tmpdir } from 'node:os'
-import { dirname, join, resolve } from 'node:path'
-import { fileURLToPath, pathToFileURL } from 'node:url'
+import { cpus, loadavg } from 'node:os'
+import { dirname, resolve } from 'node:path'
+import { fileURLToPath } from 'node:url'
 import * as current from '../shared/utils/compensation'
 import type { CompensationInput, CompensationState } from '../shared/utils/compensation'
 import { createSeededRandom } from '../shared/utils/random'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
+import { compensationEngineAt, type CompensationEngine } from './lib/engine-at'
 
-type Engine = Pick<typeof current, 'createCompensationState' | 'stepCompensation'>
+type Engine = CompensationEngine
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '..')
 
 const READINGS = 20_000
@@ -64,15 +63,6 @@ function run(engine: Engine, noise: Draw[]): { ms: number; steps: number; comman
   return { ms, steps, commands }
 }
 
-/** The engine file of an earlier commit, written next to a temporary copy with its imports pointing here. */
-async function engineAt(rev: string): Promise<Engine> {
-  const source = execFileSync('git', ['show', `${rev}:shared/utils/compensation.ts`], { cwd: root, encoding: 'utf8' })
-    .replace(/from '\.\/([\w-]+)'/g, (_m, name: string) => `from '${join(root, 'shared/utils', name)}'`)
-  const file = join(mkdtempSync(join(tmpdir(), 'owlshift-engine-')), 'compensation.ts')
-  writeFileSync(file, source)
-  return (await import(pathToFileURL(file).href)) as Engine
-}
-
 interface Figures { median: number; best: number; worst: number; steps: number; commands: number }
 
 function figures(results: ReturnType<typeof run>[]): Figures {
@@ -81,7 +71,7 @@ function figures(results: ReturnType<typeof run>[]): Figures {
 }
 
 const compareRev = arg('compare')
-const before = compareRev ? await engineAt(compareRev) : null
+const before = compareRev ? await compensationEngineAt(root, compareRev) : null
 const noise = draws(7)
 run(current, noise) // warm-up (JIT)
 if (before) run(before, noise)

@@ -24,7 +24,7 @@
 
 import {
   createPlant, plantChangeWheel, plantDress, plantGauge, plantGrind, plantMaster, plantOffsetInForce,
-  plantRequestOffset, plantSetGaugeFault, plantSetParams, plantSetRunning, plantWheelWornOut, type Plant,
+  plantRequestOffset, plantSetGaugeFault, plantSetUpOffset, plantSetParams, plantSetRunning, plantWheelWornOut, type Plant,
 } from '../shared/utils/plant'
 import { createSeededRandom, type SeededRandom } from '../shared/utils/random'
 import type {
@@ -234,7 +234,7 @@ export function createCell(options: CellOptions): Cell {
         commands: { applied: 0, rejected: 0, expired: 0 }, trueDev: welford(), measuredDev: welford(),
       },
     }
-    plant.offsetUm = spec.initialOffsetUm // the offset already in the control when the night starts
+    plantSetUpOffset(plant, 0, spec.initialOffsetUm) // the offset already in the control when the night starts
     return m
   })
   const byId = new Map(machines.map((m) => [m.id, m]))
@@ -363,7 +363,13 @@ export function createCell(options: CellOptions): Cell {
     const partsSinceDress = m.plant.partsSinceDress
     const result = plantDress(m.plant, now)
     m.stats.dresses++
-    event(m, { type: 'dress', trigger, ...(commandIds[0] ? { commandId: commandIds[0] } : {}), partsSinceDress, wheelDiameterMm: round3(result.wheelDiameterMm) })
+    // A control that changes its offset at a dress reports the offset it now has (docs/mqtt.md).
+    const offsetChanged = m.plant.params.dressOffset !== 'keeps'
+    if (offsetChanged) m.lastRequestedOffsetUm = result.offsetUm
+    event(m, {
+      type: 'dress', trigger, ...(commandIds[0] ? { commandId: commandIds[0] } : {}), partsSinceDress, wheelDiameterMm: round3(result.wheelDiameterMm),
+      ...(offsetChanged ? { offsetUm: round3(result.offsetUm) } : {}),
+    })
     if (plantWheelWornOut(m.plant)) raiseFault(m, 'wheel_worn_out', null, 'wheel at its minimum diameter')
   }
 
@@ -426,7 +432,9 @@ export function createCell(options: CellOptions): Cell {
       case 'master': master(m); break
       case 'wheel_change': {
         const r = plantChangeWheel(m.plant, now)
-        event(m, { type: 'wheel_change', wheelId: `${m.id}-W${now.toFixed(0)}`, wheelDiameterMm: round3(r.wheelDiameterMm) })
+        const offsetChanged = m.plant.params.dressOffset !== 'keeps'
+        if (offsetChanged) m.lastRequestedOffsetUm = r.offsetUm
+        event(m, { type: 'wheel_change', wheelId: `${m.id}-W${now.toFixed(0)}`, wheelDiameterMm: round3(r.wheelDiameterMm), ...(offsetChanged ? { offsetUm: round3(r.offsetUm) } : {}) })
         clearFault(m, 'wheel_worn_out')
         break
       }

@@ -3,13 +3,15 @@
 // This file only translates; every decision is the engine's.
 //   reading                 → engine reading (paired with the offset in force when that part was ground)
 //   ack of an offset        → "offset-applied" with the offset the machine reports in force
-//   dress / wheel_change / mastering / job_change events → the engine's events
+//   dress / wheel_change / mastering / job_change events → the engine's events (and any command
+//                             the event's decision gives: a dress's pre-correction)
 //   decision.command        → offset command (absolute newOffsetUm)
 //   decision.dress.now      → dress command (one at a time)
 //   decision.stop           → hold command (once)
 import {
-  createCompensationState, stepCompensation, type CompensationInput, type CompensationSettingsInput, type CompensationState,
+  createCompensationState, stepCompensation, type CompensationDecision, type CompensationInput, type CompensationSettingsInput, type CompensationState,
 } from '../shared/utils/compensation'
+import { wheelEventInput } from '../shared/utils/wheel-events'
 import type { BirthMessage, CommandMessage, SequencedMessage } from '../shared/utils/contract'
 import type { Cell } from './cell'
 import { commandFactory, type HeadlessController } from './headless'
@@ -69,10 +71,15 @@ export function createEngineController(options: EngineControllerOptions = {}): H
         return
       }
       if (message.kind === 'event') {
-        if (message.type === 'dress') { loop.dressPending = false; feed(machineId, loop, { type: 'dress', time }) }
-        else if (message.type === 'wheel_change') feed(machineId, loop, { type: 'wheel-change', time })
-        else if (message.type === 'mastering') feed(machineId, loop, { type: 'mastered', time })
-        return
+        let decision: CompensationDecision | null = null
+        if (message.type === 'dress') {
+          loop.dressPending = false
+          decision = feed(machineId, loop, wheelEventInput('dress', message, time))
+        }
+        else if (message.type === 'wheel_change') decision = feed(machineId, loop, wheelEventInput('wheel-change', message, time))
+        else if (message.type === 'mastering') decision = feed(machineId, loop, { type: 'mastered', time })
+        // An event's decision may command too: the pre-correction of a dress's predicted step.
+        return decision ? commandsOf(decision, loop, cell) : undefined
       }
       if (message.kind !== 'reading') return
       const decision = feed(machineId, loop, {
@@ -81,12 +88,16 @@ export function createEngineController(options: EngineControllerOptions = {}): H
         ...(message.roundnessUm != null ? { roundnessUm: message.roundnessUm } : {}),
         offsetInForceUm: message.offsetUm,
       })
-      const out: CommandMessage[] = []
-      if (decision.command) out.push(makeCommand(cell, 'offset', { offsetUm: round3(decision.command.newOffsetUm), reason: decision.reason.slice(0, 200) }, ttl))
-      if (decision.dress.now && !loop.dressPending) { loop.dressPending = true; out.push(makeCommand(cell, 'dress', { reason: (decision.dress.reason ?? 'dress due').slice(0, 200) }, ttl)) }
-      if (decision.stop && !loop.holdSent) { loop.holdSent = true; out.push(makeCommand(cell, 'hold', { reason: decision.reason.slice(0, 200) }, ttl)) }
-      return out
+      return commandsOf(decision, loop, cell)
     },
+  }
+
+  function commandsOf(decision: CompensationDecision, loop: MachineLoop, cell: Cell): CommandMessage[] {
+    const out: CommandMessage[] = []
+    if (decision.command) out.push(makeCommand(cell, 'offset', { offsetUm: round3(decision.command.newOffsetUm), reason: decision.reason.slice(0, 200) }, ttl))
+    if (decision.dress.now && !loop.dressPending) { loop.dressPending = true; out.push(makeCommand(cell, 'dress', { reason: (decision.dress.reason ?? 'dress due').slice(0, 200) }, ttl)) }
+    if (decision.stop && !loop.holdSent) { loop.holdSent = true; out.push(makeCommand(cell, 'hold', { reason: decision.reason.slice(0, 200) }, ttl)) }
+    return out
   }
 }
 

@@ -4,10 +4,13 @@
 import { readFileSync } from 'node:fs'
 import { z } from 'zod'
 import { faultCodes, mqttIdSchema } from '../shared/utils/contract'
-import { defaultPlantParams, type PlantParams } from '../shared/utils/plant'
+import { DRESS_OFFSET_BEHAVIOURS, defaultPlantParams, type PlantParams } from '../shared/utils/plant'
 
-const plantKeys = Object.keys(defaultPlantParams) as [keyof PlantParams, ...(keyof PlantParams)[]]
-const physicsSchema = z.strictObject(Object.fromEntries(plantKeys.map((k) => [k, z.number().optional()])) as Record<keyof PlantParams, z.ZodOptional<z.ZodNumber>>)
+const plantKeys = Object.keys(defaultPlantParams) as (keyof PlantParams)[]
+const physicsSchema = z.strictObject({
+  ...Object.fromEntries(plantKeys.map((k) => [k, z.number().optional()])),
+  dressOffset: z.enum(DRESS_OFFSET_BEHAVIOURS).optional(),
+}) as unknown as z.ZodType<Partial<PlantParams>>
 
 const jobSchema = z.strictObject({
   jobId: z.string().min(1).max(64),

@@ -7,9 +7,9 @@ import {
   decodeMachineMessage, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
-import { alarmEngineConditionHolds, alarmKindFor } from '#shared/utils/alarm-catalogue'
 import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from '#shared/utils/command-gate'
 import { stepCompensation, type CompensationDecision, type CompensationInput, type CompensationState } from '#shared/utils/compensation'
+import { wheelEventInput } from '#shared/utils/wheel-events'
 
 export interface Arrival {
   topic: string
@@ -288,9 +288,7 @@ export class IngestPipeline {
         // wakes people is "size will meet tolerance soon", raised from minutesAtRisk by notify.ts.
         for (const code of ENGINE_ALARM_CODES) {
           const alert = decision.alerts.find(a => a.code === code)
-          // Analogue conditions hold, once raised, until the offset has moved away from the limit (alarm-catalogue.ts).
-          const holds = !alert && w.reported.get(`engine:${code}`) === true && !!eng && alarmEngineConditionHolds(code, eng)
-          reportCondition(`engine:${code}`, !!alert || holds, () => `${ctx.name}: ${alert ? alert.message : `${alarmKindFor(`engine:${code}`).title.toLowerCase()} (still at the limit)`}`)
+          reportCondition(`engine:${code}`, !!alert, () => `${ctx.name}: ${alert!.message}`)
         }
         reportCondition('engine:stop-requested', decision.stop, () => `${ctx.name}: the engine asks to stop — ${decision.reason}`)
         effects.live.push({ type: 'decision', machineId: ctx.id, seq, action: actionOf(decision), reason: decision.reason, offsetUm: decision.offsetUm, correctionUm: decision.command?.correctionUm ?? null })
@@ -371,9 +369,9 @@ export class IngestPipeline {
           case 'part_unloaded': if (message.disposition === 'good') st.partsGood++; else st.partsScrap++; break
           case 'dress':
             delete w.outstanding.dress // whoever asked, the wheel is dressed
-            record(step({ type: 'dress', time }, message.seq), message.seq)
+            record(step(wheelEventInput('dress', message, time), message.seq), message.seq)
             break
-          case 'wheel_change': record(step({ type: 'wheel-change', time }, message.seq), message.seq); break
+          case 'wheel_change': record(step(wheelEventInput('wheel-change', message, time), message.seq), message.seq); break
           case 'mastering': record(step({ type: 'mastered', time }, message.seq), message.seq); break
           case 'job_change':
             st.jobPartNumber = message.job.partNumber

@@ -3,7 +3,7 @@
 // Units: every size, limit and deviation is µm of DIAMETER deviation from nominal; every offset
 // (max step, budget since dress, allowed range, minimum step) is µm of AXIS offset. A positive
 // offset makes parts larger by gain × offset. Defaults marked "common practice" come from the
-// trade (reference-values §11), not from a published source.
+// trade (docs/compensation.md, "Sources and trade facts"), not from a published source.
 import { z } from 'zod'
 
 const finite = z.number()
@@ -12,6 +12,11 @@ const parts = (min: number, max: number) => z.number().int().min(min).max(max)
 
 export const COMPENSATION_STRATEGIES = ['none', 'step', 'ewma', 'drift'] as const
 export type CompensationStrategy = (typeof COMPENSATION_STRATEGIES)[number]
+
+/** What a machine does to its wheel offset at a dress: keeps it, gives back what was taken since
+ *  the last dress, or resets it to a value it reports. */
+export const DRESS_MACHINE_OFFSET = ['keeps', 'gives-back', 'resets'] as const
+export type DressMachineOffset = (typeof DRESS_MACHINE_OFFSET)[number]
 
 export const compensationSettingsSchema = z
   .object({
@@ -37,7 +42,7 @@ export const compensationSettingsSchema = z
     drift: z
       .object({
         /** level weight λ1 and slope weight λ2 of the double EWMA: at ξ = 1 the closed loop has
-         *  the poles 1 − λ1 and 1 − λ2 (reference-values §9); defaults tuned by npm run bench:control */
+         *  the poles 1 − λ1 and 1 − λ2 (docs/compensation.md, "Sources"); defaults tuned by npm run bench:control */
         levelWeight: z.number().gt(0).max(1).default(0.15),
         slopeWeight: z.number().gt(0).max(1).default(0.02),
       })
@@ -70,14 +75,16 @@ export const compensationSettingsSchema = z
         runForGaugeSuspect: parts(1, 100).default(3),
       })
       .prefault({}),
-    /** parts without commands after each event; dress, wheel change, job change and restart
-     *  are raised to at least the pipeline so parts ground before the event never steer */
+    /** readings without feedback commands after each event; dress, wheel change, job change and
+     *  restart are raised to at least the pipeline, so parts ground before the event never steer.
+     *  0 (the default) = the pipeline only: the first part ground after the event is used at once
+     *  (docs/compensation.md, "Through a dress") */
     holdParts: z
       .object({
-        dress: parts(0, 1000).default(4),
-        wheelChange: parts(0, 1000).default(8),
-        jobChange: parts(0, 1000).default(8),
-        restart: parts(0, 1000).default(4),
+        dress: parts(0, 1000).default(0),
+        wheelChange: parts(0, 1000).default(0),
+        jobChange: parts(0, 1000).default(0),
+        restart: parts(0, 1000).default(0),
         mastered: parts(0, 1000).default(1),
       })
       .prefault({}),
@@ -92,7 +99,11 @@ export const compensationSettingsSchema = z
         wearBudgetUm: positive.default(6),
         /** smoothed roundness above this asks for a dress (µm); optional */
         roundnessLimitUm: positive.optional(),
-        /** learn the size step a dress causes and pre-correct it at the next dress */
+        /** what the machine does to its wheel offset at a dress or wheel change when it does not
+         *  report the new offset: keeps it, gives back the offset taken since the last dress, or
+         *  resets it (docs/compensation.md, "Through a dress") */
+        machineOffset: z.enum(DRESS_MACHINE_OFFSET).default('keeps'),
+        /** learn how far each dress's predicted step was off and add it to the next prediction */
         learnStep: z.boolean().default(true),
       })
       .prefault({}),

@@ -5,7 +5,7 @@
 //   let state = createCompensationState(settings, { offsetUm })
 //   const { state: next, decision } = stepCompensation(state, input)   // input: reading or event
 //
-// Model (design.md "Compensation"): measured deviation y_k = a_k + b·u_k + e_k with a the drifting
+// Model (docs/compensation.md): measured deviation y_k = a_k + b·u_k + e_k with a the drifting
 // disturbance, u the axis offset in force when part k was GROUND and b the gain. Each reading is
 // paired with that offset: the engine keeps the offsets in force at the arrival of the last
 // d readings (d = pipeline parts), because a command sent now first reaches the reading d + 1
@@ -41,7 +41,7 @@ export interface CompensationReading {
 
 export type CompensationEvent =
   | { type: 'offset-applied'; offsetUm: number; time?: number }
-  | { type: 'dress'; offsetUm?: number; time?: number }
+  | { type: 'dress'; offsetUm?: number; partsSinceDress?: number; time?: number }
   | { type: 'wheel-change'; offsetUm?: number; time?: number }
   | { type: 'job-change'; settings?: CompensationSettingsInput; offsetUm?: number; time?: number }
   | { type: 'mastered'; time?: number }
@@ -58,7 +58,8 @@ export interface CompensationState {
   settings: CompensationSettings
   /** offset believed in force now (axis µm): our last command, or what the machine reported */
   offsetUm: number
-  /** offset at the last dress (the budget since dress is measured from it) */
+  /** offset in force just after the last dress, before any pre-correction: the budget since dress
+   *  is measured from it, and a machine that gives back its offset at a dress returns to it */
   offsetAtDressUm: number
   /** offsets in force at the arrival of the last d readings, oldest first */
   offsetRing: number[]
@@ -85,6 +86,9 @@ export interface CompensationState {
   outlierSamples: number[]
   invalidRun: number
   outOfToleranceRun: number
+  /** consecutive rejects, forgiven ones included (they count after all if the allowance ends
+   *  because the step is beyond what the bounds allow) */
+  rejectRun: number
   /** readings of parts ground before the last event: not used */
   flushRemaining: number
   holdRemaining: number
@@ -94,10 +98,34 @@ export interface CompensationState {
   /** learning phase after a start or an event, and its readings (projected to the latest part) */
   learning: boolean
   learnSamples: number[]
-  /** learning the size step of a dress: projected pre-dress level at the first post-dress part */
+  /** the offset each of those parts was ground with (a gain mismatch moves r with the offset) */
+  learnOffsets: number[]
+  /** exponentially weighted least-squares sums of the disturbance against the parts since the last
+   *  dress [Σw, Σw·n, Σw·n², Σw·r, Σw·n·r]: the wear rate a dress will take back (wearRateFit) */
+  wearFit: number[]
+  /** the size step predicted for the pending dress (µm, on the disturbance), its spread, and its
+   *  wear part; kept until the first post-dress reading has used it */
+  stepPriorUm: number | null
+  stepPriorSigmaUm: number
+  dressWearPredictedUm: number | null
+  /** while learning: the predicted level (moved along like the samples) and its weight in readings */
+  learnPriorUm: number | null
+  learnPriorWeight: number
+  /** projected pre-dress level at the first post-dress part (for the observed step) */
   dressStepBase: number | null
-  dressStepUm: number | null
+  /** learnt from earlier dresses: how far the observed step was from −(predicted wear), on average,
+   *  and the mean square error of the whole prediction (µm²) */
+  dressStepErrorUm: number | null
+  dressStepErrorSqUm2: number | null
   dressStepCount: number
+  /** `readings` at the last step event (null: no event window open), and the readings (first and
+   *  last, counted like `readings`) whose parts were ground after an event before a correction
+   *  could land: their rejects do not count toward the stop (docs: "The stop rule") */
+  eventAtReading: number | null
+  graceFromReading: number
+  graceToReading: number
+  graceFixed: boolean
+  graceValid: boolean
   /** disturbance level learnt just after the last dress (start of the wear budget) */
   levelAtDressUm: number | null
   cycleTimeS: number
@@ -193,15 +221,29 @@ export function createCompensationState(settings: CompensationSettingsInput | Co
     outlierSamples: [],
     invalidRun: 0,
     outOfToleranceRun: 0,
+    rejectRun: 0,
     flushRemaining: 0,
     holdRemaining: 0,
     holdReason: null,
     relearnPending: null,
     learning: false,
     learnSamples: [],
+    learnOffsets: [],
+    wearFit: [0, 0, 0, 0, 0],
+    stepPriorUm: null,
+    stepPriorSigmaUm: 0,
+    dressWearPredictedUm: null,
+    learnPriorUm: null,
+    learnPriorWeight: 0,
     dressStepBase: null,
-    dressStepUm: null,
+    dressStepErrorUm: null,
+    dressStepErrorSqUm2: null,
     dressStepCount: 0,
+    eventAtReading: null,
+    graceFromReading: 0,
+    graceToReading: 0,
+    graceFixed: false,
+    graceValid: false,
     levelAtDressUm: null,
     cycleTimeS: s.cycleTimeS,
     roundnessUm: null,
@@ -216,9 +258,11 @@ export function restoreCompensationState(json: unknown): CompensationState {
   if (st.version !== COMPENSATION_STATE_VERSION) throw new Error(`compensation state: unknown version ${String(st.version)}`)
   parseCompensationSettings(st.settings)
   if (!Number.isFinite(st.offsetUm) || !Array.isArray(st.offsetRing)) throw new Error('compensation state: offset fields are missing or not numbers')
-  // Fields added since the state was stored get their fresh values; stored fields win.
+  // Fields added since the state was stored get their fresh values; stored fields win. The learnt
+  // raw dress step of states stored before the step was predicted means something else now: dropped.
   const fresh = createCompensationState(st.settings, { offsetUm: st.offsetUm })
-  return structuredClone({ ...fresh, ...st })
+  const { dressStepUm: _legacy, ...stored } = st as CompensationState & { dressStepUm?: unknown }
+  return structuredClone({ ...fresh, ...stored })
 }
 
 // ---------------------------------------------------------------- stepping
@@ -242,7 +286,7 @@ export function stepCompensation(state: CompensationState, input: CompensationIn
 
 // The step works on a copy, so the caller's state is never changed. The copy is made by hand (a
 // structuredClone per reading was most of the engine's time). What the step changes in place:
-// the top-level fields and the arrays offsetRing, stepWindow, learnSamples (copied here).
+// the top-level fields and the arrays offsetRing, stepWindow, learnSamples, learnOffsets, wearFit (copied here).
 // Shared with the input, never changed in place: `settings` (replaced whole on a job change),
 // `outlierSamples` (always replaced), `residuals` (replaced by appendResidual, so that its sorted
 // copy for the robust σ can be kept per array). tests/unit/compensation-frozen.test.ts steps a
@@ -254,6 +298,8 @@ function copyState(state: CompensationState): CompensationState {
     st.offsetRing = state.offsetRing.slice()
     st.stepWindow = state.stepWindow.slice()
     st.learnSamples = state.learnSamples.slice()
+    st.learnOffsets = state.learnOffsets.slice()
+    st.wearFit = state.wearFit.slice()
     return st
   }
   // Field for field, in the order createCompensationState gives (the JSON of the state keeps it).
@@ -279,15 +325,29 @@ function copyState(state: CompensationState): CompensationState {
     outlierSamples: state.outlierSamples,
     invalidRun: state.invalidRun,
     outOfToleranceRun: state.outOfToleranceRun,
+    rejectRun: state.rejectRun,
     flushRemaining: state.flushRemaining,
     holdRemaining: state.holdRemaining,
     holdReason: state.holdReason,
     relearnPending: state.relearnPending,
     learning: state.learning,
     learnSamples: state.learnSamples.slice(),
+    learnOffsets: state.learnOffsets.slice(),
+    wearFit: state.wearFit.slice(),
+    stepPriorUm: state.stepPriorUm,
+    stepPriorSigmaUm: state.stepPriorSigmaUm,
+    dressWearPredictedUm: state.dressWearPredictedUm,
+    learnPriorUm: state.learnPriorUm,
+    learnPriorWeight: state.learnPriorWeight,
     dressStepBase: state.dressStepBase,
-    dressStepUm: state.dressStepUm,
+    dressStepErrorUm: state.dressStepErrorUm,
+    dressStepErrorSqUm2: state.dressStepErrorSqUm2,
     dressStepCount: state.dressStepCount,
+    eventAtReading: state.eventAtReading,
+    graceFromReading: state.graceFromReading,
+    graceToReading: state.graceToReading,
+    graceFixed: state.graceFixed,
+    graceValid: state.graceValid,
     levelAtDressUm: state.levelAtDressUm,
     cycleTimeS: state.cycleTimeS,
     roundnessUm: state.roundnessUm,
@@ -307,7 +367,7 @@ function hasStateLayout(state: CompensationState): boolean {
   return keys.length === stateKeys.length && keys.every((k, i) => k === stateKeys![i])
 }
 
-const STATE_FIELDS_COPIED = new Set<string>(['offsetRing', 'stepWindow', 'learnSamples'])
+const STATE_FIELDS_COPIED = new Set<string>(['offsetRing', 'stepWindow', 'learnSamples', 'learnOffsets', 'wearFit'])
 const STATE_FIELDS_SHARED = new Set<string>(['settings', 'outlierSamples', 'residuals'])
 
 /**
@@ -439,10 +499,15 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   const yv = y as number
   st.invalidRun = 0
 
-  // Stop rule: M consecutive parts out of tolerance (outliers count: the part is a reject either way).
+  // Stop rule: M consecutive parts out of tolerance (outliers count: the part is a reject either way),
+  // except parts ground after a step event before a correction could land (docs: "The stop rule").
   const outOfTolerance = yv > s.upperSpecUm || yv < s.lowerSpecUm
-  st.outOfToleranceRun = outOfTolerance ? st.outOfToleranceRun + 1 : 0
-  if (typeof r.roundnessUm === 'number' && Number.isFinite(r.roundnessUm) && r.roundnessUm >= 0) {
+  const expectedReject = outOfTolerance && inGraceWindow(st)
+  if (!expectedReject) st.outOfToleranceRun = outOfTolerance ? st.outOfToleranceRun + 1 : 0
+  st.rejectRun = outOfTolerance ? st.rejectRun + 1 : 0
+  // Parts ground before the last event say nothing of the wheel as it is now (a dress restores its roundness).
+  const preEventPart = st.flushRemaining > 0
+  if (!preEventPart && typeof r.roundnessUm === 'number' && Number.isFinite(r.roundnessUm) && r.roundnessUm >= 0) {
     st.roundnessUm = st.roundnessUm === null ? r.roundnessUm : st.roundnessUm + 0.1 * (r.roundnessUm - st.roundnessUm)
   }
 
@@ -453,18 +518,35 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   let levelShift = false
   let estimateNote = ''
 
-  if (st.flushRemaining > 0) {
+  if (preEventPart) {
     // Ground before the last event: says nothing about the machine as it is now.
     st.flushRemaining--
     timeUpdate(st)
     usable = false
     estimateNote = 'part ground before the last event, not used'
   } else if (st.level === null || st.relearnPending !== null || st.learning) {
-    const r = learnReading(st, disturbance)
+    const r = learnReading(st, disturbance, offsetForPart)
     outlier = r.outlier
     usable = !r.outlier && r.consistent
     estimateNote = r.note
-    if (r.outlier) st.outlierRun++
+    if (r.outlier) {
+      st.outlierRun++
+      st.outlierSamples = [...st.outlierSamples.map((v) => v + st.slope), disturbance].slice(-(s.outliers.runForGaugeSuspect + 2))
+      const shift = acceptedLevelShift(st, robustSigma(st))
+      if (shift !== null) {
+        // Readings that agree among themselves but not with the first ones: learn from them instead.
+        st.learnSamples = st.outlierSamples.slice()
+        st.learnOffsets = st.learnSamples.map(() => offsetForPart)
+        st.level = shift
+        st.ewmaLevel = shift
+        st.outlierRun = 0
+        st.outlierSamples = []
+        outlier = false
+        usable = true
+        levelShift = true
+        estimateNote = `learning: ${s.outliers.runForGaugeSuspect + 2} consistent readings away from the first ones, learning from them`
+      }
+    }
   } else {
     const predicted = st.level + st.slope
     const residual = disturbance - predicted
@@ -511,6 +593,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
     st.outlierRun = 0
     st.outlierSamples = []
   }
+  if (usable) addWearFitPoint(st, disturbance)
 
   let holdReason = consumeHold(st)
   const alerts: CompensationAlert[] = []
@@ -537,12 +620,15 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   let command: CompensationCommand | null = null
   let limitedBy: CompensationCommand['limitedBy'] = []
   let why = ''
-  if (holdReason !== null) {
+  // While the parts ground before a dress pass the gauge, the predicted step goes on being
+  // corrected (a step larger than maxStepUm is spread over these parts).
+  const preCorrection = preEventPart && st.stepPriorUm !== null ? preCorrectionOffset(st) : null
+  if (holdReason !== null && preCorrection === null) {
     why = `hold: ${holdReason}`
-  } else if (!usable) {
+  } else if (!usable && preCorrection === null) {
     why = `no command: ${estimateNote}`
   } else {
-    const desired = desiredOffset(st, stepMean)
+    const desired = preCorrection ?? desiredOffset(st, stepMean)
     if (desired === null) why = s.strategy === 'none' ? 'monitor only (strategy none)' : 'within compensation limits'
     else {
       const bounded = boundedCommand(st, desired.offsetUm)
@@ -560,12 +646,22 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
         }
         why = `${desired.why} → offset ${fmt(c.newOffsetUm)} µm (Δ ${fmt(c.offsetDeltaUm)})${c.limitedBy.length ? ` limited by ${c.limitedBy.join(', ')}` : ''}`
       }
+      if (preCorrection !== null && holdReason !== null) why = `hold: ${holdReason}; ${why}`
     }
+  }
+  if (st.eventAtReading !== null) {
+    if (limitedBy.includes('budget-since-dress') || limitedBy.includes('offset-range')) {
+      // The step is beyond what the bounds allow: the rejects forgiven so far count after all.
+      if (st.graceValid) st.outOfToleranceRun = st.rejectRun
+      st.graceValid = false
+    } else if (usable && !st.graceFixed && st.readings > st.eventAtReading + s.pipelineParts) fixGraceWindow(st, command)
   }
   if (estimateNote && holdReason === null && usable) why = `${estimateNote}; ${why}`
   const stop = st.outOfToleranceRun >= s.stopAfterOutOfTolerance
   if (stop) why = `STOP: ${st.outOfToleranceRun} consecutive parts out of tolerance; ${why}`
+  if (expectedReject) notes.push('out of tolerance, ground before the correction after the event could land: not counted toward the stop')
   if (notes.length) why = `${why}; ${notes.join('; ')}`
+  closeGraceWindowIfDone(st)
 
   Object.assign(inputs, {
     levelUm: st.level,
@@ -574,6 +670,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
     stepMeanUm: stepMean,
     outOfTolerance,
     outlier,
+    ...(expectedReject ? { expectedReject: true } : {}),
   })
   const d = finish(st, limitedBy, alerts)
   return {
@@ -603,6 +700,142 @@ function consumeHold(st: CompensationState): string | null {
   st.holdRemaining--
   if (st.holdRemaining === 0) st.holdReason = null
   return reason
+}
+
+// ---------------------------------------------------------------- step events (dress, wheel change, restart, job change)
+
+/**
+ * Opens the window after a step event: the next d readings are parts ground before it; until the
+ * first post-event reading fixes it, the d + 1 parts ground before that reading's command can land
+ * are forgiven. A window still open from an earlier event (a stop soon after a dress) is kept.
+ */
+function openEventWindow(st: CompensationState): void {
+  const d = st.settings.pipelineParts
+  const r = st.readings
+  let from = r + d + 1
+  let to = r + 2 * d + 1
+  if (st.eventAtReading !== null && st.graceValid && st.graceToReading > r) {
+    from = Math.min(from, st.graceFromReading)
+    to = Math.max(to, st.graceToReading)
+  }
+  st.eventAtReading = r
+  st.graceFromReading = from
+  st.graceToReading = to
+  st.graceFixed = false
+  st.graceValid = true
+}
+
+/** Whether this reading's part was ground after an event but before a correction could land. */
+function inGraceWindow(st: CompensationState): boolean {
+  return st.eventAtReading !== null && st.graceValid && st.readings >= st.graceFromReading && st.readings <= st.graceToReading
+}
+
+/**
+ * At the first usable post-event reading (R readings after the event): its command lands on the
+ * part ground next, and a correction larger than maxStepUm takes c commands, one a reading; parts
+ * ground until then (readings up to R − 1 + d + c) are expected rejects. If the first usable
+ * reading comes too late, there is no allowance at all.
+ */
+function fixGraceWindow(st: CompensationState, command: CompensationCommand | null): void {
+  const s = st.settings
+  const d = s.pipelineParts
+  st.graceFixed = true
+  if (st.readings - st.eventAtReading! > d + s.outliers.runForGaugeSuspect) {
+    st.graceValid = false
+    return
+  }
+  const wish = command === null ? 0 : Math.abs(command.offsetDeltaUm) + (command.limitedBy.includes('max-step') ? Math.abs(desiredGap(st)) : 0)
+  // At most what the budget since dress allows: a wish beyond it is cut (and ends the allowance).
+  const commands = Math.min(Math.max(1, Math.ceil(wish / s.maxStepUm - 1e-9)), Math.ceil((2 * s.maxSinceDressUm) / s.maxStepUm))
+  st.graceToReading = Math.max(st.graceToReading, st.readings - 1 + d + commands)
+}
+
+
+/** How far the offset still is from the strategy's wish (axis µm), after the command just sent. */
+function desiredGap(st: CompensationState): number {
+  const wish = desiredOffset(st, null)
+  return wish === null ? 0 : wish.offsetUm - st.offsetUm
+}
+
+function closeGraceWindowIfDone(st: CompensationState): void {
+  if (st.eventAtReading === null) return
+  if (!st.graceValid || (st.graceFixed && st.readings >= st.graceToReading)) st.eventAtReading = null
+}
+
+/**
+ * The size step a dress will cause, on the disturbance (µm of diameter): the wheel's working surface
+ * goes back to the dresser, so the wear since the last dress disappears. The wear is the slope
+ * (wear direction only) times the parts ground since the last dress — the rest of the level change
+ * since then is warm-up, which a dress does not touch — plus what earlier dresses taught (a
+ * break-in, a dresser that leaves the wheel a little off). Spread: learnt from earlier dresses, or
+ * half the wear and a micron of dress error (common practice) until then.
+ */
+function predictDressStep(st: CompensationState, partsSinceDress: number | undefined): { stepUm: number; sigmaUm: number; wearUm: number; learntUm: number } {
+  const s = st.settings
+  const parts = partsSinceDress !== undefined && Number.isInteger(partsSinceDress) && partsSinceDress >= 0 ? partsSinceDress : st.partsSinceDress
+  const wearUm = Math.max(0, wearRateFit(st) ?? st.slope) * parts
+  const learntUm = s.dress.learnStep && st.dressStepErrorUm !== null ? st.dressStepErrorUm : 0
+  const sigmaUm = s.dress.learnStep && st.dressStepErrorSqUm2 !== null && st.dressStepCount >= 2
+    ? Math.sqrt(st.dressStepErrorSqUm2)
+    : Math.hypot(0.5 * wearUm, DRESS_ERROR_SIGMA_UM)
+  return { stepUm: -wearUm + learntUm, sigmaUm, wearUm, learntUm }
+}
+
+/**
+ * The wear rate since the last dress (µm per part): the slope of an exponentially weighted
+ * least-squares line through the disturbance of the readings used, against the parts since the
+ * dress, over about the last WEAR_FIT_MEMORY parts — much less noisy than the controller's own
+ * slope, which must follow quickly, and late enough in the interval that warm-up has mostly
+ * settled. Null until about 20 readings are in.
+ */
+function wearRateFit(st: CompensationState): number | null {
+  const [s0, s1, s2, sy, sny] = st.wearFit as [number, number, number, number, number]
+  if (s0 < 20) return null
+  const den = s0 * s2 - s1 * s1
+  return den > 1e-9 ? (s0 * sny - s1 * sy) / den : null
+}
+
+const WEAR_FIT_MEMORY = 200
+
+function addWearFitPoint(st: CompensationState, disturbance: number): void {
+  const l = 1 - 1 / WEAR_FIT_MEMORY
+  const n = st.partsSinceDress
+  const f = st.wearFit
+  st.wearFit = [f[0]! * l + 1, f[1]! * l + n, f[2]! * l + n * n, f[3]! * l + disturbance, f[4]! * l + n * disturbance]
+}
+
+export interface CompensationDressOutlook {
+  /** what the setting says the machine does to its offset at a dress */
+  machineOffset: CompensationSettings['dress']['machineOffset']
+  partsSinceDress: number
+  /** the size step a dress now would cause (µm of diameter), null before the level is known */
+  stepUm: number | null
+  wearUm: number
+  /** what earlier dresses taught (added to −wear), and from how many */
+  learntUm: number
+  dressesLearnt: number
+}
+
+/** What a dress now would do, as the engine sees it (the machine page shows it). */
+export function compensationDressOutlook(state: CompensationState): CompensationDressOutlook {
+  const p = predictDressStep(state, undefined)
+  return {
+    machineOffset: state.settings.dress.machineOffset, partsSinceDress: state.partsSinceDress,
+    stepUm: state.level === null ? null : p.stepUm, wearUm: p.wearUm, learntUm: p.learntUm, dressesLearnt: state.dressStepCount,
+  }
+}
+
+/** A dress leaves a size error of its own of about a micron (common practice). */
+const DRESS_ERROR_SIGMA_UM = 1
+
+/** The offset for the parts ground after a dress: the strategy's aim with the predicted step added. */
+function preCorrectionOffset(st: CompensationState): { offsetUm: number; why: string } | null {
+  const s = st.settings
+  if (st.stepPriorUm === null) return null
+  const ahead = s.strategy === 'drift' && st.level !== null ? st.level + (s.pipelineParts + 1) * st.slope
+    : s.strategy === 'ewma' && st.ewmaLevel !== null ? st.ewmaLevel : null
+  if (ahead === null) return null
+  return { offsetUm: (s.targetUm - ahead - st.stepPriorUm) / s.gain, why: `pre-correct the predicted dress step ${fmt(st.stepPriorUm)} µm` }
 }
 
 function desiredOffset(st: CompensationState, stepMean: number | null): { offsetUm: number; why: string } | null {
@@ -736,23 +969,32 @@ function timeUpdate(st: CompensationState): void {
   if (st.learning) {
     st.learnSamples = st.learnSamples.map((v) => v + st.slope)
     if (st.dressStepBase !== null) st.dressStepBase += st.slope
+    if (st.learnPriorUm !== null) st.learnPriorUm += st.slope
   }
 }
 
 /**
  * Learning the level after a start or an event: the first readings are averaged, robustly — a
  * single outlier among them must not set the level (median screen from the third reading, a
- * disagreeing pair gives no command). The slope is kept (and not updated) meanwhile.
+ * disagreeing pair gives no command). After a dress the predicted level is a prior worth
+ * σ²/σ_pred² readings: the first post-dress reading is used at once if it agrees with the
+ * prediction; one that does not waits for a second, which tells which of the two was wrong.
+ * The slope is kept (and not updated) meanwhile.
  */
-function learnReading(st: CompensationState, disturbance: number): { outlier: boolean; consistent: boolean; note: string } {
+function learnReading(st: CompensationState, disturbance: number, offsetForPart: number): { outlier: boolean; consistent: boolean; note: string } {
   const s = st.settings
   const sigma = robustSigma(st)
   const k = s.outliers.k
   let note: string
   if (st.level === null || st.relearnPending !== null) {
     const kind = st.relearnPending
-    st.dressStepBase = kind === 'dress' && st.level !== null ? st.level + st.slope : null
+    const projected = st.level !== null ? st.level + st.slope : null
+    st.dressStepBase = kind === 'dress' ? projected : null
+    st.learnPriorUm = kind === 'dress' && projected !== null && st.stepPriorUm !== null ? projected + st.stepPriorUm : null
+    st.learnPriorWeight = st.learnPriorUm === null ? 0 : sigma ** 2 / Math.max(st.stepPriorSigmaUm, sigma) ** 2
+    st.stepPriorUm = null
     st.learnSamples = []
+    st.learnOffsets = []
     st.learning = true
     st.relearnPending = null
     st.stepWindow = []
@@ -762,35 +1004,82 @@ function learnReading(st: CompensationState, disturbance: number): { outlier: bo
     timeUpdate(st)
     note = `learning the level (${st.learnSamples.length + 1} readings)`
   }
+  const prior = st.learnPriorUm
+  const priorSpread = k * Math.hypot(sigma, st.stepPriorSigmaUm)
+  const agreesWithPrior = (v: number) => prior !== null && Math.abs(v - prior) <= priorSpread
+  // As in the outlier screen: an offset change between parts moves r when the model gain is off.
+  const slack = (u: number) => (st.learnOffsets.length ? 0.5 * s.gain * Math.abs(u - median(st.learnOffsets)) : 0)
   if (st.learnSamples.length >= 3) {
     const med = median(st.learnSamples)
-    if (Math.abs(disturbance - med) > k * sigma) {
+    if (Math.abs(disturbance - med) > k * sigma + slack(offsetForPart)) {
       return { outlier: true, consistent: false, note: `outlier while learning: ${fmt(disturbance - med)} µm from the median, not used` }
     }
   }
+  let consistent = true
+  const pairDisagrees = st.learnSamples.length === 1 && Math.abs(st.learnSamples[0]! - disturbance) > k * sigma * Math.SQRT2 + slack(offsetForPart)
+  if (prior !== null && pairDisagrees) {
+    // Two readings that disagree: the one that agrees with the prediction stands.
+    const first = st.learnSamples[0]!
+    if (agreesWithPrior(disturbance) && !agreesWithPrior(first)) {
+      st.learnSamples = []
+      st.learnOffsets = []
+      note += '; the first post-dress reading was far from the prediction and this one: not used'
+    } else if (agreesWithPrior(first) && !agreesWithPrior(disturbance)) {
+      return { outlier: true, consistent: false, note: `outlier while learning: ${fmt(disturbance - first)} µm from the first post-dress reading and far from the prediction, not used` }
+    } else consistent = false
+  } else if (pairDisagrees) consistent = false
   st.learnSamples.push(disturbance)
+  st.learnOffsets.push(offsetForPart)
   const n = st.learnSamples.length
   const med = median(st.learnSamples)
-  const kept = n >= 3 ? st.learnSamples.filter((v) => Math.abs(v - med) <= k * sigma) : st.learnSamples
-  st.level = kept.reduce((a, v) => a + v, 0) / kept.length
+  const medOffset = median(st.learnOffsets)
+  const kept = n >= 3 ? st.learnSamples.filter((v, i) => Math.abs(v - med) <= k * sigma + 0.5 * s.gain * Math.abs(st.learnOffsets[i]! - medOffset)) : st.learnSamples
+  const mean = kept.reduce((a, v) => a + v, 0) / kept.length
+  // The prediction counts while the readings agree with it; readings that agree among themselves
+  // against it mean the step was not what was predicted, and the prediction is dropped.
+  if (prior !== null && (n >= 2 && consistent) && !agreesWithPrior(mean)) st.learnPriorWeight = 0
+  const w = prior !== null ? st.learnPriorWeight : 0
+  if (n === 1 && prior !== null && !agreesWithPrior(disturbance)) {
+    st.level = prior
+    consistent = false
+    note += `; far from the predicted level (${fmt(disturbance - prior)} µm), waiting for a second reading`
+  } else {
+    st.level = (w * (prior ?? 0) + mean * kept.length) / (w + kept.length)
+  }
+  if (!consistent && n === 2) note += '; first two readings disagree, waiting for a third'
   st.ewmaLevel = st.level
   st.learnCount = n
-  const consistent = n !== 2 || Math.abs(st.learnSamples[0]! - st.learnSamples[1]!) <= k * sigma * Math.SQRT2
-  if (!consistent) note += '; first two readings disagree, waiting for a third'
   if (n >= learnLength(s)) {
     st.learning = false
     st.learnSamples = []
+    st.learnOffsets = []
+    st.learnPriorUm = null
     if (st.levelAtDressUm === null) st.levelAtDressUm = st.level
-    if (st.dressStepBase !== null) {
-      // Level now vs. where the pre-dress level would have gone: the size step of this dress.
-      const step = st.level - st.dressStepBase
-      st.dressStepUm = st.dressStepUm === null ? step : st.dressStepUm + 0.3 * (step - st.dressStepUm)
-      st.dressStepCount++
-      st.dressStepBase = null
-    }
+    if (st.dressStepBase !== null && s.dress.learnStep) learnDressStep(st, st.level - st.dressStepBase)
+    st.dressStepBase = null
+    st.dressWearPredictedUm = null
   }
   return { outlier: false, consistent, note }
 }
+
+/**
+ * After the re-learning of a dress: the step observed (level now vs. where the pre-dress level
+ * would have gone) teaches how far −(predicted wear) is off, and how good the whole prediction was.
+ */
+function learnDressStep(st: CompensationState, observedUm: number): void {
+  const wear = st.dressWearPredictedUm ?? 0
+  const offWear = observedUm + wear
+  const predicted = -wear + (st.dressStepErrorUm ?? 0)
+  const errorSq = (observedUm - predicted) ** 2
+  // From zero, not from the first dress: one dress's own error (about a micron) must not be taken
+  // whole as the next one's.
+  st.dressStepErrorUm = (st.dressStepErrorUm ?? 0) + DRESS_LEARN_WEIGHT * (offWear - (st.dressStepErrorUm ?? 0))
+  st.dressStepErrorSqUm2 = st.dressStepErrorSqUm2 === null ? errorSq : st.dressStepErrorSqUm2 + DRESS_LEARN_WEIGHT * (errorSq - st.dressStepErrorSqUm2)
+  st.dressStepCount++
+}
+
+/** Weight of the newest dress in what is learnt from dresses (an EWMA over about six dresses: one dress's own error is about a micron). */
+const DRESS_LEARN_WEIGHT = 0.15
 
 /**
  * A run of outliers that agree with each other (all within k·σ of their median) is a level shift,
@@ -863,36 +1152,56 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       break
     }
     case 'dress': {
-      setOffset(ev.offsetUm)
+      const offsetNote = offsetAfterWheelEvent(st, ev.offsetUm)
       const hold = Math.max(s.holdParts.dress, d)
-      startHold('dress', hold, d, `dress: waiting for post-dress parts (${hold} parts)`)
+      startHold('dress', hold, d, `dress: parts ground before it still in the pipeline (${hold} parts)`)
+      const predicted = predictDressStep(st, (ev as { partsSinceDress?: number }).partsSinceDress)
       st.partsSinceDress = 0
+      st.wearFit = [0, 0, 0, 0, 0]
+      st.roundnessUm = null
       st.levelAtDressUm = null
       st.stepWindow = []
       st.dressStepBase = null
-      // Pre-correct the dress step learnt from earlier dresses (not for monitor-only or step).
-      if (s.dress.learnStep && st.dressStepUm !== null && (s.strategy === 'ewma' || s.strategy === 'drift')) {
-        st.offsetAtDressUm = st.offsetUm
-        command = boundedCommand(st, st.offsetUm - st.dressStepUm / s.gain).command
-        if (command) st.offsetUm = command.newOffsetUm
-      }
       st.offsetAtDressUm = st.offsetUm
-      reason = `dress recorded: hold ${hold} parts, then re-learn the level (slope kept)`
-      if (command) reason += `; pre-correct learnt dress step ${fmt(st.dressStepUm!)} µm → offset ${fmt(command.newOffsetUm)} µm`
+      st.stepPriorUm = null
+      st.dressWearPredictedUm = null
+      openEventWindow(st)
+      reason = `dress recorded${offsetNote}`
+      // Pre-correct the predicted step (not for monitor-only or step), within every bound; what
+      // max step cuts off follows on the next readings.
+      if ((s.strategy === 'ewma' || s.strategy === 'drift') && st.level !== null && offsetNote !== OFFSET_UNKNOWN) {
+        st.stepPriorUm = predicted.stepUm
+        st.stepPriorSigmaUm = predicted.sigmaUm
+        st.dressWearPredictedUm = predicted.wearUm
+        const wish = preCorrectionOffset(st)
+        const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm)
+        command = bounded?.command ?? null
+        if (command) st.offsetUm = command.newOffsetUm
+        if (bounded && (bounded.limitedBy.includes('budget-since-dress') || bounded.limitedBy.includes('offset-range'))) st.graceValid = false
+        reason += `; predicted step ${fmt(predicted.stepUm)} µm (wear ${fmt(predicted.wearUm)} µm${predicted.learntUm !== 0 ? `, learnt ${fmt(predicted.learntUm)} µm` : ''})`
+        if (command) reason += ` → pre-correct to offset ${fmt(command.newOffsetUm)} µm (Δ ${fmt(command.offsetDeltaUm)})${command.limitedBy.length ? ` limited by ${command.limitedBy.join(', ')}` : ''}`
+      }
+      reason += `; the first part ground after it re-learns the level (slope kept)`
       break
     }
     case 'wheel-change': {
-      setOffset(ev.offsetUm)
+      const offsetNote = offsetAfterWheelEvent(st, ev.offsetUm)
       const hold = Math.max(s.holdParts.wheelChange, d)
-      startHold('wheel-change', hold, d, `wheel change: waiting for parts of the new wheel (${hold} parts)`)
+      startHold('wheel-change', hold, d, `wheel change: parts of the old wheel still in the pipeline (${hold} parts)`)
       st.partsSinceDress = 0
+      st.wearFit = [0, 0, 0, 0, 0]
+      st.roundnessUm = null
       st.levelAtDressUm = null
       st.offsetAtDressUm = st.offsetUm
       st.slope = 0
       st.dressStepBase = null
-      st.dressStepUm = null
+      st.stepPriorUm = null
+      st.dressWearPredictedUm = null
+      st.dressStepErrorUm = null
+      st.dressStepErrorSqUm2 = null
       st.dressStepCount = 0
-      reason = `wheel change recorded: hold ${hold} parts, re-learn level and slope`
+      openEventWindow(st)
+      reason = `wheel change recorded${offsetNote}; the first part of the new wheel re-learns level and slope`
       break
     }
     case 'job-change': {
@@ -910,7 +1219,7 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       const ns = st.settings
       const hold = Math.max(ns.holdParts.jobChange, ns.pipelineParts)
       st.offsetRing = Array.from({ length: ns.pipelineParts }, () => st.offsetUm)
-      startHold('job-change', hold, ns.pipelineParts, `job change: waiting for parts of the new job (${hold} parts)`)
+      startHold('job-change', hold, ns.pipelineParts, `job change: parts of the previous job still in the pipeline (${hold} parts)`)
       st.level = null
       st.levelAtDressUm = null
       st.slope = 0
@@ -920,12 +1229,19 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       st.stepWindow = []
       st.stepSkip = 0
       st.outOfToleranceRun = 0
+      st.rejectRun = 0
       st.roundnessUm = null
       st.dressStepBase = null
+      st.stepPriorUm = null
+      st.dressWearPredictedUm = null
       st.relearnPending = null
       st.learning = false
       st.learnSamples = []
-      reason = `job change recorded: estimates reset, hold ${hold} parts`
+      st.learnOffsets = []
+      st.learnPriorUm = null
+      st.wearFit = [0, 0, 0, 0, 0]
+      openEventWindow(st)
+      reason = `job change recorded: estimates reset; the first part of the new job sets the level`
       break
     }
     case 'mastered': {
@@ -938,10 +1254,14 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
     }
     case 'restart': {
       const hold = Math.max(s.holdParts.restart, d)
-      startHold('restart', hold, d, `restart after a stop: waiting for fresh parts (${hold} parts)`)
+      startHold('restart', hold, d, `restart after a stop: parts ground before it still in the pipeline (${hold} parts)`)
       st.outOfToleranceRun = 0
+      st.rejectRun = 0
       st.dressStepBase = null
-      reason = `restart recorded: hold ${hold} parts, re-learn the level (slope kept)`
+      st.stepPriorUm = null
+      st.dressWearPredictedUm = null
+      openEventWindow(st)
+      reason = `restart recorded: the first part ground after it re-learns the level (slope kept)`
       break
     }
   }
@@ -954,6 +1274,30 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
     hold: st.holdRemaining > 0 ? { reason: st.holdReason ?? 'hold', partsRemaining: st.holdRemaining } : null,
     reason,
     inputs: { event: ev.type, offsetUm: st.offsetUm, holdRemaining: st.holdRemaining, flushRemaining: st.flushRemaining },
+  }
+}
+
+const OFFSET_UNKNOWN = ': the machine resets its offset at a dress but did not report it — offset unknown until it does, no pre-correction'
+
+/**
+ * The offset in force after a dress or wheel change: the one the machine reports, else what the
+ * setting says the machine does (keeps it; gives back what was taken since the last dress).
+ * Returns a note for the reason.
+ */
+function offsetAfterWheelEvent(st: CompensationState, reportedUm: number | undefined): string {
+  if (reportedUm !== undefined) {
+    const note = Math.abs(reportedUm - st.offsetUm) > 1e-9 ? `: machine reports offset ${fmt(reportedUm)} µm (was ${fmt(st.offsetUm)} µm)` : ''
+    st.offsetUm = reportedUm
+    return note
+  }
+  switch (st.settings.dress.machineOffset) {
+    case 'keeps': return ''
+    case 'gives-back': {
+      const note = `: machine gives back the offset taken since the last dress → ${fmt(st.offsetAtDressUm)} µm`
+      st.offsetUm = st.offsetAtDressUm
+      return note
+    }
+    case 'resets': return OFFSET_UNKNOWN
   }
 }
 

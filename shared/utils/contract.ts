@@ -148,8 +148,10 @@ export const eventMessageSchema = z.discriminatedUnion('type', [
   z.object({
     ...eventBase, type: z.literal('dress'), trigger: z.enum(['command', 'interval', 'operator']), commandId: z.string().max(64).optional(),
     partsSinceDress: z.number().int().min(0), wheelDiameterMm: z.number().positive().max(2000),
+    /** the offset now in force, when the control changed it at the dress (docs/mqtt.md) */
+    offsetUm: micrometres(gaugeRangeUm).optional(),
   }),
-  z.object({ ...eventBase, type: z.literal('wheel_change'), wheelId: shortText, wheelDiameterMm: z.number().positive().max(2000) }),
+  z.object({ ...eventBase, type: z.literal('wheel_change'), wheelId: shortText, wheelDiameterMm: z.number().positive().max(2000), offsetUm: micrometres(gaugeRangeUm).optional() }),
   z.object({ ...eventBase, type: z.literal('pallet_change'), palletId: shortText, blanks: z.number().int().min(0) }),
   z.object({ ...eventBase, type: z.literal('mastering'), correctionUm: micrometres(gaugeRangeUm) }),
   z.object({ ...eventBase, type: z.literal('job_change'), job: jobInfoSchema }),

@@ -11,27 +11,38 @@
 //   plantGauge(plant, time) → GaugedPart | null       // wants to interleave other steps
 //   plantRequestOffset(plant, time, offsetUm) → { appliesAt }   // absolute offset, in force after
 //                                                      // params.commandLatencyS
+//   plantSetUpOffset(plant, time, offsetUm)           // set-up by hand: in force at once
 //   plantOffsetInForce(plant, time) → µm              // applies any due request first
 //   plantSetRunning(plant, time, running)             // spindle on (warm-up) / off (cooling)
-//   plantDress(plant, time) → { stepUm, wheelDiameterMm }
-//   plantChangeWheel(plant, time) → { stepUm, wheelDiameterMm }
+//   plantDress(plant, time) → { stepUm, offsetUm, wheelDiameterMm }
+//   plantChangeWheel(plant, time) → { stepUm, offsetUm, wheelDiameterMm }
 //   plantMaster(plant, time) → { biasBeforeUm, biasAfterUm }
 //   plantSetGaugeFault(plant, faulty)                 // readings come out with status 'fault'
 //   plantSetParams(plant, time, changes)              // scenario changes at run time
 //   plantThermalUm / plantGaugeBiasUm (plant, time)   // read the hidden state (for tests, summaries)
 //   thermalGrowthUm(params, elapsedS), coolingUm(start, params, elapsedS) — the closed forms
 //
-// Model of part k ground at time t with offset u in force (cf. design.md):
-//   true_k = initialSizeUm + thermal(t) + wear_since_wheel_mounted + Σ dress steps
+// Model of part k ground at time t with offset u in force (docs/plant-model.md):
+//   true_k = initialSizeUm + thermal(t) + wear_since_dress + dress_error
 //            + offsetGain·u + blankTransfer·blank_k + N(0, processSigmaUm)
 //   thermal: running → θ → A + (θ − A)·e^{−Δt/τ}  (from cold: A(1 − e^{−t/τ}));
-//            stopped → θ → θ·e^{−Δt/τ_cool}
+//            stopped → θ → θ·e^{−Δt/τ_cool}; a dress does not touch it.
+//   wear: wheelWearUmPerPart a part, plus a break-in after each dress (breakInUm in all, taken
+//         at 1/breakInParts of what is left per part). A dress restores the wheel's working
+//         surface to the dresser, so the wear since the last dress DISAPPEARS, and the dress leaves
+//         a size error of its own, N(0, dressErrorSigmaUm), drawn afresh each dress.
+//   the machine's offset at a dress (dressOffset): 'keeps' it; 'gives-back' the offset taken
+//         since the last dress; 'resets' it to dressResetOffsetUm. A wheel change does the same.
 //   measured_k = true_k + gaugeBias(t) + N(0, gaugeSigmaUm) [+ outlier with outlierProbability]
 //   gaugeBias grows by gaugeBiasDriftUmPerHour (+ a random walk) until plantMaster resets it.
 // The offset gain is the TRUE diameter change per µm of offset; an engine whose model gain
 // differs from it sees a gain mismatch ξ = offsetGain / model gain.
 
 import { createSeededRandom, type SeededRandom } from './random'
+
+/** What a machine does to its wheel offset at a dress (docs/plant-model.md). */
+export const DRESS_OFFSET_BEHAVIOURS = ['keeps', 'gives-back', 'resets'] as const
+export type DressOffsetBehaviour = (typeof DRESS_OFFSET_BEHAVIOURS)[number]
 
 export interface PlantParams {
   /** size deviation at zero offset, cold machine, fresh wheel (µm) */
@@ -46,9 +57,17 @@ export interface PlantParams {
   initialWarmth: number
   /** wheel wear seen as diameter growth per part (µm/part) */
   wheelWearUmPerPart: number
-  /** mean size step on a dress (µm, signed) and its spread */
-  dressStepUm: number
-  dressStepSigmaUm: number
+  /** spread of the size error each dress leaves (µm, 1 σ): each dress draws its own, so the step at a
+   *  dress is −(wear since the last dress) + the change of error. (A mean error would be the same
+   *  for the dress before the set-up and cancel: initialSizeUm holds it.) */
+  dressErrorSigmaUm: number
+  /** extra wear of a freshly dressed wheel (µm of diameter in all) and its e-folding length (parts) */
+  breakInUm: number
+  breakInParts: number
+  /** what the machine does to its offset at a dress or wheel change (see the header) */
+  dressOffset: DressOffsetBehaviour
+  /** the offset a 'resets' machine sets at a dress (axis µm) */
+  dressResetOffsetUm: number
   /** wheel diameter removed by one dress (mm) */
   dressWheelLossMm: number
   /** wheel diameter lost per part by wear (mm/part) */
@@ -92,8 +111,11 @@ export const defaultPlantParams: PlantParams = {
   coolingTauS: 60 * 60,
   initialWarmth: 1,
   wheelWearUmPerPart: 0.01,
-  dressStepUm: -1.5,
-  dressStepSigmaUm: 0.4,
+  dressErrorSigmaUm: 0.6,
+  breakInUm: 0.6,
+  breakInParts: 30,
+  dressOffset: 'keeps',
+  dressResetOffsetUm: 0,
   dressWheelLossMm: 0.02,
   wearWheelLossMm: 0.00001,
   wheelNewDiameterMm: 300,
@@ -143,12 +165,18 @@ export interface Plant {
   time: number
   running: boolean
   thermalUm: number
+  /** wear since the last dress, break-in included (µm of diameter) */
   wearUm: number
-  dressStepsUm: number
+  /** break-in wear still to come after the last dress (µm) */
+  breakInLeftUm: number
+  /** size error left by the last dress or wheel change (µm) */
+  dressErrorNowUm: number
   wheelDiameterMm: number
   gaugeBiasUm: number
   gaugeFault: boolean
   offsetUm: number
+  /** offset in force just after the last dress (what a 'gives-back' machine returns to) */
+  offsetAfterDressUm: number
   pendingOffsets: { appliesAt: number; offsetUm: number }[]
   pipeline: GroundPart[]
   partsGround: number
@@ -165,11 +193,14 @@ export function createPlant(params: Partial<PlantParams> = {}, seed: number | st
     running: false,
     thermalUm: p.initialWarmth * p.warmupAmplitudeUm,
     wearUm: 0,
-    dressStepsUm: 0,
+    breakInLeftUm: 0,
+    // The wheel was dressed before the set-up: its error is part of initialSizeUm.
+    dressErrorNowUm: 0,
     wheelDiameterMm: p.wheelNewDiameterMm,
     gaugeBiasUm: 0,
     gaugeFault: false,
     offsetUm: 0,
+    offsetAfterDressUm: 0,
     pendingOffsets: [],
     pipeline: [],
     partsGround: 0,
@@ -177,13 +208,17 @@ export function createPlant(params: Partial<PlantParams> = {}, seed: number | st
   }
 }
 
+type NumericPlantParam = Exclude<keyof PlantParams, 'dressOffset'>
+
 function validatePlantParams(p: PlantParams): void {
   for (const [key, value] of Object.entries(p)) {
-    if (typeof value !== 'number' || !Number.isFinite(value)) throw new Error(`plant parameter ${key} must be a finite number, got ${String(value)}`)
+    if (key === 'dressOffset') {
+      if (!DRESS_OFFSET_BEHAVIOURS.includes(value as DressOffsetBehaviour)) throw new Error(`plant parameter dressOffset must be one of ${DRESS_OFFSET_BEHAVIOURS.join(', ')}, got ${String(value)}`)
+    } else if (typeof value !== 'number' || !Number.isFinite(value)) throw new Error(`plant parameter ${key} must be a finite number, got ${String(value)}`)
   }
-  const positive: (keyof PlantParams)[] = ['warmupTauS', 'coolingTauS', 'offsetGain', 'wheelNewDiameterMm']
+  const positive: NumericPlantParam[] = ['warmupTauS', 'coolingTauS', 'offsetGain', 'wheelNewDiameterMm', 'breakInParts']
   for (const key of positive) if (p[key] <= 0) throw new Error(`plant parameter ${key} must be > 0, got ${p[key]}`)
-  const nonNegative: (keyof PlantParams)[] = ['processSigmaUm', 'gaugeSigmaUm', 'blankSigmaUm', 'commandLatencyS', 'outlierProbability', 'dressStepSigmaUm', 'masterResidualSigmaUm', 'gaugeBiasWalkUmPerSqrtHour', 'roundnessSigmaUm', 'wheelChangeStepSigmaUm']
+  const nonNegative: NumericPlantParam[] = ['processSigmaUm', 'gaugeSigmaUm', 'blankSigmaUm', 'commandLatencyS', 'outlierProbability', 'dressErrorSigmaUm', 'masterResidualSigmaUm', 'gaugeBiasWalkUmPerSqrtHour', 'roundnessSigmaUm', 'wheelChangeStepSigmaUm', 'breakInUm']
   for (const key of nonNegative) if (p[key] < 0) throw new Error(`plant parameter ${key} must be ≥ 0, got ${p[key]}`)
   if (!Number.isInteger(p.pipelineParts) || p.pipelineParts < 0) throw new Error(`plant parameter pipelineParts must be a whole number ≥ 0, got ${p.pipelineParts}`)
   if (p.outlierProbability > 1) throw new Error(`plant parameter outlierProbability must be ≤ 1, got ${p.outlierProbability}`)
@@ -238,11 +273,24 @@ export function plantOffsetInForce(plant: Plant, time: number): number {
   return plant.offsetUm
 }
 
+/** Set-up by hand before grinding: the offset is in force at once, and it is the base a machine
+ *  that gives back its offset at a dress returns to until the first dress. */
+export function plantSetUpOffset(plant: Plant, time: number, offsetUm: number): void {
+  if (!Number.isFinite(offsetUm)) throw new Error(`offset must be a finite number of µm, got ${offsetUm}`)
+  advance(plant, time)
+  plant.pendingOffsets = []
+  plant.offsetUm = offsetUm
+  plant.offsetAfterDressUm = offsetUm
+}
+
 /** Requests an absolute offset; it is in force from `appliesAt` on. */
 export function plantRequestOffset(plant: Plant, time: number, offsetUm: number): { appliesAt: number } {
   if (!Number.isFinite(offsetUm)) throw new Error(`offset must be a finite number of µm, got ${offsetUm}`)
   advance(plant, time)
-  const appliesAt = time + plant.params.commandLatencyS
+  // The control takes requests one after the other: one sent in the same instant as another lands
+  // a millisecond after it (so each acknowledgement reports its own offset).
+  const previous = plant.pendingOffsets.at(-1)?.appliesAt ?? Number.NEGATIVE_INFINITY
+  const appliesAt = Math.max(time + plant.params.commandLatencyS, previous + 0.001)
   plant.pendingOffsets.push({ appliesAt, offsetUm })
   if (plant.params.commandLatencyS === 0) advance(plant, time)
   return { appliesAt }
@@ -252,11 +300,12 @@ export function plantGrind(plant: Plant, time: number): GroundPart {
   advance(plant, time)
   const p = plant.params
   const rng = plant.rng
-  plant.wearUm += p.wheelWearUmPerPart
+  const breakIn = plant.breakInLeftUm * (1 - Math.exp(-1 / p.breakInParts))
+  plant.breakInLeftUm -= breakIn
+  plant.wearUm += p.wheelWearUmPerPart + breakIn
   plant.wheelDiameterMm -= p.wearWheelLossMm
   const blank = rng.normal(0, p.blankSigmaUm)
-  const trueUm = p.initialSizeUm + plant.thermalUm + plant.wearUm + plant.dressStepsUm
-    + p.offsetGain * plant.offsetUm + p.blankTransfer * blank + rng.normal(0, p.processSigmaUm)
+  const trueUm = plantSizeAtZeroNoiseUm(plant) + p.blankTransfer * blank + rng.normal(0, p.processSigmaUm)
   plant.partsGround++
   plant.partsSinceDress++
   const part: GroundPart = {
@@ -290,25 +339,49 @@ export function plantCycle(plant: Plant, time: number): { ground: GroundPart; ga
   return { ground, gauged: plantGauge(plant, time) }
 }
 
-export function plantDress(plant: Plant, time: number): { stepUm: number; wheelDiameterMm: number } {
-  advance(plant, time)
-  const stepUm = plant.rng.normal(plant.params.dressStepUm, plant.params.dressStepSigmaUm)
-  plant.dressStepsUm += stepUm
-  plant.wheelDiameterMm -= plant.params.dressWheelLossMm
-  plant.partsSinceDress = 0
-  return { stepUm, wheelDiameterMm: plant.wheelDiameterMm }
+/** Size of the next part without noise, blank or gauge (µm): what the wheel grinds now. */
+export function plantSizeAtZeroNoiseUm(plant: Plant): number {
+  const p = plant.params
+  return p.initialSizeUm + plant.thermalUm + plant.wearUm + plant.dressErrorNowUm + p.offsetGain * plant.offsetUm
 }
 
-/** A new wheel: wear and dress history start over, with a set-up step of its own. */
-export function plantChangeWheel(plant: Plant, time: number): { stepUm: number; wheelDiameterMm: number } {
+export interface WheelEventResult {
+  /** size step at the same offset: −(wear since the last dress) + the change of the dress error (µm) */
+  stepUm: number
+  /** offset in force after the event, as the machine's dressOffset behaviour left it (axis µm) */
+  offsetUm: number
+  wheelDiameterMm: number
+}
+
+/** A dress: the wear since the last dress disappears, a new dress error, break-in starts again. */
+export function plantDress(plant: Plant, time: number): WheelEventResult {
   advance(plant, time)
-  const before = plant.wearUm + plant.dressStepsUm
-  const stepUm = plant.rng.normal(0, plant.params.wheelChangeStepSigmaUm)
+  const p = plant.params
+  return restoreWheelSurface(plant, plant.rng.normal(0, p.dressErrorSigmaUm), plant.wheelDiameterMm - p.dressWheelLossMm)
+}
+
+/** A new wheel: wear and dress history start over, with a set-up error of its own. */
+export function plantChangeWheel(plant: Plant, time: number): WheelEventResult {
+  advance(plant, time)
+  const p = plant.params
+  return restoreWheelSurface(plant, plant.rng.normal(0, p.wheelChangeStepSigmaUm), p.wheelNewDiameterMm)
+}
+
+function restoreWheelSurface(plant: Plant, errorUm: number, wheelDiameterMm: number): WheelEventResult {
+  const p = plant.params
+  const stepUm = -plant.wearUm + errorUm - plant.dressErrorNowUm
   plant.wearUm = 0
-  plant.dressStepsUm = stepUm
-  plant.wheelDiameterMm = plant.params.wheelNewDiameterMm
+  plant.breakInLeftUm = p.breakInUm
+  plant.dressErrorNowUm = errorUm
+  plant.wheelDiameterMm = wheelDiameterMm
   plant.partsSinceDress = 0
-  return { stepUm: stepUm - before, wheelDiameterMm: plant.wheelDiameterMm }
+  // An offset already requested but not yet in force is overtaken by what the control does here.
+  if (p.dressOffset !== 'keeps') {
+    plant.pendingOffsets = []
+    plant.offsetUm = p.dressOffset === 'resets' ? p.dressResetOffsetUm : plant.offsetAfterDressUm
+  }
+  plant.offsetAfterDressUm = plant.offsetUm
+  return { stepUm, offsetUm: plant.offsetUm, wheelDiameterMm }
 }
 
 export function plantMaster(plant: Plant, time: number): { biasBeforeUm: number; biasAfterUm: number } {

@@ -15,12 +15,19 @@ import { createCompensationState, stepCompensation, type CompensationDecision, t
 import { parseCompensationSettings, type CompensationSettingsInput } from './compensation-settings'
 import { spcWithinSigmaMovingRange } from './spc'
 import { csvReadRecords, type CsvProblem } from './csv'
+import { wheelEventInput, type WheelEventFields } from './wheel-events'
 
 export type ReplayItem =
   | { kind: 'reading', seq: number, time: number, deviationUm: number | null, status: string, roundnessUm?: number | null, offsetUm: number }
-  | { kind: 'event', seq: number, time: number, type: 'dress' | 'wheel-change' | 'mastered' | 'restart' }
+  | { kind: 'event', seq: number, time: number, type: 'dress' | 'wheel-change' | 'mastered' | 'restart', offsetUm?: number, partsSinceDress?: number }
   /** the machine reports this offset in force after a command (its acknowledgement) */
   | { kind: 'offset-applied', seq: number, time: number, offsetUm: number }
+
+/** A recorded dress or wheel change as a replay item (what the engine is told: wheel-events.ts). */
+export function replayWheelEvent(seq: number, type: 'dress' | 'wheel-change', event: WheelEventFields, time: number): ReplayItem {
+  const input = wheelEventInput(type, event, time) as { offsetUm?: number, partsSinceDress?: number }
+  return { kind: 'event', seq, time, type, ...(input.offsetUm !== undefined ? { offsetUm: input.offsetUm } : {}), ...(input.partsSinceDress !== undefined ? { partsSinceDress: input.partsSinceDress } : {}) }
+}
 
 export interface ReplayOptions {
   /** offset in force at the start (default: the first reading's) */
@@ -118,7 +125,8 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
   let actualStop = false
   let actualRun = 0 // recorded parts out of tolerance in a row (the engine's stop rule)
 
-  const feed = (input: CompensationInput, fromEvent: boolean) => {
+  /** `eventSeq`: the message number of the event answered (else the last reading's). */
+  const feed = (input: CompensationInput, fromEvent: boolean, eventSeq?: number) => {
     const r = stepCompensation(state, input)
     state = r.state
     const d = r.decision
@@ -126,7 +134,7 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     if (d.kind === 'ignored') return
     if (d.command && (!fromEvent || commandsOnEvents)) {
       const value = round3(d.command.newOffsetUm)
-      candidate.commands.push({ seq: seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pendingAck ?? c) }) // the message number of the reading it answered
+      candidate.commands.push({ seq: eventSeq ?? seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pendingAck ?? c) }) // the message number it answered
       pendingAck = value
     }
     if (d.dress.now && !dressAsked) { dressAsked = true; candidate.dresses++ }
@@ -151,8 +159,10 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     }
     if (it.kind === 'event') {
       if (it.type === 'dress') { actual.dresses++; dressAsked = false }
-      const type = it.type === 'mastered' ? 'mastered' : it.type
-      feed({ type, time: it.time } as CompensationInput, true)
+      // A machine that changes its offset at a dress does so whatever offset it had: the same for
+      // the run as recorded and for the candidate's.
+      if (it.offsetUm !== undefined) { a = it.offsetUm; c = it.offsetUm; pendingAck = null }
+      feed(it.type === 'dress' || it.type === 'wheel-change' ? wheelEventInput(it.type, it, it.time) : { type: it.type, time: it.time }, true, it.seq)
       continue
     }
     // A reading: the candidate's acknowledgement has come by now at the latest.

@@ -145,9 +145,9 @@ describe('compensation engine properties', () => {
       strategy: fc.constantFrom('ewma' as const, 'drift' as const),
       xi: fc.double({ min: 0.5, max: 1.5, noNaN: true }),
       d: fc.integer({ min: 0, max: 5 }),
-      drift: fc.double({ min: -0.03, max: 0.03, noNaN: true }), // wheel wear range, reference-values §11
+      drift: fc.double({ min: -0.03, max: 0.03, noNaN: true }), // wheel wear range, common practice (docs/compensation.md)
       step: fc.double({ min: -3, max: 3, noNaN: true }),
-      sigma: fc.double({ min: 0.1, max: 0.5, noNaN: true }), // process σ 0.2–0.6 µm, reference-values §11
+      sigma: fc.double({ min: 0.1, max: 0.5, noNaN: true }), // process σ 0.2–0.6 µm, common practice (docs/compensation.md)
       seed: fc.integer({ min: 1, max: 1_000_000 }),
     })
     fc.assert(

@@ -8,7 +8,7 @@ import {
 } from '../../shared/utils/compensation'
 
 // ---------------------------------------------------------------- a linear plant for the loop tests
-// y_k = a(k) + ξ·b·u_k + e_k (design.md "Compensation"), part k ground with the offset in force at
+// y_k = a(k) + ξ·b·u_k + e_k (docs/compensation.md), part k ground with the offset in force at
 // cycle k, gauged d cycles later; a command made at a reading applies from the next part ground.
 function normalStream(seed: number) {
   let a = seed >>> 0
@@ -69,13 +69,13 @@ function feed(state: CompensationState, inputs: CompensationInput[]) {
 // ---------------------------------------------------------------- settings
 
 describe('settings', () => {
-  it('default target is mid-tolerance and compensation limits sit at 60 % of the half tolerance (common practice: 50–70 %, reference-values §11)', () => {
+  it('default target is mid-tolerance and compensation limits sit at 60 % of the half tolerance (common practice: 50–70 %, docs/compensation.md "Sources and trade facts")', () => {
     const s = parseCompensationSettings({ upperSpecUm: 4, lowerSpecUm: -2 })
     expect(s.targetUm).toBe(1)
     expect(s.upperCompUm).toBeCloseTo(1 + 0.6 * 3, 12)
     expect(s.lowerCompUm).toBeCloseTo(1 - 0.6 * 3, 12)
     expect(s.strategy).toBe('drift')
-    expect(s.pipelineParts).toBe(3) // 2–5 parts between wheel and gauge (common practice, reference-values §11)
+    expect(s.pipelineParts).toBe(3) // 2–5 parts between wheel and gauge (common practice, docs/compensation.md "Sources and trade facts")
   })
   it('resolved settings parse again to the same value (idempotent, JSON-safe)', () => {
     const s = parseCompensationSettings({ upperSpecUm: 2, lowerSpecUm: -2, dress: { policy: 'adaptive' } })
@@ -89,7 +89,7 @@ describe('settings', () => {
     expect(() => createCompensationState({ upperSpecUm: 1, lowerSpecUm: -1, targetUm: 5 })).toThrow(/targetUm must lie inside/)
     expect(() => createCompensationState({ upperSpecUm: 1, lowerSpecUm: -1 }, { offsetUm: Infinity })).toThrow(/initial offset/)
   })
-  it('Holt weights put the error poles at 1 − λ1 and 1 − λ2 (double EWMA at ξ = 1, reference-values §9, derived)', () => {
+  it('Holt weights put the error poles at 1 − λ1 and 1 − λ2 (double EWMA at ξ = 1, docs/compensation.md "Sources", derived)', () => {
     const { alpha, beta } = compensationHoltWeights(0.3, 0.1)
     // z² + (α + αβ − 2)z + (1 − α) must have the roots 0.7 and 0.9.
     for (const z of [0.7, 0.9]) expect(z * z + (alpha + alpha * beta - 2) * z + (1 - alpha)).toBeCloseTo(0, 12)
@@ -99,7 +99,7 @@ describe('settings', () => {
 // ---------------------------------------------------------------- the control laws
 
 describe('control laws against the run-to-run literature', () => {
-  it('ewma: a_k = λ(y_k − b·u_k) + (1−λ)a_{k−1}, u = (T − a_k)/b (Ingolfsson & Sachs 1993, design.md)', () => {
+  it('ewma: a_k = λ(y_k − b·u_k) + (1−λ)a_{k−1}, u = (T − a_k)/b (Ingolfsson & Sachs 1993)', () => {
     const settings = { ...BASE, strategy: 'ewma' as const, gain: 1.2, ewma: { lambda: 0.3 } }
     let st = createCompensationState(settings)
     // Learning phase: ceil(1/λ) = 4 readings are averaged.
@@ -114,24 +114,24 @@ describe('control laws against the run-to-run literature', () => {
     expect(decision.command!.correctionUm).toBeCloseTo(1.2 * decision.command!.offsetDeltaUm, 12)
   })
 
-  it('ewma bias under a linear drift is δ·(d + 1/λ)/ξ: λ 0.3, δ 0.02, d 3, ξ 1 → 0.127 µm (reference-values §9)', () => {
+  it('ewma bias under a linear drift is δ·(d + 1/λ)/ξ: λ 0.3, δ 0.02, d 3, ξ 1 → 0.127 µm (Ingolfsson & Sachs 1993 model, derived: docs/compensation.md "Sources")', () => {
     const { y } = runLoop({ settings: { ...BASE, strategy: 'ewma', pipelineParts: 3, ewma: { lambda: 0.3 } }, parts: 600, disturbance: (k) => 0.02 * k })
     expect(y.at(-1)!).toBeCloseTo(0.127, 3)
   })
 
-  it('ewma bias scales with 1/ξ: ξ 0.8 → 0.158 µm (reference-values §9 formula, derived)', () => {
+  it('ewma bias scales with 1/ξ: ξ 0.8 → 0.158 µm (the same formula, derived)', () => {
     const { y } = runLoop({ settings: { ...BASE, strategy: 'ewma', pipelineParts: 3, ewma: { lambda: 0.3 } }, parts: 800, disturbance: (k) => 0.02 * k, xi: 0.8 })
     expect(y.at(-1)!).toBeCloseTo((0.02 * (3 + 1 / 0.3)) / 0.8, 3)
   })
 
-  it('drift: no steady bias under a linear drift (Butler & Stefani 1994; design.md)', () => {
+  it('drift: no steady bias under a linear drift (Butler & Stefani 1994)', () => {
     for (const xi of [0.8, 1, 1.25]) {
       const { y } = runLoop({ settings: { ...BASE, strategy: 'drift', pipelineParts: 3, maxSinceDressUm: 100, offsetRange: { min: -100, max: 100 } }, parts: 1500, disturbance: (k) => 0.02 * k, xi })
       expect(Math.abs(y.at(-1)!)).toBeLessThan(1e-4)
     }
   })
 
-  it('drift: at ξ = 1 the deviations decay with the poles 1 − λ1 and 1 − λ2 (reference-values §9, derived)', () => {
+  it('drift: at ξ = 1 the deviations decay with the poles 1 − λ1 and 1 − λ2 (docs/compensation.md "Sources", derived)', () => {
     const l1 = 0.3
     const l2 = 0.1
     const d = 2
@@ -147,7 +147,7 @@ describe('control laws against the run-to-run literature', () => {
     expect(Math.abs(y[12]!)).toBeGreaterThan(1e-3) // the sequence is not trivially zero
   })
 
-  it('pairing each reading with its own offset keeps a dead time harmless; the naive per-part rule goes unstable at d = 2 for λξ > 0.618 (reference-values §9; Good & Qin 2006)', () => {
+  it('pairing each reading with its own offset keeps a dead time harmless; the naive per-part rule goes unstable at d = 2 for λξ > 0.618 (derived; Good & Qin 2006)', () => {
     // Naive rule: u_{k+1} = u_k − λ·e_k/b using the newest reading, ignoring the pipeline.
     const naive = (lambda: number, d: number) => {
       const u: number[] = []
@@ -227,21 +227,40 @@ describe('holds after events', () => {
     st = feed(st, inputs).state
     return st
   }
-  it('dress: no command for max(hold, pipeline) parts; the pipeline parts are not used; the level is re-learnt', () => {
+  it('dress: parts ground before it never steer; only the predicted step is pre-corrected until max(hold, pipeline) readings have passed', () => {
     let st = learnt()
     const ev = stepCompensation(st, { type: 'dress' })
     expect(ev.decision.kind).toBe('event')
     expect(ev.decision.hold!.partsRemaining).toBe(5)
     st = ev.state
     const r = feed(st, [reading(21, 9), reading(22, 9), reading(23, 9), reading(24, -0.5), reading(25, -0.5), reading(26, -0.5)])
-    expect(r.decisions.slice(0, 5).every((d) => d.command === null && d.hold !== null)).toBe(true)
-    // Parts ground before the dress (9 µm) must not steer: the level follows the post-dress parts.
+    // The pipeline (3 readings of parts ground before the dress, 9 µm): at most the pre-correction of
+    // the predicted step, never an answer to those readings.
+    for (const d of r.decisions.slice(0, 3)) {
+      expect(d.hold).not.toBeNull()
+      if (d.command) expect(d.reason).toMatch(/pre-correct the predicted dress step/)
+      expect(d.inputs.outOfTolerance).toBe(true)
+    }
+    // Held on (holdParts.dress 5), then commanded from the post-dress parts.
+    expect(r.decisions.slice(3, 5).every((d) => d.command === null && d.hold !== null)).toBe(true)
     expect(r.decisions[5]!.hold).toBeNull()
     expect(r.decisions[5]!.command).not.toBeNull()
     const post = r.decisions[5]!.inputs
-    // Three equal post-dress disturbances, each moved along the kept slope to the latest part: mean r + S.
-    expect(post.levelUm as number).toBeCloseTo((post.disturbanceUm as number) + (post.slopeUmPerPart as number), 9)
+    // Three post-dress disturbances (equal up to the offsets they were ground with), each moved along
+    // the kept slope to the latest part; the prediction counts only as a prior worth σ²/σ_pred² readings.
+    // (here the prediction, 0.2 µm of wear, is ~2 µm off; it weighs 0.16 readings against three)
+    expect(Math.abs((post.levelUm as number) - ((post.disturbanceUm as number) + (post.slopeUmPerPart as number)))).toBeLessThan(0.15)
     expect(post.disturbanceUm as number).toBeCloseTo(-0.5 - (post.offsetForPartUm as number), 9)
+  })
+  it('by default the hold is the pipeline only: the first part ground after an event is used at once', () => {
+    for (const event of [{ type: 'dress' }, { type: 'restart' }, { type: 'wheel-change' }, { type: 'job-change' }] as CompensationInput[]) {
+      let st = feed(createCompensationState({ ...BASE, pipelineParts: 3 }), Array.from({ length: 20 }, (_, i) => reading(i + 1, 0.3 * Math.sin(i)))).state
+      st = stepCompensation(st, event).state
+      const r = feed(st, [reading(21, 0), reading(22, 0), reading(23, 0), reading(24, 1.5)])
+      expect(r.decisions.slice(0, 3).every((d) => d.hold !== null)).toBe(true)
+      expect(r.decisions[3]!.hold).toBeNull()
+      expect(r.decisions[3]!.command, event.type).not.toBeNull()
+    }
   })
   it('the hold is never shorter than the pipeline', () => {
     const st = createCompensationState({ ...BASE, pipelineParts: 4, holdParts: { restart: 0 } })
@@ -361,7 +380,9 @@ describe('outliers', () => {
   it('an outlier among the first readings after an event does not set the level', () => {
     let st = feed(createCompensationState(settings), noisy(40)).state
     st = stepCompensation(st, { type: 'dress' }).state
-    const r = feed(st, [reading(41, 0), reading(42, 0), reading(43, -1.0), reading(44, 12), reading(45, -1.1), reading(46, -0.9), reading(47, -1.0)])
+    // The parts report the offset they were ground with (0: commands have not reached them yet).
+    const at0 = { offsetInForceUm: 0 }
+    const r = feed(st, [reading(41, 0, at0), reading(42, 0, at0), reading(43, -1.0, at0), reading(44, 12, at0), reading(45, -1.1, at0), reading(46, -0.9, at0), reading(47, -1.0, at0)])
     expect(r.state.level!).toBeGreaterThan(-1.2)
     expect(r.state.level!).toBeLessThan(-0.8)
   })

@@ -1,6 +1,6 @@
 // Physics of the simulated grinder + gauge, checked against the closed-form curves they model.
-// Oracles: the formulas in ../shared/design.md ("Simulator") and simple-statistics (registry
-// package) for sample means and standard deviations.
+// Oracles: the formulas in docs/plant-model.md and simple-statistics (registry package) for sample
+// means and standard deviations.
 import { describe, it, expect, vi } from 'vitest'
 
 // whole simulated nights run here; on a busy 2-core machine they need more than the default 5 s
@@ -10,13 +10,13 @@ import { createSeededRandom } from '../../shared/utils/random'
 import {
   createPlant, plantCycle, plantDress, plantGauge, plantGrind, plantMaster, plantRequestOffset,
   plantOffsetInForce, plantSetRunning, plantThermalUm, plantGaugeBiasUm, plantChangeWheel,
-  plantSetGaugeFault, thermalGrowthUm, coolingUm, type PlantParams,
+  plantSetGaugeFault, plantSetUpOffset, thermalGrowthUm, coolingUm, type PlantParams,
 } from '../../shared/utils/plant'
 
 // Everything random switched off, so single effects can be checked exactly.
 const quiet: Partial<PlantParams> = {
   processSigmaUm: 0, gaugeSigmaUm: 0, blankSigmaUm: 0, outlierProbability: 0, gaugeBiasDriftUmPerHour: 0,
-  gaugeBiasWalkUmPerSqrtHour: 0, dressStepSigmaUm: 0, wheelWearUmPerPart: 0, warmupAmplitudeUm: 0,
+  gaugeBiasWalkUmPerSqrtHour: 0, dressErrorSigmaUm: 0, breakInUm: 0, wheelWearUmPerPart: 0, warmupAmplitudeUm: 0,
   masterResidualSigmaUm: 0, wheelChangeStepSigmaUm: 0, pipelineParts: 0, commandLatencyS: 0,
 }
 
@@ -74,17 +74,50 @@ describe('plant physics', () => {
     expect(plantThermalUm(plant, 6600)).toBeCloseTo(8 + (theta0 - 8) * Math.exp(-600 / 1200), 10)
   })
 
-  it('grows parts by the wheel wear per part and steps them on a dress', () => {
-    const plant = createPlant({ ...quiet, wheelWearUmPerPart: 0.02, dressStepUm: -1.8, dressWheelLossMm: 0.03, wearWheelLossMm: 0.0001 }, 1)
+  it('grows parts by the wheel wear per part; a dress takes the wear since the last dress away and leaves its own error', () => {
+    const plant = createPlant({ ...quiet, wheelWearUmPerPart: 0.02, dressWheelLossMm: 0.03, wearWheelLossMm: 0.0001 }, 1)
     const sizes = Array.from({ length: 100 }, (_, i) => plantGrind(plant, i * 20).trueUm)
     expect(sizes[99]! - sizes[0]!).toBeCloseTo(99 * 0.02, 10)
     const wheelBefore = plant.wheelDiameterMm
     expect(wheelBefore).toBeCloseTo(300 - 100 * 0.0001, 10)
     const dress = plantDress(plant, 2000)
-    expect(dress.stepUm).toBe(-1.8)
+    expect(dress.stepUm).toBeCloseTo(-100 * 0.02, 10)
     expect(dress.wheelDiameterMm).toBeCloseTo(wheelBefore - 0.03, 10)
     const after = plantGrind(plant, 2020).trueUm
-    expect(after - sizes[99]!).toBeCloseTo(0.02 - 1.8, 10)
+    expect(after - sizes[99]!).toBeCloseTo(0.02 - 100 * 0.02, 10)
+    // Warm-up is not touched by a dress.
+    const warm = createPlant({ ...quiet, warmupAmplitudeUm: -6, initialWarmth: 0.5 }, 1)
+    const theta = plantThermalUm(warm, 0)
+    plantDress(warm, 0)
+    expect(plantThermalUm(warm, 0)).toBe(theta)
+  })
+
+  it('a freshly dressed wheel breaks in: breakInUm more wear, taken at 1/breakInParts of what is left per part', () => {
+    const plant = createPlant({ ...quiet, wheelWearUmPerPart: 0.01, breakInUm: 0.6, breakInParts: 30 }, 1)
+    plantDress(plant, 0)
+    const base = plantGrind(plant, 20).trueUm
+    const n = 90
+    let last = base
+    for (let i = 2; i <= n; i++) last = plantGrind(plant, i * 20).trueUm
+    // closed form: wear after n parts = n·w + B(1 − e^{−n/N}); relative to the first part
+    const wearAt = (k: number) => k * 0.01 + 0.6 * (1 - Math.exp(-k / 30))
+    expect(last - base).toBeCloseTo(wearAt(n) - wearAt(1), 10)
+  })
+
+  it('at a dress the machine keeps its offset, gives back what it took since the last dress, or resets it', () => {
+    const run = (dressOffset: PlantParams['dressOffset']) => {
+      const plant = createPlant({ ...quiet, wheelWearUmPerPart: 0.02, dressOffset, dressResetOffsetUm: 1.5 }, 1)
+      plantSetUpOffset(plant, 0, 4)
+      for (let i = 1; i <= 50; i++) plantGrind(plant, i * 20)
+      plantRequestOffset(plant, 1000, 3) // compensation taken since the set-up
+      const first = plantDress(plant, 1001)
+      plantRequestOffset(plant, 1002, 2.5)
+      const second = plantDress(plant, 1003)
+      return { first: first.offsetUm, second: second.offsetUm }
+    }
+    expect(run('keeps')).toEqual({ first: 3, second: 2.5 })
+    expect(run('gives-back')).toEqual({ first: 4, second: 4 })
+    expect(run('resets')).toEqual({ first: 1.5, second: 1.5 })
   })
 
   it('a wheel change starts wear and dress history over', () => {

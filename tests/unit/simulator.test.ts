@@ -241,7 +241,7 @@ describe('headless closed loop with the compensation engine', () => {
     for (const m of closed.summary.machines) {
       const spec = quiet.machines.find((s) => s.id === m.id)!
       const p = { ...quiet.physics, ...spec.physics }
-      // noise floor (design.md "Compensation"): with perfect knowledge of the drift the RMS equals the
+      // noise floor (docs/plant-model.md): with perfect knowledge of the drift the RMS equals the
       // part-to-part noise, here √(σ_process² + (blankTransfer·σ_blank)²) with the plant defaults 0.01 and 15 µm
       const floor = Math.sqrt(p.processSigmaUm! ** 2 + (0.01 * 15) ** 2)
       expect(m.trueSdUm, m.id).toBeGreaterThan(0.95 * floor) // no controller beats the noise

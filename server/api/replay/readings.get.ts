@@ -3,7 +3,7 @@
 // they happened, plus the settings version that was in force at the start.
 import { and, asc, between, desc, eq, inArray, lte } from 'drizzle-orm'
 import { z } from 'zod'
-import type { ReplayItem } from '#shared/utils/replay'
+import { replayWheelEvent, type ReplayItem } from '#shared/utils/replay'
 
 const MAX_READINGS = 50_000
 const query = z.object({
@@ -31,8 +31,8 @@ export default defineEventHandler(async (event) => {
   for (const m of messages) {
     const p = m.payload as Record<string, unknown>
     if (m.kind === 'ack' && m.type === 'offset:applied' && typeof p.offsetUm === 'number') items.push({ kind: 'offset-applied', seq: m.seq, time: m.time, offsetUm: p.offsetUm })
-    else if (m.kind === 'event' && m.type === 'dress') items.push({ kind: 'event', seq: m.seq, time: m.time, type: 'dress' })
-    else if (m.kind === 'event' && m.type === 'wheel_change') items.push({ kind: 'event', seq: m.seq, time: m.time, type: 'wheel-change' })
+    else if (m.kind === 'event' && m.type === 'dress') items.push(replayWheelEvent(m.seq, 'dress', p, m.time))
+    else if (m.kind === 'event' && m.type === 'wheel_change') items.push(replayWheelEvent(m.seq, 'wheel-change', p, m.time))
     else if (m.kind === 'event' && m.type === 'mastering') items.push({ kind: 'event', seq: m.seq, time: m.time, type: 'mastered' })
     else if (m.kind === 'birth') items.push({ kind: 'event', seq: m.seq, time: m.time, type: 'restart' })
     else if (m.kind === 'state') {

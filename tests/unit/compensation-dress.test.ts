@@ -1,0 +1,211 @@
+// Through a dress: the engine predicts the size step from the wear it has seen, pre-corrects it
+// within every bound, re-learns from the first part ground after the dress, and does not stop the
+// cell for parts ground before a correction could land — while a real fault still stops it.
+// Physics (docs/plant-model.md, common practice): a dress restores the wheel's working surface to the
+// dresser, so the wear since the last dress disappears; what the machine does to its offset varies.
+import { describe, expect, it } from 'vitest'
+import fc from 'fast-check'
+import {
+  createCompensationState, runCompensation, stepCompensation, type CompensationDecision, type CompensationInput,
+  type CompensationSettingsInput, type CompensationState,
+} from '../../shared/utils/compensation'
+import { runControlLoop, type LoopScenario } from '../../simulator/control-loop'
+
+// Everything random in the plant off but the process noise, so the step is known exactly.
+const calm = { dressErrorSigmaUm: 0, breakInUm: 0, outlierProbability: 0, gaugeBiasDriftUmPerHour: 0, gaugeBiasWalkUmPerSqrtHour: 0, processSigmaUm: 0.2, blankSigmaUm: 0, gaugeSigmaUm: 0.05 }
+
+interface DressLook { predictedUm: number; actualUm: number; preCorrectionUm: number | null; oot: number[] }
+
+/** Runs a loop and records, per dress, the predicted and true step and the rejects after it. */
+function throughDresses(scenario: LoopScenario, seed = 1): { dresses: DressLook[]; stops: number; oot: number; m: ReturnType<typeof runControlLoop> } {
+  const dresses: DressLook[] = []
+  let readingsSinceDress = -1
+  const m = runControlLoop(scenario, {
+    strategy: 'drift', seed, delay: 3,
+    onWheelEvent(kind, r) { if (kind === 'dress') dresses.push({ predictedUm: Number.NaN, actualUm: r.stepUm, preCorrectionUm: null, oot: [] }) },
+    onDecision(d, input) {
+      if (input.type === 'dress') {
+        const look = dresses.at(-1)!
+        look.predictedUm = Number(/predicted step ([-+\d.]+) µm/.exec(d.reason)?.[1])
+        look.preCorrectionUm = d.command?.correctionUm ?? null
+        readingsSinceDress = 0
+      } else if (input.type === 'reading' && readingsSinceDress >= 0) {
+        readingsSinceDress++
+        if (d.inputs.outOfTolerance) dresses.at(-1)!.oot.push(readingsSinceDress)
+      }
+    },
+  })
+  return { dresses, stops: m.stops, oot: m.oot, m }
+}
+
+describe('through a dress, for each thing a machine does to its offset', () => {
+  const behaviours: [string, LoopScenario][] = [
+    ['keeps its offset', { name: 'keeps', about: '', plant: { ...calm, dressOffset: 'keeps' }, dressEveryParts: [350, 350], parts: 1500 }],
+    ['gives back the offset taken since the last dress (not reported; engine told so)', { name: 'gives-back', about: '', plant: { ...calm, dressOffset: 'gives-back' }, engine: { dress: { machineOffset: 'gives-back' } }, dressEveryParts: [350, 350], parts: 1500 }],
+    ['resets its offset to a value it reports', { name: 'resets', about: '', plant: { ...calm, dressOffset: 'resets' }, resetsToSetUp: true, reportsOffsetAtDress: true, engine: { dress: { machineOffset: 'resets' } }, dressEveryParts: [350, 350], parts: 1500 }],
+  ]
+  for (const [label, scenario] of behaviours) {
+    it(`${label}: the step is predicted from the wear, pre-corrected at the dress, and no stop comes`, () => {
+      const { dresses, stops } = throughDresses(scenario)
+      expect(dresses.length).toBe(4)
+      for (const d of dresses) {
+        // 350 parts × 0.01 µm/part of wear come off: the size steps down by 3.5 µm at the same offset.
+        expect(d.actualUm).toBeCloseTo(-3.5, 6)
+        // The engine's wear estimate (least-squares slope × parts) is within 0.3 µm of it.
+        expect(Math.abs(d.predictedUm - d.actualUm)).toBeLessThan(0.3)
+        // A machine that keeps its offset needs the wear part of it given back, at the dress, before
+        // the first part after it is ground; one that gives it back (or resets to where it started)
+        // has done that itself, so what is left to pre-correct is small.
+        if (scenario.plant.dressOffset === 'keeps') expect(d.preCorrectionUm).toBeGreaterThan(2)
+        else expect(Math.abs(d.preCorrectionUm ?? 0)).toBeLessThan(0.5)
+        // With the step predicted, no part ground after the dress leaves the ±2 µm tolerance.
+        expect(d.oot).toEqual([])
+      }
+      expect(stops).toBe(0)
+    })
+  }
+
+  it('keeps its offset: the pre-correction gives back the wear part of the offset taken since the last dress (the command is max step, 2 µm, then the rest)', () => {
+    const { dresses } = throughDresses(behaviours[0]![1])
+    // Needed: 3.5 µm of diameter at gain 1.1 → 3.18 µm of axis; max step 2 µm → 2.2 µm of diameter first.
+    expect(dresses[0]!.preCorrectionUm).toBeCloseTo(2.2, 6)
+  })
+
+  it('a cold start whose warm-up is larger than the tolerance, dressed soon after: no stop, and at most one reject a dress on average', () => {
+    const scenario: LoopScenario = { name: 'cold', about: '', plant: { initialWarmth: 0 }, dressEveryParts: [300, 400], firstDressAtPart: 150, parts: 1500 }
+    let stops = 0
+    let oot = 0
+    let dresses = 0
+    for (const seed of [1, 2, 3]) {
+      const r = throughDresses(scenario, seed)
+      stops += r.stops
+      oot += r.oot
+      dresses += r.dresses.length
+    }
+    expect(stops).toBe(0)
+    expect(oot / dresses).toBeLessThanOrEqual(1)
+  })
+})
+
+// ---------------------------------------------------------------- the stop rule after an event
+
+const SETTINGS: CompensationSettingsInput = { upperSpecUm: 2, lowerSpecUm: -2, pipelineParts: 3, gain: 1.1 }
+const reading = (seq: number, deviationUm: number, offsetInForceUm?: number): CompensationInput =>
+  ({ type: 'reading', seq, time: seq * 20_000, deviationUm, ...(offsetInForceUm !== undefined ? { offsetInForceUm } : {}) })
+
+/** 120 parts on target with a little wear compensated, then a dress. */
+function dressedState(settings: CompensationSettingsInput = SETTINGS): CompensationState {
+  let st = createCompensationState(settings)
+  for (let k = 1; k <= 120; k++) st = stepCompensation(st, reading(k, 0.05 * Math.sin(k), 0)).state
+  return stepCompensation(st, { type: 'dress', partsSinceDress: 120 }).state
+}
+
+const firstStop = (decisions: CompensationDecision[]) => decisions.findIndex((d) => d.stop)
+
+describe('the stop rule after an event', () => {
+  it('rejects of parts ground before a correction could land do not stop the cell; they are said in the reason', () => {
+    // The dress left the size 4 µm low; the machine applies every command (parts carry their offset).
+    let st = dressedState()
+    const decisions: CompensationDecision[] = []
+    let offset = st.offsetUm
+    const inForce: number[] = [0, 0, 0] // pre-dress parts in the pipeline were ground at 0
+    for (let k = 121; k <= 160; k++) {
+      const u = inForce.shift()!
+      const pre = k <= 123 // the three parts ground before the dress
+      const y = (pre ? 0 : -4) + 1.1 * (u - (pre ? 0 : 0))
+      const r = stepCompensation(st, reading(k, y, u))
+      st = r.state
+      decisions.push(r.decision)
+      if (r.decision.command) offset = r.decision.command.newOffsetUm
+      inForce.push(offset)
+    }
+    expect(firstStop(decisions)).toBe(-1)
+    const rejects = decisions.filter((d) => d.inputs.outOfTolerance)
+    expect(rejects.length).toBeGreaterThan(0)
+    for (const d of rejects) {
+      expect(d.inputs.expectedReject).toBe(true)
+      expect(d.reason).toMatch(/ground before the correction after the event could land: not counted toward the stop/)
+    }
+    // Brought back: the last parts are in tolerance.
+    expect(decisions.slice(-10).every((d) => !d.inputs.outOfTolerance)).toBe(true)
+  })
+
+  it('a true fault right after a dress still stops: the landed correction does not bring the size back', () => {
+    // After the dress the size sits at +6 µm and the machine no longer moves with the offset (the
+    // parts report the offset they were ground with: the old one, commands never take).
+    let st = dressedState()
+    const r = runCompensation(st, Array.from({ length: 20 }, (_, i) => reading(121 + i, i < 3 ? 0 : 6, 0)))
+    const stopAt = firstStop(r.decisions)
+    expect(stopAt).toBeGreaterThan(-1)
+    // Forgiven: the first post-dress parts until the correction (max step by max step) should have
+    // landed — never more than the pipeline + what the bounds allow; then M = 3 rejects stop.
+    expect(stopAt).toBeLessThanOrEqual(3 + 1 + 3 + 3 + 3)
+    expect(r.decisions[stopAt]!.reason).toMatch(/^STOP: 3 consecutive parts out of tolerance/)
+    st = r.state
+  })
+
+  it('a step beyond what the bounds allow is not forgiven: the stop comes after M rejects', () => {
+    // A budget since dress of 1 µm of axis cannot take back a 6 µm step.
+    const st = dressedState({ ...SETTINGS, maxSinceDressUm: 1 })
+    const r = runCompensation(st, Array.from({ length: 10 }, (_, i) => reading(121 + i, i < 3 ? 0 : 6, 0)))
+    const stopAt = firstStop(r.decisions)
+    // After the pipeline (3 readings): the first post-dress reading is far from the prediction and
+    // waits, the second's command is cut by the budget — and the two rejects forgiven until then
+    // count after all, so the third stops.
+    expect(stopAt).toBe(3 + 2)
+    expect(r.decisions[stopAt]!.reason).toMatch(/^STOP: 3 consecutive parts out of tolerance/)
+    expect(r.decisions[4]!.command!.limitedBy).toContain('budget-since-dress')
+  })
+
+  it('rejects of the parts ground before the dress itself count as ever', () => {
+    const st = dressedState()
+    const r = runCompensation(st, [reading(121, 5, 0), reading(122, 5, 0), reading(123, 5, 0)])
+    expect(r.decisions[2]!.stop).toBe(true)
+  })
+})
+
+describe('pre-correcting never breaks a bound (property)', () => {
+  it('at every dress, with any wear, reported offset, machine behaviour and bounds: the command keeps max step, the range and the budget', () => {
+    fc.assert(
+      fc.property(
+        fc.record({
+          maxStepUm: fc.double({ min: 0.2, max: 3, noNaN: true }),
+          maxSinceDressUm: fc.double({ min: 0.5, max: 12, noNaN: true }),
+          rangeMax: fc.double({ min: 1, max: 30, noNaN: true }),
+          rangeMin: fc.double({ min: -30, max: -1, noNaN: true }),
+          wear: fc.double({ min: -0.05, max: 0.08, noNaN: true }),
+          machineOffset: fc.constantFrom('keeps' as const, 'gives-back' as const, 'resets' as const),
+          pipelineParts: fc.integer({ min: 0, max: 5 }),
+          events: fc.array(fc.record({ at: fc.integer({ min: 1, max: 300 }), reported: fc.option(fc.double({ min: -40, max: 40, noNaN: true })), parts: fc.option(fc.integer({ min: 0, max: 2000 })) }), { maxLength: 6 }),
+        }),
+        (p) => {
+          let st = createCompensationState({
+            upperSpecUm: 2, lowerSpecUm: -2, pipelineParts: p.pipelineParts, maxStepUm: p.maxStepUm, maxSinceDressUm: p.maxSinceDressUm,
+            offsetRange: { min: p.rangeMin, max: p.rangeMax }, dress: { machineOffset: p.machineOffset },
+          })
+          const at = new Map(p.events.map((e) => [e.at, e]))
+          for (let k = 1; k <= 300; k++) {
+            const inputs: CompensationInput[] = [reading(k, p.wear * k - 1.1 * st.offsetUm)]
+            const e = at.get(k)
+            if (e) inputs.push({ type: 'dress', ...(e.reported !== null ? { offsetUm: e.reported } : {}), ...(e.parts !== null ? { partsSinceDress: e.parts } : {}) })
+            for (const input of inputs) {
+              const { state, decision } = stepCompensation(st, input)
+              const c = decision.command
+              if (c) {
+                const s = state.settings
+                const base = c.newOffsetUm - c.offsetDeltaUm
+                expect(Math.abs(c.offsetDeltaUm)).toBeLessThanOrEqual(s.maxStepUm + 1e-9)
+                const lo = Math.max(s.offsetRange.min, state.offsetAtDressUm - s.maxSinceDressUm)
+                const hi = Math.min(s.offsetRange.max, state.offsetAtDressUm + s.maxSinceDressUm)
+                const outside = (u: number) => Math.max(0, lo - u, u - hi)
+                expect(outside(c.newOffsetUm)).toBeLessThanOrEqual(outside(base) + 1e-9)
+              }
+              st = state
+            }
+          }
+        },
+      ),
+      { numRuns: 200 },
+    )
+  })
+})
