@@ -164,6 +164,7 @@ describe('jobs', async () => {
     await editor.getByLabel('Strategy').selectOption('ewma')
     await editor.getByLabel('Largest step (axis µm)').pressSequentially('0.8')
     await editor.getByLabel('EWMA weight λ').pressSequentially('0.25')
+    await editor.getByLabel('What the machine does to its offset at a dress').selectOption('gives-back')
     // A value the engine refuses is named at its field, and Save waits until it is put right.
     await editor.getByLabel('Stop after rejects in a row').pressSequentially('0')
     await expect.poll(() => editor.locator('.field-error').count()).toBeGreaterThan(0)
@@ -174,7 +175,7 @@ describe('jobs', async () => {
     await page.locator('[data-test="notice"]', { hasText: 'Draft saved' }).waitFor()
     // Read back: the saved version holds exactly what was typed, in the database and on the page.
     const stored = JSON.parse(String((await db.execute(`select settings from compensation_settings where job_id = ${jobId} order by version desc limit 1`)).rows[0]![0]))
-    expect(stored).toEqual({ strategy: 'ewma', maxStepUm: 0.8, ewma: { lambda: 0.25 }, stopAfterOutOfTolerance: 4 })
+    expect(stored).toEqual({ strategy: 'ewma', maxStepUm: 0.8, ewma: { lambda: 0.25 }, dress: { machineOffset: 'gives-back' }, stopAfterOutOfTolerance: 4 })
     const shown = await page.locator('[data-test="versions"] li[data-version="1"]').innerText()
     expect(shown).not.toMatch(/all defaults/)
     expect(pageErrors).toEqual([])

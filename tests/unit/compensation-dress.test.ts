@@ -6,7 +6,7 @@
 import { describe, expect, it } from 'vitest'
 import fc from 'fast-check'
 import {
-  createCompensationState, runCompensation, stepCompensation, type CompensationDecision, type CompensationInput,
+  compensationDressOutlook, createCompensationState, runCompensation, stepCompensation, type CompensationDecision, type CompensationInput,
   type CompensationSettingsInput, type CompensationState,
 } from '../../shared/utils/compensation'
 import { runControlLoop, type LoopScenario } from '../../simulator/control-loop'
@@ -161,6 +161,25 @@ describe('the stop rule after an event', () => {
     const st = dressedState()
     const r = runCompensation(st, [reading(121, 5, 0), reading(122, 5, 0), reading(123, 5, 0)])
     expect(r.decisions[2]!.stop).toBe(true)
+  })
+})
+
+describe('the outlook the machine page shows', () => {
+  it('says what a dress now would do: −(wear rate × parts since the dress), and what the setting assumes', () => {
+    let st = createCompensationState({ ...SETTINGS, dress: { machineOffset: 'gives-back' } })
+    expect(compensationDressOutlook(st)).toMatchObject({ machineOffset: 'gives-back', stepUm: null, partsSinceDress: 0 })
+    // 200 parts of 0.01 µm/part wear, compensated: the least-squares rate is exact on a clean ramp.
+    let offset = 0
+    for (let k = 1; k <= 200; k++) {
+      const r = stepCompensation(st, reading(k, 0.01 * k + 1.1 * offset, offset))
+      st = r.state
+      if (r.decision.command) offset = r.decision.command.newOffsetUm
+    }
+    const o = compensationDressOutlook(st)
+    expect(o.partsSinceDress).toBe(200)
+    expect(o.wearUm).toBeCloseTo(2, 1)
+    expect(o.stepUm).toBeCloseTo(-o.wearUm, 9)
+    expect(o.dressesLearnt).toBe(0)
   })
 })
 
