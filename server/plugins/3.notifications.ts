@@ -4,7 +4,7 @@
 import { databaseReady } from './0.database'
 
 export default defineNitroPlugin((nitroApp) => {
-  try { notifySettings(); mailSettings() }
+  try { notifySettings(); mailSettings(); phoneSettings() }
   catch (err) { console.error((err as Error).message); process.exit(1) }
   databaseReady
     .then(() => startNotifications())

@@ -1,6 +1,7 @@
 // Notifications: listens to alarm transitions and machine status on the live bus, asks the
-// routing rules (shared/utils/alert-routing.ts) who to wake, delivers by Web Push and e-mail, and
-// writes every outcome to the delivery log. Also raises "trend nears tolerance" (with hysteresis)
+// routing rules (shared/utils/alert-routing.ts) who to wake, delivers by Web Push, e-mail, SMS and
+// voice call (server/utils/phone-alerts.ts), and writes every attempt and outcome to the delivery
+// log. Alarms released together when quiet hours end go out as one message per person. Also raises "trend nears tolerance" (with hysteresis)
 // from the compensation engine's predictions, as an alarm through the alarm engine's public entry,
 // so it is acknowledged, escalated and logged like any other alarm.
 import { and, desc, eq, gte, inArray } from 'drizzle-orm'
@@ -14,13 +15,16 @@ import {
 } from '#shared/utils/alert-routing'
 import type { ShiftCalendar } from '#shared/utils/shift-calendar'
 import { plantAlertCalendar } from './report'
-import { alertEmail, alertPushPayload, type AlertMessageInput } from '#shared/utils/alert-message'
+import { alertEmail, alertPushPayload, alertReleaseSummary, alertSmsText, alertVoiceText, type AlertMessageInput } from '#shared/utils/alert-message'
+import { placeAlertCall, phoneSettings, sendAlertSms } from './phone-alerts'
 import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'
 import { sendMail } from './mailer'
 
 export const TREND_CONDITION = 'trend:nears-tolerance'
 const RULES_KEY = 'alert-routing'
 const SWEEP_MS = 30_000
+/** Alarms released within this long of each other (quiet hours ended) share one message per person. */
+const RELEASE_GATHER_MS = 2_000
 
 const envSchema = z.object({
   OWLSHIFT_PUBLIC_URL: z.string().url('must be the address people open, e.g. https://owlshift.plant.example').default('http://localhost:3000'),
@@ -44,6 +48,7 @@ const trendRaised = new Map<string, boolean>()
 let chain: Promise<unknown> = Promise.resolve()
 let stopFns: (() => void)[] = []
 let pushAgent: Agent | undefined
+let releases: { timer: NodeJS.Timeout, items: { alarm: AlarmView, send: AlertSend }[] } | null = null
 
 function serial<T>(fn: () => Promise<T>): Promise<T> {
   const next = chain.then(fn, fn)
@@ -101,11 +106,16 @@ export async function saveAlertRules(next: AlertRoutingRules) {
 // ---------------------------------------------------------------- the router
 
 async function people() {
-  return useDb().select({ id: schema.users.id, role: schema.users.role, disabled: schema.users.disabled, email: schema.users.email, name: schema.users.name }).from(schema.users)
+  return useDb().select({ id: schema.users.id, role: schema.users.role, disabled: schema.users.disabled, email: schema.users.email, name: schema.users.name, phone: schema.users.phone }).from(schema.users)
 }
 
+const STOPPED = new Set(['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED'])
+
 function toAlertAlarm(a: AlarmView): AlertAlarm {
-  return { id: a.id, machineId: a.machineId, condition: a.condition, priority: a.priority as AlarmPriority, state: a.state, active: a.active, latching: a.latching, activations: a.activations }
+  // Quiet hours may hold it only if the catalogue says it can wait and its machine is not stopped.
+  const status = a.machineId ? machineContext(a.machineId)?.status : undefined
+  const machineStopped = !!status && (!status.online || STOPPED.has(status.execution ?? ''))
+  return { id: a.id, machineId: a.machineId, condition: a.condition, priority: a.priority as AlarmPriority, state: a.state, active: a.active, latching: a.latching, activations: a.activations, mayWait: a.mayWait && !machineStopped }
 }
 
 async function saveTrack(t: AlertTrack) {
@@ -131,7 +141,8 @@ async function routeAlarmNow(a: AlarmView, now: number) {
   const before = tracks.get(a.id) ?? null
   const key = keyOf(a)
   const ppl = await people()
-  const result = alertStep({ alarm: toAlertAlarm(a), now, rules: r, calendar, people: ppl, track: before, announcedAt: announced.get(key) ?? [] })
+  const phone = phoneSettings() !== null
+  const result = alertStep({ alarm: toAlertAlarm(a), now, rules: r, calendar, people: ppl, track: before, announcedAt: announced.get(key) ?? [], channels: { sms: phone, voice: phone } })
   if (result.track && result.track !== before) await saveTrack(result.track)
   const rows: DeliveryRow[] = result.notes.map(n => ({
     at: now, alarmId: a.id, userId: null, channel: 'none', level: result.track?.level ?? 0, status: n.kind, detail: n.why,
@@ -143,8 +154,11 @@ async function routeAlarmNow(a: AlarmView, now: number) {
   }
   await logRows(rows)
   if (result.sends.length) {
-    if (result.sends.some(s => s.level === 0)) announced.set(key, [...(announced.get(key) ?? []).filter(t => t > now - 24 * 3600_000), now])
-    await deliver(a, result.sends, ppl, calendar.timeZone, now)
+    if (result.sends.some(s => s.level === 0 && s.push)) announced.set(key, [...(announced.get(key) ?? []).filter(t => t > now - 24 * 3600_000), now])
+    const released = result.sends.filter(s => s.released)
+    if (released.length) gatherReleases(a, released)
+    const now_ = result.sends.filter(s => !s.released)
+    if (now_.length) await deliver(a, now_, ppl, calendar.timeZone, now)
   }
   schedule(a.id, result.nextCheckAt, now)
 }
@@ -174,19 +188,26 @@ export async function sweepAlerts() {
 
 // ---------------------------------------------------------------- delivery
 
+function messageBase(a: AlarmView, timeZone: string): Omit<AlertMessageInput, 'level' | 'why'> {
+  const machine = a.machineId ? machineContext(a.machineId) : undefined
+  return {
+    alarmId: a.id, machineId: a.machineId, machineName: machine?.name ?? null, title: a.title, message: a.message,
+    priority: a.priority as AlarmPriority, steps: a.steps, raisedAt: a.raisedAt, timeZone,
+    // A latching alarm owed after its condition cleared says so (and when).
+    clearedAt: a.latching && !a.active ? a.lastChangeAt : null,
+  }
+}
+
 async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType<typeof people>>, timeZone: string, now: number) {
   const db = useDb()
   const keys = await useVapidKeys()
-  const machine = a.machineId ? machineContext(a.machineId) : undefined
-  const msgBase: Omit<AlertMessageInput, 'level' | 'why'> = {
-    alarmId: a.id, machineId: a.machineId, machineName: machine?.name ?? null, title: a.title, message: a.message,
-    priority: a.priority as AlarmPriority, steps: a.steps, raisedAt: a.raisedAt,
-  }
+  const msgBase = messageBase(a, timeZone)
   const { publicUrl } = notifySettings()
   for (const s of sends) {
     const person = ppl.find(p => p.id === s.userId)
     if (!person) continue
     const msg: AlertMessageInput = { ...msgBase, level: s.level, why: s.why }
+    if (s.sms || s.call) await phoneAttempts(a, s, person, msg, publicUrl, now)
     if (s.push) {
       const subs = await db.select().from(schema.pushSubscriptions).where(eq(schema.pushSubscriptions.userId, s.userId))
       if (!subs.length) await logRows([{ at: now, alarmId: a.id, userId: s.userId, channel: 'push', level: s.level, status: 'failed', detail: 'no device subscribed; in-page only' }])
@@ -207,6 +228,64 @@ async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType
       const mail = alertEmail(msg, publicUrl, timeZone)
       const out = await sendMail({ to: person.email, ...mail })
       await logRows([{ at: now, alarmId: a.id, userId: s.userId, channel: 'email', level: s.level, status: out.ok ? 'sent' : 'failed', detail: out.ok ? `${s.why} · ${out.messageId}` : out.detail }])
+    }
+  }
+}
+
+/** The SMS and the call of one send, each logged first so its callbacks name it (d = delivery id). */
+async function phoneAttempts(a: AlarmView, s: AlertSend, person: { id: number, phone: string | null }, msg: AlertMessageInput, publicUrl: string, now: number) {
+  const settings = phoneSettings()
+  const base = publicUrl.replace(/\/$/, '')
+  for (const channel of [...(s.sms ? ['sms'] as const : []), ...(s.call ? ['call'] as const : [])]) {
+    if (!settings) continue
+    if (!person.phone) {
+      await logRows([{ at: now, alarmId: a.id, userId: person.id, channel, level: s.level, status: 'failed', detail: 'no phone number (Me page)' }])
+      continue
+    }
+    const [id] = await logRows([{ at: now, alarmId: a.id, userId: person.id, channel, level: s.level, status: 'sending', detail: s.why }])
+    const status = `${base}/api/phone/status?d=${id}`
+    const out = channel === 'sms'
+      ? await sendAlertSms(settings, person.phone, alertSmsText(msg, publicUrl), status)
+      : await placeAlertCall(settings, person.phone, alertVoiceText(msg), `${base}/api/phone/gather?d=${id}`, status)
+    await useDb().update(schema.notificationDeliveries).set(out.ok ? { status: 'sent', detail: `${s.why} · ${out.sid}` } : { status: 'failed', detail: out.detail }).where(eq(schema.notificationDeliveries.id, id!))
+  }
+}
+
+/** Quiet hours ended: what they held goes out together, one message per person (push, e-mail). */
+function gatherReleases(a: AlarmView, sends: AlertSend[]) {
+  releases ??= { timer: setTimeout(() => { const batch = releases!.items; releases = null; void serial(() => deliverReleases(batch)) }, RELEASE_GATHER_MS), items: [] }
+  releases.timer.unref()
+  for (const send of sends) releases.items.push({ alarm: a, send })
+}
+
+async function deliverReleases(items: { alarm: AlarmView, send: AlertSend }[]) {
+  const { calendar } = await alertCalendar()
+  const ppl = await people()
+  const keys = await useVapidKeys()
+  const { publicUrl } = notifySettings()
+  const now = Date.now()
+  const db = useDb()
+  for (const userId of new Set(items.map(i => i.send.userId))) {
+    const mine = items.filter(i => i.send.userId === userId)
+    const person = ppl.find(p => p.id === userId)
+    if (!person) continue
+    if (mine.length === 1) { await deliver(mine[0]!.alarm, [{ ...mine[0]!.send, released: false }], ppl, calendar.timeZone, now); continue }
+    const msgs = mine.map(i => ({ ...messageBase(i.alarm, calendar.timeZone), level: 0, why: i.send.why }))
+    const summary = alertReleaseSummary(msgs)
+    const top = Math.min(...mine.map(i => i.alarm.priority)) as AlarmPriority
+    if (mine.some(i => i.send.push)) {
+      const subs = await db.select().from(schema.pushSubscriptions).where(eq(schema.pushSubscriptions.userId, userId))
+      for (const sub of subs) {
+        const ids = await logRows(mine.map(i => ({ at: now, alarmId: i.alarm.id, userId, channel: 'push', level: 0, status: 'sending', subscriptionId: sub.id, detail: `in one message with ${mine.length} alarms held through quiet hours` })))
+        const payload = JSON.stringify({ ...summary, alarmId: mine[0]!.alarm.id, deliveryId: ids[0], tag: 'owlshift-quiet-hours', priority: top, requireInteraction: top <= 2 })
+        const out = await sendWebPush({ endpoint: sub.endpoint, p256dh: sub.p256dh, auth: sub.auth }, payload, keys, { urgency: 'normal', ttlS: 4 * 3600, topic: 'quiet-hours', agent: pushAgent })
+        const status = out.outcome === 'sent' ? 'sent' : out.outcome === 'gone' ? 'gone' : 'failed'
+        await db.update(schema.notificationDeliveries).set({ status }).where(inArray(schema.notificationDeliveries.id, ids))
+      }
+    }
+    if (mine.some(i => i.send.email)) {
+      const out = await sendMail({ to: person.email, subject: `[Owlshift] ${summary.title}`, text: `${summary.body}\n\n${publicUrl.replace(/\/$/, '')}${summary.url}`, html: `<p>${summary.body.split('\n').map(l => l.replace(/&/g, '&amp;').replace(/</g, '&lt;')).join('<br>')}</p>` })
+      await logRows(mine.map(i => ({ at: now, alarmId: i.alarm.id, userId, channel: 'email', level: 0, status: out.ok ? 'sent' : 'failed', detail: out.ok ? 'in one e-mail with the alarms held through quiet hours' : out.detail })))
     }
   }
 }
@@ -257,6 +336,7 @@ async function watchTrend(machineId: string, status: Record<string, unknown>, no
 export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
   pushAgent = opts.pushAgent
   notifySettings() // fail early on bad settings
+  if (phoneSettings()) log.info('[notify] SMS and voice alerts are on')
   await useVapidKeys()
   await loadAlertRules()
   const db = useDb()
@@ -287,6 +367,8 @@ export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
 }
 
 export function stopNotifications() {
+  if (releases) clearTimeout(releases.timer)
+  releases = null
   for (const f of stopFns) f()
   stopFns = []
   for (const t of timers.values()) clearTimeout(t)

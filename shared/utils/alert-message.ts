@@ -13,6 +13,17 @@ export interface AlertMessageInput {
   why: string
   steps: string[]
   raisedAt: number
+  /** a latching alarm whose condition cleared: when (it still owes an acknowledgement and a reset) */
+  clearedAt?: number | null
+  /** the cell's time zone, for the times in the words */
+  timeZone?: string
+}
+
+const clock = (ms: number, timeZone = 'UTC') => new Intl.DateTimeFormat('en-GB', { timeZone, hour: '2-digit', minute: '2-digit', hourCycle: 'h23' }).format(new Date(ms))
+
+/** "cleared at 03:12 — still to acknowledge and reset at the machine", or '' while the condition stands. */
+export function alertClearedWords(m: Pick<AlertMessageInput, 'clearedAt' | 'timeZone'>): string {
+  return m.clearedAt ? `cleared at ${clock(m.clearedAt, m.timeZone)} — still to acknowledge and reset at the machine` : ''
 }
 
 export interface AlertPushPayload {
@@ -34,9 +45,11 @@ export function alertLinkFor(alarmId: number): string { return `/alarms?open=${a
 export function alertPushPayload(m: AlertMessageInput, deliveryId: number | null): AlertPushPayload {
   const where = m.machineName ?? m.machineId ?? 'Cell'
   const escalated = m.level > 0 ? ' (escalated)' : ''
+  const cleared = alertClearedWords(m)
+  const said = m.message && m.message !== m.title ? m.message : `${ALARM_PRIORITY_NAMES[m.priority]} priority alarm`
   return {
-    title: `${where}: ${m.title}${escalated}`,
-    body: m.message && m.message !== m.title ? m.message : `${ALARM_PRIORITY_NAMES[m.priority]} priority alarm`,
+    title: `${where}: ${m.title}${cleared ? ' (cleared)' : ''}${escalated}`,
+    body: cleared ? `${said} · ${cleared}` : said,
     url: alertLinkFor(m.alarmId),
     alarmId: m.alarmId,
     deliveryId,
@@ -56,6 +69,7 @@ export function alertEmail(m: AlertMessageInput, baseUrl: string, timeZone: stri
     m.message,
     '',
     `Raised ${raised} (${timeZone}), ${ALARM_PRIORITY_NAMES[m.priority]} priority, not acknowledged.`,
+    ...(m.clearedAt ? [`Its condition ${alertClearedWords({ ...m, timeZone })}.`] : []),
     `Why you: ${m.why}`,
     '',
     ...(m.steps.length ? ['What to do:', ...m.steps.map((s, i) => `${i + 1}. ${s}`), ''] : []),
@@ -63,11 +77,39 @@ export function alertEmail(m: AlertMessageInput, baseUrl: string, timeZone: stri
   ]
   const html = [
     `<p><strong>${esc(where)}: ${esc(m.title)}</strong><br>${esc(m.message)}</p>`,
-    `<p>Raised ${esc(raised)} (${esc(timeZone)}), ${ALARM_PRIORITY_NAMES[m.priority]} priority, not acknowledged.<br>Why you: ${esc(m.why)}</p>`,
+    `<p>Raised ${esc(raised)} (${esc(timeZone)}), ${ALARM_PRIORITY_NAMES[m.priority]} priority, not acknowledged.${m.clearedAt ? `<br>Its condition ${esc(alertClearedWords({ ...m, timeZone }))}.` : ''}<br>Why you: ${esc(m.why)}</p>`,
     m.steps.length ? `<ol>${m.steps.map(s => `<li>${esc(s)}</li>`).join('')}</ol>` : '',
     `<p><a href="${esc(link)}">Open and acknowledge</a></p>`,
   ].join('\n')
   return { subject, text: lines.join('\n'), html }
+}
+
+/** An SMS: short (one or two segments), what and where, cleared or not, how to acknowledge. */
+export function alertSmsText(m: AlertMessageInput, baseUrl: string): string {
+  const where = m.machineName ?? m.machineId ?? 'Cell'
+  const cleared = alertClearedWords(m)
+  const detail = m.message && m.message !== m.title ? ` ${m.message.slice(0, 80)}` : ''
+  return `Owlshift ${ALARM_PRIORITY_NAMES[m.priority]}: ${where} — ${m.title}.${detail}${cleared ? ` (${cleared})` : ''} Reply 1 to acknowledge. ${baseUrl.replace(/\/$/, '')}${alertLinkFor(m.alarmId)}`
+}
+
+/** What a voice call says (the call then asks for a key). */
+export function alertVoiceText(m: AlertMessageInput): string {
+  const where = m.machineName ?? m.machineId ?? 'the cell'
+  const cleared = alertClearedWords(m)
+  return `Owlshift, ${ALARM_PRIORITY_NAMES[m.priority]} priority alarm. ${where}: ${m.title}.${cleared ? ` It ${cleared}.` : ''}`
+}
+
+/**
+ * Alarms released together when quiet hours end, in one message per person instead of one each.
+ * Push title and body; `count` names how many.
+ */
+export function alertReleaseSummary(list: readonly AlertMessageInput[]): { title: string, body: string, url: string } {
+  const lines = list.map(m => `${m.machineName ?? m.machineId ?? 'Cell'}: ${m.title}${m.clearedAt ? ` (${alertClearedWords(m)})` : ''}`)
+  return {
+    title: `${list.length} alarm${list.length === 1 ? '' : 's'} held through quiet hours`,
+    body: lines.join('\n'),
+    url: list.length === 1 ? alertLinkFor(list[0]!.alarmId) : '/alarms',
+  }
 }
 
 function esc(s: string): string {

@@ -8,8 +8,11 @@
 //     times of their own: the caller passes the calendar in;
 //   - an on-call table names, per calendar shift and weekday (or for one date), the contacts in escalation order;
 //   - each priority says which roles may be woken, whether it is pushed, from which escalation level
-//     it also goes by e-mail, after how many unacknowledged minutes it moves to the next contact,
-//     and whether quiet hours hold it back;
+//     it also goes by e-mail, after how many unacknowledged minutes the same person also gets an SMS
+//     and then a voice call, after how many it moves to the next contact, whether it repeats once
+//     everyone was woken (top priority: until someone acknowledges), and whether quiet hours may
+//     hold it — only alarms the catalogue says can wait (docs/alarms.md: nothing that stopped a
+//     machine or will within the hour);
 //   - the same alarm is never announced twice within the de-duplication window, and at most
 //     `rateLimit.max` times within `rateLimit.windowMin` (a chattering condition cannot page all night);
 //   - "trend nears tolerance" is raised from the compensation engine's prediction below a per-job
@@ -34,9 +37,15 @@ const priorityRuleSchema = z.object({
   emailFromLevel: z.number().int().min(0).max(10).nullable().default(1),
   /** minutes unacknowledged before the next contact is woken (null: no escalation) */
   escalateAfterMin: minutes(24 * 60).nullable().default(10),
-  /** held back during quiet hours (then sent when they end, if still unacknowledged) */
+  /** minutes after the push before the same person also gets an SMS (null: none) */
+  smsAfterMin: minutes(24 * 60).nullable().default(null),
+  /** minutes after the push before the same person is called (null: no call) */
+  callAfterMin: minutes(24 * 60).nullable().default(null),
+  /** once every contact was woken: go over the last one again this often until acknowledged (null: stop) */
+  repeatEveryMin: minutes(24 * 60).refine(v => v >= 1, 'must be at least 1 minute').nullable().default(null),
+  /** held back during quiet hours (then sent when they end, if still unacknowledged) — only alarms that may wait */
   quietHours: z.boolean().default(false),
-})
+}).refine(r => r.smsAfterMin === null || r.callAfterMin === null || r.smsAfterMin <= r.callAfterMin, { message: 'the SMS comes before the call: smsAfterMin must not be above callAfterMin', path: ['smsAfterMin'] })
 
 // Unknown keys are dropped (zod's default): older stored rules carried `timeZone` and `shifts` of
 // their own; see alertUpgradeStoredRules for how their on-call entries are kept.
@@ -70,9 +79,9 @@ export function alertDefaultRules(): AlertRoutingRules {
   return alertRoutingRulesSchema.parse({
     onCall: [],
     priorities: {
-      1: { roles: ['lead', 'engineer', 'admin'], allAtOnce: true, emailFromLevel: 0, escalateAfterMin: 5 },
-      2: { roles: ['lead', 'engineer'], emailFromLevel: 1, escalateAfterMin: 10 },
-      3: { roles: ['lead', 'engineer'], emailFromLevel: 1, escalateAfterMin: 20, quietHours: true },
+      1: { roles: ['lead', 'engineer', 'admin'], allAtOnce: true, emailFromLevel: 0, escalateAfterMin: 5, smsAfterMin: 1, callAfterMin: 2, repeatEveryMin: 5 },
+      2: { roles: ['lead', 'engineer'], emailFromLevel: 1, escalateAfterMin: 10, smsAfterMin: 3, callAfterMin: 6 },
+      3: { roles: ['lead', 'engineer'], emailFromLevel: 1, escalateAfterMin: 20, smsAfterMin: 5, callAfterMin: 10, quietHours: true },
       4: { roles: ['lead', 'engineer'], push: false, emailFromLevel: null, escalateAfterMin: null, quietHours: true },
     },
     quietHours: { start: '23:00', end: '05:30' },
@@ -98,7 +107,7 @@ export function alertParseRules(raw: unknown): { rules: AlertRoutingRules } | { 
  */
 export function alertUpgradeStoredRules(raw: unknown, calendar: ShiftCalendar): unknown {
   if (!raw || typeof raw !== 'object' || Array.isArray(raw)) return raw
-  const { timeZone: _zone, shifts: oldShifts, ...rest } = raw as Record<string, unknown>
+  const { timeZone: _zone, shifts: oldShifts, ...rest } = withLadder(raw as Record<string, unknown>)
   if (!Array.isArray(oldShifts) || !Array.isArray(rest.onCall)) return rest
   const known = new Set(calendar.shifts.map(s => s.id))
   const renamed = new Map<string, string>()
@@ -112,6 +121,25 @@ export function alertUpgradeStoredRules(raw: unknown, calendar: ShiftCalendar): 
     return typeof id === 'string' && renamed.has(id) ? { ...(e as object), shiftId: renamed.get(id) } : e
   })
   return { ...rest, onCall }
+}
+
+/**
+ * Rules stored before SMS, calls and repeats existed lack those fields per priority: they take the
+ * defaults' (a top-priority alarm then repeats until acknowledged, as it must). Fields set stay.
+ */
+function withLadder(raw: Record<string, unknown>): Record<string, unknown> {
+  const prios = raw.priorities
+  if (!prios || typeof prios !== 'object') return raw
+  const d = alertDefaultRules().priorities
+  const out: Record<string, unknown> = {}
+  for (const [k, v] of Object.entries(prios as Record<string, unknown>)) {
+    const def = d[Number(k) as AlarmPriority]
+    if (!def || !v || typeof v !== 'object') { out[k] = v; continue }
+    const rule = { ...(v as Record<string, unknown>) }
+    for (const f of ['smsAfterMin', 'callAfterMin', 'repeatEveryMin'] as const) if (!(f in rule)) rule[f] = def[f]
+    out[k] = rule
+  }
+  return { ...raw, priorities: out }
 }
 
 /**
@@ -220,6 +248,8 @@ export interface AlertAlarm {
   active: boolean
   latching: boolean
   activations: number
+  /** the catalogue says it can wait till morning and its machine is not stopped: quiet hours may hold it */
+  mayWait?: boolean
 }
 
 /** The router's memory of one alarm (stored by the server between events and ticks). */
@@ -237,9 +267,26 @@ export interface AlertTrack {
   done: boolean
   /** every escalation level used: nobody left to wake for this activation */
   exhausted: boolean
+  /** how far the current level got: 0 push (and e-mail), 1 SMS, 2 voice call (absent in older tracks: 0) */
+  stage?: number
+  /** times the last level was gone over again (top priority repeats until acknowledged) */
+  repeats?: number
 }
 
-export interface AlertSend { userId: number, level: number, push: boolean, email: boolean, why: string }
+export interface AlertSend {
+  userId: number
+  level: number
+  push: boolean
+  email: boolean
+  sms: boolean
+  call: boolean
+  why: string
+  /** sent when quiet hours ended (people get one message for all such alarms) */
+  released?: boolean
+}
+
+/** Which paid channels the server can use (SMS and voice need their service configured). */
+export interface AlertChannels { sms: boolean, voice: boolean }
 
 export type AlertNote =
   | { kind: 'duplicate', why: string }
@@ -267,6 +314,8 @@ export interface AlertStepInput {
   track: AlertTrack | null
   /** when this machine+condition was announced before (any alarm row), for de-duplication and the rate limit */
   announcedAt: readonly number[]
+  /** SMS and voice available (default: neither) */
+  channels?: AlertChannels
 }
 
 /** Still owed an answer: unacknowledged, with the condition active or latching. */
@@ -292,21 +341,23 @@ export function alertStep(input: AlertStepInput): AlertStepResult {
   // A new activation, or an alarm owed again after it was answered (a shelve ended while active).
   const fresh = !track || alarm.activations > track.activations || track.done
   if (fresh) {
-    const base: AlertTrack = { alarmId: alarm.id, activations: alarm.activations, level: 0, levelAt: now, heldUntil: null, done: false, exhausted: false }
+    const base: AlertTrack = { alarmId: alarm.id, activations: alarm.activations, level: 0, levelAt: now, heldUntil: null, done: false, exhausted: false, stage: 0, repeats: 0 }
     const dedupFrom = now - rules.dedupWindowMin * 60_000
     const recent = input.announcedAt.filter(t => t > dedupFrom && t <= now)
-    // A repeat within the window: the same people were just told. The escalation clock still runs.
+    // A repeat within the window: the same people were just pushed, so no push now — but its
+    // ladder starts now at the first contact (SMS, call, then the next contact), never skipping them.
     if (recent.length) {
       const last = Math.max(...recent)
-      return { track: { ...base, levelAt: last }, sends: [], notes: [{ kind: 'duplicate', why: `announced ${fmtAgo(now - last)} ago, within the ${rules.dedupWindowMin} min de-duplication window` }], nextCheckAt: escalationDue(rule, last) }
+      return { track: base, sends: [], notes: [{ kind: 'duplicate', why: `announced ${fmtAgo(now - last)} ago, within the ${rules.dedupWindowMin} min de-duplication window` }], nextCheckAt: nextDue(input, base) }
     }
     const inWindow = input.announcedAt.filter(t => t > now - rules.rateLimit.windowMin * 60_000 && t <= now).length
     if (inWindow >= rules.rateLimit.max) {
       return { track: base, sends: [], notes: [{ kind: 'rate-limited', why: `already announced ${inWindow} times in ${rules.rateLimit.windowMin} min (limit ${rules.rateLimit.max})` }], nextCheckAt: escalationDue(rule, now) }
     }
-    if (rule.quietHours && alertInQuietHours(rules, calendar.timeZone, now)) {
+    // Quiet hours hold only what can truly wait: the catalogue says so and no machine is stopped by it.
+    if (rule.quietHours && alarm.mayWait === true && alertInQuietHours(rules, calendar.timeZone, now)) {
       const until = alertQuietHoursEnd(rules, calendar.timeZone, now)
-      return { track: { ...base, level: -1, heldUntil: until }, sends: [], notes: [{ kind: 'held', until, why: `priority ${alarm.priority} waits for the end of quiet hours` }], nextCheckAt: until }
+      return { track: { ...base, level: -1, heldUntil: until }, sends: [], notes: [{ kind: 'held', until, why: `priority ${alarm.priority}, ${alarm.condition} may wait for the end of quiet hours` }], nextCheckAt: until }
     }
     return announce(input, base, 0)
   }
@@ -314,14 +365,49 @@ export function alertStep(input: AlertStepInput): AlertStepResult {
   if (track.exhausted) return { track, sends: [], notes: [], nextCheckAt: null }
   if (track.heldUntil !== null) {
     if (now < track.heldUntil) return { track, sends: [], notes: [], nextCheckAt: track.heldUntil }
-    return announce(input, { ...track, heldUntil: null, level: 0, levelAt: now }, 0)
+    return announce(input, { ...track, heldUntil: null, level: 0, levelAt: now, stage: 0 }, 0, { released: true })
   }
-  const due = escalationDue(rule, track.levelAt)
-  if (due === null || now < due) return { track, sends: [], notes: [], nextCheckAt: due }
-  return announce(input, { ...track, level: track.level + 1, levelAt: now }, track.level + 1)
+  const esc = escalationDue(rule, track.levelAt)
+  if (esc !== null && now >= esc) {
+    const levels = alertRecipients(rules, calendar, input.people, alarm.priority, now, 0).levels
+    // Everyone was woken: top priority goes over the last level again until someone acknowledges.
+    if (track.level + 1 >= levels && rule.repeatEveryMin !== null) {
+      const again = track.levelAt + rule.repeatEveryMin * 60_000
+      if (now < again) return { track, sends: [], notes: [], nextCheckAt: again }
+      return announce(input, { ...track, levelAt: now, stage: 0, repeats: (track.repeats ?? 0) + 1 }, track.level, { repeat: true })
+    }
+    return announce(input, { ...track, level: track.level + 1, levelAt: now, stage: 0 }, track.level + 1)
+  }
+  // Same person, next channel: SMS, then a call.
+  const stage = track.stage ?? 0
+  const current = track
+  const due = ([1, 2] as const).filter((st) => { const at = stageAt(input, current, st); return st > stage && at !== null && at <= now })
+  if (!due.length) return { track, sends: [], notes: [], nextCheckAt: nextDue(input, track) }
+  const who = alertRecipients(rules, calendar, input.people, alarm.priority, now, Math.max(0, track.level))
+  const next: AlertTrack = { ...track, stage: Math.max(...due) }
+  const minutes = Math.round((now - track.levelAt) / 60_000)
+  const sends = who.userIds.map(userId => ({ userId, level: current.level, push: false, email: false, sms: due.includes(1), call: due.includes(2), why: `unacknowledged ${minutes} min after the push — ${due.includes(2) ? 'calling' : 'by SMS'}: ${who.why}` }))
+  return { track: next, sends, notes: [], nextCheckAt: nextDue(input, next) }
 }
 
-function announce(input: AlertStepInput, track: AlertTrack, level: number): AlertStepResult {
+/** When the current level's SMS (1) or call (2) is due, or null when that step is off. */
+function stageAt(input: AlertStepInput, track: AlertTrack, stage: 1 | 2): number | null {
+  const rule = input.rules.priorities[input.alarm.priority]
+  const ch = input.channels ?? { sms: false, voice: false }
+  const after = stage === 1 ? (ch.sms ? rule.smsAfterMin : null) : (ch.voice ? rule.callAfterMin : null)
+  return after === null ? null : track.levelAt + after * 60_000
+}
+
+/** The next moment this alarm's ladder moves: its next channel, the next contact or a repeat. */
+function nextDue(input: AlertStepInput, track: AlertTrack, withEscalation = true): number | null {
+  const rule = input.rules.priorities[input.alarm.priority]
+  const times = ([1, 2] as const).filter(st => st > (track.stage ?? 0)).map(st => stageAt(input, track, st)).filter((t): t is number => t !== null)
+  const esc = withEscalation ? escalationDue(rule, track.levelAt) : null
+  if (esc !== null) times.push(esc)
+  return times.length ? Math.min(...times) : null
+}
+
+function announce(input: AlertStepInput, track: AlertTrack, level: number, how: { released?: boolean, repeat?: boolean } = {}): AlertStepResult {
   const { alarm, now, rules } = input
   const rule = rules.priorities[alarm.priority]
   const who = alertRecipients(rules, input.calendar, input.people, alarm.priority, now, level)
@@ -331,10 +417,15 @@ function announce(input: AlertStepInput, track: AlertTrack, level: number): Aler
       : { kind: 'chain-exhausted', why: `all ${who.levels} escalation levels used; nobody left to wake` }
     return { track: { ...track, level: Math.max(0, level - 1), exhausted: true }, sends: [], notes: [note], nextCheckAt: null }
   }
-  const email = rule.emailFromLevel !== null && level >= rule.emailFromLevel
-  const sends = who.userIds.map(userId => ({ userId, level, push: rule.push, email, why: level === 0 ? who.why : `unacknowledged for ${rule.escalateAfterMin} min — escalated: ${who.why}` }))
-  const more = level + 1 < who.levels
-  return { track, sends, notes: [], nextCheckAt: more ? escalationDue(rule, now) : null }
+  // E-mail goes with the first announcement of a level, never with the repeats.
+  const email = !how.repeat && rule.emailFromLevel !== null && level >= rule.emailFromLevel
+  const why = how.repeat ? `still unacknowledged — reminder ${track.repeats} (every ${rule.repeatEveryMin} min until acknowledged): ${who.why}`
+    : level === 0 ? who.why : `unacknowledged for ${rule.escalateAfterMin} min — escalated: ${who.why}`
+  const sends: AlertSend[] = who.userIds.map(userId => ({ userId, level, push: rule.push, email, sms: false, call: false, why, ...(how.released ? { released: true } : {}) }))
+  // Look again for the next channel, the next contact, or (top priority) the next reminder; after
+  // the last contact of a chain that does not repeat, only its own SMS and call are left.
+  const more = level + 1 < who.levels || rule.repeatEveryMin !== null
+  return { track, sends, notes: [], nextCheckAt: nextDue(input, track, more) }
 }
 
 function escalationDue(rule: AlertPriorityRule, from: number): number | null {

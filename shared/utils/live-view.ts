@@ -165,7 +165,10 @@ export function liveAlarmActionWord(action: string): string {
 export function liveAlarmActor(who: string | null, where: string): string {
   if (where === 'system') return who ?? 'Owlshift'
   // stations.ts writes "station:<machine id>" or "web <address>"
-  const place = where.startsWith('station:') ? `at the station of ${where.slice(8)}` : where.startsWith('web ') ? `on the web (${where.slice(4)})` : where
+  const place = where.startsWith('station:') ? `at the station of ${where.slice(8)}`
+    : where.startsWith('web ') ? `on the web (${where.slice(4)})`
+      : where.startsWith('sms ') ? `by SMS reply from ${where.slice(4)}`
+        : where.startsWith('call ') ? `by a key pressed on the call to ${where.slice(5)}` : where
   return `${who ?? 'Owlshift'}, ${place}`
 }
 

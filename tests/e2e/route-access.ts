@@ -68,6 +68,12 @@ export const routeAccess: Record<string, RouteRule> = {
   'notifications/rules.put.ts': { access: ['admin'] },
   'notifications/on-call.get.ts': { access: 'signed-in' },
   'notifications/deliveries.get.ts': { access: ['admin', 'lead', 'engineer'] },
+  // Phone service callbacks: signed by the phone service, not by a session (404 while SMS and voice are off)
+  'phone/status.post.ts': { access: 'public' },
+  'phone/gather.post.ts': { access: 'public' },
+  'phone/sms.post.ts': { access: 'public' },
+  'me/phone.get.ts': { access: 'signed-in' },
+  'me/phone.put.ts': { access: 'signed-in', body: { phone: null } },
   // Overnight report and hand-over
   'reports/shifts.get.ts': { access: 'signed-in' },
   'reports/shift.get.ts': { access: 'signed-in' },

@@ -39,6 +39,21 @@ const alarm = (over: Partial<AlertAlarm> = {}): AlertAlarm => ({
   id: 10, machineId: 'cg-01', condition: 'fault:coolant_fault', priority: 2, state: 'unacknowledged', active: true, latching: false, activations: 1, ...over,
 })
 
+describe('rules stored before SMS, calls and reminders', () => {
+  it('take the defaults for them per priority, keep what is set, and refuse an SMS after the call', () => {
+    const old = JSON.parse(JSON.stringify(alertDefaultRules())) as Record<string, any>
+    for (const p of ['1', '2', '3', '4']) { delete old.priorities[p].smsAfterMin; delete old.priorities[p].callAfterMin; delete old.priorities[p].repeatEveryMin }
+    old.priorities['2'].smsAfterMin = 4
+    const parsed = alertParseRules(alertUpgradeStoredRules(old, calendar))
+    if (!('rules' in parsed)) throw new Error(parsed.problems.join('; '))
+    expect(parsed.rules.priorities[1]).toMatchObject({ smsAfterMin: 1, callAfterMin: 2, repeatEveryMin: 5 })
+    expect(parsed.rules.priorities[2]).toMatchObject({ smsAfterMin: 4, callAfterMin: 6, repeatEveryMin: null })
+    const bad = alertDefaultRules()
+    bad.priorities[2] = { ...bad.priorities[2], smsAfterMin: 8, callAfterMin: 6 }
+    expect(alertParseRules(bad)).toEqual({ problems: ['priorities.2.smsAfterMin: the SMS comes before the call: smsAfterMin must not be above callAfterMin'] })
+  })
+})
+
 describe('plant clock and shifts', () => {
   it('reads local time across the spring daylight-saving change (EU rule)', () => {
     // 2025-03-30 00:30 UTC = 01:30 CET (UTC+1); 01:30 UTC = 03:30 CEST (UTC+2).
@@ -153,8 +168,12 @@ describe('alarm steps: announce, de-duplicate, rate-limit, hold, escalate, stop'
     const again = step(alarm({ activations: 2 }), t0 + 4 * MIN, { ...first.track!, done: true }, [t0])
     expect(again.sends).toEqual([])
     expect(again.notes[0]).toMatchObject({ kind: 'duplicate' })
-    // Its escalation clock runs from the earlier announcement.
-    expect(again.nextCheckAt).toBe(t0 + 10 * MIN)
+    // Its ladder starts at the re-raise with the first contact: no escalation 49 s after it (the
+    // clock once ran from the earlier announcement and skipped the lead); the engineer's turn is
+    // 10 min after the re-raise.
+    expect(again.nextCheckAt).toBe(t0 + 14 * MIN)
+    expect(step(alarm({ activations: 2 }), t0 + 10 * MIN + 49_000, again.track).sends).toEqual([])
+    expect(step(alarm({ activations: 2 }), t0 + 14 * MIN, again.track).sends.map(x => x.userId)).toEqual([3])
     // After the 10-minute window it is announced again.
     expect(step(alarm({ id: 11 }), t0 + 11 * MIN, null, [t0]).sends.length).toBe(1)
   })
@@ -168,8 +187,8 @@ describe('alarm steps: announce, de-duplicate, rate-limit, hold, escalate, stop'
     expect(step(alarm({ id: 13 }), t0 + 60 * MIN + 1, null, announced).sends.length).toBe(1)
   })
 
-  it('holds a medium-priority alarm during quiet hours and sends it when they end, if still owed', () => {
-    const medium = alarm({ priority: 3, condition: 'link:silent' })
+  it('holds during quiet hours only what may wait, and sends it when they end, if still owed', () => {
+    const medium = alarm({ priority: 3, condition: 'link:sequence-gap', mayWait: true })
     const at = berlin('2025-06-12T01:00:00')
     const held = step(medium, at, null)
     expect(held.sends).toEqual([])
@@ -181,8 +200,13 @@ describe('alarm steps: announce, de-duplicate, rate-limit, hold, escalate, stop'
     expect(released.sends.map(s => s.userId)).toEqual([2])
     // Acknowledged before the end: nothing is sent.
     expect(step({ ...medium, state: 'acknowledged' }, berlin('2025-06-12T05:30:00'), held.track).sends).toEqual([])
+    expect(released.sends[0]!.released).toBe(true)
     // A high-priority alarm is not held.
     expect(step(alarm(), at, null).sends.map(s => s.userId)).toEqual([2])
+    // Nor is a medium one that stopped a machine (the catalogue says a loader jam cannot wait):
+    // it reaches the lead at 01:00, not at 05:30.
+    expect(step(alarm({ priority: 3, condition: 'fault:loader_jam', mayWait: false }), at, null).sends.map(s => s.userId)).toEqual([2])
+    expect(step(alarm({ priority: 3, condition: 'fault:empty_pallet' }), at, null).sends.map(s => s.userId)).toEqual([2])
   })
 
   it('announces again when an alarm is owed after it was answered (a shelve ended while active)', () => {
@@ -190,6 +214,56 @@ describe('alarm steps: announce, de-duplicate, rate-limit, hold, escalate, stop'
     const shelved = step(alarm({ state: 'shelved' }), t0 + MIN, first.track)
     const back = step(alarm(), t0 + 13 * MIN, shelved.track, [t0])
     expect(back.sends.map(s => s.userId)).toEqual([2])
+  })
+
+  it('wakes the same person by push, then SMS, then a call, before the next contact; stops at the acknowledgement', () => {
+    const ch = { sms: true, voice: true }
+    const go = (a: AlertAlarm, now: number, track: AlertTrack | null) => alertStep({ alarm: a, now, rules: rules(), calendar, people, track, announcedAt: [], channels: ch })
+    const kinds = (x: ReturnType<typeof go>) => x.sends.map(m => `${m.userId}:${m.push ? 'push' : ''}${m.email ? '+email' : ''}${m.sms ? 'sms' : ''}${m.call ? 'call' : ''}`)
+    let s = go(alarm(), t0, null)
+    expect(kinds(s)).toEqual(['2:push'])
+    expect(s.nextCheckAt).toBe(t0 + 3 * MIN) // high priority: SMS after 3 min
+    s = go(alarm(), t0 + 3 * MIN, s.track)
+    expect(kinds(s)).toEqual(['2:sms'])
+    expect(s.nextCheckAt).toBe(t0 + 6 * MIN)
+    s = go(alarm(), t0 + 6 * MIN, s.track)
+    expect(kinds(s)).toEqual(['2:call'])
+    expect(s.nextCheckAt).toBe(t0 + 10 * MIN)
+    s = go(alarm(), t0 + 10 * MIN, s.track)
+    expect(kinds(s)).toEqual(['3:push+email'])
+    const smsToNext = go(alarm(), t0 + 13 * MIN, s.track)
+    expect(kinds(smsToNext)).toEqual(['3:sms'])
+    // Acknowledged by the second lead: nothing more, to anyone.
+    const acked = go(alarm({ state: 'acknowledged' }), t0 + 14 * MIN, smsToNext.track)
+    expect(acked.sends).toEqual([])
+    expect(acked.nextCheckAt).toBeNull()
+    // Without SMS or voice configured the ladder is push and escalation only.
+    expect(alertStep({ alarm: alarm(), now: t0, rules: rules(), calendar, people, track: null, announcedAt: [] }).nextCheckAt).toBe(t0 + 10 * MIN)
+  })
+
+  it('top priority goes over everyone again every 5 minutes until someone acknowledges (no e-mail with the reminders)', () => {
+    const fire = alarm({ id: 20, priority: 1, condition: 'fault:fire_alarm', latching: true })
+    const ch = { sms: true, voice: true }
+    let track: AlertTrack | null = null
+    const pushesTo2: number[] = []
+    const callsTo2: number[] = []
+    let emails = 0
+    for (let t = t0; t <= t0 + 60 * MIN; t += 15_000) {
+      const s = alertStep({ alarm: fire, now: t, rules: rules(), calendar, people, track, announcedAt: [], channels: ch })
+      track = s.track
+      for (const m of s.sends.filter(x => x.userId === 2)) {
+        if (m.push) pushesTo2.push((t - t0) / MIN)
+        if (m.call) callsTo2.push((t - t0) / MIN)
+        if (m.email) emails++
+      }
+    }
+    // Push at 0, the first escalation (everyone again) at 5, then a reminder every 5 min: 13 in the hour.
+    expect(pushesTo2).toEqual([0, 5, 10, 15, 20, 25, 30, 35, 40, 45, 50, 55, 60])
+    expect(callsTo2).toEqual([2, 7, 12, 17, 22, 27, 32, 37, 42, 47, 52, 57])
+    expect(emails).toBe(2) // the announcement and the first escalation only
+    const acked = alertStep({ alarm: { ...fire, state: 'latched', active: false }, now: t0 + 61 * MIN, rules: rules(), calendar, people, track, announcedAt: [], channels: ch })
+    expect(acked.sends).toEqual([])
+    expect(alertStep({ alarm: { ...fire, state: 'latched', active: false }, now: t0 + 90 * MIN, rules: rules(), calendar, people, track: acked.track, announcedAt: [], channels: ch }).sends).toEqual([])
   })
 
   it('says so when nobody may be woken', () => {
