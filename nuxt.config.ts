@@ -36,8 +36,13 @@ export default defineNuxtConfig({
     // Migrations travel inside the built server, so `node .output/server/index.mjs` needs no sources.
     serverAssets: [{ baseName: 'migrations', dir: fileURLToPath(new URL('./server/database/migrations', import.meta.url)) }],
     experimental: { tasks: false },
-    // @libsql/client ships native bindings; keep it external to the server bundle.
-    externals: { external: ['@libsql/client', 'libsql'] },
+    // @libsql/client ships native bindings; keep it external to the server bundle. The tracer misses
+    // the "module-sync" entry files of three small packages the Twilio library pulls in (through
+    // get-intrinsic), which Node 20.19+ loads: name them.
+    externals: {
+      external: ['@libsql/client', 'libsql'],
+      traceInclude: ['async-function', 'async-generator-function', 'generator-function'].map(p => fileURLToPath(new URL(`./node_modules/${p}/require.mjs`, import.meta.url))),
+    },
   },
   typescript: { strict: true },
 })

@@ -8,6 +8,7 @@ import { demoShop } from '../shared/utils/demo-shop'
 import { startSimulator, type RunningSimulator } from '../simulator/live'
 import { loadScenarioFile } from '../simulator/scenario'
 import { startMailCatcher } from './mail-catcher'
+import { startTwilioFake } from './lib/twilio-fake'
 import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
 const dataDir = resolve(process.env.OWLSHIFT_DATA_DIR ?? 'data')
@@ -32,8 +33,14 @@ const mqttPort = process.env.MQTT_PORT ?? '1883'
 
 // A local SMTP catcher stands in for the shop's mail server: alert escalations land in its inbox.
 const mail = process.env.SMTP_URL ? null : await startMailCatcher({ smtpPort: Number(process.env.OWLSHIFT_DEMO_SMTP_PORT ?? 1025), httpPort: Number(process.env.OWLSHIFT_DEMO_INBOX_PORT ?? 1080) })
+// A local fake of Twilio's REST API stands in for the SMS and voice service: alert SMS and calls
+// land on its page (the demo people have numbers; calls ring unanswered unless set otherwise).
+const phoneSid = `AC${randomBytes(16).toString('hex')}`
+const phoneToken = randomBytes(16).toString('hex')
+const phone = process.env.TWILIO_ACCOUNT_SID ? null : await startTwilioFake({ accountSid: phoneSid, authToken: phoneToken, port: Number(process.env.OWLSHIFT_DEMO_PHONE_PORT ?? 1090), number: '+447700900100', inboundSmsUrl: `http://localhost:${port}/api/phone/sms` })
 const env = {
   ...process.env,
+  ...(phone ? { TWILIO_ACCOUNT_SID: phoneSid, TWILIO_AUTH_TOKEN: phoneToken, OWLSHIFT_PHONE_FROM: '+447700900100', OWLSHIFT_PHONE_API_URL: phone.url } : {}),
   PORT: port,
   OWLSHIFT_DATA_DIR: dataDir,
   OWLSHIFT_SEED_DEMO: '1',
@@ -65,6 +72,7 @@ async function startDemoCell() {
   for (const u of demoShop.users) console.log(`    ${u.role.padEnd(9)} ${u.email}`)
   console.log(`\n  The simulator runs ${demoShop.machines.length} machines at ${speed}× real time against the broker on port ${mqttPort}.`)
   if (mail) console.log(`  Alert e-mails are caught locally; read them at ${mail.inboxUrl}`)
+  if (phone) console.log(`  Alert SMS and calls go to a local phone fake; see them at ${phone.url}`)
   console.log('  Ctrl+C stops it. Data lives in', dataDir, '\n')
 }
 async function listening() {
@@ -77,6 +85,7 @@ async function shutdown() {
   await sim?.stop({ graceful: true }).catch(() => {})
   server.kill('SIGTERM')
   await mail?.close().catch(() => {})
+  await phone?.close().catch(() => {})
 }
 for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => { void shutdown() })
 server.on('exit', code => process.exit(code ?? 0))

@@ -17,13 +17,15 @@ export const demoShop = {
     { partNumber: 'LTP-0318-B', description: 'Micro-drill blank, 1/8 in', material: 'carbide K20', method: 'through-feed', nominalMm: '3.175', upperTolNm: 2000, lowerTolNm: -2000, isoFit: null, roundnessLimitNm: 760, wheelSpec: 'D64 resin bond', partsPerPallet: 200, cycleTimeS: 15 },
     { partNumber: 'LTP-2000-S', description: 'Step punch, shank diameter', material: 'HSS 1.3343', method: 'plunge', nominalMm: '20.000', upperTolNm: 4000, lowerTolNm: -4000, isoFit: null, roundnessLimitNm: 2000, wheelSpec: 'A100 vitrified', partsPerPallet: 60, cycleTimeS: 30 },
   ],
-  // Demo sign-ins, one per role. The password is only for the demo shop.
+  // Demo sign-ins, one per role. The password is only for the demo shop. The phone numbers are in
+  // the UK range kept for drama (07700 900xxx, never given to a subscriber — from memory); the demo
+  // sends SMS and calls only to its local phone fake.
   users: [
-    { email: 'ada@larkspur.example', name: 'Ada Lindqvist', role: 'admin' },
-    { email: 'bram@larkspur.example', name: 'Bram Okonjo', role: 'engineer' },
-    { email: 'cleo@larkspur.example', name: 'Cleo Marchetti', role: 'lead' },
-    { email: 'dara@larkspur.example', name: 'Dara Nowak', role: 'operator' },
-    { email: 'eli@larkspur.example', name: 'Eli Sørensen', role: 'viewer' },
+    { email: 'ada@larkspur.example', name: 'Ada Lindqvist', role: 'admin', phone: '+447700900101' },
+    { email: 'bram@larkspur.example', name: 'Bram Okonjo', role: 'engineer', phone: '+447700900102' },
+    { email: 'cleo@larkspur.example', name: 'Cleo Marchetti', role: 'lead', phone: '+447700900103' },
+    { email: 'dara@larkspur.example', name: 'Dara Nowak', role: 'operator', phone: '+447700900104' },
+    { email: 'eli@larkspur.example', name: 'Eli Sørensen', role: 'viewer', phone: null },
   ],
   password: 'owlshift-demo',
 } as const

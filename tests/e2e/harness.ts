@@ -22,7 +22,7 @@ export async function freePort(): Promise<number> {
 
 export interface OwlshiftUnderTest { dataDir: string, mqttPort: number, mqttUrl: string }
 
-export async function setupOwlshift(extraEnv: Record<string, string> = {}): Promise<OwlshiftUnderTest> {
+export async function setupOwlshift(extraEnv: Record<string, string> = {}, opts: { port?: number } = {}): Promise<OwlshiftUnderTest> {
   const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-e2e-'))
   const mqttPort = await freePort()
   mkdirSync(artifactsDir, { recursive: true })
@@ -31,6 +31,7 @@ export async function setupOwlshift(extraEnv: Record<string, string> = {}): Prom
     build: false,
     server: true,
     browser: true,
+    ...(opts.port ? { port: opts.port } : {}),
     setupTimeout: 120_000,
     browserOptions: {
       type: 'chromium',

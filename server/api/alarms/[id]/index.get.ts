@@ -1,4 +1,5 @@
-// One alarm with its transitions (who, where, when) and its notes and photos.
+// One alarm with its transitions (who, where, when), every alert attempt for it (push, e-mail,
+// SMS, call and what became of each), and its notes and photos.
 import { z } from 'zod'
 import { asc, eq } from 'drizzle-orm'
 
@@ -13,9 +14,13 @@ export default defineEventHandler(async (event) => {
   const users = new Map((await db.select({ id: schema.users.id, name: schema.users.name }).from(schema.users)).map(u => [u.id, u.name]))
   const transitions = await db.select().from(schema.alarmTransitions).where(eq(schema.alarmTransitions.alarmId, id)).orderBy(asc(schema.alarmTransitions.at), asc(schema.alarmTransitions.id))
   const notes = await db.select().from(schema.alarmNotes).where(eq(schema.alarmNotes.alarmId, id)).orderBy(asc(schema.alarmNotes.at))
+  const attempts = await db.select({ id: schema.notificationDeliveries.id, at: schema.notificationDeliveries.at, userId: schema.notificationDeliveries.userId, channel: schema.notificationDeliveries.channel, status: schema.notificationDeliveries.status, level: schema.notificationDeliveries.level })
+    .from(schema.notificationDeliveries).where(eq(schema.notificationDeliveries.alarmId, id)).orderBy(asc(schema.notificationDeliveries.at), asc(schema.notificationDeliveries.id))
   return {
     ...alarmView(row),
     transitions: transitions.map(t => ({ ...t, who: t.userId ? users.get(t.userId) ?? null : null })),
+    // who was alerted, how, and what became of it (the router's own notes — held, duplicate… — stay in the delivery log)
+    attempts: attempts.filter(a => a.channel !== 'none' && a.status !== 'sending').map(a => ({ ...a, who: a.userId ? users.get(a.userId) ?? null : null })),
     notes: notes.map(n => ({ id: n.id, at: n.at, who: users.get(n.userId) ?? null, where: n.where, text: n.text, photo: n.photoSha256 ? `/api/alarms/photos/${n.photoSha256}` : null })),
   }
 })
