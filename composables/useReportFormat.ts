@@ -7,8 +7,8 @@ const CAUSE_WORDS: Record<string, string> = {
 
 export function useReportFormat(timeZone: () => string) {
   return {
-    clock: (ms: number) => new Date(ms).toLocaleTimeString([], { hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZone: timeZone() }),
-    when: (ms: number) => new Date(ms).toLocaleString([], { weekday: 'short', day: 'numeric', month: 'short', hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZone: timeZone() }),
+    clock: (ms: number) => plantClock(ms, timeZone()),
+    when: (ms: number) => plantDateTime(ms, timeZone()),
     duration(ms: number): string {
       if (ms < 60_000) return `${Math.round(ms / 1000)} s`
       const min = Math.round(ms / 60_000)

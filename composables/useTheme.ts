@@ -7,3 +7,10 @@ export function useTheme() {
   const toggle = () => { theme.value = theme.value === 'dark' ? 'light' : 'dark' }
   return { theme, toggle }
 }
+
+/** Puts the theme on <html>. Called by app.vue and by error.vue, which replaces it: an error
+ * page without it flashed white at a lead in the dark. */
+export function useThemeOnPage() {
+  const { theme } = useTheme()
+  useHead({ htmlAttrs: { class: computed(() => (theme.value === 'dark' ? 'dark' : '')) } })
+}

@@ -4,7 +4,11 @@
 import { defineStore } from 'pinia'
 
 export interface LiveLimits { targetUm: number, upperSpecUm: number, lowerSpecUm: number, upperCompUm: number | null, lowerCompUm: number | null }
-export interface LivePrediction { levelUm: number | null, slopeUmPerPart: number | null, minutesToCompLimit: number | null, minutesToSpecLimit: number | null, partsToDress: number | null, partsToCompLimit: number | null, cycleTimeS: number }
+export interface LivePrediction {
+  levelUm: number | null, slopeUmPerPart: number | null, minutesToCompLimit: number | null, minutesToSpecLimit: number | null, partsToDress: number | null, partsToCompLimit: number | null, cycleTimeS: number
+  /** minutes until the size is at risk with compensation running (server: size-risk.ts) */
+  minutesAtRisk?: number | null
+}
 export interface LiveStatus {
   online: boolean, execution: string | null, activeFaults: string[], lastReadingAt: number | null, lastMessageAt: number | null, lastDiameterUm: number | null,
   partsGood: number, partsScrap: number, blanksLeft: number | null, cycleTimeS: number | null, appliedOffsetUm: number | null, requestedOffsetUm: number | null,
@@ -22,6 +26,8 @@ export interface LiveMachine {
 export type LiveConnection = 'connecting' | 'live' | 'reconnecting'
 
 const STALE_AFTER_MS = 40_000 // heartbeats come every 15 s
+/** Away this long, the figures on screen are called not current (a blip of a reconnect is not). */
+const NOT_CURRENT_AFTER_MS = 20_000
 const FLUSH_MS = 250
 
 export const useLiveStore = defineStore('live', () => {
@@ -32,6 +38,11 @@ export const useLiveStore = defineStore('live', () => {
   const staleSince = ref<number | null>(null)
   const loaded = ref(false)
   const error = ref<string | null>(null)
+  /** A clock that ticks, so ages ("stale since", "not current") are re-read without a new event. */
+  const now = ref(Date.now())
+  /** Since when what is on screen is not current (the stream has been away a while), else null. */
+  const notCurrentSince = computed(() => (connection.value !== 'live' && staleSince.value !== null && now.value - staleSince.value > NOT_CURRENT_AFTER_MS ? staleSince.value : null))
+
   /** bumps on every applied reading; pages that chart a machine watch it */
   const readingTick = ref(0)
   const listeners = new Set<(machineId: string, r: LiveReading) => void>()
@@ -41,6 +52,7 @@ export const useLiveStore = defineStore('live', () => {
   let retryMs = 1000
   let retryTimer: ReturnType<typeof setTimeout> | null = null
   let watchdog: ReturnType<typeof setInterval> | null = null
+  let ticker: ReturnType<typeof setInterval> | null = null
   let pending: { type: string, data: any }[] = []
   let flushTimer: ReturnType<typeof setTimeout> | null = null
   let started = false
@@ -145,6 +157,7 @@ export const useLiveStore = defineStore('live', () => {
   async function start() {
     if (started || import.meta.server) return
     started = true
+    ticker = setInterval(() => { now.value = Date.now() }, 1000)
     try { await loadSnapshot() }
     catch (e) { error.value = (e as Error).message; connection.value = 'reconnecting'; scheduleReconnect(); return }
     open()
@@ -163,7 +176,8 @@ export const useLiveStore = defineStore('live', () => {
     source?.close(); source = null
     if (retryTimer) clearTimeout(retryTimer)
     if (watchdog) clearInterval(watchdog)
-    retryTimer = null; watchdog = null; started = false
+    if (ticker) clearInterval(ticker)
+    retryTimer = null; watchdog = null; ticker = null; started = false
   }
 
   function onReading(l: (machineId: string, r: LiveReading) => void) {
@@ -182,5 +196,5 @@ export const useLiveStore = defineStore('live', () => {
     else alarms.value[a.id] = a
   }
 
-  return { machines, alarms, connection, lastHeardAt, staleSince, loaded, error, readingTick, start, stop, onReading, alarmsOf, upsertAlarm, reload: loadSnapshot }
+  return { machines, alarms, connection, lastHeardAt, staleSince, notCurrentSince, now, loaded, error, readingTick, start, stop, onReading, alarmsOf, upsertAlarm, reload: loadSnapshot }
 })

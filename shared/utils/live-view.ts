@@ -30,30 +30,107 @@ export function liveTolerancePosition(sizeUm: number, lowerUm: number, upperUm: 
 
 export type LiveTone = 'steady' | 'drift' | 'halt' | 'idle'
 
+/** An open alarm as the cards need it. */
+export interface LiveAlarmFact { priority: number, state: string, latching: boolean }
+
 export interface LiveCardFacts {
   online: boolean
   execution: string | null
   activeFaults: readonly string[]
-  /** priorities of annunciated (not shelved) alarms */
-  alarmPriorities: readonly number[]
-  unacknowledged: number
+  /** the machine's open alarms (shelved ones are left out of the state, not of the latched stops) */
+  alarms: readonly LiveAlarmFact[]
   zone: LiveZone | null
+  /** minutes until the size is at risk with compensation running (null: no limit in sight) */
   minutesToLimit: number | null
-  holdReason: string | null
+  /** when the live data stopped being current (null: it is current) */
+  staleSince: number | null
 }
 
-/** The machine's state in one word and a tone; the word always carries the meaning. */
+/** The facts behind a machine's card, from its live record and its open alarms. */
+export function liveCardFacts(
+  m: { status: { online: boolean, execution: string | null, activeFaults?: readonly string[] | null, lastDiameterUm: number | null, prediction: { minutesToSpecLimit: number | null, minutesAtRisk?: number | null } | null }, limits: { lowerSpecUm: number, upperSpecUm: number } },
+  openAlarms: readonly LiveAlarmFact[], staleSince: number | null,
+): LiveCardFacts {
+  const s = m.status
+  const p = s.prediction
+  return {
+    online: s.online, execution: s.execution, activeFaults: s.activeFaults ?? [], alarms: openAlarms, staleSince,
+    zone: s.lastDiameterUm === null ? null : liveTolerancePosition(s.lastDiameterUm, m.limits.lowerSpecUm, m.limits.upperSpecUm).zone,
+    minutesToLimit: p ? (p.minutesAtRisk !== undefined ? p.minutesAtRisk : p.minutesToSpecLimit) : null,
+  }
+}
+
+const HELD = ['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP']
+const STOPPED = ['STOPPED', 'INTERRUPTED']
+const isNewAlarm = (a: LiveAlarmFact) => a.state === 'unacknowledged' || a.state === 'rtn-unacknowledged'
+const isStanding = (a: LiveAlarmFact) => a.state !== 'shelved' && a.state !== 'out-of-service'
+
+/**
+ * The machine's state in one word and a tone; the word always carries the meaning. A machine that
+ * is not grinding (held, stopped, faulted) or has a new top or high alarm is never shown as fine:
+ * a held machine makes no parts, and a new high alarm needs a person whatever the spindle does.
+ */
 export function liveMachineState(f: LiveCardFacts): { tone: LiveTone, word: string } {
+  if (f.staleSince !== null) return { tone: 'idle', word: 'Not current' }
+  const standing = f.alarms.filter(isStanding)
+  const latched = f.alarms.some(a => a.latching)
+  if (standing.some(a => isNewAlarm(a) && a.priority === 1)) return { tone: 'halt', word: 'Top alarm' }
   if (!f.online) return { tone: 'idle', word: 'Offline' }
   if (f.activeFaults.length) return { tone: 'halt', word: 'Fault' }
-  if (f.execution === 'STOPPED' || f.execution === 'INTERRUPTED') return { tone: 'halt', word: 'Stopped' }
-  if (f.execution === 'FEED_HOLD' || f.execution === 'PROGRAM_STOPPED' || f.execution === 'OPTIONAL_STOP') return { tone: 'drift', word: 'Held' }
+  if (f.execution && STOPPED.includes(f.execution)) return { tone: 'halt', word: latched ? 'Stopped: reset at machine' : 'Stopped' }
+  if (f.execution && HELD.includes(f.execution)) return { tone: 'halt', word: latched ? 'Held: reset at machine' : 'Held' }
   if (f.zone === 'outside') return { tone: 'halt', word: 'Out of size' }
-  if (f.holdReason) return { tone: 'drift', word: 'Comp. waiting' }
+  if (standing.some(a => isNewAlarm(a) && a.priority === 2)) return { tone: 'halt', word: 'High alarm' }
+  if (latched) return { tone: 'drift', word: 'Reset at machine' }
+  if (standing.some(isNewAlarm)) return { tone: 'drift', word: 'New alarm' }
   if (f.zone === 'near' || (f.minutesToLimit !== null && f.minutesToLimit < 30)) return { tone: 'drift', word: 'Drifting' }
   if (f.execution === 'ACTIVE') return { tone: 'steady', word: 'Grinding' }
   if (f.execution === 'READY' || f.execution === 'WAIT') return { tone: 'idle', word: 'Waiting' }
-  return { tone: 'idle', word: f.execution ? f.execution.toLowerCase().replaceAll('_', ' ') : 'No data' }
+  return { tone: 'idle', word: f.execution ? liveExecutionWord(f.execution) : 'No data' }
+}
+
+/** The cell's one-line summary: machines by tone, and alarms nobody has acknowledged yet. */
+export function liveCellSummary(cards: readonly { state: { tone: LiveTone }, facts: LiveCardFacts }[]) {
+  const c = { halt: 0, drift: 0, steady: 0, idle: 0, newAlarms: 0 }
+  for (const x of cards) {
+    c[x.state.tone]++
+    c.newAlarms += x.facts.alarms.filter(a => isStanding(a) && isNewAlarm(a)).length
+  }
+  return c
+}
+
+/** What lies ahead of a machine, for cards and the machine page. */
+export interface LiveOutlook {
+  /** grinding now: the countdowns run; otherwise they are paused and shown as such */
+  running: boolean
+  /** minutes until the size meets tolerance with compensation running as it does */
+  toleranceMin: number | null
+  /** minutes until the size meets tolerance if compensation stopped now (the engine's own figure) */
+  toleranceIfStoppedMin: number | null
+  dressMin: number | null
+  /** when the next dress falls, on the clock of `now` */
+  dressAt: number | null
+  blanksLeft: number | null
+  blanksMin: number | null
+}
+
+export function liveOutlook(
+  s: { online: boolean, execution: string | null, blanksLeft: number | null, cycleTimeS: number | null, prediction: { minutesToSpecLimit: number | null, minutesAtRisk?: number | null, partsToDress: number | null, cycleTimeS: number } | null },
+  now: number,
+): LiveOutlook {
+  const p = s.prediction
+  const cycleS = p?.cycleTimeS || s.cycleTimeS || 20 // common practice ~20 s, the engine's own default
+  const running = s.online && s.execution === 'ACTIVE'
+  const dressMin = p?.partsToDress != null ? p.partsToDress * cycleS / 60 : null
+  return {
+    running,
+    toleranceMin: p ? (p.minutesAtRisk !== undefined ? p.minutesAtRisk : p.minutesToSpecLimit) : null,
+    toleranceIfStoppedMin: p?.minutesToSpecLimit ?? null,
+    dressMin,
+    dressAt: running && dressMin !== null ? now + dressMin * 60_000 : null,
+    blanksLeft: s.blanksLeft,
+    blanksMin: s.blanksLeft !== null ? s.blanksLeft * cycleS / 60 : null,
+  }
 }
 
 /**
@@ -95,6 +172,11 @@ const EXECUTION_WORDS: Record<string, string> = {
   ACTIVE: 'grinding', FEED_HOLD: 'held', READY: 'ready', WAIT: 'waiting', STOPPED: 'stopped',
   INTERRUPTED: 'interrupted', PROGRAM_STOPPED: 'program stopped', OPTIONAL_STOP: 'optional stop',
 }
+/** A machine's execution state (MTConnect Execution) in shop words, never the raw upper-case value. */
+export function liveExecutionWord(execution: string | null): string {
+  if (!execution) return 'not known'
+  return EXECUTION_WORDS[execution] ?? execution.toLowerCase().replaceAll('_', ' ')
+}
 const EVENT_WORDS: Record<string, string> = {
   dress: 'wheel dressed', wheel_change: 'wheel changed', pallet_change: 'pallet changed', mastering: 'gauge mastered',
   job_change: 'job changed', fault_raised: 'fault raised', fault_cleared: 'fault cleared',
@@ -107,7 +189,7 @@ export function liveEventWords(kind: string, type: string | null): string {
   if (kind === 'station') return STATION_WORDS[type ?? ''] ?? `${type ?? 'work'} logged`
   if (kind === 'birth') return 'machine connected'
   if (kind === 'death') return 'machine disconnected'
-  if (kind === 'state') return type ? `now ${EXECUTION_WORDS[type] ?? type.toLowerCase().replaceAll('_', ' ')}` : 'state changed'
+  if (kind === 'state') return type ? `now ${liveExecutionWord(type)}` : 'state changed'
   if (kind === 'event') return EVENT_WORDS[type ?? ''] ?? (type ?? 'event').replaceAll('_', ' ')
   if (kind === 'ack') {
     const [command = '', result = ''] = (type ?? '').split(':')
@@ -122,9 +204,10 @@ export function liveEventWords(kind: string, type: string | null): string {
 
 /** Lower ranks first: what needs a person soonest. */
 export function liveAttentionRank(f: LiveCardFacts): number {
-  const topAlarm = f.alarmPriorities.length ? Math.min(...f.alarmPriorities) : 9
+  const standing = f.alarms.filter(isStanding)
+  const topAlarm = standing.length ? Math.min(...standing.map(a => a.priority)) : 9
   let rank = topAlarm * 1000 // priority 1 alarms above everything
-  if (f.unacknowledged) rank -= 100
+  if (standing.some(isNewAlarm)) rank -= 100
   const { tone } = liveMachineState(f)
   rank += tone === 'halt' ? 0 : tone === 'drift' ? 200 : tone === 'idle' ? 600 : 400
   if (f.minutesToLimit !== null) rank += Math.min(199, Math.max(0, f.minutesToLimit)) / 10

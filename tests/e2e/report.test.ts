@@ -134,6 +134,12 @@ describe('overnight report', async () => {
     expect(Number((await db.execute(`select count(*) n from audit_log where action = 'report.signoff' and target = 'report:cell-a/night/2026-03-02'`)).rows[0]!.n)).toBe(1)
     const shift = await (await call('viewer', 'GET', '/api/reports/shift?cell=cell-a&shift=night&date=2026-03-02')).json()
     expect(shift.signoffs.map((s: { comment: string }) => s.comment)).toEqual(['Taken over; Kite coolant checked.'])
+    // Once per lead and shift: a second signature (double tap) is refused and nothing more is stored.
+    const again = await call('lead', 'POST', '/api/reports/signoffs', { cell: 'cell-a', shift: 'night', date: '2026-03-02', comment: 'Taken over again' })
+    expect(again.status).toBe(409)
+    expect((await again.json()).message).toMatch(/already; a hand-over is signed once/)
+    const twoTaps = await Promise.all([0, 1].map(() => call('lead', 'POST', '/api/reports/signoffs', { cell: 'cell-a', shift: 'day', date: '2026-03-03', comment: 'double tap' })))
+    expect(twoTaps.map(r => r.status).sort()).toEqual([200, 409])
     // a shift still running cannot be signed; an empty comment or an unknown shift is refused
     const today = new Date().toISOString().slice(0, 10)
     const running = await call('lead', 'POST', '/api/reports/signoffs', { cell: 'cell-a', shift: 'day', date: new Date(Date.now() + 86_400_000).toISOString().slice(0, 10), comment: 'too early' })
@@ -145,7 +151,7 @@ describe('overnight report', async () => {
     const badRange = await call('viewer', 'GET', `/api/reports/range?cell=cell-a&from=${end}&to=${start}`)
     expect(badRange.status).toBe(400)
     expect((await badRange.json()).message).toMatch(/from < to/)
-    expect(Number((await db.execute(`select count(*) n from report_signoffs`)).rows[0]!.n)).toBe(1) // nothing else was stored
+    expect(Number((await db.execute(`select count(*) n from report_signoffs`)).rows[0]!.n)).toBe(2) // the night and one of the two taps; nothing else was stored
   })
 
   it('screens: the report on a phone and a desktop, dark and light, and printed to PDF', async () => {

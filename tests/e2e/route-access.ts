@@ -36,6 +36,7 @@ export const routeAccess: Record<string, RouteRule> = {
   // Live cell
   'stream.get.ts': { access: 'signed-in' },
   'cell/index.get.ts': { access: 'signed-in' },
+  'cell/time-zone.get.ts': { access: 'signed-in' },
   'machines/[id]/index.get.ts': { access: 'signed-in', params: { id: 'cg-01' } },
   'machines/[id]/readings.get.ts': { access: 'signed-in', params: { id: 'cg-01' } },
   'machines/[id]/decisions.get.ts': { access: 'signed-in', params: { id: 'cg-01' } },

@@ -117,7 +117,7 @@ describe('sign-in and roles', async () => {
     await page.goto(url('/me'), { waitUntil: 'networkidle' })
     expect(await page.locator('[data-test=unit-sample]').innerText()).toBe('+2.0 µm')
     await page.getByRole('button', { name: /Inch/ }).click()
-    await page.waitForFunction(() => document.querySelector('[data-test=unit-sample]')?.textContent === '+79 µin')
+    await page.waitForFunction(() => document.querySelector('[data-test=unit-sample]')?.textContent === '+0.8 tenths')
     await page.close()
   })
 })

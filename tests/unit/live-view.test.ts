@@ -9,7 +9,7 @@ import type { AlarmActionKind } from '../../shared/utils/alarm-model'
 import { SHIFT_DEFAULT_PATTERN, type ShiftCalendar } from '../../shared/utils/shift-calendar'
 import {
   LIVE_CPK_WINDOW, liveRollingCpk, liveTolerancePosition, liveMachineState, liveAttentionRank, liveSpan,
-  liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveLatchedStops, liveResumeRefusal, liveEventWords, type LiveCardFacts,
+  liveRangeWindow, livePhotoType, liveAlarmStateWord, liveAlarmActionWord, liveAlarmActor, liveCommandChoices, liveLatchedStops, liveCellSummary, liveCardFacts, liveOutlook, liveExecutionWord, liveResumeRefusal, liveEventWords, type LiveCardFacts,
 } from '../../shared/utils/live-view'
 
 /** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
@@ -76,17 +76,16 @@ describe('liveTolerancePosition', () => {
 })
 
 const facts = (f: Partial<LiveCardFacts>): LiveCardFacts => ({
-  online: true, execution: 'ACTIVE', activeFaults: [], alarmPriorities: [], unacknowledged: 0, zone: 'inside', minutesToLimit: null, holdReason: null, ...f,
+  online: true, execution: 'ACTIVE', activeFaults: [], alarms: [], zone: 'inside', minutesToLimit: null, staleSince: null, ...f,
 })
+const alarm = (priority: number, state = 'unacknowledged', latching = false) => ({ priority, state, latching })
 
 describe('liveMachineState', () => {
   it('names the state in a word for each situation (MTConnect execution states)', () => {
     expect(liveMachineState(facts({ online: false }))).toEqual({ tone: 'idle', word: 'Offline' })
     expect(liveMachineState(facts({ activeFaults: ['loader_jam'] }))).toEqual({ tone: 'halt', word: 'Fault' })
     expect(liveMachineState(facts({ execution: 'STOPPED' })).word).toBe('Stopped')
-    expect(liveMachineState(facts({ execution: 'FEED_HOLD' })).word).toBe('Held')
     expect(liveMachineState(facts({ zone: 'outside' })).word).toBe('Out of size')
-    expect(liveMachineState(facts({ holdReason: 'limit' })).word).toBe('Comp. waiting')
     expect(liveMachineState(facts({ zone: 'near' })).word).toBe('Drifting')
     expect(liveMachineState(facts({ minutesToLimit: 12 })).word).toBe('Drifting')
     expect(liveMachineState(facts({ minutesToLimit: 45 }))).toEqual({ tone: 'steady', word: 'Grinding' })
@@ -94,14 +93,73 @@ describe('liveMachineState', () => {
     expect(liveMachineState(facts({ execution: 'SOME_NEW_STATE', zone: null })).word).toBe('some new state')
     expect(liveMachineState(facts({ execution: null, zone: null })).word).toBe('No data')
   })
+  it('never shows a held or stopped machine as fine: it makes no parts (counts with "stopped, held or out")', () => {
+    for (const execution of ['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP', 'STOPPED', 'INTERRUPTED'])
+      expect(liveMachineState(facts({ execution })).tone, execution).toBe('halt')
+    // After a compensation stop the latched alarm says where the way back starts.
+    expect(liveMachineState(facts({ execution: 'FEED_HOLD', alarms: [alarm(2, 'latched', true)] }))).toEqual({ tone: 'halt', word: 'Held: reset at machine' })
+    expect(liveMachineState(facts({ execution: 'STOPPED', alarms: [alarm(2, 'acknowledged', true)] })).word).toBe('Stopped: reset at machine')
+  })
+  it('follows unacknowledged alarms: a new top or high alarm is never "Grinding"', () => {
+    expect(liveMachineState(facts({ alarms: [alarm(2)] }))).toEqual({ tone: 'halt', word: 'High alarm' })
+    expect(liveMachineState(facts({ alarms: [alarm(1, 'rtn-unacknowledged')] }))).toEqual({ tone: 'halt', word: 'Top alarm' })
+    expect(liveMachineState(facts({ online: false, alarms: [alarm(1)] })).word).toBe('Top alarm') // fire beats offline
+    expect(liveMachineState(facts({ alarms: [alarm(3)] }))).toEqual({ tone: 'drift', word: 'New alarm' })
+    // Acknowledged or shelved: the person knows; the machine grinds.
+    expect(liveMachineState(facts({ alarms: [alarm(2, 'acknowledged')] }))).toEqual({ tone: 'steady', word: 'Grinding' })
+    expect(liveMachineState(facts({ alarms: [alarm(1, 'shelved')] }))).toEqual({ tone: 'steady', word: 'Grinding' })
+    // A latching alarm that still owes its reset, on a machine that runs again.
+    expect(liveMachineState(facts({ alarms: [alarm(3, 'latched', true)] }))).toEqual({ tone: 'drift', word: 'Reset at machine' })
+  })
+  it('says "Not current" while the live data is stale, whatever the last state was', () => {
+    expect(liveMachineState(facts({ staleSince: 1 }))).toEqual({ tone: 'idle', word: 'Not current' })
+  })
+  it('uses plain words for execution states, never the raw upper-case value', () => {
+    expect(liveMachineState(facts({ execution: 'WAIT' })).word).toBe('Waiting')
+    expect(liveExecutionWord('FEED_HOLD')).toBe('held')
+    expect(liveExecutionWord('PROGRAM_STOPPED')).toBe('program stopped')
+    expect(liveExecutionWord(null)).toBe('not known')
+  })
+})
+
+describe('liveCellSummary', () => {
+  it('counts a compensation stop as stopped and a new high alarm as one to see to (the walk\'s case)', () => {
+    const held = facts({ execution: 'FEED_HOLD', alarms: [alarm(2, 'unacknowledged', true)] })
+    const newHigh = facts({ alarms: [alarm(2)] })
+    const fine = facts({})
+    const cards = [held, newHigh, fine].map(f => ({ facts: f, state: liveMachineState(f) }))
+    expect(liveCellSummary(cards)).toEqual({ halt: 2, drift: 0, steady: 1, idle: 0, newAlarms: 2 })
+  })
+})
+
+describe('liveCardFacts', () => {
+  it('takes the time at risk with compensation running, and the zone of the last size', () => {
+    const m = { status: { online: true, execution: 'ACTIVE', activeFaults: null, lastDiameterUm: 1.9, prediction: { minutesToSpecLimit: 12, minutesAtRisk: 240 } }, limits: { lowerSpecUm: -2, upperSpecUm: 2 } }
+    expect(liveCardFacts(m, [], null)).toMatchObject({ zone: 'near', minutesToLimit: 240, activeFaults: [] })
+    expect(liveCardFacts({ ...m, status: { ...m.status, prediction: { minutesToSpecLimit: 12 } } }, [], null).minutesToLimit).toBe(12)
+  })
+})
+
+describe('liveOutlook', () => {
+  const status = { online: true, execution: 'ACTIVE', blanksLeft: 90, cycleTimeS: 20, prediction: { minutesToSpecLimit: 30, minutesAtRisk: 300, partsToDress: 60, cycleTimeS: 18 } }
+  it('gives the next dress as a time of day and blanks in minutes, from the measured cycle', () => {
+    const o = liveOutlook(status, Date.UTC(2026, 11, 4, 2, 0))
+    expect(o).toMatchObject({ running: true, toleranceMin: 300, toleranceIfStoppedMin: 30, dressMin: 18, blanksLeft: 90, blanksMin: 27 })
+    expect(o.dressAt).toBe(Date.UTC(2026, 11, 4, 2, 18)) // 60 parts × 18 s = 18 min
+  })
+  it('does not count down while the machine is held: no dress time is promised', () => {
+    const o = liveOutlook({ ...status, execution: 'FEED_HOLD' }, 0)
+    expect(o.running).toBe(false)
+    expect(o.dressAt).toBeNull()
+  })
 })
 
 describe('liveAttentionRank', () => {
   it('orders cards by what needs a person first', () => {
     const cards = {
-      p1Acked: facts({ alarmPriorities: [1] }),
-      p1New: facts({ alarmPriorities: [1, 3], unacknowledged: 1 }),
-      p3: facts({ alarmPriorities: [3], unacknowledged: 1 }),
+      p1Acked: facts({ alarms: [alarm(1, 'acknowledged')] }),
+      p1New: facts({ alarms: [alarm(1), alarm(3, 'acknowledged')] }),
+      p3: facts({ alarms: [alarm(3)] }),
       outside: facts({ zone: 'outside' }),
       drifting10: facts({ minutesToLimit: 10 }),
       drifting25: facts({ minutesToLimit: 25 }),

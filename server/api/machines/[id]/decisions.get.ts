@@ -1,4 +1,6 @@
 // The decisions table: every offset (and every hold, stop, dress) with its reason, newest first.
+// The reason comes twice: as the engine wrote it, and as words and figures apart (reasonParts,
+// shared/utils/engine-text.ts) so the page shows the figures in the person's units.
 import { and, desc, eq, inArray, ne } from 'drizzle-orm'
 import { z } from 'zod'
 
@@ -28,7 +30,7 @@ export default defineEventHandler(async (event) => {
   }
   return rows.map(r => {
     const c = r.commandId ? byId.get(r.commandId) : undefined
-    return { id: r.id, seq: r.seq, at: r.at, machineTime: machineTimes.get(r.seq) ?? null, action: r.action, correctionUm: r.correctionUm, offsetUm: r.offsetUm, reason: r.reason, alerts: r.alerts,
+    return { id: r.id, seq: r.seq, at: r.at, machineTime: machineTimes.get(r.seq) ?? null, action: r.action, correctionUm: r.correctionUm, offsetUm: r.offsetUm, reason: r.reason, reasonParts: engineTextParts(r.reason), alerts: r.alerts,
       command: c ? { id: c.id, status: c.status, requestedOffsetUm: c.requestedOffsetUm, appliedOffsetUm: c.appliedOffsetUm, ackReason: c.ackReason } : null }
   })
 })
