@@ -31,6 +31,10 @@ if (process.env.OWLSHIFT_DEMO_SKIP_BUILD !== '1') {
 const port = process.env.PORT ?? '3000'
 const mqttPort = process.env.MQTT_PORT ?? '1883'
 
+// The simulator's speed: alarm on/off delays shrink with it, so a jam that lasts a simulated
+// minute behaves as it would in a real cell.
+const speed = Number(process.env.OWLSHIFT_DEMO_SPEED ?? '4')
+
 // A local SMTP catcher stands in for the shop's mail server: alert escalations land in its inbox.
 const mail = process.env.SMTP_URL ? null : await startMailCatcher({ smtpPort: Number(process.env.OWLSHIFT_DEMO_SMTP_PORT ?? 1025), httpPort: Number(process.env.OWLSHIFT_DEMO_INBOX_PORT ?? 1080) })
 // A local fake of Twilio's REST API stands in for the SMS and voice service: alert SMS and calls
@@ -49,13 +53,13 @@ const env = {
   NUXT_SESSION_COOKIE_SECURE: process.env.NUXT_SESSION_COOKIE_SECURE ?? 'false',
   MQTT_PORT: mqttPort,
   OWLSHIFT_PUBLIC_URL: process.env.OWLSHIFT_PUBLIC_URL ?? `http://localhost:${port}`,
+  OWLSHIFT_ALARM_DELAY_SCALE: process.env.OWLSHIFT_ALARM_DELAY_SCALE ?? String(1 / speed),
   ...(mail ? { SMTP_URL: `smtp://127.0.0.1:${mail.smtpPort}` } : {}),
 }
 const server = spawn(process.execPath, [...SERVER_NODE_ARGS, SERVER_ENTRY], { stdio: 'inherit', env })
 
 // The bundled simulator brings the demo shop to life: four machines at a few times real speed,
 // speaking MQTT to the embedded broker with the credentials the server made for them.
-const speed = Number(process.env.OWLSHIFT_DEMO_SPEED ?? '4')
 let sim: RunningSimulator | null = null
 async function startDemoCell() {
   const credsFile = join(dataDir, 'machine-credentials.json')

@@ -16,7 +16,11 @@ export interface LiveStatus {
 }
 export interface LiveAlarm {
   id: number, machineId: string | null, condition: string, title: string, steps: string[], priority: number, state: string, active: boolean, latching: boolean,
-  message: string, raisedAt: number, lastChangeAt: number, activations: number, closedAt: number | null, shelvedUntil: number | null, shelveReason: string | null
+  message: string, raisedAt: number, lastChangeAt: number, activations: number, closedAt: number | null, shelvedUntil: number | null, shelveReason: string | null,
+  /** cell alarms (machineId null): the cell and the machines that reported it or stopped under it */
+  cellId: string | null, machines: string[],
+  /** the alarm this one is a consequence of; suppressedBy says it in words while suppressed under it */
+  causeAlarmId: number | null, suppressedBy: string | null
 }
 export interface LiveReading { t: number, v: number, part: number, seq: number }
 export interface LiveMachine {
@@ -185,9 +189,10 @@ export const useLiveStore = defineStore('live', () => {
     return () => listeners.delete(l)
   }
 
-  /** Open alarms of a machine (or all), annunciated first by priority. */
+  /** Open alarms of a machine (its own and the cell alarms listing it), or all; by priority, newest first. */
   function alarmsOf(machineId?: string) {
-    return Object.values(alarms.value).filter(a => !machineId || a.machineId === machineId).sort((a, b) => a.priority - b.priority || b.raisedAt - a.raisedAt)
+    const all = Object.values(alarms.value)
+    return (machineId ? liveAlarmsOfMachine(all, machineId) : all).sort((a, b) => a.priority - b.priority || b.raisedAt - a.raisedAt)
   }
 
   /** Put a changed alarm in at once (after an action), without waiting for the stream. */

@@ -11,6 +11,8 @@ export const users = sqliteTable('users', {
   role: text('role', { enum: ROLES }).notNull(),
   passwordHash: text('password_hash').notNull(),
   unitSystem: text('unit_system', { enum: ['metric', 'inch'] }).notNull().default('metric'),
+  /** for SMS and voice alerts, E.164 (+491701234567); null: none */
+  phone: text('phone'),
   disabled: integer('disabled', { mode: 'boolean' }).notNull().default(false),
   createdAt: integer('created_at').notNull(),
   updatedAt: integer('updated_at').notNull(),
@@ -236,6 +238,12 @@ export const alarms = sqliteTable('alarms', {
   activations: integer('activations').notNull().default(1),
   record: text('record', { mode: 'json' }).notNull(), // the alarm model's full record
   closedAt: integer('closed_at'),
+  /** a cell alarm (fire, mist: machineId null) names its cell; a machine alarm its machine's cell */
+  cellId: text('cell_id'),
+  /** a cell alarm: the machines that reported it or stopped under it */
+  machines: text('machines', { mode: 'json' }).$type<string[]>(),
+  /** the standing alarm whose cause this one is a consequence of (suppressed under it while active) */
+  causeAlarmId: integer('cause_alarm_id'),
 }, t => [index('alarms_open').on(t.closedAt, t.priority), index('alarms_machine_condition').on(t.machineId, t.condition)])
 
 export const alarmTransitions = sqliteTable('alarm_transitions', {

@@ -22,6 +22,7 @@ const envSchema = z.object({
   OWLSHIFT_BACKUP_EVERY_H: z.coerce.number().min(0).default(24),
   OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
   OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
+  OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
 })
 
 export interface OwlshiftConfig {
@@ -47,6 +48,10 @@ export interface OwlshiftConfig {
     backupKeep: number
     /** raw readings older than this many days are summarised and removed; 0 = keep all */
     retentionDays: number
+  }
+  alarms: {
+    /** every catalogue on/off delay × this (a demo at 4× real time: 0.25; 0: no delays) */
+    delayScale: number
   }
 }
 
@@ -88,6 +93,7 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       backupKeep: e.OWLSHIFT_BACKUP_KEEP,
       retentionDays: e.OWLSHIFT_RETENTION_DAYS,
     },
+    alarms: { delayScale: e.OWLSHIFT_ALARM_DELAY_SCALE },
   }
 }
 

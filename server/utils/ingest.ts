@@ -7,6 +7,7 @@ import {
   decodeMachineMessage, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
+import { alarmEngineConditionHolds, alarmKindFor } from '#shared/utils/alarm-catalogue'
 import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from '#shared/utils/command-gate'
 import { stepCompensation, type CompensationDecision, type CompensationInput, type CompensationState } from '#shared/utils/compensation'
 import { wheelEventInput } from '#shared/utils/wheel-events'
@@ -288,7 +289,9 @@ export class IngestPipeline {
         // wakes people is "size will meet tolerance soon", raised from minutesAtRisk by notify.ts.
         for (const code of ENGINE_ALARM_CODES) {
           const alert = decision.alerts.find(a => a.code === code)
-          reportCondition(`engine:${code}`, !!alert, () => `${ctx.name}: ${alert!.message}`)
+          // Analogue conditions hold, once raised, until the offset has moved away from the limit (alarm-catalogue.ts).
+          const holds = !alert && w.reported.get(`engine:${code}`) === true && !!eng && alarmEngineConditionHolds(code, eng)
+          reportCondition(`engine:${code}`, !!alert || holds, () => `${ctx.name}: ${alert ? alert.message : `${alarmKindFor(`engine:${code}`).title.toLowerCase()} (still at the limit)`}`)
         }
         reportCondition('engine:stop-requested', decision.stop, () => `${ctx.name}: the engine asks to stop — ${decision.reason}`)
         effects.live.push({ type: 'decision', machineId: ctx.id, seq, action: actionOf(decision), reason: decision.reason, offsetUm: decision.offsetUm, correctionUm: decision.command?.correctionUm ?? null })

@@ -1,7 +1,7 @@
 // Snapshots for the live screens: what the browser loads once, before the stream keeps it fresh.
 import { z } from 'zod'
 import type { H3Event } from 'h3'
-import { and, desc, eq, isNull, isNotNull } from 'drizzle-orm'
+import { and, desc, eq, isNull, isNotNull, or } from 'drizzle-orm'
 import type { MachineContext } from './machine-registry'
 
 /** Tolerance, target and compensation limits in µm from nominal: the engine's, else the job's. */
@@ -23,9 +23,10 @@ export function machineIdentity(ctx: MachineContext) {
 
 export async function openAlarmViews(machineId?: string) {
   const rows = await useDb().select().from(schema.alarms)
-    .where(machineId ? and(isNull(schema.alarms.closedAt), eq(schema.alarms.machineId, machineId)) : isNull(schema.alarms.closedAt))
+    .where(machineId ? and(isNull(schema.alarms.closedAt), or(eq(schema.alarms.machineId, machineId), isNull(schema.alarms.machineId))) : isNull(schema.alarms.closedAt))
     .orderBy(schema.alarms.priority, desc(schema.alarms.raisedAt))
-  return rows.map(alarmView)
+  const views = rows.map(alarmView)
+  return machineId ? liveAlarmsOfMachine(views, machineId) : views
 }
 
 export async function recentReadings(machineId: string, n: number) {

@@ -1,35 +1,94 @@
-// What each alarm condition means to people: priority, whether it latches (needs a reset at the
-// machine after the cause is fixed), a title, and default response steps (engineers may write
-// their own per alarm type later). Priorities keep "top" for fire, mist and safety.
+// What each alarm condition means to people (its rationalization, in ISA-18.2 words — from memory):
+// priority, whether it latches (needs a reset at the machine after the cause is fixed), a title,
+// default response steps, and how it is filtered and routed:
+//   scope        'cell': one alarm for the whole cell listing its machines (fire, mist), however
+//                many machines report it; 'machine': one alarm per machine
+//   onDelayS     the condition must last this long before the alarm stands; one that clears
+//                sooner is no alarm and wakes nobody
+//   offDelayS    the condition must stay clear this long before the alarm clears; a return within
+//                it is the same alarm, not a new one
+//   stopsMachine the condition stops or interrupts the machine, is the stop itself, or hides
+//                whether it runs (offline): quiet hours never hold it
+//   mayWait      "hold till morning" is allowed: it neither stops a machine nor will within the hour
+//   suppression  'cause': a fault that stops the machine — the stops it explains are suppressed
+//                under it while it stands; 'consequence': a stop such a cause explains — suppressed
+//                under it (designed suppression), announced if it outlasts the cause; null: neither
+//                ("offline" explains no stop: it only hides the machine)
+//   hysteresis   for analogue conditions, the deadband between raising and clearing (in words;
+//                the rule is where the value is judged); null for discrete ones
+// The defaults are our choices for a lights-out cell, not figures from a standard; docs/alarms.md
+// lists them (a unit test keeps that table and this one equal). Priorities keep "top" for fire,
+// mist and safety.
 import type { AlarmPriority } from './alarm-model'
 
-export interface AlarmKind { priority: AlarmPriority, latching: boolean, title: string, steps: string[] }
+export interface AlarmKind {
+  priority: AlarmPriority
+  latching: boolean
+  title: string
+  steps: string[]
+  scope: 'machine' | 'cell'
+  onDelayS: number
+  offDelayS: number
+  stopsMachine: boolean
+  mayWait: boolean
+  suppression: 'cause' | 'consequence' | null
+  hysteresis: string | null
+  /** raised and cleared at once (an event, not a state): no delays */
+  momentary?: boolean
+}
+
+type Filtering = Omit<AlarmKind, 'priority' | 'latching' | 'title' | 'steps'>
+const stopping = (onDelayS: number, offDelayS = 0): Filtering => ({ scope: 'machine', onDelayS, offDelayS, stopsMachine: true, mayWait: false, suppression: 'cause', hysteresis: null })
+const urgent = (onDelayS: number, offDelayS: number, hysteresis: string | null = null): Filtering => ({ scope: 'machine', onDelayS, offDelayS, stopsMachine: false, mayWait: false, suppression: null, hysteresis })
 
 export const alarmCatalogue: Record<string, AlarmKind> = {
-  'fault:fire_alarm': { priority: 1, latching: true, title: 'Fire alarm', steps: ['Follow the site fire plan; do not enter the cell alone.', 'Confirm the suppression system fired and the machine is stopped.', 'Inspect the enclosure, ducting and mist collector before any restart.'] },
-  'fault:mist_collector_fault': { priority: 1, latching: true, title: 'Mist collector fault', steps: ['Keep the machine stopped: oil mist builds up without extraction.', 'Check the collector filters and fan.', 'Restart only with extraction running.'] },
-  'fault:coolant_fault': { priority: 2, latching: true, title: 'Coolant fault', steps: ['Check coolant level, flow and filter.', 'Look for burn marks on the last parts.'] },
-  'fault:wheel_contact_lost': { priority: 2, latching: true, title: 'Lost wheel contact', steps: ['Check the work blade and the part in the grinding zone.', 'Check the wheel for damage before restarting; never exceed its marked speed.'] },
-  'fault:wheel_worn_out': { priority: 2, latching: true, title: 'Wheel worn out', steps: ['Change the wheel per the machine builder\'s instructions.', 'Ring-test the new wheel and run it up behind the guard.'] },
-  'fault:gauge_fault': { priority: 2, latching: false, title: 'Gauge fault', steps: ['Clean the gauge contacts.', 'Master the gauge and log it.'] },
-  'fault:loader_jam': { priority: 3, latching: true, title: 'Loader jam', steps: ['Lock out the loader, clear the jam.', 'Check the part at the jam for damage.'] },
-  'fault:empty_pallet': { priority: 3, latching: false, title: 'Pallet empty', steps: ['Load a full pallet of blanks.'] },
-  'engine:stop-requested': { priority: 2, latching: true, title: 'Stop requested by compensation', steps: ['Read the decision log for the reason.', 'Measure the last parts by hand.', 'Fix the cause, then reset here at the machine.'] },
-  'engine:gauge-suspect': { priority: 2, latching: false, title: 'Gauge suspect', steps: ['Check the gauge for chips and coolant.', 'Master the gauge and log it.'] },
-  'engine:consecutive-rejects': { priority: 2, latching: false, title: 'Parts out of tolerance in a row', steps: ['Hold the machine.', 'Measure by hand and correct the offset.'] },
-  'engine:offset-range-limit': { priority: 2, latching: false, title: 'Offset at its allowed limit', steps: ['Dress or change the wheel; compensation cannot go further.'] },
-  'engine:budget-used-up': { priority: 3, latching: false, title: 'Compensation budget since dress used up', steps: ['Dress the wheel.'] },
-  'engine:trend-near-limit': { priority: 3, latching: false, title: 'Size trend nears tolerance', steps: ['Watch the trend; dress if the wheel is due.'] },
-  'trend:nears-tolerance': { priority: 2, latching: false, title: 'Size will meet tolerance soon', steps: ['Open the machine and read the minutes left on its trend.', 'Dress the wheel or correct the offset before the size meets the limit.', 'Acknowledge, so the next person on call is not woken.'] },
-  'engine:settings': { priority: 2, latching: false, title: 'Compensation off: settings not valid', steps: ['Check the job\'s tolerance and compensation settings.'] },
-  'machine:stopped': { priority: 3, latching: false, title: 'Machine stopped', steps: ['Find why it stopped in the event log.'] },
-  'link:offline': { priority: 3, latching: false, title: 'Machine offline', steps: ['Check the machine\'s network and its adapter.'] },
-  'link:silent': { priority: 3, latching: false, title: 'No cycles for a while', steps: ['Check whether the machine is waiting for blanks or stuck.'] },
-  'link:sequence-gap': { priority: 4, latching: false, title: 'Messages missing', steps: ['Check the adapter\'s store-and-forward; the gap is listed under data completeness.'] },
-  'link:bad-data': { priority: 4, latching: false, title: 'Repeated bad data', steps: ['See the dead letters for the reasons; fix the adapter.'] },
-  'supply:starving': { priority: 3, latching: false, title: 'Cell about to run out of blanks', steps: ['Stage the next pallet.'] },
+  'fault:fire_alarm': { priority: 1, latching: true, title: 'Fire alarm', steps: ['Follow the site fire plan; do not enter the cell alone.', 'Confirm the suppression system fired and the machine is stopped.', 'Inspect the enclosure, ducting and mist collector before any restart.'], ...stopping(0), scope: 'cell' },
+  'fault:mist_collector_fault': { priority: 1, latching: true, title: 'Mist collector fault', steps: ['Keep the machine stopped: oil mist builds up without extraction.', 'Check the collector filters and fan.', 'Restart only with extraction running.'], ...stopping(0), scope: 'cell' },
+  'fault:coolant_fault': { priority: 2, latching: true, title: 'Coolant fault', steps: ['Check coolant level, flow and filter.', 'Look for burn marks on the last parts.'], ...stopping(10) },
+  'fault:wheel_contact_lost': { priority: 2, latching: true, title: 'Lost wheel contact', steps: ['Check the work blade and the part in the grinding zone.', 'Check the wheel for damage before restarting; never exceed its marked speed.'], ...stopping(0) },
+  'fault:wheel_worn_out': { priority: 2, latching: true, title: 'Wheel worn out', steps: ['Change the wheel per the machine builder\'s instructions.', 'Ring-test the new wheel and run it up behind the guard.'], ...stopping(0) },
+  'fault:gauge_fault': { priority: 2, latching: false, title: 'Gauge fault', steps: ['Clean the gauge contacts.', 'Master the gauge and log it.'], ...urgent(60, 60) },
+  'fault:loader_jam': { priority: 3, latching: true, title: 'Loader jam', steps: ['Lock out the loader, clear the jam.', 'Check the part at the jam for damage.'], ...stopping(60) },
+  'fault:empty_pallet': { priority: 3, latching: false, title: 'Pallet empty', steps: ['Load a full pallet of blanks.'], ...stopping(60, 60) },
+  'engine:stop-requested': { priority: 2, latching: true, title: 'Stop requested by compensation', steps: ['Read the decision log for the reason.', 'Measure the last parts by hand.', 'Fix the cause, then reset here at the machine.'], ...stopping(0) },
+  'engine:gauge-suspect': { priority: 2, latching: false, title: 'Gauge suspect', steps: ['Check the gauge for chips and coolant.', 'Master the gauge and log it.'], ...urgent(60, 120) },
+  'engine:consecutive-rejects': { priority: 2, latching: false, title: 'Parts out of tolerance in a row', steps: ['Hold the machine.', 'Measure by hand and correct the offset.'], ...urgent(90, 120) },
+  'engine:offset-range-limit': { priority: 2, latching: false, title: 'Offset at its allowed limit', steps: ['Dress or change the wheel; compensation cannot go further.'], ...urgent(60, 300, 'clears once the offset is back inside the allowed range by 10 % of its span') },
+  'engine:budget-used-up': { priority: 3, latching: false, title: 'Compensation budget since dress used up', steps: ['Dress the wheel.'], ...urgent(60, 300, 'clears once 10 % of the offset budget since dress is free again (after a dress)') },
+  'engine:trend-near-limit': { priority: 3, latching: false, title: 'Size trend nears tolerance', steps: ['Watch the trend; dress if the wheel is due.'], ...urgent(60, 300, 'advisory in the decision log; the alarm that wakes people is "Size will meet tolerance soon"') },
+  'trend:nears-tolerance': { priority: 2, latching: false, title: 'Size will meet tolerance soon', steps: ['Open the machine and read the minutes left on its trend.', 'Dress the wheel or correct the offset before the size meets the limit.', 'Acknowledge, so the next person on call is not woken.'], ...urgent(120, 600, 'raised below the job\'s threshold (30 min by default), cleared above threshold × 1.5') },
+  'engine:settings': { priority: 2, latching: false, title: 'Compensation off: settings not valid', steps: ['Check the job\'s tolerance and compensation settings.'], ...urgent(0, 0) },
+  'machine:stopped': { priority: 3, latching: false, title: 'Machine stopped', steps: ['Find why it stopped in the event log.'], ...stopping(60, 30), suppression: 'consequence' },
+  'link:offline': { priority: 3, latching: false, title: 'Machine offline', steps: ['Check the machine\'s network and its adapter.'], ...stopping(120, 30), suppression: null },
+  'link:silent': { priority: 3, latching: false, title: 'No cycles for a while', steps: ['Check whether the machine is waiting for blanks or stuck.'], ...stopping(0, 60), suppression: 'consequence', hysteresis: 'raised after no message for 10 cycles (at least 2 min) while running, cleared by the next message' },
+  'link:sequence-gap': { priority: 4, latching: false, title: 'Messages missing', steps: ['Check the adapter\'s store-and-forward; the gap is listed under data completeness.'], ...urgent(0, 0), mayWait: true, momentary: true },
+  'link:bad-data': { priority: 4, latching: false, title: 'Repeated bad data', steps: ['See the dead letters for the reasons; fix the adapter.'], ...urgent(0, 0), mayWait: true, momentary: true },
+  'supply:starving': { priority: 3, latching: false, title: 'Cell about to run out of blanks', steps: ['Stage the next pallet.'], ...urgent(60, 60) },
 }
 
 export function alarmKindFor(condition: string): AlarmKind {
-  return alarmCatalogue[condition] ?? { priority: 3, latching: false, title: condition, steps: [] }
+  return alarmCatalogue[condition] ?? { priority: 3, latching: false, title: condition, steps: [], ...urgent(0, 0) }
+}
+
+/** What an engine condition's deadband looks at: the engine's offset and its limits. */
+export interface AlarmEngineOffsets {
+  offsetUm: number
+  offsetAtDressUm: number
+  settings: { maxSinceDressUm: number, offsetRange: { min: number, max: number } }
+}
+
+/**
+ * Hysteresis for the engine's analogue conditions (see `hysteresis` above): the engine says on
+ * each decision whether a command was cut short by the budget since dress or the offset range;
+ * once raised, the alarm holds until the offset has really moved away from that limit, not the
+ * next time a part happens to need no command.
+ */
+export function alarmEngineConditionHolds(code: string, e: AlarmEngineOffsets): boolean {
+  if (code === 'budget-used-up') return Math.abs(e.offsetUm - e.offsetAtDressUm) >= 0.9 * e.settings.maxSinceDressUm
+  if (code === 'offset-range-limit') {
+    const { min, max } = e.settings.offsetRange
+    const margin = 0.1 * (max - min)
+    return e.offsetUm <= min + margin || e.offsetUm >= max - margin
+  }
+  return false
 }

@@ -11,6 +11,10 @@
 //   latched              latching alarm, acknowledged, condition cleared: stays annunciated until reset
 //   shelved              hidden by an operator for a limited time, with a reason
 //   out-of-service       taken out of service (maintenance), with a reason; suppresses everything
+//   suppressed           suppressed by design: a consequence of another standing alarm's cause
+//                        (a machine stopped by the cell's fire alarm); shown under that alarm,
+//                        not announced, and back to the state its condition implies once the
+//                        cause clears (ISA-18.2 "designed suppression" — from memory)
 
 export type AlarmPriority = 1 | 2 | 3 | 4
 export type AlarmPriorityName = 'top' | 'high' | 'medium' | 'low'
@@ -20,9 +24,9 @@ export const ALARM_PRIORITY_NAMES: Readonly<Record<AlarmPriority, AlarmPriorityN
 
 export type AlarmState =
   | 'normal' | 'unacknowledged' | 'acknowledged' | 'rtn-unacknowledged' | 'latched'
-  | 'shelved' | 'out-of-service'
+  | 'shelved' | 'out-of-service' | 'suppressed'
 export const ALARM_STATES: readonly AlarmState[] = [
-  'normal', 'unacknowledged', 'acknowledged', 'rtn-unacknowledged', 'latched', 'shelved', 'out-of-service',
+  'normal', 'unacknowledged', 'acknowledged', 'rtn-unacknowledged', 'latched', 'shelved', 'out-of-service', 'suppressed',
 ]
 
 /** One alarm (one condition on one machine); plain JSON so the engine can store it as is. */
@@ -36,7 +40,10 @@ export interface AlarmRecord {
   stateBeforeShelve: AlarmState | null
   outOfServiceReason: string | null
   stateBeforeOutOfService: AlarmState | null
-  activationsAtSuppression: number | null // activation count when shelved / taken out of service
+  /** what suppresses it by design (its cause, in words); absent in records stored before this state existed */
+  suppressedBy?: string | null
+  stateBeforeSuppression?: AlarmState | null
+  activationsAtSuppression: number | null // activation count when shelved, taken out of service or suppressed
   raisedAt: number | null // latest clear → active edge
   lastChangeAt: number // latest state or condition change
   activations: number // clear → active edges since creation
@@ -52,6 +59,8 @@ export type AlarmAction =
   | { kind: 'shelve-expired' } // a timer tick: ends a shelve whose time is up, else does nothing
   | { kind: 'remove-from-service'; reason: string }
   | { kind: 'return-to-service' }
+  | { kind: 'suppress'; by: string } // designed suppression: the system, never a person
+  | { kind: 'unsuppress' }
 export type AlarmActionKind = AlarmAction['kind']
 
 export interface AlarmTransition { from: AlarmState; to: AlarmState; action: AlarmActionKind; at: number }
@@ -71,8 +80,16 @@ export function alarmCreateRecord(opts: { priority: AlarmPriority; latching: boo
   return {
     state: 'normal', active: false, latching: opts.latching === true, priority: opts.priority,
     shelvedUntil: null, shelveReason: null, stateBeforeShelve: null, outOfServiceReason: null,
-    stateBeforeOutOfService: null, activationsAtSuppression: null, raisedAt: null, lastChangeAt: opts.now, activations: 0,
+    stateBeforeOutOfService: null, suppressedBy: null, stateBeforeSuppression: null, activationsAtSuppression: null,
+    raisedAt: null, lastChangeAt: opts.now, activations: 0,
   }
+}
+
+/** A stored record with the fields later versions added (older rows lack them). */
+function withDefaults(r: AlarmRecord): AlarmRecord {
+  return r.suppressedBy === undefined || r.stateBeforeSuppression === undefined
+    ? { ...r, suppressedBy: r.suppressedBy ?? null, stateBeforeSuppression: r.stateBeforeSuppression ?? null }
+    : r
 }
 
 /** States that are shown to the operator as a standing alarm. */
@@ -99,7 +116,10 @@ export function alarmRecordProblems(r: AlarmRecord): string[] {
   const oos = r.state === 'out-of-service'
   if (oos && !(nonEmpty(r.outOfServiceReason) && isInnerState(r.stateBeforeOutOfService))) p.push('an out-of-service alarm needs a reason and its earlier state')
   if (!oos && (r.outOfServiceReason !== null || r.stateBeforeOutOfService !== null)) p.push('out-of-service fields set on an alarm in service')
-  if ((shelved || oos) !== (r.activationsAtSuppression !== null)) p.push('activationsAtSuppression must be set exactly while shelved or out of service')
+  const sup = r.state === 'suppressed'
+  if (sup && !(nonEmpty(r.suppressedBy) && isInnerState(r.stateBeforeSuppression))) p.push('a suppressed alarm needs its cause and its earlier state')
+  if (!sup && ((r.suppressedBy ?? null) !== null || (r.stateBeforeSuppression ?? null) !== null)) p.push('suppression fields set on an alarm that is not suppressed')
+  if ((shelved || oos || sup) !== (r.activationsAtSuppression !== null)) p.push('activationsAtSuppression must be set exactly while shelved, out of service or suppressed')
   return p
 }
 
@@ -108,7 +128,8 @@ export function alarmRecordProblems(r: AlarmRecord): string[] {
  * Condition changes are always recorded (even while shelved / out of service); operator verbs
  * that make no sense in the current state are refused with a one-line reason.
  */
-export function applyAlarmAction(record: AlarmRecord, action: AlarmAction, now: number): AlarmActionResult {
+export function applyAlarmAction(stored: AlarmRecord, action: AlarmAction, now: number): AlarmActionResult {
+  const record = stored !== null && typeof stored === 'object' ? withDefaults(stored) : stored
   const problems = alarmRecordProblems(record)
   if (problems.length) return { record, transition: null, transitions: [], refused: `invalid alarm record: ${problems.join('; ')}` }
   if (!Number.isFinite(now)) return { record, transition: null, transitions: [], refused: 'time of the action must be a finite ms timestamp' }
@@ -130,7 +151,7 @@ export function applyAlarmAction(record: AlarmRecord, action: AlarmAction, now: 
 // One action on a consistent, not-yet-expired record: the new record, or a refusal reason.
 function step(r: AlarmRecord, a: AlarmAction, now: number): AlarmRecord | string {
   if (a === null || typeof a !== 'object') return 'action must be an object with a kind'
-  const suppressed = r.state === 'shelved' || r.state === 'out-of-service'
+  const suppressed = r.state === 'shelved' || r.state === 'out-of-service' || r.state === 'suppressed'
   switch (a.kind) {
     case 'condition-active': {
       if (r.active) return r
@@ -153,7 +174,7 @@ function step(r: AlarmRecord, a: AlarmAction, now: number): AlarmRecord | string
     case 'reset':
       if (suppressed) return `cannot reset: the alarm is ${r.state}`
       if (!r.latching) return 'nothing to reset: this alarm does not latch'
-      // OPC UA Part 9 / IEC 62682 (reference-values §8): a reset while the condition is active has no effect.
+      // OPC UA Part 9 / IEC 62682 (docs/alarms.md): a reset while the condition is active has no effect.
       if (r.active) return 'reset has no effect while the condition is still active; reset after it clears'
       if (r.state === 'rtn-unacknowledged') return 'acknowledge the alarm before resetting it'
       if (r.state === 'latched') return { ...r, state: 'normal', lastChangeAt: now }
@@ -161,6 +182,7 @@ function step(r: AlarmRecord, a: AlarmAction, now: number): AlarmRecord | string
     case 'shelve': {
       if (r.state === 'shelved') return 'already shelved; unshelve it first to change the shelve'
       if (r.state === 'out-of-service') return 'cannot shelve: the alarm is out of service'
+      if (r.state === 'suppressed') return 'cannot shelve: the alarm is suppressed under its cause'
       if (!nonEmpty(a.reason)) return 'a shelve needs a reason'
       if (!Number.isFinite(a.maxShelveMs) || a.maxShelveMs <= 0) return 'the maximum shelve time must be a positive number of ms'
       if (!Number.isFinite(a.until) || a.until <= now) return 'a shelve needs an expiry time in the future'
@@ -175,10 +197,10 @@ function step(r: AlarmRecord, a: AlarmAction, now: number): AlarmRecord | string
     case 'remove-from-service': {
       if (r.state === 'out-of-service') return 'already out of service'
       if (!nonEmpty(a.reason)) return 'taking an alarm out of service needs a reason'
-      // Out of service overrides a shelve; the state before the shelve is what is remembered.
-      const before = r.state === 'shelved' ? r.stateBeforeShelve! : r.state
+      // Out of service overrides a shelve or a suppression; the state before them is what is remembered.
+      const before = r.state === 'shelved' ? r.stateBeforeShelve! : r.state === 'suppressed' ? r.stateBeforeSuppression! : r.state
       return {
-        ...r, state: 'out-of-service', shelvedUntil: null, shelveReason: null, stateBeforeShelve: null,
+        ...r, state: 'out-of-service', shelvedUntil: null, shelveReason: null, stateBeforeShelve: null, suppressedBy: null, stateBeforeSuppression: null,
         outOfServiceReason: a.reason.trim(), stateBeforeOutOfService: before,
         activationsAtSuppression: r.activationsAtSuppression ?? r.activations, lastChangeAt: now,
       }
@@ -186,6 +208,14 @@ function step(r: AlarmRecord, a: AlarmAction, now: number): AlarmRecord | string
     case 'return-to-service':
       if (r.state !== 'out-of-service') return `not out of service: the alarm is ${r.state}`
       return leaveSuppression(r, r.stateBeforeOutOfService!, now)
+    case 'suppress':
+      if (r.state === 'suppressed') return 'already suppressed'
+      if (r.state === 'shelved' || r.state === 'out-of-service') return `not suppressed: the alarm is ${r.state}`
+      if (!nonEmpty(a.by)) return 'a suppression needs its cause'
+      return { ...r, state: 'suppressed', suppressedBy: a.by.trim(), stateBeforeSuppression: r.state, activationsAtSuppression: r.activations, lastChangeAt: now }
+    case 'unsuppress':
+      if (r.state !== 'suppressed') return `not suppressed: the alarm is ${r.state}`
+      return leaveSuppression(r, r.stateBeforeSuppression!, now)
     default:
       return `unknown alarm action "${String((a as { kind?: unknown }).kind)}"`
   }
@@ -202,7 +232,7 @@ function leaveSuppression(r: AlarmRecord, before: AlarmState, now: number): Alar
   else if (r.latching && (firedWhileHidden || alarmStateIsAnnunciated(before))) state = 'rtn-unacknowledged'
   return {
     ...r, state, shelvedUntil: null, shelveReason: null, stateBeforeShelve: null, outOfServiceReason: null,
-    stateBeforeOutOfService: null, activationsAtSuppression: null, lastChangeAt: now,
+    stateBeforeOutOfService: null, suppressedBy: null, stateBeforeSuppression: null, activationsAtSuppression: null, lastChangeAt: now,
   }
 }
 
@@ -219,12 +249,12 @@ export function isAlarmChattering(activationTimes: readonly number[], now: numbe
   return countInWindow(activationTimes, now, windowMs, 'activation') >= count
 }
 
-/** Flood: more than 10 annunciations in the trailing 10 minutes (ISA-18.2 / EEMUA 191, reference-values §8). */
+/** Flood: more than 10 annunciations in the trailing 10 minutes (ISA-18.2 / EEMUA 191, docs/alarms.md). */
 export function isAlarmFlood(annunciationTimes: readonly number[], now: number): boolean {
   return countInWindow(annunciationTimes, now, ALARM_RATE_BENCHMARKS.tenMinuteWindowMs, 'annunciation') > ALARM_RATE_BENCHMARKS.floodAbovePerTenMinutes
 }
 
-/** Benchmarks per operator, from memory (reference-values §8). */
+/** Benchmarks per operator, from memory (ISA-18.2 / EEMUA 191, docs/alarms.md). */
 export const ALARM_RATE_BENCHMARKS = {
   tenMinuteWindowMs: 600_000,
   floodAbovePerTenMinutes: 10,
@@ -300,7 +330,7 @@ function countInWindow(times: readonly number[], now: number, windowMs: number, 
   return n
 }
 function isPriority(p: unknown): p is AlarmPriority { return p === 1 || p === 2 || p === 3 || p === 4 }
-function isInnerState(s: unknown): boolean { return ALARM_STATES.includes(s as AlarmState) && s !== 'shelved' && s !== 'out-of-service' }
+function isInnerState(s: unknown): boolean { return ALARM_STATES.includes(s as AlarmState) && s !== 'shelved' && s !== 'out-of-service' && s !== 'suppressed' }
 function nonEmpty(s: unknown): s is string { return typeof s === 'string' && s.trim().length > 0 }
 function formatDuration(ms: number): string {
   return ms % 3_600_000 === 0 ? `${ms / 3_600_000} h` : ms % 60_000 === 0 ? `${ms / 60_000} min` : `${ms} ms`

@@ -63,7 +63,7 @@ export function liveCardFacts(
 const HELD = ['FEED_HOLD', 'PROGRAM_STOPPED', 'OPTIONAL_STOP']
 const STOPPED = ['STOPPED', 'INTERRUPTED']
 const isNewAlarm = (a: LiveAlarmFact) => a.state === 'unacknowledged' || a.state === 'rtn-unacknowledged'
-const isStanding = (a: LiveAlarmFact) => a.state !== 'shelved' && a.state !== 'out-of-service'
+const isStanding = (a: LiveAlarmFact) => !liveAlarmIsHidden(a.state)
 
 /**
  * The machine's state in one word and a tone; the word always carries the meaning. A machine that
@@ -225,7 +225,7 @@ export function liveSpan(minutes: number | null): string {
 
 /** ISA-18.2 alarm states in the words the screens use (one place, so every screen says the same). */
 export function liveAlarmStateWord(state: string): string {
-  return ({ 'unacknowledged': 'new', 'acknowledged': 'acknowledged', 'rtn-unacknowledged': 'cleared, not acknowledged', 'latched': 'latched: reset at machine', 'shelved': 'shelved', 'out-of-service': 'out of service', 'normal': 'closed' } as Record<string, string>)[state] ?? state
+  return ({ 'unacknowledged': 'new', 'acknowledged': 'acknowledged', 'rtn-unacknowledged': 'cleared, not acknowledged', 'latched': 'latched: reset at machine', 'shelved': 'shelved', 'out-of-service': 'out of service', 'suppressed': 'under its cause', 'normal': 'closed' } as Record<string, string>)[state] ?? state
 }
 
 /** What was done to an alarm (its history), in the same plain words: the stored action ids are for machines. */
@@ -239,9 +239,21 @@ export const LIVE_ALARM_ACTION_WORDS: Readonly<Record<AlarmActionKind, string>> 
   'shelve-expired': 'shelf time ran out',
   'remove-from-service': 'taken out of service',
   'return-to-service': 'back in service',
+  'suppress': 'put under its cause',
+  'unsuppress': 'its cause went',
 }
 export function liveAlarmActionWord(action: string): string {
   return (LIVE_ALARM_ACTION_WORDS as Record<string, string>)[action] ?? action
+}
+
+/** The open alarms that concern one machine: its own, and the cell alarms (fire, mist) that list it. */
+export function liveAlarmsOfMachine<A extends { machineId: string | null, machines?: string[] }>(alarms: readonly A[], machineId: string): A[] {
+  return alarms.filter(a => a.machineId === machineId || (a.machineId === null && (a.machines ?? []).includes(machineId)))
+}
+
+/** States that do not call for a person: hidden by someone (shelved, out of service) or by design (under its cause). */
+export function liveAlarmIsHidden(state: string): boolean {
+  return state === 'shelved' || state === 'out-of-service' || state === 'suppressed'
 }
 
 /** Who changed an alarm and from where: the server itself, or a person on the web or at a station. */

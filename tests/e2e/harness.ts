@@ -48,6 +48,9 @@ export async function setupOwlshift(extraEnv: Record<string, string> = {}, opts:
       NUXT_SESSION_COOKIE_SECURE: 'false',
       MQTT_HOST: '127.0.0.1',
       MQTT_PORT: String(mqttPort),
+      // The catalogue's on/off delays (a minute or two per condition) would only make each alarm
+      // test wait; they are tested in tests/unit/alarm-filtering.test.ts and over whole nights.
+      OWLSHIFT_ALARM_DELAY_SCALE: '0',
       ...extraEnv,
     },
   })

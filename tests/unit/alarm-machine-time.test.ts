@@ -38,12 +38,13 @@ describe('alarm transitions carry the machine time of the message that caused th
     const t1 = Date.now()
     const [jam] = await db().select().from(schema.alarms).where(eq(schema.alarms.condition, 'fault:loader_jam'))
     const steps = await db().select().from(schema.alarmTransitions).where(eq(schema.alarmTransitions.alarmId, jam!.id)).orderBy(asc(schema.alarmTransitions.id))
-    expect(steps.map(s => [s.toState, s.machineAt])).toEqual([['unacknowledged', ms(3600)], ['rtn-unacknowledged', ms(4200)]])
+    // Raised when its 60 s on-delay ran out on the machine's clock (docs/alarms.md), cleared at once (no off-delay).
+    expect(steps.map(s => [s.toState, s.machineAt])).toEqual([['unacknowledged', ms(3600 + 60)], ['rtn-unacknowledged', ms(4200)]])
     for (const s of steps) expect(s.at).toBeGreaterThanOrEqual(t0) // the server's clock, beside it
     for (const s of steps) expect(s.at).toBeLessThanOrEqual(t1)
     const [stopped] = await db().select().from(schema.alarms).where(eq(schema.alarms.condition, 'machine:stopped'))
     const stopSteps = await db().select().from(schema.alarmTransitions).where(eq(schema.alarmTransitions.alarmId, stopped!.id))
-    expect(stopSteps[0]!.machineAt).toBe(ms(3601))
+    expect(stopSteps[0]!.machineAt).toBe(ms(3601 + 60)) // its on-delay, 60 s
   })
 
   it('a person\'s acknowledgement has no machine time (it happened on the server\'s clock only)', async () => {
@@ -81,9 +82,10 @@ describe('presence changes carry the machine time', () => {
     const late = rows[3]!.machineTime! - ms(9100)
     expect(late).toBeGreaterThanOrEqual(40)
     expect(late).toBeLessThanOrEqual(after - before)
-    // the offline alarm is placed at the death's machine time, its return at the birth's
+    // the offline alarm is placed at the death's machine time, its return at the birth's — each
+    // after its delay (on 120 s, off 30 s: docs/alarms.md), judged on the machine's clock
     const [off] = await db().select().from(schema.alarms).where(eq(schema.alarms.condition, 'link:offline'))
     const steps = await db().select().from(schema.alarmTransitions).where(eq(schema.alarmTransitions.alarmId, off!.id)).orderBy(asc(schema.alarmTransitions.id))
-    expect(steps.slice(0, 2).map(s => s.machineAt)).toEqual([Date.parse(shutdownAt), ms(9000)])
+    expect(steps.slice(0, 2).map(s => s.machineAt)).toEqual([Date.parse(shutdownAt) + 120_000, ms(9000) + 30_000])
   })
 })

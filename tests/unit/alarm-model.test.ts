@@ -81,7 +81,7 @@ describe('alarm states — ISA-18.2 / IEC 62682 state model (from memory)', () =
     expect(run(r, [ack]).state).toBe('latched')
   })
 
-  it('a reset while the condition is still active has no effect (OPC UA Part 9 / IEC 62682, reference-values §8)', () => {
+  it('a reset while the condition is still active has no effect (OPC UA Part 9 / IEC 62682, docs/alarms.md)', () => {
     for (const r of [run(latching(), [on]), run(latching(), [on, ack])]) {
       const before = structuredClone(r)
       const out = applyAlarmAction(r, reset, T0 + HOUR)
@@ -191,6 +191,34 @@ describe('out of service (ISA-18.2 — from memory)', () => {
   })
 })
 
+describe('suppressed by design (ISA-18.2 designed / state-based suppression — from memory)', () => {
+  it('records the condition under its cause, refuses every verb, and comes back as its condition implies', () => {
+    let r = run(plain(), [on])
+    expect(applyAlarmAction(r, { kind: 'suppress', by: ' ' }, T0 + 2 * MIN).refused).toMatch(/needs its cause/)
+    r = applyAlarmAction(r, { kind: 'suppress', by: 'Fire alarm (alarm 7)' }, T0 + 2 * MIN).record
+    expect(r).toMatchObject({ state: 'suppressed', suppressedBy: 'Fire alarm (alarm 7)', stateBeforeSuppression: 'unacknowledged' })
+    expect(alarmStateIsAnnunciated(r.state)).toBe(false)
+    for (const a of [ack, reset, shelve(T0 + HOUR), { kind: 'suppress', by: 'x' } as AlarmAction]) expect(applyAlarmAction(r, a, T0 + 3 * MIN).refused).toBeTruthy()
+    // Still active when the cause goes: announced afresh (the machine is still stopped).
+    expect(applyAlarmAction(r, { kind: 'unsuppress' }, T0 + HOUR).record.state).toBe('unacknowledged')
+    // Cleared meanwhile: nothing owed for a non-latching alarm.
+    const cleared = run(r, [off], T0 + 3 * MIN)
+    expect(applyAlarmAction(cleared, { kind: 'unsuppress' }, T0 + HOUR).record.state).toBe('normal')
+  })
+
+  it('a latching alarm suppressed after firing still owes its acknowledge and reset', () => {
+    const r = applyAlarmAction(run(latching(), [on, off]), { kind: 'suppress', by: 'Fire alarm (alarm 7)' }, T0 + 5 * MIN).record
+    expect(applyAlarmAction(r, { kind: 'unsuppress' }, T0 + HOUR).record.state).toBe('rtn-unacknowledged')
+  })
+
+  it('a record stored before this state existed loads and works', () => {
+    const { suppressedBy: _a, stateBeforeSuppression: _b, ...old } = run(plain(), [on])
+    const out = applyAlarmAction(old as AlarmRecord, { kind: 'suppress', by: 'Mist collector fault (alarm 3)' }, T0 + HOUR)
+    expect(out.refused).toBeUndefined()
+    expect(out.record.state).toBe('suppressed')
+  })
+})
+
 describe('bad input gets a clear reason and loses nothing', () => {
   it('refuses a corrupt record, a non-finite time and an unknown action without changing anything', () => {
     const r = run(plain(), [on])
@@ -221,6 +249,7 @@ function invariantBroken(r: AlarmRecord): string | null {
     'latched': (x) => !x.active && x.latching,
     'shelved': (x) => x.shelvedUntil !== null && !!x.shelveReason?.trim(),
     'out-of-service': (x) => !!x.outOfServiceReason?.trim() && x.shelvedUntil === null,
+    'suppressed': (x) => !!x.suppressedBy?.trim() && x.shelvedUntil === null && x.outOfServiceReason === null,
   }
   if (!(r.state in allowed)) return `unknown state ${r.state}`
   if (!allowed[r.state](r)) return `${r.state} with active=${r.active}, latching=${r.latching}`
@@ -233,6 +262,8 @@ describe('property: no sequence of actions reaches an invalid state (fast-check)
     fc.constant<AlarmAction>(on), fc.constant<AlarmAction>(off), fc.constant<AlarmAction>(ack), fc.constant<AlarmAction>(reset),
     fc.constant<AlarmAction>({ kind: 'unshelve' }), fc.constant<AlarmAction>({ kind: 'shelve-expired' }),
     fc.constant<AlarmAction>({ kind: 'return-to-service' }),
+    fc.constant<AlarmAction>({ kind: 'unsuppress' }),
+    fc.record({ kind: fc.constant('suppress' as const), by: fc.constantFrom('', 'Fire alarm (alarm 1)') }),
     fc.record({
       kind: fc.constant('shelve' as const),
       until: fc.oneof(fc.integer({ min: -HOUR, max: 12 * HOUR }), fc.constant(Number.NaN)), // offset from now
@@ -291,7 +322,7 @@ describe('chattering (≥ 3 activations in 60 s — common practice, from memory
   })
 })
 
-describe('flood (more than 10 alarms in 10 minutes — ISA-18.2 / EEMUA 191 via UK HSE, reference-values §8)', () => {
+describe('flood (more than 10 alarms in 10 minutes — ISA-18.2 / EEMUA 191 via UK HSE, docs/alarms.md)', () => {
   const every30s = (n: number) => Array.from({ length: n }, (_, i) => T0 + i * 30_000)
   it('10 in ten minutes is not a flood, 11 is', () => {
     expect(isAlarmFlood(every30s(10), T0 + 9 * MIN)).toBe(false)
@@ -300,7 +331,7 @@ describe('flood (more than 10 alarms in 10 minutes — ISA-18.2 / EEMUA 191 via 
   })
 })
 
-describe('rate metrics (EEMUA 191 via UK HSE; ISA-18.2 figures from memory, reference-values §8)', () => {
+describe('rate metrics (EEMUA 191 via UK HSE; ISA-18.2 figures from memory, docs/alarms.md)', () => {
   const DAY = 24 * HOUR
   const evenly = (n: number, priority: AlarmPriority = 4) => Array.from({ length: n }, (_, i) => ({ at: T0 + Math.floor((i * DAY) / n), priority }))
 

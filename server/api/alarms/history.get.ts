@@ -6,7 +6,7 @@ const query = z.object({
   machine: z.string().max(40).optional(),
   priority: z.coerce.number().int().min(1, 'priority is 1 to 4').max(4, 'priority is 1 to 4').optional(),
   condition: z.string().max(80).optional(),
-  state: z.enum(['normal', 'unacknowledged', 'acknowledged', 'rtn-unacknowledged', 'latched', 'shelved', 'out-of-service']).optional(),
+  state: z.enum(['normal', 'unacknowledged', 'acknowledged', 'rtn-unacknowledged', 'latched', 'shelved', 'out-of-service', 'suppressed']).optional(),
   from: z.coerce.number().int().min(0).optional(),
   to: z.coerce.number().int().min(0).optional(),
   limit: z.coerce.number().int().min(1).max(500).default(200),
