@@ -13,7 +13,7 @@ import { join } from 'node:path'
 import net from 'node:net'
 import mqtt, { type MqttClient } from 'mqtt'
 import { Aedes } from 'aedes'
-import { mqttTopics } from '../shared/utils/contract'
+import { mqttTopics, machineClientId } from '../shared/utils/contract'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
 import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
@@ -76,7 +76,7 @@ function birthPayload(seq: number) {
 
 async function connectAll(url: string, creds: Record<string, { password: string }> | null): Promise<MqttClient[]> {
   return Promise.all(MACHINES.map(m => mqtt.connectAsync(url, {
-    clientId: `bench-${m}`, username: m, password: creds?.[m]?.password, protocolVersion: 4, clean: true, reconnectPeriod: 0,
+    clientId: machineClientId(CELL, m), username: m, password: creds?.[m]?.password, protocolVersion: 4, clean: true, reconnectPeriod: 0,
   })))
 }
 

@@ -13,7 +13,7 @@
 import mqtt, { type MqttClient } from 'mqtt'
 import { join } from 'node:path'
 import {
-  decodeCommandMessage, mqttTopics, topicKindOf, type CommandMessage, type DeathMessage, type MachineTopicKind, type SequencedMessage,
+  decodeCommandMessage, machineClientId, mqttTopics, topicKindOf, type CommandMessage, type DeathMessage, type MachineTopicKind, type SequencedMessage,
 } from '../shared/utils/contract'
 import { MachineJournal, type JournalEntry } from './journal'
 
@@ -55,7 +55,7 @@ export class MachineLink {
 
   constructor(readonly options: MachineLinkOptions) {
     this.journal = new MachineJournal(join(options.stateDir, options.cell, `${options.machine}.journal`))
-    this.clientId = options.clientId ?? `owlshift-${options.cell}-${options.machine}`
+    this.clientId = options.clientId ?? machineClientId(options.cell, options.machine)
   }
 
   get lastSeq(): number { return this.journal.lastSeq }

@@ -6,7 +6,7 @@ import net from 'node:net'
 import { Aedes } from 'aedes'
 import mqtt from 'mqtt'
 import { databaseReady } from './0.database'
-import { mqttTopics } from '#shared/utils/contract'
+import { mqttTopics, machineClientId } from '#shared/utils/contract'
 
 /** Marks packets the server itself publishes: only those are forwarded to machines. */
 const SERVER_MARK = 'owlshift-server-internal'
@@ -31,20 +31,46 @@ async function listenWithRetry(server: net.Server, port: number, host: string): 
   }
 }
 
+/** One warning per machine and client id a minute: a misconfigured adapter retries every few seconds. */
+const lastRefusalLog = new Map<string, number>()
+function logRefusal(machineId: string, clientId: string, own: string) {
+  const key = `${machineId}\n${clientId}`
+  const now = Date.now()
+  if ((lastRefusalLog.get(key) ?? 0) > now - 60_000) return
+  if (lastRefusalLog.size > 1000) lastRefusalLog.clear()
+  lastRefusalLog.set(key, now)
+  log.warn(`[owlshift] MQTT connection refused (identifier rejected): machine "${machineId}" tried client id "${clientId.slice(0, 100)}"; it must use "${own}"`)
+}
+
 async function startEmbedded(host: string, port: number): Promise<BrokerHandle> {
   const ingest = useIngest()
+  const refused = { credentials: 0, clientId: 0 }
   const broker = await Aedes.createBroker({
     id: 'owlshift',
     authenticate: (client, username, password, done) => {
       const machineId = username ?? ''
       const ctx = machineContext(machineId)
-      const refuse = () => { const e = new Error('bad user name or password') as Error & { returnCode: number }; e.returnCode = 4; done(e, false) }
-      if (!ctx || !password) return refuse()
+      // MQTT 3.1.1 §3.2.2.3 CONNACK return codes: 2 "identifier rejected", 4 "bad user name or password".
+      const refuse = (returnCode: 2 | 4, why: string) => {
+        refused[returnCode === 2 ? 'clientId' : 'credentials']++
+        const e = new Error(why) as Error & { returnCode: number }
+        e.returnCode = returnCode
+        done(e, false)
+      }
+      if (!ctx || !password) return refuse(4, 'bad user name or password')
       verifyMachinePassword(machineId, password.toString('utf8')).then((ok) => {
-        if (!ok) return refuse()
+        if (!ok) return refuse(4, 'bad user name or password')
+        // The client id names the session, and a session holds the commands queued for its machine:
+        // a machine connects only with its own id, or another account could take its session over
+        // (and knock it off each time it reconnects). Checked before aedes takes over any session.
+        const own = machineClientId(ctx.cellId, ctx.id)
+        if (client.id !== own) {
+          logRefusal(machineId, client.id, own)
+          return refuse(2, `machine "${machineId}" must connect with client id "${own}"`)
+        }
         ;(client as unknown as MachineClient).owlMachine = machineId
         done(null, true)
-      }, () => refuse())
+      }, () => refuse(4, 'bad user name or password'))
     },
     authorizePublish: (client, packet, done) => {
       const machineId = (client as unknown as MachineClient | null)?.owlMachine
@@ -73,6 +99,7 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
   return {
     kind: 'embedded',
     port: boundPort,
+    refusedConnections: refused,
     connectedMachines: () => broker.connectedClients,
     close: async () => {
       setCommandPublisher(null)

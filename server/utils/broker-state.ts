@@ -1,5 +1,12 @@
 // What the broker plugin started (embedded or external), for health and metrics.
-export interface BrokerHandle { kind: 'embedded' | 'external', port?: number, connectedMachines: () => number, close: () => Promise<void> }
+export interface BrokerHandle {
+  kind: 'embedded' | 'external'
+  port?: number
+  connectedMachines: () => number
+  /** embedded broker: connections it refused, by CONNACK reason */
+  refusedConnections?: { credentials: number, clientId: number }
+  close: () => Promise<void>
+}
 
 let handle: BrokerHandle | null = null
 export const brokerHandle = () => handle

@@ -45,6 +45,8 @@ export async function prometheusText(): Promise<string> {
   ])
   metric('owlshift_ingest_queue_depth', 'gauge', 'Messages waiting for the next commit.', [['', ingest.queueDepth]])
   metric('owlshift_machines_connected', 'gauge', 'Machines connected to the broker.', [['', broker?.connectedMachines() ?? 0]])
+  const refused = broker?.refusedConnections
+  if (refused) metric('owlshift_mqtt_connections_refused_total', 'counter', 'Machine connections the embedded broker refused, by reason (bad credentials; a client id that is not the machine\'s own).', [['{reason="credentials"}', refused.credentials], ['{reason="client-id"}', refused.clientId]])
   metric('owlshift_machines_online', 'gauge', 'Machines whose last presence message was a birth.', [['', machines.filter(m => m.status.online).length]])
   const wal = await walCheckpointStats()
   if (wal) {

@@ -46,6 +46,15 @@ export const mqttTopics = {
   isRetained: (kind: TopicKind) => kind === 'presence' || kind === 'state',
 }
 
+/**
+ * The one MQTT client id a machine may connect with: its session (and the commands queued in it)
+ * belongs to its account, so no other account can take it over (docs/mqtt.md, "Connection").
+ */
+export function machineClientId(cell: string, machine: string): string {
+  topic(cell, machine, 'presence') // checks both ids
+  return `owlshift-${cell}-${machine}`
+}
+
 export type ParsedTopic = { ok: true; cell: string; machine: string; kind: TopicKind } | { ok: false; reason: string }
 
 // A cell's topics are few and come again with every message: parse each once.

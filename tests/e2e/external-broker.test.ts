@@ -1,19 +1,39 @@
 // External-broker mode end to end: a real Mosquitto (Debian package) on a free loopback port,
-// Owlshift connected to it as a persistent-session subscriber (MQTT_URL). Messages published
-// while Owlshift is down are kept by the broker and stored after it comes back.
+// configured with the lines docs/mqtt.md gives for it (docs/mosquitto/owlshift.conf and
+// owlshift.acl: accounts, ACLs, client id = user name), and Owlshift connected to it as a
+// persistent-session subscriber (MQTT_URL). Messages published while Owlshift is down are kept
+// by the broker and stored after it comes back; one machine cannot take over another's session.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { spawn, spawnSync, type ChildProcess } from 'node:child_process'
-import { mkdtempSync, writeFileSync, existsSync } from 'node:fs'
+import { mkdtempSync, mkdirSync, chmodSync, writeFileSync, readFileSync, existsSync } from 'node:fs'
+import { randomBytes } from 'node:crypto'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import mqtt from 'mqtt'
 import Database from 'libsql'
-import { freePort, openTestDb } from './harness'
+import { freePort, openTestDb, rootDir } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { birth, reading, payloadOf, topicFor, CELL } from './mqtt-helpers'
-import { mqttTopics } from '../../shared/utils/contract'
+import { demoShop } from '../../shared/utils/demo-shop'
+import { mqttTopics, machineClientId } from '../../shared/utils/contract'
 
 const MOSQUITTO = ['/usr/sbin/mosquitto', '/usr/bin/mosquitto'].find(p => existsSync(p))
+const SERVER_USER = 'owlshift-server'
+
+/**
+ * The documented broker configuration with this test's port and files and no disk persistence,
+ * each line changed in its place (Mosquitto applies some options to the listener above them).
+ */
+function mosquittoConf(dir: string, port: number): string {
+  writeFileSync(join(dir, 'owlshift.acl'), readFileSync(join(rootDir, 'docs/mosquitto/owlshift.acl')))
+  const ours: [RegExp, string][] = [
+    [/^listener /, `listener ${port} 127.0.0.1`], [/^password_file /, `password_file ${join(dir, 'owlshift.passwd')}`],
+    [/^acl_file /, `acl_file ${join(dir, 'owlshift.acl')}`], [/^persistence /, 'persistence false'], [/^persistence_location /, ''],
+  ]
+  const lines = readFileSync(join(rootDir, 'docs/mosquitto/owlshift.conf'), 'utf8').split('\n')
+  for (const [pattern] of ours) if (!lines.some(l => pattern.test(l))) throw new Error(`docs/mosquitto/owlshift.conf has no line ${pattern}`)
+  return lines.map(l => ours.find(([pattern]) => pattern.test(l))?.[1] ?? l).join('\n')
+}
 
 describe('external broker (Mosquitto)', () => {
   let mosq: ChildProcess
@@ -21,18 +41,30 @@ describe('external broker (Mosquitto)', () => {
   let dataDir: string
   let brokerUrl: string
   let brokerPort: number
-  const env = () => ({ MQTT_URL: brokerUrl, MQTT_CLIENT_ID: 'owlshift-server-test' })
+  // Broker accounts: Owlshift's own and one per demo machine (user name = machine id).
+  const passwords: Record<string, string> = Object.fromEntries([SERVER_USER, ...demoShop.machines.map(m => m.id)].map(u => [u, randomBytes(12).toString('hex')]))
+  const env = () => ({ MQTT_URL: brokerUrl, MQTT_CLIENT_ID: 'owlshift-server-test', MQTT_USERNAME: SERVER_USER, MQTT_PASSWORD: passwords[SERVER_USER]! })
 
   beforeAll(async () => {
     if (!MOSQUITTO) throw new Error('mosquitto is not installed: apt-get install -y mosquitto mosquitto-clients (.ci/run does this)')
     dataDir = mkdtempSync(join(tmpdir(), 'owlshift-ext-'))
     brokerPort = await freePort()
     brokerUrl = `mqtt://127.0.0.1:${brokerPort}`
-    const conf = join(dataDir, 'mosquitto.conf')
-    writeFileSync(conf, `listener ${brokerPort} 127.0.0.1\nallow_anonymous true\npersistence false\nmax_queued_messages 100000\n`)
+    // Mosquitto started as root reads its files as the "mosquitto" user: give it a readable folder.
+    const brokerDir = join(dataDir, 'mosquitto')
+    mkdirSync(brokerDir, { mode: 0o755 })
+    chmodSync(dataDir, 0o755)
+    const passwd = join(brokerDir, 'owlshift.passwd')
+    for (const [user, password] of Object.entries(passwords)) {
+      const r = spawnSync('mosquitto_passwd', [...(existsSync(passwd) ? [] : ['-c']), '-b', passwd, user, password], { encoding: 'utf8' })
+      if (r.status !== 0) throw new Error(`mosquitto_passwd: ${r.stderr}`)
+    }
+    chmodSync(passwd, 0o644)
+    const conf = join(brokerDir, 'mosquitto.conf')
+    writeFileSync(conf, mosquittoConf(brokerDir, brokerPort))
     mosq = spawn(MOSQUITTO, ['-c', conf], { stdio: 'ignore' })
     for (let i = 0; i < 50; i++) {
-      const ok = await mqtt.connectAsync(brokerUrl, { reconnectPeriod: 0, connectTimeout: 500 }).then(c => c.endAsync().then(() => true), () => false)
+      const ok = await mqtt.connectAsync(brokerUrl, { reconnectPeriod: 0, connectTimeout: 500, username: SERVER_USER, password: passwords[SERVER_USER] }).then(c => c.endAsync().then(() => true), () => false)
       if (ok) break
       await new Promise(r => setTimeout(r, 100))
     }
@@ -40,9 +72,14 @@ describe('external broker (Mosquitto)', () => {
   })
   afterAll(async () => { if (process.env.OWLSHIFT_TEST_DEBUG) console.log(server?.log()); if (server) await killServer(server, 'SIGTERM'); mosq?.kill('SIGTERM') })
 
+  const account = (machine: string) => ['-u', machine, '-P', passwords[machine]!]
   const pub = (machine: string, m: Parameters<typeof payloadOf>[0]) => {
-    const r = spawnSync('mosquitto_pub', ['-h', '127.0.0.1', '-p', String(brokerPort), '-V', 'mqttv311', '-q', '1', '-i', `adapter-${machine}`, '-t', topicFor(machine, m), '-m', payloadOf(m)], { encoding: 'utf8' })
+    const r = spawnSync('mosquitto_pub', ['-h', '127.0.0.1', '-p', String(brokerPort), '-V', 'mqttv311', '-q', '1', '-i', machineClientId(CELL, machine), ...account(machine), '-t', topicFor(machine, m), '-m', payloadOf(m)], { encoding: 'utf8' })
     if (r.status !== 0) throw new Error(r.stderr)
+  }
+  const mosquittoSub = (args: string[]) => {
+    const r = spawnSync('mosquitto_sub', ['-h', '127.0.0.1', '-p', String(brokerPort), '-V', 'mqttv311', '-q', '1', ...args], { encoding: 'utf8', timeout: 15_000 })
+    return { status: r.status, out: r.stdout, err: r.stderr }
   }
   const count = async (sql: string) => { const db = openTestDb(dataDir); try { return Number((await db.execute(sql)).rows[0]![0]) } finally { db.close() } }
   const until = async (fn: () => Promise<boolean>, what: string) => {
@@ -51,7 +88,7 @@ describe('external broker (Mosquitto)', () => {
   }
 
   it('stores what a machine publishes through Mosquitto and sends commands back through it', async () => {
-    const machine = await mqtt.connectAsync(brokerUrl, { clientId: 'owlshift-cell-a-cg-04', clean: false, protocolVersion: 4 })
+    const machine = await mqtt.connectAsync(brokerUrl, { clientId: machineClientId(CELL, 'cg-04'), clean: false, protocolVersion: 4, username: 'cg-04', password: passwords['cg-04'] })
     await machine.subscribeAsync(mqttTopics.command(CELL, 'cg-04'), { qos: 1 })
     const commands: { type: string, offsetUm?: number }[] = []
     machine.on('message', (_t, p) => commands.push(JSON.parse(p.toString())))
@@ -91,5 +128,27 @@ describe('external broker (Mosquitto)', () => {
     other.close()
     // The broker still holds it for Owlshift's session; it must come again without a restart.
     await until(async () => (await count(`select count(*) from readings where machine_id = 'cg-02' and seq = 2`)) === 1, 'the reading after the lock is gone')
+  })
+
+  it('with the documented ACL, another machine\'s account on a machine\'s client id gets neither its session nor its commands', async () => {
+    const A = 'cg-03'
+    const B = 'cg-04'
+    pub(A, birth(1))
+    await until(async () => (await count(`select count(*) from machine_messages where machine_id = '${A}' and kind = 'birth'`)) === 1, 'A\'s birth')
+    expect(mosquittoSub(['-c', '-i', machineClientId(CELL, A), ...account(A), '-t', mqttTopics.command(CELL, A), '-E']).status).toBe(0)
+    // The lead holds A while it is away: Owlshift publishes the hold through Mosquitto into A's session.
+    const base = `http://127.0.0.1:${server.port}`
+    const lead = demoShop.users.find(u => u.role === 'lead')!
+    const signIn = await fetch(`${base}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: lead.email, password: demoShop.password }) })
+    const cookie = signIn.headers.getSetCookie().map(c => c.split(';')[0]).join('; ')
+    const res = await fetch(`${base}/api/machines/${A}/commands`, { method: 'POST', headers: { 'content-type': 'application/json', cookie }, body: JSON.stringify({ type: 'hold', confirmed: true }) })
+    expect(res.status, await res.text()).toBe(200)
+    // B, with its own account, names A's client id and asks for A's commands: nothing.
+    const takeover = mosquittoSub(['-c', '-i', machineClientId(CELL, A), ...account(B), '-t', mqttTopics.command(CELL, A), '-C', '1', '-W', '3', '-v'])
+    expect(takeover.out).toBe('')
+    // A comes back: its hold is still waiting for it.
+    const back = mosquittoSub(['-c', '-i', machineClientId(CELL, A), ...account(A), '-t', mqttTopics.command(CELL, A), '-C', '1', '-W', '5', '-v'])
+    expect(back.status, back.err).toBe(0)
+    expect(JSON.parse(back.out.slice(back.out.indexOf('{'))).type).toBe('hold')
   })
 })

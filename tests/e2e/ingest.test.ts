@@ -55,7 +55,7 @@ describe('ingest', async () => {
 
   it('accepts a publish from mosquitto_pub (Debian mosquitto-clients) into the embedded broker', () => {
     const m = reading(2, -0.4)
-    const r = spawnSync('mosquitto_pub', ['-h', '127.0.0.1', '-p', String(owl.mqttPort), '-V', 'mqttv311', '-q', '1', '-i', 'mosq-test-cg-02',
+    const r = spawnSync('mosquitto_pub', ['-h', '127.0.0.1', '-p', String(owl.mqttPort), '-V', 'mqttv311', '-q', '1', '-i', 'owlshift-cell-a-cg-02',
       '-u', 'cg-02', '-P', creds['cg-02']!.password, '-t', topicFor('cg-02', m), '-m', payloadOf(m)], { encoding: 'utf8' })
     expect(r.status, r.stderr).toBe(0)
     return expect.poll(() => count(`select count(*) from readings where machine_id = 'cg-02' and seq = 2`)).toBe(1)

@@ -1,7 +1,6 @@
 // Building contract messages and MQTT clients for the ingest tests.
 import mqtt, { type MqttClient } from 'mqtt'
-import { randomBytes } from 'node:crypto'
-import { mqttTopics, validateMachineMessage, type MachineMessage } from '../../shared/utils/contract'
+import { mqttTopics, machineClientId, validateMachineMessage, type MachineMessage } from '../../shared/utils/contract'
 
 export const CELL = 'cell-a'
 const t0 = Date.parse('2026-11-30T22:00:00.000Z')
@@ -30,7 +29,7 @@ export function topicFor(machine: string, m: MachineMessage) {
 
 export async function machineClient(url: string, machine: string, password: string, opts: Partial<mqtt.IClientOptions> = {}): Promise<MqttClient> {
   return mqtt.connectAsync(url, {
-    clientId: `test-${machine}-${randomBytes(3).toString('hex')}`, username: machine, password, protocolVersion: 4,
+    clientId: machineClientId(CELL, machine), username: machine, password, protocolVersion: 4,
     clean: true, reconnectPeriod: 0, connectTimeout: 5000, ...opts,
   })
 }
