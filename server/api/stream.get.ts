@@ -38,7 +38,12 @@ export default defineEventHandler(async (event) => {
   else for (const e of plan.entries) queue(frame(e))
   queue(`event: hello\ndata: ${JSON.stringify({ cursor: liveStreamCursor(), at: Date.now() })}\n\n`, true)
 
-  const heartbeat = setInterval(() => queue(`event: hb\ndata: ${Date.now()}\n\n`, true), HEARTBEAT_MS)
+  const heartbeat = setInterval(() => {
+    queue(`event: hb\ndata: ${Date.now()}\n\n`, true)
+    // A session signed out (or ended everywhere) since the stream opened stops getting events;
+    // the browser's reconnect then meets requireUser.
+    void sessionAccount(event).then(a => { if (!a || a.ended) res.end() }, () => {})
+  }, HEARTBEAT_MS)
   await new Promise<void>((resolve) => {
     const end = () => {
       clearInterval(heartbeat)

@@ -16,7 +16,18 @@ export const users = sqliteTable('users', {
   disabled: integer('disabled', { mode: 'boolean' }).notNull().default(false),
   createdAt: integer('created_at').notNull(),
   updatedAt: integer('updated_at').notNull(),
+  /** sessions sealed under an older generation are refused: bumped by "sign out everywhere", a password reset, a role change and disabling */
+  sessionGeneration: integer('session_generation').notNull().default(0),
 }, t => [uniqueIndex('users_email_unique').on(t.email)])
+
+/** Sessions signed out before their cookie expires: a saved copy of the cookie no longer works (server/utils/access.ts). */
+export const endedSessions = sqliteTable('ended_sessions', {
+  sid: text('sid').primaryKey(),
+  userId: integer('user_id').notNull(),
+  endedAt: integer('ended_at').notNull(),
+  /** when the cookie would have expired anyway; the row is pruned after that */
+  expiresAt: integer('expires_at').notNull(),
+}, t => [index('ended_sessions_expires').on(t.expiresAt)])
 
 // Who did what, when, from where. Reused by every later feature that changes state.
 export const auditLog = sqliteTable('audit_log', {

@@ -5,17 +5,26 @@ import type { H3Event } from 'h3'
 import { eq } from 'drizzle-orm'
 import type { Role, SessionUser } from '#shared/types/auth'
 
-export async function requireRole(event: H3Event, ...allowed: Role[]): Promise<SessionUser> {
+/** The signed-in account as stored now, and why its session no longer counts (null while it does). */
+export async function sessionAccount(event: H3Event) {
   const session = await getUserSession(event)
   const sessionUser = session.user as SessionUser | undefined
-  if (!sessionUser) throw createError({ statusCode: 401, message: 'Sign in first.' })
-  // Re-read the account so a disabled user or a changed role takes effect at once.
+  if (!sessionUser) return null
+  // Re-read the account so a disabled user or a changed role takes effect at once, and a session
+  // that was signed out (or sealed before a password reset, role change or "sign out everywhere")
+  // is refused even when a copy of its cookie is sent again.
   const [row] = await useDb().select().from(schema.users).where(eq(schema.users.id, sessionUser.id))
-  if (!row || row.disabled) {
+  return { row, ended: await sessionEndReason(session.secure as Partial<SessionSecret> | undefined, row) }
+}
+
+export async function requireRole(event: H3Event, ...allowed: Role[]): Promise<SessionUser> {
+  const account = await sessionAccount(event)
+  if (!account) throw createError({ statusCode: 401, message: 'Sign in first.' })
+  if (account.ended) {
     await clearUserSession(event)
-    throw createError({ statusCode: 401, message: 'This account is no longer active. Sign in again or ask an admin.' })
+    throw createError({ statusCode: 401, message: account.ended })
   }
-  const user = toSessionUser(row)
+  const user = toSessionUser(account.row!)
   if (allowed.length && !allowed.includes(user.role))
     throw createError({ statusCode: 403, message: `This needs the role ${allowed.join(' or ')}; you are signed in as ${user.role}.` })
   return user

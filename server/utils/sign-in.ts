@@ -1,5 +1,7 @@
-// Sign-in rules: password check and throttling of repeated failures per account and per address.
-import { and, eq, gt, count, min } from 'drizzle-orm'
+// Sign-in rules: password check, throttling of repeated failures per account and per address, and
+// the session a sign-in starts.
+import { randomUUID } from 'node:crypto'
+import { and, eq, gt, count, min, sql } from 'drizzle-orm'
 import type { H3Event } from 'h3'
 import type { SessionUser } from '#shared/types/auth'
 
@@ -50,6 +52,50 @@ export function toSessionUser(u: typeof schema.users.$inferSelect): SessionUser 
   return { id: u.id, email: u.email, name: u.name, role: u.role, unitSystem: u.unitSystem }
 }
 
-export async function startSession(event: H3Event, user: SessionUser) {
-  await replaceUserSession(event, { user, loggedInAt: Date.now() })
+/**
+ * Server-only part of a session (nuxt-auth-utils never sends `secure` to the browser): its own id,
+ * so signing out ends this session for good, and the account's session generation when it began.
+ */
+export interface SessionSecret { sid: string, generation: number }
+
+type UserRow = typeof schema.users.$inferSelect
+
+/** A new session for this account, with a fresh id (not h3's, which a sign-in on a used browser keeps). */
+export async function startSession(event: H3Event, row: UserRow) {
+  const secure: SessionSecret = { sid: randomUUID(), generation: row.sessionGeneration }
+  await replaceUserSession(event, { user: toSessionUser(row), loggedInAt: Date.now(), secure })
+}
+
+/** The same session with the account's current name, role and preferences. */
+export async function refreshSessionUser(event: H3Event, row: UserRow) {
+  await setUserSession(event, { user: toSessionUser(row) })
+}
+
+/** Ends every session of this account (sign out everywhere, password reset, role change, disabling). */
+export async function bumpSessionGeneration(userId: number): Promise<number> {
+  const [row] = await useDb().update(schema.users).set({ sessionGeneration: sql`${schema.users.sessionGeneration} + 1` })
+    .where(eq(schema.users.id, userId)).returning({ generation: schema.users.sessionGeneration })
+  return row?.generation ?? 0
+}
+
+/** How long a sealed session lives at most (runtimeConfig.session.maxAge, seconds). */
+const sessionMaxAgeMs = () => (Number(useRuntimeConfig().session?.maxAge) || 12 * 3600) * 1000
+
+/** Marks one session ended, so a saved copy of its cookie no longer works; prunes ended sessions past their expiry. */
+export async function endSession(sid: string, userId: number) {
+  const now = Date.now()
+  const db = useDb()
+  await db.delete(schema.endedSessions).where(sql`${schema.endedSessions.expiresAt} < ${now}`)
+  await db.insert(schema.endedSessions).values({ sid, userId, endedAt: now, expiresAt: now + sessionMaxAgeMs() }).onConflictDoNothing()
+}
+
+/** Why a signed-in session no longer counts (account gone or disabled, generation passed, signed out), or null while it does. */
+export async function sessionEndReason(secure: Partial<SessionSecret> | undefined, row: UserRow | undefined): Promise<string | null> {
+  if (!row || row.disabled) return 'This account is no longer active. Sign in again or ask an admin.'
+  if ((secure?.generation ?? 0) !== row.sessionGeneration) return 'This session has ended: you signed out everywhere, or your password or role was changed. Sign in again.'
+  if (secure?.sid) {
+    const [ended] = await useDb().select({ sid: schema.endedSessions.sid }).from(schema.endedSessions).where(eq(schema.endedSessions.sid, secure.sid))
+    if (ended) return 'This session has ended: it was signed out. Sign in again.'
+  }
+  return null
 }

@@ -25,7 +25,7 @@ export default defineEventHandler(async (event) => {
   }
   await clearFailures(email)
   const sessionUser = toSessionUser(user)
-  await startSession(event, sessionUser)
+  await startSession(event, user)
   await audit(event, sessionUser, 'auth.sign-in', `user:${user.id}`)
   return sessionUser
 })

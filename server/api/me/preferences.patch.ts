@@ -9,7 +9,7 @@ export default defineEventHandler(async (event) => {
   const [row] = await useDb().update(schema.users).set({ unitSystem, updatedAt: Date.now() }).where(eq(schema.users.id, user.id)).returning()
   if (!row) throw createError({ statusCode: 404, message: 'Your account no longer exists.' })
   const next = toSessionUser(row)
-  await startSession(event, next)
+  await refreshSessionUser(event, row)
   await audit(event, user, 'user.preferences', `user:${user.id}`, { unitSystem })
   return next
 })

@@ -27,7 +27,7 @@ export default defineEventHandler(async (event) => {
   }
   await clearFailures(key)
   const sessionUser = toSessionUser(user)
-  await startSession(event, sessionUser)
+  await startSession(event, user)
   await audit(event, sessionUser, 'station.sign-in', `user:${user.id}`, { station: station.machineId })
   return sessionUser
 })
