@@ -27,7 +27,7 @@ export default defineEventHandler((event) => {
   if (isCrossSiteWrite(event.method, {
     secFetchSite: getRequestHeader(event, 'sec-fetch-site'),
     origin: getRequestHeader(event, 'origin'),
-    host: getRequestHeader(event, 'x-forwarded-host') ?? getRequestHeader(event, 'host'),
+    host: requestHost(event),
   })) {
     throw createError({ statusCode: 403, message: 'Refused: this change was sent from another site. Open Owlshift itself and try again.' })
   }

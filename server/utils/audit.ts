@@ -2,8 +2,9 @@
 import type { H3Event } from 'h3'
 import type { SessionUser } from '#shared/types/auth'
 
+/** The client's address (forwarded headers only from trusted proxies: client-address.ts). */
 export function requestOrigin(event: H3Event): string {
-  return getRequestIP(event, { xForwardedFor: true }) ?? 'unknown'
+  return requestAddress(event)
 }
 
 export async function audit(event: H3Event | undefined, actor: Pick<SessionUser, 'id' | 'email'> | undefined, action: string, target?: string, detail?: Record<string, unknown>) {

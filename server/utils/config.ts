@@ -1,6 +1,7 @@
 // Server configuration from the environment, validated once. Every variable is listed in the README.
 import { z } from 'zod'
 import { resolve } from 'node:path'
+import { parseProxyEntry } from './client-address'
 
 const bool = z.enum(['true', 'false', '1', '0', 'yes', 'no']).transform(v => ['true', '1', 'yes'].includes(v))
 
@@ -23,6 +24,10 @@ const envSchema = z.object({
   OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
   OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
   OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
+  OWLSHIFT_TRUSTED_PROXIES: z.string().default('').superRefine((v, ctx) => {
+    const bad = v.split(',').map(s => s.trim()).filter(s => s && !parseProxyEntry(s))
+    if (bad.length) ctx.addIssue({ code: 'custom', message: `not an IP address or address/prefix: ${bad.join(', ')} (e.g. 127.0.0.1,10.0.0.0/8,::1)` })
+  }),
 })
 
 export interface OwlshiftConfig {
@@ -31,6 +36,8 @@ export interface OwlshiftConfig {
   databaseAuthToken?: string
   seedDemo: boolean
   signIn: { maxPerAccount: number, maxPerAddress: number, windowMs: number }
+  /** reverse proxies whose X-Forwarded-For / X-Forwarded-Host are believed; empty: none (the default) */
+  trustedProxies: string[]
   mqtt: {
     /** off: no broker and no ingest (only for tests of the web side) */
     enabled: boolean
@@ -79,6 +86,7 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       maxPerAddress: e.OWLSHIFT_SIGNIN_MAX_PER_ADDRESS,
       windowMs: e.OWLSHIFT_SIGNIN_WINDOW_MIN * 60_000,
     },
+    trustedProxies: e.OWLSHIFT_TRUSTED_PROXIES.split(',').map(s => s.trim()).filter(Boolean),
     mqtt: {
       enabled: e.OWLSHIFT_BROKER === 'on',
       url: e.MQTT_URL,

@@ -48,6 +48,18 @@ export async function clearFailures(email: string) {
   await useDb().delete(schema.signInFailures).where(eq(schema.signInFailures.email, email))
 }
 
+let standIn: Promise<string> | undefined
+/**
+ * Checks a password against the account's hash, or against a stand-in hash when there is no
+ * account (or it may not sign in), so an unknown e-mail takes as long as a known one and the
+ * answer's timing does not tell which addresses have accounts.
+ */
+export async function passwordMatches(hash: string | null | undefined, password: string): Promise<boolean> {
+  standIn ??= hashPassword(`no account ${Math.random()}`)
+  const ok = await verifyPassword(hash ?? await standIn, password)
+  return !!hash && ok
+}
+
 export function toSessionUser(u: typeof schema.users.$inferSelect): SessionUser {
   return { id: u.id, email: u.email, name: u.name, role: u.role, unitSystem: u.unitSystem }
 }

@@ -26,6 +26,10 @@ describe('cross-site write check', () => {
     expect(isCrossSiteWrite('PATCH', { origin: 'http://evil.example', host: 'owl.local:3000' })).toBe(true)
     expect(isCrossSiteWrite('PATCH', { origin: 'http://owl.local:3000', host: 'owl.local:3000' })).toBe(false)
     expect(isCrossSiteWrite('POST', {})).toBe(false)
+    // Either signal alone refuses: a foreign Origin whatever Sec-Fetch-Site says (README, Security).
+    expect(isCrossSiteWrite('POST', { secFetchSite: 'same-origin', origin: 'http://evil.example', host: 'owl.local:3000' })).toBe(true)
+    expect(isCrossSiteWrite('POST', { secFetchSite: 'none', origin: 'null', host: 'owl.local:3000' })).toBe(true)
+    expect(isCrossSiteWrite('POST', { secFetchSite: 'same-origin', origin: 'http://owl.local:3000', host: 'owl.local:3000' })).toBe(false)
   })
 })
 

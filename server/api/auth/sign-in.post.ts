@@ -17,11 +17,13 @@ export default defineEventHandler(async (event) => {
     throw throttleError(verdict)
   }
   const [user] = await useDb().select().from(schema.users).where(eq(schema.users.email, email))
-  const ok = user && !user.disabled && await verifyPassword(user.passwordHash, password)
-  if (!ok) {
+  // The hash is checked whether or not the account exists or may sign in: equal timing (sign-in.ts).
+  const passwordOk = await passwordMatches(user?.passwordHash, password)
+  if (!passwordOk || !user || user.disabled) {
     await recordFailure(email, address)
     await audit(event, undefined, 'auth.failed', `email:${email}`, { disabled: user?.disabled ?? undefined })
-    throw createError({ statusCode: 401, message: user?.disabled ? 'This account is disabled. Ask an admin.' : 'E-mail or password is wrong.' })
+    // "Disabled" only to someone who knows the password: otherwise it would tell which addresses have accounts.
+    throw createError({ statusCode: 401, message: passwordOk && user?.disabled ? 'This account is disabled. Ask an admin.' : 'E-mail or password is wrong.' })
   }
   await clearFailures(email)
   const sessionUser = toSessionUser(user)

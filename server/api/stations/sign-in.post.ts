@@ -19,7 +19,7 @@ export default defineEventHandler(async (event) => {
   const db = useDb()
   const [user] = await db.select().from(schema.users).where(eq(schema.users.id, userId))
   const [pinRow] = await db.select().from(schema.stationPins).where(eq(schema.stationPins.userId, userId))
-  const ok = user && !user.disabled && user.role !== 'viewer' && pinRow && await verifyPassword(pinRow.pinHash, pin)
+  const ok = await passwordMatches(pinRow?.pinHash, pin) && user && !user.disabled && user.role !== 'viewer'
   if (!ok) {
     await recordFailure(key, address)
     await audit(event, undefined, 'station.pin-failed', `user:${userId}`, { station: station.machineId })

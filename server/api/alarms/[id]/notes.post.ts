@@ -12,8 +12,7 @@ const mb = (n: number) => `${(n / 1024 / 1024).toFixed(n < 1024 * 1024 ? 2 : 0)}
 export default defineEventHandler(async (event) => {
   const user = await requireRole(event, 'admin', 'engineer', 'lead', 'operator')
   const { id } = readValidParams(event, params)
-  const declared = Number(getRequestHeader(event, 'content-length') ?? 0)
-  if (declared > LIVE_PHOTO_MAX_BYTES + 64 * 1024) throw createError({ statusCode: 413, message: `The photo is too large (${mb(declared)}); the limit is ${mb(LIVE_PHOTO_MAX_BYTES)}.` })
+  // The whole request is held to the photo limit before it is read: server/utils/body-limit.ts.
   const [alarm] = await useDb().select({ id: schema.alarms.id }).from(schema.alarms).where(eq(schema.alarms.id, id))
   if (!alarm) throw createError({ statusCode: 404, message: `There is no alarm ${id}.` })
   const parts = (getRequestHeader(event, 'content-type') ?? '').startsWith('multipart/form-data') ? await readMultipartFormData(event) : undefined

@@ -1,0 +1,2 @@
+// Request bodies over the route's limit are refused (413) before they are read: server/utils/body-limit.ts.
+export default defineEventHandler(event => enforceBodyLimit(event))
