@@ -76,7 +76,7 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
       const machineId = (client as unknown as MachineClient | null)?.owlMachine
       if (!client) return done(null) // the server's own publish
       if (!machineId) return done(new Error('not authenticated as a machine'))
-      ingest.accept({ topic: packet.topic, payload: Buffer.isBuffer(packet.payload) ? packet.payload : Buffer.from(packet.payload), clientId: client.id, machineIdentity: machineId })
+      ingest.accept({ topic: packet.topic, payload: Buffer.isBuffer(packet.payload) ? packet.payload : Buffer.from(packet.payload), clientId: client.id, machineIdentity: machineId, qos: packet.qos, retain: packet.retain })
         .then(() => done(null), err => done(err as Error))
     },
     authorizeSubscribe: (client, sub, done) => {
@@ -121,7 +121,11 @@ async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<
   // Hold the PUBACK until the message is committed.
   client.handleMessage = (packet, callback) => {
     const topic = packet.cmd === 'publish' ? packet.topic : ''
-    ingest.accept({ topic, payload: Buffer.from((packet as { payload: Buffer | string }).payload), clientId: null, machineIdentity: null })
+    // The delivered QoS is the lower of the machine's and our subscription's (1), so a QoS 0 publish
+    // shows; the retain flag shows only on a retained message handed over when we subscribe (MQTT
+    // 3.1.1 §3.3.1.3), a live one arrives without it.
+    const { qos, retain } = packet as { qos?: number, retain?: boolean }
+    ingest.accept({ topic, payload: Buffer.from((packet as { payload: Buffer | string }).payload), clientId: null, machineIdentity: null, qos, retain })
       .then(() => callback(), (err) => {
         callback(err as Error)
         // Not acknowledged, and an MQTT 3.1.1 broker sends an unacknowledged message again only on

@@ -4,7 +4,7 @@
 import { and, eq, inArray } from 'drizzle-orm'
 import type { InStatement } from '@libsql/client'
 import {
-  decodeMachineMessage, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
+  decodeMachineMessage, deliveryBreach, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
 import { alarmEngineConditionHolds, alarmKindFor } from '#shared/utils/alarm-catalogue'
@@ -18,6 +18,9 @@ export interface Arrival {
   clientId: string | null
   /** the machine the broker authenticated this client as; null for a trusted path (external broker) */
   machineIdentity: string | null
+  /** how it was published, where the broker tells (contract: QoS 1, retained only presence/state) */
+  qos?: number
+  retain?: boolean
 }
 
 export interface IngestEffects {
@@ -197,7 +200,9 @@ export class IngestPipeline {
       }
       const d = decodeMachineMessage(a.topic, a.payload)
       if (!d.ok) { fail(d.reason); continue }
-      const { machine, cell, message } = d.value
+      const { machine, cell, kind, message } = d.value
+      const breach = deliveryBreach(kind, a.qos, a.retain)
+      if (breach) { fail(breach); continue }
       if (a.machineIdentity && a.machineIdentity !== machine) { fail(`machine "${a.machineIdentity}" may not publish for machine "${machine}"`); continue }
       const ctx = machineContext(machine)
       if (!ctx) { fail(`unknown machine "${machine}": add it under Machines first`, null); continue }
@@ -333,20 +338,39 @@ export class IngestPipeline {
       messageRows.push({ machineId: ctx.id, seq: message.seq, kind: message.kind, type: message.kind === 'event' ? message.type : message.kind === 'ack' ? `${message.command}:${message.result}` : message.kind === 'state' ? message.execution : null, time, receivedAt: now, payload: message })
       effects.live.push({ type: 'machine-event', machineId: ctx.id, seq: message.seq, kind: message.kind, eventType: message.kind === 'event' ? message.type : message.kind === 'state' ? message.execution : message.kind === 'ack' ? `${message.command}:${message.result}` : null, time })
 
+      /** A new job on the machine: the engine takes its tolerances (a refused change must wake someone). */
+      const changeJob = (job: JobInfo, seq: number) => {
+        st.jobPartNumber = job.partNumber
+        if (!w.engine) return startEngine(job, st.appliedOffsetUm ?? 0)
+        const d = step({ type: 'job-change', settings: compensationSettingsFor(job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined, ctx.tuning), time }, seq)
+        // A refused job change leaves the engine on the previous job's tolerances while the
+        // machine grinds the new one: that must wake someone, not vanish as an ignored input.
+        if (d?.kind === 'ignored') effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: new job ${job.partNumber} — compensation still uses the previous job's settings (${d.reason})`, at: now, machineAt: time })
+        else {
+          record(d, seq)
+          effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: false, message: '', at: now, machineAt: time })
+        }
+      }
+
       if (message.kind === 'birth') {
         const wasRunning = st.online
+        // A birth naming another job than the one running means the job changed while the machine
+        // was away (docs/mqtt.md, "birth"): taken as a job change, after the restart below.
+        const runningJob = st.jobPartNumber ?? ctx.job?.partNumber ?? null
+        const jobChanged = !!message.job && !!w.engine && runningJob !== null && message.job.partNumber !== runningJob
         st.online = true
         st.session = message.session
         st.execution = message.execution
         st.cycleTimeS = message.cycleTimeS
         st.appliedOffsetUm = message.offsetUm
-        st.jobPartNumber = message.job?.partNumber ?? st.jobPartNumber
+        if (!jobChanged) st.jobPartNumber = message.job?.partNumber ?? st.jobPartNumber
         presenceRows.push({ machineId: ctx.id, at: now, online: true, session: message.session, reason: wasRunning ? 'reconnected' : 'birth', machineTime: time })
         effects.conditions.push({ machineId: ctx.id, condition: 'link:offline', active: false, message: '', at: now, machineAt: time })
         if (!w.engine) startEngine(message.job, message.offsetUm, message.pipelineParts)
         else {
           record(step({ type: 'restart', time }, message.seq), message.seq)
           if (Math.abs(w.engine.offsetUm - message.offsetUm) > 1e-9) record(step({ type: 'offset-applied', offsetUm: message.offsetUm, time }, message.seq), message.seq)
+          if (jobChanged) changeJob(message.job!, message.seq)
         }
       }
       else if (message.kind === 'state') {
@@ -376,20 +400,7 @@ export class IngestPipeline {
             break
           case 'wheel_change': record(step(wheelEventInput('wheel-change', message, time), message.seq), message.seq); break
           case 'mastering': record(step({ type: 'mastered', time }, message.seq), message.seq); break
-          case 'job_change':
-            st.jobPartNumber = message.job.partNumber
-            if (w.engine) {
-              const d = step({ type: 'job-change', settings: compensationSettingsFor(message.job, ctx.job, w.engine.settings.pipelineParts, st.cycleTimeS ?? undefined, ctx.tuning), time }, message.seq)
-              // A refused job change leaves the engine on the previous job's tolerances while the
-              // machine grinds the new one: that must wake someone, not vanish as an ignored input.
-              if (d?.kind === 'ignored') effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: true, message: `${ctx.name}: new job ${message.job.partNumber} — compensation still uses the previous job's settings (${d.reason})`, at: now, machineAt: time })
-              else {
-                record(d, message.seq)
-                effects.conditions.push({ machineId: ctx.id, condition: 'engine:settings', active: false, message: '', at: now, machineAt: time })
-              }
-            }
-            else startEngine(message.job, st.appliedOffsetUm ?? 0)
-            break
+          case 'job_change': changeJob(message.job, message.seq); break
           case 'fault_raised':
             if (!st.activeFaults.includes(message.fault)) st.activeFaults.push(message.fault)
             effects.conditions.push({ machineId: ctx.id, condition: `fault:${message.fault}`, active: true, message: `${ctx.name}: ${message.fault.replaceAll('_', ' ')}${message.message ? ` — ${message.message}` : ''}`, at: now, machineAt: time })

@@ -47,6 +47,18 @@ export const mqttTopics = {
 }
 
 /**
+ * Why a message's delivery breaks the contract (docs/mqtt.md, "Connection"), or null. QoS 0 is never
+ * acknowledged, so a message lost on the way is never sent again and nobody knows; a retained
+ * reading, event or ack would be handed again to every new subscriber as if it were new. Unknown
+ * (undefined) QoS or retain flags pass: not every path can tell.
+ */
+export function deliveryBreach(kind: MachineTopicKind, qos: number | undefined, retain: boolean | undefined): string | null {
+  if (qos === 0) return `published with QoS 0; the contract asks QoS 1 for every message, so that a message lost on the way is sent again`
+  if (retain && !mqttTopics.isRetained(kind)) return `a ${kind} published as retained; only presence and state may be retained (a retained ${kind} is handed again to every new subscriber)`
+  return null
+}
+
+/**
  * The one MQTT client id a machine may connect with: its session (and the commands queued in it)
  * belongs to its account, so no other account can take it over (docs/mqtt.md, "Connection").
  */
