@@ -197,6 +197,8 @@ export const deadLetters = sqliteTable('dead_letters', {
   reason: text('reason').notNull(),
   payload: text('payload').notNull(), // UTF-8 text, or base64 when not text; cut at 16 KiB
   payloadBytes: integer('payload_bytes').notNull(),
+  /** the sequence number the payload claims, when it has a usable one: counted as arrived, not missing */
+  seq: integer('seq'),
 }, t => [index('dead_machine_at').on(t.machineId, t.receivedAt)])
 
 /** Every decision the compensation engine made, with its reason and inputs. */

@@ -4,7 +4,7 @@
 import { and, eq, inArray } from 'drizzle-orm'
 import type { InStatement } from '@libsql/client'
 import {
-  decodeMachineMessage, deliveryBreach, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
+  claimedSeq, decodeMachineMessage, deliveryBreach, mqttSeqResetJump, parseMqttTopic, type MachineMessage, type CommandMessage, type JobInfo,
 } from '#shared/utils/contract'
 import { minutesUntilSizeAtRisk } from '#shared/utils/size-risk'
 import { alarmEngineConditionHolds, alarmKindFor } from '#shared/utils/alarm-catalogue'
@@ -70,6 +70,12 @@ const msOf = (iso: string) => Date.parse(iso)
 function knownMachineOfTopic(topic: string): string | null {
   const t = parseMqttTopic(topic)
   return t.ok && machineContext(t.machine) ? t.machine : null
+}
+
+/** The machine a topic names (known or not); a refused message's number belongs to its numbering. */
+function topicMachine(topic: string): string | null {
+  const t = parseMqttTopic(topic)
+  return t.ok ? t.machine : null
 }
 
 function commandId(machineId: string, seq: number, type: string) { return `${machineId}.${seq}.${type}` }
@@ -196,7 +202,7 @@ export class IngestPipeline {
       // Through an external broker there is no broker identity: charge bad data to the machine the
       // topic names, if it is one of ours (never a key made up by a client).
       const fail = (reason: string, machineId: string | null = a.machineIdentity ?? knownMachineOfTopic(a.topic)) => {
-        dead.push({ receivedAt: now, clientId: a.clientId, machineId, topic: a.topic.slice(0, 500), reason, payload: deadLetterPayload(a.payload), payloadBytes: a.payload.length })
+        dead.push({ receivedAt: now, clientId: a.clientId, machineId, topic: a.topic.slice(0, 500), reason, payload: deadLetterPayload(a.payload), payloadBytes: a.payload.length, seq: machineId && machineId === topicMachine(a.topic) ? claimedSeq(a.payload) : null })
       }
       const d = decodeMachineMessage(a.topic, a.payload)
       if (!d.ok) { fail(d.reason); continue }
@@ -250,7 +256,11 @@ export class IngestPipeline {
       const key = `${ctx.id}/${message.seq}`
       if (seen.has(key)) { duplicates++; continue }
       seen.add(key)
-      if (st.lastSeq > 0 && message.seq > st.lastSeq + 1) {
+      if (st.lastSeq > 0 && message.seq > st.lastSeq + mqttSeqResetJump) {
+        // Not that many lost messages: the machine restarted its numbering (docs/mqtt.md, "seq").
+        effects.conditions.push({ machineId: ctx.id, condition: 'link:sequence-reset', active: true, message: `${ctx.name}: message numbers jumped from ${st.lastSeq.toLocaleString('en-US')} to ${message.seq.toLocaleString('en-US')}; taken as a restart of its numbering, not as missing messages`, at: now, machineAt: msOf(message.time) })
+      }
+      else if (st.lastSeq > 0 && message.seq > st.lastSeq + 1) {
         gapRows.push({ machineId: ctx.id, fromSeq: st.lastSeq + 1, toSeq: message.seq - 1, detectedAt: now })
         effects.conditions.push({ machineId: ctx.id, condition: 'link:sequence-gap', active: true, message: `${ctx.name}: messages ${st.lastSeq + 1}–${message.seq - 1} never arrived`, at: now, machineAt: msOf(message.time) })
       }

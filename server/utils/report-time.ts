@@ -95,6 +95,17 @@ export async function reportContactEvents(db: ReportDb, ids: readonly string[], 
 }
 
 /**
+ * How many numbers of a gap `g` (a sequence_gaps row aliased g) arrived after all: stored as
+ * readings or machine messages, or refused with their number (dead letters). Counted when a report
+ * is made, so numbers that came late fill their gap.
+ */
+export const gapArrivedSql = sql.raw(`((select count(*) from readings where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
+        + (select count(*) from machine_messages where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
+        + (select count(distinct seq) from dead_letters where machine_id = g.machine_id and seq between g.from_seq and g.to_seq
+           and seq not in (select seq from readings where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
+           and seq not in (select seq from machine_messages where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)))`)
+
+/**
  * Stretches of machine time whose messages never arrived, per machine: from the last stored message
  * before a recorded gap to the first stored after it, for gaps some of whose numbers are still
  * missing now (numbers that came late fill their gap). Gaps detected in the week before the window
@@ -105,9 +116,7 @@ export async function reportGapEvents(db: ReportDb, ids: readonly string[], from
   if (!ids.length) return out
   const idList = sql.join(ids.map((id) => sql`${id}`), sql`, `)
   const gaps = await db.all<{ m: string; a: number; b: number; arrived: number; before: number | null; after: number | null }>(sql`
-    select g.machine_id as m, g.from_seq as a, g.to_seq as b,
-      (select count(*) from readings where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
-        + (select count(*) from machine_messages where machine_id = g.machine_id and seq between g.from_seq and g.to_seq) as arrived,
+    select g.machine_id as m, g.from_seq as a, g.to_seq as b, ${gapArrivedSql} as arrived,
       max(coalesce((select time from readings where machine_id = g.machine_id and seq = (select max(seq) from readings where machine_id = g.machine_id and seq < g.from_seq)), -1),
           coalesce((select time from machine_messages where machine_id = g.machine_id and seq = (select max(seq) from machine_messages where machine_id = g.machine_id and seq < g.from_seq)), -1)) as before,
       min(coalesce((select time from readings where machine_id = g.machine_id and seq = (select min(seq) from readings where machine_id = g.machine_id and seq > g.to_seq)), 9e15),

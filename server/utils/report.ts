@@ -14,7 +14,7 @@ import {
   kpiCombine, kpiIndices, kpiMergeDowntime, kpiMttr, kpiTimeModel,
   type KpiDowntime, type KpiIndices, type KpiInputs, type KpiMachineEvent, type KpiRepair, type KpiTimeModel,
 } from '../../shared/utils/kpi'
-import { reportContactEvents, reportGapEvents, type ReportKnownPresence } from './report-time'
+import { gapArrivedSql, reportContactEvents, reportGapEvents, type ReportKnownPresence } from './report-time'
 import {
   spcCapability, spcMean, spcOverallSigma, spcRunRules, spcWithinSigmaMovingRange, SPC_RUN_RULE_TEXT, SPC_WESTERN_ELECTRIC_RULES,
   type SpcRunRule,
@@ -196,7 +196,8 @@ export interface ReportCompleteness {
   /** readings of the range folded into hourly summaries by retention (no longer stored one by one) */
   foldedReadings: number
   missingSequenceNumbers: number
-  gaps: { machineId: string; fromSeq: number; toSeq: number; detectedAt: number }[]
+  /** gaps some of whose numbers are still missing; `missing`: how many */
+  gaps: { machineId: string; fromSeq: number; toSeq: number; detectedAt: number; missing: number }[]
   disconnections: { machineId: string; at: number; reason: string | null; backAt: number | null }[]
   offlineMs: number
   deadLetters: number
@@ -1001,7 +1002,12 @@ const presencePlaced = sql<number>`coalesce(${schema.presenceLog.machineTime}, $
 async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number, foldedReadings: number): Promise<ReportCompleteness> {
   const idList = ids.length ? ids : ['\u0000']
   const [gaps, presence, dead] = await Promise.all([
-    db.select().from(schema.sequenceGaps).where(and(inArray(schema.sequenceGaps.machineId, idList), gte(schema.sequenceGaps.detectedAt, from), lt(schema.sequenceGaps.detectedAt, to))).orderBy(asc(schema.sequenceGaps.detectedAt)),
+    // what is still missing now, not what was missing when the gap was seen (late numbers fill it)
+    db.all<{ machineId: string; fromSeq: number; toSeq: number; detectedAt: number; missing: number }>(sql`
+      select * from (select g.machine_id as machineId, g.from_seq as fromSeq, g.to_seq as toSeq, g.detected_at as detectedAt,
+        g.to_seq - g.from_seq + 1 - ${gapArrivedSql} as missing
+      from sequence_gaps g where g.machine_id in (${sql.join(idList.map((id) => sql`${id}`), sql`, `)}) and g.detected_at >= ${from} and g.detected_at < ${to})
+      where missing > 0 order by detectedAt`),
     // presence by the machine's clock (a shutdown's own time; a will's arrival read on the machine clock)
     db.select({ machineId: schema.presenceLog.machineId, at: presencePlaced, online: schema.presenceLog.online, reason: schema.presenceLog.reason }).from(schema.presenceLog)
       .where(and(inArray(schema.presenceLog.machineId, idList), gte(presencePlaced, from), lt(presencePlaced, to))).orderBy(asc(presencePlaced), asc(schema.presenceLog.id)),
@@ -1025,8 +1031,8 @@ async function completenessOf(db: ReportDb, ids: string[], from: number, to: num
   return {
     readings: readingCount,
     foldedReadings,
-    missingSequenceNumbers: gaps.reduce((a, g) => a + g.toSeq - g.fromSeq + 1, 0),
-    gaps: gaps.map((g) => ({ machineId: g.machineId, fromSeq: g.fromSeq, toSeq: g.toSeq, detectedAt: g.detectedAt })),
+    missingSequenceNumbers: gaps.reduce((a, g) => a + Number(g.missing), 0),
+    gaps: gaps.map((g) => ({ machineId: g.machineId, fromSeq: Number(g.fromSeq), toSeq: Number(g.toSeq), detectedAt: Number(g.detectedAt), missing: Number(g.missing) })),
     disconnections,
     offlineMs: disconnections.reduce((a, d) => a + ((d.backAt ?? to) - d.at), 0),
     deadLetters: dead.reduce((a, d) => a + Number(d.n), 0),

@@ -62,6 +62,7 @@ export const alarmCatalogue: Record<string, AlarmKind> = {
   'link:offline': { priority: 3, latching: false, title: 'Machine offline', steps: ['Check the machine\'s network and its adapter.'], ...stopping(120, 30), suppression: null },
   'link:silent': { priority: 3, latching: false, title: 'No cycles for a while', steps: ['Check whether the machine is waiting for blanks or stuck.'], ...stopping(0, 60), suppression: 'consequence', hysteresis: 'raised after no message for 10 cycles (at least 2 min) while running, cleared by the next message' },
   'link:sequence-gap': { priority: 4, latching: false, title: 'Messages missing', steps: ['Check the adapter\'s store-and-forward; the gap is listed under data completeness.'], ...urgent(0, 0), mayWait: true, momentary: true },
+  'link:sequence-reset': { priority: 3, latching: false, title: 'Message numbering restarted', steps: ['Check that the machine\'s adapter keeps its message number on disk and never starts it again.', 'Messages sent around the jump may be missing; compare the machine\'s own log.'], ...urgent(0, 0), mayWait: true, momentary: true },
   'link:bad-data': { priority: 4, latching: false, title: 'Repeated bad data', steps: ['See the dead letters for the reasons; fix the adapter.'], ...urgent(0, 0), mayWait: true, momentary: true },
   'supply:starving': { priority: 3, latching: false, title: 'Cell about to run out of blanks', steps: ['Stage the next pallet.'], ...urgent(60, 60) },
 }

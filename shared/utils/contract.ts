@@ -13,6 +13,16 @@ import { z } from 'zod'
 export const mqttNamespace = 'owlshift/v1'
 /** Largest payload a machine may send; larger ones are refused by decodeMachineMessage. */
 export const mqttMaxPayloadBytes = 8192
+/**
+ * Largest sequence number: ten messages a second for 3,000 years. A bound, so that one wild number
+ * cannot turn into a quadrillion "missing" messages (docs/mqtt.md, "seq").
+ */
+export const mqttSeqMax = 1_000_000_000_000
+/**
+ * A jump forward by more than this is a machine that restarted its numbering (a reset adapter, a
+ * lost state file), not that many lost messages: about a day of a busy machine at 12 messages a second.
+ */
+export const mqttSeqResetJump = 1_000_000
 /** Readings beyond ±this many µm are not a plausible diameter deviation (gauge over range). */
 export const gaugeRangeUm = 1000
 
@@ -98,7 +108,7 @@ function parseTopicText(raw: string): ParsedTopic {
 
 // ── common fields ────────────────────────────────────────────────────────────
 const isoTime = z.iso.datetime({ message: 'must be an ISO-8601 UTC time ending in Z, e.g. 2026-03-02T22:00:00.000Z' })
-const seq = z.number().int('must be a whole number').min(1, 'must be ≥ 1').max(Number.MAX_SAFE_INTEGER)
+const seq = z.number().int('must be a whole number').min(1, 'must be ≥ 1').max(mqttSeqMax, `must be ≤ ${mqttSeqMax.toLocaleString('en-US')}`)
 const micrometres = (limit: number) => z.number().min(-limit, `must be ≥ −${limit} µm`).max(limit, `must be ≤ ${limit} µm`)
 const partSerial = z.number().int('must be a whole number').min(1, 'must be ≥ 1')
 const shortText = z.string().max(200, 'must be at most 200 characters')
@@ -292,6 +302,19 @@ export function decodeMachineMessage(rawTopic: string, payload: string | Uint8Ar
   const parsed = schemaByTopicKind[t.kind].safeParse(json.value)
   if (!parsed.success) return { ok: false, reason: `invalid ${t.kind} message: ${describeIssues(parsed.error)}` }
   return { ok: true, value: { cell: t.cell, machine: t.machine, kind: t.kind, message: parsed.data as MachineMessage } }
+}
+
+/**
+ * The sequence number a refused payload claims, when it has a usable one: a dead letter keeps it,
+ * so its number counts as arrived (refused), not as missing.
+ */
+export function claimedSeq(payload: Uint8Array): number | null {
+  if (payload.byteLength > mqttMaxPayloadBytes) return null
+  try {
+    const v = (JSON.parse(utf8.decode(payload)) as { seq?: unknown } | null)?.seq
+    return typeof v === 'number' && Number.isInteger(v) && v >= 1 && v <= mqttSeqMax ? v : null
+  }
+  catch { return null }
 }
 
 /** Decodes a command as the machine receives it. */

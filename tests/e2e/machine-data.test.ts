@@ -1,11 +1,12 @@
 // What the server makes of data that machines send outside the contract (docs/mqtt.md), checked
 // against the built server and its embedded broker with Debian's mosquitto_pub (mosquitto-clients),
 // a client nobody in the project wrote: how a message is published (QoS, retain), what a birth
-// says about the job.
+// says about the job, numbers that come late, are refused or jump.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { spawnSync } from 'node:child_process'
 import type { Client } from '@libsql/client'
-import { setupOwlshift, demoCredentials, openTestDb } from './harness'
+import { url } from '@nuxt/test-utils/e2e'
+import { setupOwlshift, demoCredentials, openTestDb, sessionCookie } from './harness'
 import { birth, reading, payloadOf, topicFor, machineClient, publishAcked, CELL } from './mqtt-helpers'
 import { machineClientId, type MachineMessage } from '../../shared/utils/contract'
 
@@ -58,5 +59,42 @@ describe('machine data outside the contract', async () => {
     expect(await spec()).toMatchObject({ part: 'LTP-1250-Q', upper: 9, lower: -9 })
     expect(await count(`select count(*) from decisions where machine_id = 'cg-02' and seq = 7 and inputs like '%job-change%'`)).toBeGreaterThanOrEqual(1)
     await again.endAsync()
+  })
+
+  it('counts gaps from what is stored when the report is made: late numbers, refused numbers and a jump are not missing', async () => {
+    const c = await machineClient(owl.mqttUrl, 'cg-03', creds['cg-03']!.password)
+    const send = (m: MachineMessage) => publishAcked(c, topicFor('cg-03', m), payloadOf(m))
+    const from = new Date(Date.now() - 60_000).toISOString()
+    await send(birth(1))
+    for (let seq = 2; seq <= 5; seq++) await send(reading(seq, 0.1))
+    // 16 before 6…15 (a backlog sent out of order): a gap when seen, filled when they come
+    await send(reading(16, 0.1))
+    expect((await db.execute(`select from_seq, to_seq from sequence_gaps where machine_id = 'cg-03'`)).rows).toEqual([expect.objectContaining({ from_seq: 6, to_seq: 15 })])
+    for (let seq = 6; seq <= 15; seq++) await send(reading(seq, 0.1))
+    // 17 is refused (a diameter beyond the gauge's range): one dead letter, not also a missing number
+    await publishAcked(c, topicFor('cg-03', reading(17, 0)), JSON.stringify({ ...reading(17, 0), diameterUm: 5000 }))
+    expect((await db.execute(`select seq from dead_letters where machine_id = 'cg-03' order by id desc limit 1`)).rows[0]).toMatchObject({ seq: 17 })
+    await send(reading(18, 0.1))
+    // a number past the contract's bound is refused, and counts nothing
+    await publishAcked(c, topicFor('cg-03', reading(18, 0)), JSON.stringify({ ...reading(19, 0), seq: 1e15 }))
+    expect(await lastDeadLetter('cg-03')).toMatch(/seq: must be ≤ 1,000,000,000,000/)
+    // a jump by millions is a restart of the machine's numbering: an alarm, no gap
+    await send(reading(5_000_000, 0.1))
+    await send(reading(5_000_001, 0.1))
+    expect(await count(`select count(*) from sequence_gaps where machine_id = 'cg-03'`)).toBe(2) // 6–15 and 17
+    await expect.poll(() => count(`select count(*) from alarms where machine_id = 'cg-03' and condition = 'link:sequence-reset'`)).toBe(1)
+    const message = String((await db.execute(`select message from alarms where machine_id = 'cg-03' and condition = 'link:sequence-reset'`)).rows[0]!.message)
+    expect(message).toContain('jumped from 18 to 5,000,000')
+    // 19…4,999,999 never came and are not counted: the numbering restarted
+    const cookie = await sessionCookie('bram@larkspur.example')
+    const to = new Date(Date.now() + 60_000).toISOString()
+    const report = await (await fetch(url(`/api/reports/range?cell=${CELL}&machine=cg-03&from=${from}&to=${to}`), { headers: { cookie } })).json() as { completeness: { missingSequenceNumbers: number, gaps: unknown[], deadLetters: number } }
+    expect(report.completeness).toMatchObject({ missingSequenceNumbers: 0, gaps: [], deadLetters: 2 })
+    // a number that never comes stays missing
+    await send(reading(5_000_004, 0.1))
+    const again = await (await fetch(url(`/api/reports/range?cell=${CELL}&machine=cg-03&from=${from}&to=${to}`), { headers: { cookie } })).json() as { completeness: { missingSequenceNumbers: number, gaps: { fromSeq: number, toSeq: number, missing: number }[] } }
+    expect(again.completeness.missingSequenceNumbers).toBe(2)
+    expect(again.completeness.gaps).toEqual([expect.objectContaining({ fromSeq: 5_000_002, toSeq: 5_000_003, missing: 2 })])
+    await c.endAsync()
   })
 })

@@ -1,0 +1,1 @@
+ALTER TABLE `dead_letters` ADD `seq` integer;
