@@ -391,8 +391,10 @@ export const stationLog = sqliteTable('station_log', {
   at: integer('at').notNull(), // server time
   machineTime: integer('machine_time'), // the machine's clock at that moment (its last reading), for charts
   userId: integer('user_id').notNull(),
-  kind: text('kind').notNull(), // dress | wheel-change | mastering | note
+  kind: text('kind').notNull(), // dress | wheel-change | mastering | note | hand-measurement
   note: text('note'),
+  /** dress: the amount dressed off (µm, as the operator gives it); hand-measurement: the size measured (µm from nominal) */
+  valueUm: real('value_um'),
 }, t => [index('station_log_machine_at').on(t.machineId, t.at)])
 
 /** Notes and photos on an alarm. Photos live under <data>/uploads/<sha256>; only the hash is here. */

@@ -182,7 +182,7 @@ const EVENT_WORDS: Record<string, string> = {
   job_change: 'job changed', fault_raised: 'fault raised', fault_cleared: 'fault cleared',
 }
 const COMMAND_WORDS: Record<string, string> = { offset: 'offset', dress: 'dress', hold: 'hold', resume: 'resume' }
-const STATION_WORDS: Record<string, string> = { 'dress': 'dress logged', 'wheel-change': 'wheel change logged', 'mastering': 'gauge mastering logged', 'note': 'note' }
+const STATION_WORDS: Record<string, string> = { 'dress': 'dress logged', 'wheel-change': 'wheel change logged', 'mastering': 'gauge mastering logged', 'note': 'note', 'hand-measurement': 'measured by hand' }
 
 /** A machine message (kind and stored type) or a station log kind in the event log's words. */
 export function liveEventWords(kind: string, type: string | null): string {

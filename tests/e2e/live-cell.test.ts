@@ -178,6 +178,7 @@ describe('live cell', async () => {
     await station.click('[data-test=reset]')
     await station.locator(`[data-test=station-alarm-${alarmId}]`).waitFor({ state: 'detached' })
     await station.click('[data-test=log-dress]')
+    await station.click('[data-test=confirm-log]')
     await station.getByText('Dress logged.').waitFor()
     await station.close()
   })

@@ -86,13 +86,16 @@ describe('station set up through the screens', async () => {
     await station.fill('[data-test=station-pin]', '4826')
     await station.click('[data-test=station-sign-in]')
     await station.click('[data-test=log-dress]')
+    await station.fill('[data-test=dress-amount]', '20')
+    await station.click('[data-test=confirm-log]')
     await station.getByRole('status').filter({ hasText: 'Dress logged.' }).waitFor()
     await station.close()
 
     const cookie = await sessionCookie(demoUser('engineer').email)
-    const log = await (await fetch(url(`/api/machines/${M}/events?range=24h`), { headers: { cookie } })).json() as { events: { what: string, who: string | null }[] }
+    const log = await (await fetch(url(`/api/machines/${M}/events?range=24h`), { headers: { cookie } })).json() as { events: { what: string, who: string | null, valueUm: number | null }[] }
     const words = log.events.map(e => e.what)
     expect(log.events.find(e => e.what === 'dress logged')?.who).toBe(demoUser('operator').name)
+    expect(log.events.find(e => e.what === 'dress logged')?.valueUm).toBe(20) // the amount typed at the confirmation
     expect(words).toContain('gauge mastered')
     expect(words).toContain('machine connected')
     expect(words.join(' | ')).not.toMatch(/offset:applied|carried out the offset|part_/)

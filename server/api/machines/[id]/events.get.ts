@@ -19,9 +19,9 @@ export default defineEventHandler(async (event) => {
   const users = new Map((await db.select({ id: schema.users.id, name: schema.users.name }).from(schema.users)).map(u => [u.id, u.name]))
   const cmds = await db.select().from(schema.commands).where(and(eq(schema.commands.machineId, ctx.id))).orderBy(desc(schema.commands.issuedAt)).limit(100)
   const list = [
-    ...msgs.map(x => ({ t: x.t, clock: 'machine', what: liveEventWords(x.kind, x.type), who: null as string | null, note: null as string | null })),
-    ...logs.map(l => ({ t: l.machineTime ?? l.at, clock: 'station', what: liveEventWords('station', l.kind), who: users.get(l.userId) ?? null, note: l.note })),
-    ...cmds.filter(c => c.origin !== 'engine').map(c => ({ t: machineTimeOf(c), clock: 'machine', what: `${c.type} command: ${c.status}`, who: c.origin.startsWith('user:') ? users.get(Number(c.origin.slice(5))) ?? null : null, note: (c.payload as { reason?: string }).reason ?? null })),
+    ...msgs.map(x => ({ t: x.t, clock: 'machine', what: liveEventWords(x.kind, x.type), who: null as string | null, note: null as string | null, valueUm: null as number | null })),
+    ...logs.map(l => ({ t: l.machineTime ?? l.at, clock: 'station', what: liveEventWords('station', l.kind), who: users.get(l.userId) ?? null, note: l.note, valueUm: l.valueUm })),
+    ...cmds.filter(c => c.origin !== 'engine').map(c => ({ t: machineTimeOf(c), clock: 'machine', what: `${c.type} command: ${c.status}`, who: c.origin.startsWith('user:') ? users.get(Number(c.origin.slice(5))) ?? null : null, note: (c.payload as { reason?: string }).reason ?? null, valueUm: null })),
   ].sort((a, b) => b.t - a.t)
   return { from, to, events: list.slice(0, 300) }
 })

@@ -1,7 +1,7 @@
 // Chart data for a range: sizes (thinned with Largest-Triangle-Three-Buckets from the `downsample`
 // package, which keeps the visually significant points such as spikes), the engine's
-// level estimate, the offset in force as steps, and markers for dress, wheel change, mastering,
-// station logs and alarms.
+// level estimate, the offset in force as steps, the sizes measured by hand at the station (beside
+// the gauge's), and markers for dress, wheel change, mastering, station logs and alarms.
 import { and, asc, between, eq, inArray, isNotNull } from 'drizzle-orm'
 import { createLTTB } from 'downsample'
 
@@ -43,14 +43,14 @@ export default defineEventHandler(async (event) => {
   const eventKinds = ['dress', 'wheel_change', 'mastering', 'job_change', 'fault_raised'] as const
   const events = await db.select({ t: schema.machineMessages.time, type: schema.machineMessages.type }).from(schema.machineMessages)
     .where(and(eq(schema.machineMessages.machineId, ctx.id), eq(schema.machineMessages.kind, 'event'), inArray(schema.machineMessages.type, [...eventKinds]), between(schema.machineMessages.time, from, to)))
-  const logs = await db.select({ t: schema.stationLog.machineTime, type: schema.stationLog.kind }).from(schema.stationLog)
+  const logs = await db.select({ t: schema.stationLog.machineTime, type: schema.stationLog.kind, v: schema.stationLog.valueUm }).from(schema.stationLog)
     .where(and(eq(schema.stationLog.machineId, ctx.id), isNotNull(schema.stationLog.machineTime), between(schema.stationLog.machineTime, from, to)))
   const raised = await db.select({ t: schema.alarms.raisedAt, condition: schema.alarms.condition }).from(schema.alarms)
     .where(and(eq(schema.alarms.machineId, ctx.id), between(schema.alarms.raisedAt, from, to)))
   const markers = [
     ...raised.map(a => ({ t: a.t, kind: 'alarm', source: a.condition })),
     ...events.map(e => ({ t: e.t, kind: e.type as string, source: 'machine' })),
-    ...logs.map(l => ({ t: l.t as number, kind: l.type, source: 'station' })),
+    ...logs.filter(l => l.type !== 'hand-measurement').map(l => ({ t: l.t as number, kind: l.type, source: 'station' })),
   ].sort((a, b) => a.t - b.t)
 
   return {
@@ -58,6 +58,7 @@ export default defineEventHandler(async (event) => {
     sizes: thin(sizes).map(s => [s.t, s.v] as const),
     level: thin(level).map(s => [s.t, s.v] as const),
     offsets: offsets.map(o => [o.t, o.v] as const),
+    hand: logs.filter(l => l.type === 'hand-measurement' && l.v !== null).map(l => [l.t as number, l.v as number] as const),
     gaugeFaults: gaugeFaults.slice(-200),
     markers,
     limits: machineLimits(ctx),

@@ -1,0 +1,1 @@
+ALTER TABLE `station_log` ADD `value_um` real;
