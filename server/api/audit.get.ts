@@ -1,3 +1,4 @@
+// The audit trail, newest first, for admins and process engineers (who changes settings and jobs).
 import { z } from 'zod'
 import { desc, like } from 'drizzle-orm'
 
@@ -7,7 +8,7 @@ const query = z.object({
 })
 
 export default defineEventHandler(async (event) => {
-  await requireRole(event, 'admin')
+  await requireRole(event, 'admin', 'engineer')
   const q = readValidQuery(event, query)
   return useDb().select().from(schema.auditLog)
     .where(q.action ? like(schema.auditLog.action, `${q.action}%`) : undefined)

@@ -60,8 +60,8 @@ export async function pushTuningToMachines(jobId: number, onlyMachineId: string 
   return results
 }
 
-/** Settings that fail the engine's own checks, as a 400 naming each field. */
+/** Settings that fail the engine's own checks, as a 400 naming each field by its label (fields keep the keys the form uses). */
 export function settingsProblem(fields: Record<string, string>) {
-  const summary = Object.entries(fields).map(([k, m]) => `${k}: ${m}`).join('; ')
-  return createError({ statusCode: 400, message: `These settings are not valid — ${summary}`, data: { fields } })
+  const summary = Object.entries(fields).map(([k, m]) => `${settingLabel(k)}: ${settingsMessage(m)}`).join('; ')
+  return createError({ statusCode: 400, message: `These settings are not valid — ${summary}`, data: { fields: Object.fromEntries(Object.entries(fields).map(([k, m]) => [k, settingsMessage(m)])) } })
 }

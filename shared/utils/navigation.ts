@@ -11,6 +11,7 @@ export const navEntries: NavEntry[] = [
   { to: '/jobs', label: 'Jobs', icon: 'jobs', roles: 'all' },
   { to: '/people', label: 'People', icon: 'people', roles: ['admin'] },
   { to: '/alerts', label: 'Alerts', icon: 'alerts', roles: ['admin', 'lead', 'engineer'] },
+  { to: '/audit', label: 'Audit', icon: 'audit', roles: ['admin', 'engineer'] },
   { to: '/me', label: 'Me', icon: 'me', roles: 'all' },
 ]
 

@@ -60,7 +60,11 @@ describe('jobs', async () => {
 
     const bad = await call('engineer', 'POST', `/api/jobs/${jobId}/settings`, { settings: { gain: -1, targetUm: 5 } })
     expect(bad.status).toBe(400)
-    expect((await bad.json()).data.fields).toMatchObject({ gain: expect.any(String), targetUm: expect.stringMatching(/inside the specification/) })
+    const badBody = await bad.json()
+    expect(badBody.data.fields).toMatchObject({ gain: expect.any(String), targetUm: expect.stringMatching(/inside the specification/) })
+    // In people's words, not the engine's keys (shared/utils/settings-labels.ts).
+    expect(badBody.message).toMatch(/Gain \(diameter per axis µm\): .*; Aim \(µm\): Aim must lie inside the specification limits/)
+    expect(badBody.message).not.toMatch(/targetUm|gain:/)
     expect((await call('viewer', 'POST', `/api/jobs/${jobId}/settings`, { settings: {} })).status).toBe(403)
 
     const v1 = await (await call('engineer', 'POST', `/api/jobs/${jobId}/settings`, { settings: { strategy: 'ewma', maxStepUm: 1 } })).json()
@@ -177,7 +181,12 @@ describe('jobs', async () => {
     const stored = JSON.parse(String((await db.execute(`select settings from compensation_settings where job_id = ${jobId} order by version desc limit 1`)).rows[0]![0]))
     expect(stored).toEqual({ strategy: 'ewma', maxStepUm: 0.8, ewma: { lambda: 0.25 }, dress: { machineOffset: 'gives-back' }, stopAfterOutOfTolerance: 4 })
     const shown = await page.locator('[data-test="versions"] li[data-version="1"]').innerText()
-    expect(shown).not.toMatch(/all defaults/)
+    expect(shown).not.toMatch(/all defaults/i)
+    // The version reads in labels, not the engine's keys or JSON.
+    expect(shown).toMatch(/Strategy\s+ewma/)
+    expect(shown).toMatch(/Largest step \(axis µm\)\s+0\.8/)
+    expect(shown).toMatch(/EWMA weight λ\s+0\.25/)
+    expect(shown).not.toMatch(/maxStepUm|[{}]/)
     expect(pageErrors).toEqual([])
     await page.screenshot({ path: `${artifactsDir}/job-draft-saved-desktop-dark.png`, fullPage: true })
     await page.close()

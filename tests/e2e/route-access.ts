@@ -23,7 +23,7 @@ export const routeAccess: Record<string, RouteRule> = {
   'users/index.post.ts': { access: ['admin'] },
   'users/[id]/index.patch.ts': { access: ['admin'], params: { id: '5' } },
   'users/[id]/password.post.ts': { access: ['admin'], params: { id: '5' } },
-  'audit.get.ts': { access: ['admin'] },
+  'audit.get.ts': { access: ['admin', 'engineer'] },
   // Ingest
   'machines/index.post.ts': { access: ['admin'], body: { id: 'cg-01', name: 'probe', cellId: 'cell-a' } },
   'machine-credentials/[id].post.ts': { access: ['admin'], params: { id: 'cg-99' } },

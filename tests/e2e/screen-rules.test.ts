@@ -56,8 +56,8 @@ describe('screen rules', async () => {
     const every = ['/', '/?wall=1', '/alarms', '/report', `/report/${shifts.cell}/${shift.shiftId}/${shift.date}`, '/jobs', '/jobs/1', '/jobs/1/replay', `/machines/${M}`, '/me']
     // Every page for the roles that see the most; for the others the pages that differ by role.
     const pages: Record<string, string[]> = {
-      admin: [...every, '/people', '/alerts'], lead: [...every, '/alerts'],
-      engineer: ['/jobs/1', '/jobs/1/replay', '/alerts', `/machines/${M}`], operator: ['/me', '/alarms'], viewer: ['/me'],
+      admin: [...every, '/people', '/alerts', '/audit'], lead: [...every, '/alerts'],
+      engineer: ['/jobs/1', '/jobs/1/replay', '/alerts', `/machines/${M}`, '/audit'], operator: ['/me', '/alarms'], viewer: ['/me'],
     }
     const wide: string[] = []
     for (const [role, paths] of Object.entries(pages)) {
