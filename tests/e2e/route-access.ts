@@ -84,6 +84,7 @@ export const routeAccess: Record<string, RouteRule> = {
   'reports/summary-subscription.get.ts': { access: 'signed-in' },
   'reports/summary-subscription.put.ts': { access: 'signed-in' },
   'reports/signoffs.post.ts': { access: ['lead'] },
+  'reports/email.post.ts': { access: 'signed-in' },
   'reports/notes.post.ts': { access: ['lead', 'engineer', 'operator'] },
   'reports/calendar.put.ts': { access: ['admin', 'engineer'] },
   // Jobs, compensation settings, replay
