@@ -1,30 +1,19 @@
 // In-memory view of the machines this server serves: identity, job and the latest status with
 // the compensation engine's state. Loaded from the database at start; the ingest pipeline is
-// its only writer and persists every change in the same commit as the messages behind it.
-import { eq } from 'drizzle-orm'
-import type { JobInfo } from '#shared/utils/contract'
-import { createCompensationState, restoreCompensationState, stepCompensation, type CompensationSettingsInput, type CompensationState } from '#shared/utils/compensation'
+// its only writer (job changes from the web included: assignJob) and persists every change in
+// the same commit as the messages behind it.
+import { and, eq } from 'drizzle-orm'
+import { restoreCompensationState, type CompensationDecision, type CompensationState } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 import type { OutstandingCommands } from '#shared/utils/command-gate'
+import { TREND_CONDITION, type MachineLoop } from '#shared/utils/machine-loop'
 
 export type JobRow = typeof schema.jobs.$inferSelect
 export type StatusRow = typeof schema.machineStatus.$inferSelect
 
-export interface MachineContext {
-  id: string
-  cellId: string
-  name: string
-  job: JobRow | null
+/** One machine as ingest's loop sees it (shared/utils/machine-loop.ts), with our job record. */
+export interface MachineContext extends Omit<MachineLoop<JobRow>, 'trendRules'> {
   status: StatusRow
-  engine: CompensationState | null
-  /** the active compensation settings version for this machine's job (null: engine defaults) */
-  tuning: CompensationTuning | null
-  /** dress and hold commands sent and not yet answered, so a due dress is asked for once, not every part (memory only) */
-  outstanding?: OutstandingCommands
-  /** the last state ingest reported to the alarm engine for each engine condition (memory only) */
-  reportedConditions?: Map<string, boolean>
-  /** the machine's clock minus the server's, from its newest message: how a command decided here is dated for it (memory only) */
-  clockOffsetMs?: number
 }
 
 const registry = new Map<string, MachineContext>()
@@ -44,6 +33,9 @@ export async function loadMachineRegistry() {
   const jobs = new Map((await db.select().from(schema.jobs)).map(j => [j.id, j]))
   const statuses = new Map((await db.select().from(schema.machineStatus)).map(s => [s.machineId, s]))
   const outstanding = await outstandingCommandsFromDb(Date.now())
+  // The trend alarm raised before a restart stays raised until the trend clears it.
+  const trendRaised = new Set((await db.select({ machineId: schema.alarms.machineId }).from(schema.alarms)
+    .where(and(eq(schema.alarms.condition, TREND_CONDITION), eq(schema.alarms.active, true)))).map(r => r.machineId))
   const next = new Map<string, MachineContext>()
   for (const m of rows) {
     const status = statuses.get(m.id) ?? emptyStatus(m.id)
@@ -54,8 +46,12 @@ export async function loadMachineRegistry() {
     }
     const tuning = m.currentJobId ? await activeTuningFor(m.currentJobId, m.id) : null
     // What was last told to the alarm engine stays true across a reload (it is not in the database).
-    const reportedConditions = registry.get(m.id)?.reportedConditions
-    next.set(m.id, { id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning, outstanding: outstanding.get(m.id) ?? {}, reportedConditions, clockOffsetMs: registry.get(m.id)?.clockOffsetMs })
+    const prev = registry.get(m.id)
+    next.set(m.id, {
+      id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning,
+      outstanding: outstanding.get(m.id) ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs,
+      trendRaised: trendRaised.has(m.id),
+    })
   }
   // Swapped in at once: a machine connecting during the reload must not find itself missing.
   registry.clear()
@@ -103,54 +99,18 @@ export async function refreshMachineContext(id: string) {
   const [job] = m.currentJobId ? await db.select().from(schema.jobs).where(eq(schema.jobs.id, m.currentJobId)) : []
   const prev = registry.get(id)
   const tuning = job ? await activeTuningFor(job.id, id) : null
-  registry.set(id, { id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning, outstanding: prev?.outstanding, reportedConditions: prev?.reportedConditions, clockOffsetMs: prev?.clockOffsetMs })
+  registry.set(id, {
+    id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning,
+    outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, trendRaised: prev?.trendRaised ?? false,
+  })
 }
 
 /**
- * Compensation settings for what the machine says it grinds. The machine is the last authority
- * on the job in the chuck; our job record adds cycle time and roundness limit when the part
- * numbers match, and so does the job's active tuning (what an engineer set explicitly wins).
+ * A changeover or new tuning decided here (jobs page, settings activation): queued through ingest
+ * like a machine message (ingest.assignJob), so the engine state it changes is written in a
+ * commit with the rest. Returns the engine's answer (null when no engine runs yet: the next birth
+ * starts it).
  */
-export function compensationSettingsFor(job: JobInfo | null, ourJob: JobRow | null, pipelineParts?: number, cycleTimeS?: number, tuning?: CompensationTuning | null): CompensationSettingsInput {
-  const upper = job?.upperToleranceUm ?? (ourJob ? ourJob.upperTolNm / 1000 : 2)
-  const lower = job?.lowerToleranceUm ?? (ourJob ? ourJob.lowerTolNm / 1000 : -2)
-  const matches = ourJob && (!job || job.partNumber === ourJob.partNumber)
-  const t = matches && tuning ? tuning : {}
-  return {
-    ...t,
-    upperSpecUm: upper,
-    lowerSpecUm: lower,
-    pipelineParts: t.pipelineParts ?? pipelineParts ?? 3,
-    cycleTimeS: t.cycleTimeS ?? cycleTimeS ?? (matches ? ourJob!.cycleTimeS : 20),
-    dress: { ...(matches && ourJob!.roundnessLimitNm ? { roundnessLimitUm: ourJob!.roundnessLimitNm / 1000 } : {}), ...t.dress },
-  }
-}
-
-/**
- * A changeover or new tuning decided here (jobs page, settings activation): the machine's job and
- * tuning change, and its running engine gets a `job-change` input with the new settings, so it
- * holds until the parts ground before the change have left the pipeline, then re-learns. Waits
- * until the ingest pipeline is idle, so no commit in flight carries the old engine state back.
- * Returns the engine's answer (null when no engine runs yet: the next birth starts it).
- */
-export async function setMachineJob(machineId: string, job: JobRow | null, tuning: CompensationTuning | null) {
-  await useIngest().drain()
-  const ctx = registry.get(machineId)
-  if (!ctx) return null
-  ctx.job = job
-  ctx.tuning = job ? tuning : null
-  if (!ctx.engine || !job) return null
-  const settings = compensationSettingsFor(null, job, ctx.engine.settings.pipelineParts, ctx.status.cycleTimeS ?? undefined, ctx.tuning)
-  const { state, decision } = stepCompensation(ctx.engine, { type: 'job-change', settings })
-  ctx.engine = state
-  const db = useDb()
-  await db.update(schema.machineStatus).set({ engineState: state }).where(eq(schema.machineStatus.machineId, machineId))
-  if (decision.kind !== 'ignored') {
-    await db.insert(schema.decisions).values({ machineId, seq: ctx.status.lastSeq, at: Date.now(), action: decision.hold ? 'hold' : 'none', correctionUm: null, offsetUm: decision.offsetUm, commandId: null, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: slopeOf(decision) })
-  }
-  return decision
-}
-
-export function newEngine(settings: CompensationSettingsInput, offsetUm: number): CompensationState {
-  return createCompensationState(settings, { offsetUm })
+export function setMachineJob(machineId: string, job: JobRow | null, tuning: CompensationTuning | null): Promise<CompensationDecision | null> {
+  return useIngest().assignJob(machineId, job, tuning)
 }

@@ -1,16 +1,15 @@
 // Notifications: listens to alarm transitions and machine status on the live bus, asks the
 // routing rules (shared/utils/alert-routing.ts) who to wake, delivers by Web Push, e-mail, SMS and
 // voice call (server/utils/phone-alerts.ts), and writes every attempt and outcome to the delivery
-// log. Alarms released together when quiet hours end go out as one message per person. Also raises "trend nears tolerance" (with hysteresis)
-// from the compensation engine's predictions, as an alarm through the alarm engine's public entry,
-// so it is acknowledged, escalated and logged like any other alarm.
+// log. Alarms released together when quiet hours end go out as one message per person. While it
+// runs, ingest judges "size will meet tolerance soon" with the routing rules' trend thresholds
+// (the machine loop raises it with the engine's other conditions: shared/utils/machine-loop.ts).
 import { and, desc, eq, gte, inArray } from 'drizzle-orm'
 import { z } from 'zod'
 import type { Agent } from 'node:https'
 import type { AlarmPriority } from '#shared/utils/alarm-model'
 import {
-  type AlertTrendPrediction,
-  alertDefaultRules, alertParseRules, alertStep, alertTrendStep, alertTrendThreshold, alertUpgradeStoredRules,
+  alertDefaultRules, alertParseRules, alertStep, alertUpgradeStoredRules,
   type AlertAlarm, type AlertRoutingRules, type AlertSend, type AlertTrack,
 } from '#shared/utils/alert-routing'
 import type { ShiftCalendar } from '#shared/utils/shift-calendar'
@@ -20,7 +19,6 @@ import { placeAlertCall, phoneSettings, sendAlertSms } from './phone-alerts'
 import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'
 import { sendMail } from './mailer'
 
-export const TREND_CONDITION = 'trend:nears-tolerance'
 const RULES_KEY = 'alert-routing'
 const SWEEP_MS = 30_000
 /** Alarms released within this long of each other (quiet hours ended) share one message per person. */
@@ -44,7 +42,6 @@ let rules: AlertRoutingRules | null = null
 const tracks = new Map<number, AlertTrack>()
 const announced = new Map<string, number[]>() // machine|condition → level-0 announcement times
 const timers = new Map<number, NodeJS.Timeout>()
-const trendRaised = new Map<string, boolean>()
 let chain: Promise<unknown> = Promise.resolve()
 let stopFns: (() => void)[] = []
 let pushAgent: Agent | undefined
@@ -317,20 +314,6 @@ export async function recordClick(deliveryId: number, userId: number): Promise<b
   return true
 }
 
-// ---------------------------------------------------------------- trend nears tolerance
-
-async function watchTrend(machineId: string, status: Record<string, unknown>, now: number) {
-  const r = await loadAlertRules()
-  const was = trendRaised.get(machineId) ?? false
-  const prediction = status.prediction as AlertTrendPrediction | null
-  const part = (status.jobPartNumber as string | null) ?? null
-  const step = alertTrendStep(was, prediction, alertTrendThreshold(r, part), r.trend.clearFactor)
-  trendRaised.set(machineId, step.raised)
-  if (!step.changed) return
-  const name = machineContext(machineId)?.name ?? machineId
-  await applyAlarmConditions([{ machineId, condition: TREND_CONDITION, active: step.raised, message: `${name}: ${step.message}`, at: now, machineAt: (status.lastReadingAt as number | null) ?? null }])
-}
-
 // ---------------------------------------------------------------- start and stop
 
 export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
@@ -340,7 +323,7 @@ export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
   await useVapidKeys()
   await loadAlertRules()
   const db = useDb()
-  // Resume: open tracks, recent announcements, and trends already raised.
+  // Resume: open tracks and recent announcements (a raised trend is the machine's: machine-registry.ts).
   const trackRows = await db.select().from(schema.alertTracks)
   for (const t of trackRows) tracks.set(t.alarmId, t.track as AlertTrack)
   const recent = await db.select({ at: schema.notificationDeliveries.at, machineId: schema.alarms.machineId, condition: schema.alarms.condition })
@@ -351,14 +334,14 @@ export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
     const times = announced.get(k) ?? []
     if (!times.includes(d.at)) announced.set(k, [...times, d.at])
   }
-  const openTrend = await db.select({ machineId: schema.alarms.machineId, active: schema.alarms.active }).from(schema.alarms)
-    .where(and(eq(schema.alarms.condition, TREND_CONDITION)))
-  for (const o of openTrend) if (o.machineId && o.active) trendRaised.set(o.machineId, true)
-
+  const ingest = useIngest()
+  ingest.trendRules = () => {
+    if (!rules) void loadAlertRules().catch(() => {}) // dropped by resetNotifyCache: the defaults until read again
+    return (rules ?? alertDefaultRules()).trend
+  }
+  stopFns.push(() => { ingest.trendRules = () => null })
   stopFns.push(onLive((e) => {
-    const now = Date.now()
-    if (e.type === 'alarm') void routeAlarm(e.alarm as unknown as AlarmView, now)
-    else if (e.type === 'status') void serial(() => watchTrend(e.machineId, e.status, now))
+    if (e.type === 'alarm') void routeAlarm(e.alarm as unknown as AlarmView, Date.now())
   }))
   const sweep = setInterval(() => { void sweepAlerts() }, SWEEP_MS)
   sweep.unref()

@@ -444,7 +444,7 @@ export interface AlertTrendPrediction {
 export interface AlertTrendResult { raised: boolean, changed: boolean, minutes: number | null, thresholdMin: number, message: string }
 
 /** The threshold in minutes for a job: its own, else the default. */
-export function alertTrendThreshold(rules: AlertRoutingRules, partNumber: string | null): number {
+export function alertTrendThreshold(rules: Pick<AlertRoutingRules, 'trend'>, partNumber: string | null): number {
   return (partNumber && rules.trend.perJob[partNumber]) || rules.trend.defaultThresholdMin
 }
 

@@ -1,0 +1,546 @@
+// One machine's loop, pure: what a machine message does to the machine as the server keeps it
+// (status, compensation engine, command gate, alarm conditions already reported) and what it
+// causes (rows to store, commands to send, alarm conditions, live events). No I/O and no clock:
+// `now` is the server's time, handed in. Ingest folds each commit's messages with it
+// (server/utils/ingest.ts); the replay route maps stored messages to engine inputs with
+// engineInputsOf, and the simulator's headless controller runs the same fold
+// (simulator/engine-controller.ts), so a preview or a simulated night decides what ingest decides.
+import { mqttSeqResetJump, type AckMessage, type BirthMessage, type CommandMessage, type DeathMessage, type EventMessage, type JobInfo, type MachineMessage, type ReadingMessage, type SequencedMessage, type StateMessage } from './contract'
+import { minutesUntilSizeAtRisk } from './size-risk'
+import { alarmEngineConditionHolds, alarmKindFor } from './alarm-catalogue'
+import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from './command-gate'
+import { createCompensationState, stepCompensation, type CompensationDecision, type CompensationInput, type CompensationSettingsInput, type CompensationState } from './compensation'
+import type { CompensationTuning } from './compensation-tuning'
+import { wheelEventInput } from './wheel-events'
+import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules, type AlertTrendPrediction } from './alert-routing'
+
+/** The alarm "size will meet tolerance soon", raised from the engine's prediction (docs/alarms.md). */
+export const TREND_CONDITION = 'trend:nears-tolerance'
+
+/** Our job record as far as the engine needs it (sizes in nanometres, as stored). */
+export interface MachineJobRecord {
+  partNumber: string
+  upperTolNm: number
+  lowerTolNm: number
+  cycleTimeS: number
+  roundnessLimitNm: number | null
+}
+
+/** A machine's status as stored in machine_status (engineState is kept beside it, in `engine`). */
+export interface MachineStatusRecord {
+  machineId: string
+  online: boolean
+  session: number | null
+  execution: string | null
+  activeFaults: string[]
+  lastSeq: number
+  lastMessageAt: number | null
+  lastReadingAt: number | null
+  lastCycleAt: number | null
+  lastDiameterUm: number | null
+  partsGood: number
+  partsScrap: number
+  blanksLeft: number | null
+  cycleTimeS: number | null
+  appliedOffsetUm: number | null
+  requestedOffsetUm: number | null
+  jobPartNumber: string | null
+  engineState: unknown
+  prediction: unknown
+  updatedAt: number
+}
+
+/** Everything the loop knows of one machine between two messages. */
+export interface MachineLoop<J extends MachineJobRecord = MachineJobRecord> {
+  id: string
+  cellId: string
+  name: string
+  /** our job record for the machine (the jobs page), null when none is assigned */
+  job: J | null
+  /** the active compensation settings version for that job (null: engine defaults) */
+  tuning: CompensationTuning | null
+  status: MachineStatusRecord
+  engine: CompensationState | null
+  /** dress, hold and offset commands sent and not yet answered (command-gate.ts) */
+  outstanding: OutstandingCommands
+  /** the last state told to the alarm engine for each engine condition */
+  reportedConditions: ReadonlyMap<string, boolean>
+  /** the machine's clock minus the server's, from its newest message */
+  clockOffsetMs: number | undefined
+  /** "size will meet tolerance soon" is raised for this machine */
+  trendRaised: boolean
+  /** the routing rules' trend thresholds; null: nobody is woken by the trend, it is not judged */
+  trendRules: AlertRoutingRules['trend'] | null
+}
+
+/** A job or its settings changed on the web: enters the loop like a machine message (never from MQTT). */
+export interface JobAssignedMessage<J extends MachineJobRecord = MachineJobRecord> {
+  kind: 'job-assigned'
+  job: J | null
+  tuning: CompensationTuning | null
+}
+
+export type MachineLoopMessage<J extends MachineJobRecord = MachineJobRecord> = MachineMessage | JobAssignedMessage<J>
+
+export type ReadingRow = {
+  machineId: string, seq: number, part: number, time: number, receivedAt: number, status: string,
+  diameterUm: number | null, roundnessUm: number | null, lengthUm: number | null, offsetUm: number, jobPartNumber: string | null
+}
+export type MessageRow = { machineId: string, seq: number, kind: string, type: string | null, time: number, receivedAt: number, payload: unknown }
+export type DecisionRow = {
+  machineId: string, seq: number, at: number, action: string, correctionUm: number | null, offsetUm: number, commandId: string | null,
+  reason: string, inputs: unknown, alerts: unknown, slopeUmPerPart: number | null
+}
+export type CommandRow = {
+  id: string, machineId: string, type: string, origin: 'engine', payload: CommandMessage, issuedAt: number, expiresAt: number, status: 'sent', requestedOffsetUm: number | null
+}
+export type PresenceRow = { machineId: string, at: number, online: boolean, session: number | null, reason: string, machineTime: number | null }
+export type GapRow = { machineId: string, fromSeq: number, toSeq: number, detectedAt: number }
+/** A machine answered a command: only the machine the command went to may change it. */
+export type CommandAnswer = { id: string, machineId: string, status: string, appliedOffsetUm: number, ackAt: number, ackReason: string | null }
+
+export interface MachineLoopRows {
+  readings: ReadingRow[]
+  messages: MessageRow[]
+  decisions: DecisionRow[]
+  commands: CommandRow[]
+  presence: PresenceRow[]
+  gaps: GapRow[]
+  answers: CommandAnswer[]
+}
+
+/** Appends one message's rows to a batch's. */
+export function appendLoopRows(into: MachineLoopRows, from: MachineLoopRows) {
+  for (const r of from.readings) into.readings.push(r)
+  for (const r of from.messages) into.messages.push(r)
+  for (const r of from.decisions) into.decisions.push(r)
+  for (const r of from.commands) into.commands.push(r)
+  for (const r of from.presence) into.presence.push(r)
+  for (const r of from.gaps) into.gaps.push(r)
+  for (const r of from.answers) into.answers.push(r)
+}
+
+export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], answers: [] })
+
+export interface AlarmCondition {
+  machineId: string | null
+  condition: string
+  active: boolean
+  message: string
+  /** server's clock */
+  at: number
+  /** the machine's clock when a machine message caused the condition (reports place alarms by it) */
+  machineAt?: number | null
+}
+
+/** What the loop tells the live stream; the status event is added by ingest once committed. */
+export type MachineLoopLiveEvent =
+  | { type: 'reading', machineId: string, seq: number, time: number, part: number, status: string, diameterUm: number | null, offsetUm: number }
+  | { type: 'decision', machineId: string, seq: number, action: DecisionAction, reason: string, offsetUm: number, correctionUm: number | null }
+  | { type: 'command', machineId: string, id: string, command: string, status: string }
+  | { type: 'machine-event', machineId: string, seq: number, kind: string, eventType: string | null, time: number }
+
+export interface MachineLoopResult<J extends MachineJobRecord = MachineJobRecord> {
+  machine: MachineLoop<J>
+  rows: MachineLoopRows
+  commands: CommandMessage[]
+  conditions: AlarmCondition[]
+  live: MachineLoopLiveEvent[]
+  /** the engine's answer to a job change from the web (null: no engine runs, or none was asked) */
+  jobDecision: CompensationDecision | null
+  /** the message changed nothing (a stale will): the machine needs no write */
+  unchanged: boolean
+}
+
+export type DecisionAction = 'stop' | 'offset' | 'dress' | 'hold' | 'none'
+
+/** Execution states a machine comes back from to ACTIVE as a restart (the engine re-learns). */
+const RESTART_FROM = new Set(['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED'])
+const ENGINE_ALARM_CODES = ['budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const
+const round3 = (x: number) => Math.round(x * 1000) / 1000
+const msOf = (iso: string) => Date.parse(iso)
+
+/** How long a machine may act on a command: three cycles, at least a minute. */
+const commandLifeMs = (cycleTimeS: number) => Math.max(60, 3 * cycleTimeS) * 1000
+
+/** The engine's wear slope from a decision's inputs (only the drift strategy has one). */
+export function decisionSlopeUmPerPart(d: CompensationDecision): number | null {
+  const x = d.inputs.slopeUmPerPart
+  return typeof x === 'number' && Number.isFinite(x) ? x + 0 : null // + 0: no −0, as in the JSON
+}
+
+export function decisionAction(d: CompensationDecision): DecisionAction {
+  if (d.stop) return 'stop'
+  if (d.command) return 'offset'
+  if (d.dress.now) return 'dress'
+  if (d.hold) return 'hold'
+  return 'none'
+}
+
+/** The offset command (or dress / hold) a decision calls for, in the contract's shape; ids name the message answered. */
+export function decisionCommands(decision: CompensationDecision, machineId: string, seq: number, machineTimeMs: number, cycleTimeS: number): CommandMessage[] {
+  const issuedAt = new Date(machineTimeMs).toISOString()
+  const expiresAt = new Date(machineTimeMs + commandLifeMs(cycleTimeS)).toISOString()
+  const id = (type: string) => `${machineId}.${seq}.${type}`
+  const out: CommandMessage[] = []
+  const reason = decision.reason.slice(0, 200)
+  if (decision.command) out.push({ kind: 'command', type: 'offset', id: id('offset'), issuedAt, expiresAt, offsetUm: round3(decision.command.newOffsetUm), reason })
+  if (decision.dress.now) out.push({ kind: 'command', type: 'dress', id: id('dress'), issuedAt, expiresAt, reason: (decision.dress.reason ?? reason).slice(0, 200) })
+  if (decision.stop) out.push({ kind: 'command', type: 'hold', id: id('hold'), issuedAt, expiresAt, reason })
+  return out
+}
+
+/**
+ * Compensation settings for what the machine says it grinds. The machine is the last authority
+ * on the job in the chuck; our job record adds cycle time and roundness limit when the part
+ * numbers match, and so does the job's active tuning (what an engineer set explicitly wins).
+ */
+export function compensationSettingsFor(job: JobInfo | null, ourJob: MachineJobRecord | null, pipelineParts?: number, cycleTimeS?: number, tuning?: CompensationTuning | null): CompensationSettingsInput {
+  const upper = job?.upperToleranceUm ?? (ourJob ? ourJob.upperTolNm / 1000 : 2)
+  const lower = job?.lowerToleranceUm ?? (ourJob ? ourJob.lowerTolNm / 1000 : -2)
+  const matches = ourJob && (!job || job.partNumber === ourJob.partNumber)
+  const t = matches && tuning ? tuning : {}
+  return {
+    ...t,
+    upperSpecUm: upper,
+    lowerSpecUm: lower,
+    pipelineParts: t.pipelineParts ?? pipelineParts ?? 3,
+    cycleTimeS: t.cycleTimeS ?? cycleTimeS ?? (matches ? ourJob!.cycleTimeS : 20),
+    dress: { ...(matches && ourJob!.roundnessLimitNm ? { roundnessLimitUm: ourJob!.roundnessLimitNm / 1000 } : {}), ...t.dress },
+  }
+}
+
+function newEngine(settings: CompensationSettingsInput, offsetUm: number): CompensationState {
+  return createCompensationState(settings, { offsetUm })
+}
+
+/**
+ * What one machine message tells a running compensation engine, given the machine's execution
+ * state before it and the offset the engine takes to be in force. The one list of restarts and
+ * renamings (readings and job changes are fed by the fold, which knows the engine's count and the
+ * job's settings). Ingest, the replay route and the simulator's loop all read messages through it.
+ */
+export function engineInputsOf(message: SequencedMessage, time: number, executionBefore: string | null, engineOffsetUm: number | null): CompensationInput[] {
+  switch (message.kind) {
+    case 'birth': {
+      const restart: CompensationInput[] = [{ type: 'restart', time }]
+      if (engineOffsetUm !== null && Math.abs(engineOffsetUm - message.offsetUm) > 1e-9) restart.push({ type: 'offset-applied', offsetUm: message.offsetUm, time })
+      return restart
+    }
+    case 'state':
+      return executionBefore && RESTART_FROM.has(executionBefore) && message.execution === 'ACTIVE' ? [{ type: 'restart', time }] : []
+    case 'ack':
+      return message.result === 'applied' && message.command === 'offset' ? [{ type: 'offset-applied', offsetUm: message.offsetUm, time }] : []
+    case 'event':
+      if (message.type === 'dress') return [wheelEventInput('dress', message, time)]
+      if (message.type === 'wheel_change') return [wheelEventInput('wheel-change', message, time)]
+      if (message.type === 'mastering') return [{ type: 'mastered', time }]
+      return []
+    default:
+      return []
+  }
+}
+
+/** The stored message's type column: the event type, the execution state, or command:result. */
+function messageType(message: Exclude<SequencedMessage, ReadingMessage>): string | null {
+  if (message.kind === 'event') return message.type
+  if (message.kind === 'ack') return `${message.command}:${message.result}`
+  if (message.kind === 'state') return message.execution
+  return null
+}
+
+/** One fold step's working copy and what it has caused so far. */
+class Step<J extends MachineJobRecord> {
+  readonly status: MachineStatusRecord
+  engine: CompensationState | null
+  outstanding: OutstandingCommands
+  reported: Map<string, boolean> | null = null // copied on the first change
+  clockOffsetMs: number | undefined
+  job: J | null
+  tuning: CompensationTuning | null
+  trendRaised: boolean
+  readonly rows: MachineLoopRows = emptyLoopRows()
+  readonly commands: CommandMessage[] = []
+  readonly conditions: AlarmCondition[] = []
+  readonly live: MachineLoopLiveEvent[] = []
+  jobDecision: CompensationDecision | null = null
+  /** the machine's time of the message (null for a will or a change from the web) */
+  time: number | null = null
+
+  constructor(readonly m: MachineLoop<J>, readonly now: number) {
+    this.status = { ...m.status }
+    this.engine = m.engine
+    this.outstanding = { ...m.outstanding }
+    this.clockOffsetMs = m.clockOffsetMs
+    this.job = m.job
+    this.tuning = m.tuning
+    this.trendRaised = m.trendRaised
+  }
+
+  reportedGet(condition: string) { return (this.reported ?? this.m.reportedConditions).get(condition) }
+
+  condition(condition: string, active: boolean, message: string, machineAt: number | null | undefined = this.time) {
+    this.conditions.push({ machineId: this.m.id, condition, active, message, at: this.now, machineAt })
+  }
+
+  /** Tells the alarm engine about an engine condition when it changes (every part would be thousands of no-ops a second). */
+  reportCondition(condition: string, active: boolean, message: () => string) {
+    if (this.reportedGet(condition) === active && !active) return
+    this.reported ??= new Map(this.m.reportedConditions)
+    this.reported.set(condition, active)
+    this.condition(condition, active, active ? message() : '')
+  }
+
+  step(input: CompensationInput): CompensationDecision | null {
+    if (!this.engine) return null
+    const r = stepCompensation(this.engine, input)
+    this.engine = r.state
+    return r.decision
+  }
+
+  settingsFor(job: JobInfo | null, pipelineParts?: number) {
+    return compensationSettingsFor(job, this.job, pipelineParts, this.status.cycleTimeS ?? undefined, this.tuning)
+  }
+
+  startEngine(job: JobInfo | null, offsetUm: number, pipelineParts?: number) {
+    try { this.engine = newEngine(this.settingsFor(job, pipelineParts), offsetUm) }
+    catch (err) {
+      this.engine = null
+      this.condition('engine:settings', true, `${this.m.name}: compensation is off, its settings are not valid (${(err as Error).message})`)
+    }
+  }
+
+  /** A decision: its row, the commands the gate lets through, the prediction and the engine's alarm conditions. */
+  record(decision: CompensationDecision | null, seq: number) {
+    if (!decision || decision.kind === 'ignored') return
+    const { m, now, status: st } = this
+    const cycleTimeS = st.cycleTimeS ?? 20
+    const expiresAt = now + commandLifeMs(cycleTimeS)
+    const cmds = gateCommands(decisionCommands(decision, m.id, seq, this.time ?? now, cycleTimeS), this.outstanding, now, expiresAt)
+    this.rows.decisions.push({
+      machineId: m.id, seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null,
+      offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason: decision.reason, inputs: decision.inputs,
+      alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: decisionSlopeUmPerPart(decision),
+    })
+    for (const c of cmds) {
+      this.rows.commands.push({ id: c.id, machineId: m.id, type: c.type, origin: 'engine', payload: c, issuedAt: now, expiresAt, status: 'sent', requestedOffsetUm: c.type === 'offset' ? c.offsetUm : null })
+      this.commands.push(c)
+      if (c.type === 'offset') st.requestedOffsetUm = c.offsetUm
+    }
+    st.prediction = this.predictionWithRisk(decision)
+    // The engine's own "trend nears limit" stays advisory (decision log, cards); the alarm that
+    // wakes people is "size will meet tolerance soon", raised from minutesAtRisk (judgeTrend).
+    const eng = this.engine
+    for (const code of ENGINE_ALARM_CODES) {
+      const alert = decision.alerts.find(a => a.code === code)
+      // Analogue conditions hold, once raised, until the offset has moved away from the limit (alarm-catalogue.ts).
+      const holds = !alert && this.reportedGet(`engine:${code}`) === true && !!eng && alarmEngineConditionHolds(code, eng)
+      this.reportCondition(`engine:${code}`, !!alert || holds, () => `${m.name}: ${alert ? alert.message : `${alarmKindFor(`engine:${code}`).title.toLowerCase()} (still at the limit)`}`)
+    }
+    this.reportCondition('engine:stop-requested', decision.stop, () => `${m.name}: the engine asks to stop — ${decision.reason}`)
+    this.live.push({ type: 'decision', machineId: m.id, seq, action: decisionAction(decision), reason: decision.reason, offsetUm: decision.offsetUm, correctionUm: decision.command?.correctionUm ?? null })
+  }
+
+  private predictionWithRisk(decision: CompensationDecision) {
+    const eng = this.engine
+    const st = this.status
+    const now = this.now
+    return {
+      ...decision.prediction,
+      minutesAtRisk: eng ? minutesUntilSizeAtRisk({
+        prediction: decision.prediction, strategy: eng.settings.strategy, gain: eng.settings.gain, minStepUm: eng.settings.minStepUm,
+        maxSinceDressUm: eng.settings.maxSinceDressUm, offsetRange: eng.settings.offsetRange, offsetUm: eng.offsetUm,
+        offsetAtDressUm: eng.offsetAtDressUm, appliedOffsetUm: st.appliedOffsetUm, requestedOffsetUm: st.requestedOffsetUm,
+        offsetCommandInFlight: offsetCommandInFlight(this.outstanding, now), offsetRefused: !!this.outstanding.offsetRefused,
+        halfToleranceUm: (eng.settings.upperSpecUm - eng.settings.lowerSpecUm) / 2, stopRequested: decision.stop,
+      }) : decision.prediction.minutesToSpecLimit,
+    }
+  }
+
+  /** Feeds the engine what the message tells it (engineInputsOf) and records each decision. */
+  feed(message: SequencedMessage, executionBefore: string | null) {
+    for (const input of engineInputsOf(message, this.time!, executionBefore, this.engine?.offsetUm ?? null)) this.record(this.step(input), message.seq)
+  }
+
+  /** "Size will meet tolerance soon": the routing rules' hysteresis over the prediction (alert-routing.ts). */
+  judgeTrend() {
+    const rules = this.m.trendRules
+    if (!rules) return
+    const step = alertTrendStep(this.trendRaised, this.status.prediction as AlertTrendPrediction | null, alertTrendThreshold({ trend: rules }, this.status.jobPartNumber), rules.clearFactor)
+    this.trendRaised = step.raised
+    if (step.changed) this.condition(TREND_CONDITION, step.raised, `${this.m.name}: ${step.message}`, this.status.lastReadingAt)
+  }
+
+  result(unchanged = false): MachineLoopResult<J> {
+    const m = this.m
+    const machine: MachineLoop<J> = unchanged ? m : {
+      ...m, status: this.status, engine: this.engine, outstanding: this.outstanding, reportedConditions: this.reported ?? m.reportedConditions,
+      clockOffsetMs: this.clockOffsetMs, job: this.job, tuning: this.tuning, trendRaised: this.trendRaised,
+    }
+    return { machine, rows: this.rows, commands: this.commands, conditions: this.conditions, live: this.live, jobDecision: this.jobDecision, unchanged }
+  }
+}
+
+/**
+ * One message through one machine's loop. `machine` is not changed: the result's `machine` is
+ * the machine after the message. Duplicates must be left out before (ingest looks them up).
+ */
+export function applyMachineMessage<J extends MachineJobRecord>(machine: MachineLoop<J>, message: MachineLoopMessage<J>, now: number): MachineLoopResult<J> {
+  const s = new Step(machine, now)
+  if (message.kind === 'job-assigned') { onJobAssigned(s, message); s.judgeTrend(); return s.result() }
+  if (message.kind === 'death') return onDeath(s, message) ? s.result() : s.result(true)
+  const st = s.status
+  if (st.lastSeq > 0 && message.seq > st.lastSeq + mqttSeqResetJump) {
+    // Not that many lost messages: the machine restarted its numbering (docs/mqtt.md, "seq").
+    s.condition('link:sequence-reset', true, `${machine.name}: message numbers jumped from ${st.lastSeq.toLocaleString('en-US')} to ${message.seq.toLocaleString('en-US')}; taken as a restart of its numbering, not as missing messages`, msOf(message.time))
+  }
+  else if (st.lastSeq > 0 && message.seq > st.lastSeq + 1) {
+    s.rows.gaps.push({ machineId: machine.id, fromSeq: st.lastSeq + 1, toSeq: message.seq - 1, detectedAt: now })
+    s.condition('link:sequence-gap', true, `${machine.name}: messages ${st.lastSeq + 1}–${message.seq - 1} never arrived`, msOf(message.time))
+  }
+  const time = msOf(message.time)
+  s.time = time
+  if (message.seq >= st.lastSeq) s.clockOffsetMs = time - now
+  st.lastSeq = Math.max(st.lastSeq, message.seq)
+  st.lastMessageAt = now
+  if (message.kind === 'reading') onReading(s, message)
+  else {
+    s.rows.messages.push({ machineId: machine.id, seq: message.seq, kind: message.kind, type: messageType(message), time, receivedAt: now, payload: message })
+    s.live.push({ type: 'machine-event', machineId: machine.id, seq: message.seq, kind: message.kind, eventType: messageType(message), time })
+    if (message.kind === 'birth') onBirth(s, message)
+    else if (message.kind === 'state') onState(s, message)
+    else if (message.kind === 'ack') onAck(s, message)
+    else onEvent(s, message)
+  }
+  s.judgeTrend()
+  return s.result()
+}
+
+/** A will or a clean shutdown; false for a stale will from an older connection. */
+function onDeath<J extends MachineJobRecord>(s: Step<J>, message: DeathMessage): boolean {
+  const st = s.status
+  if (st.session !== null && message.session !== st.session) return false
+  st.online = false
+  // A clean shutdown states its time; a will cannot, so its arrival is read on the machine's clock.
+  const deathTime = message.time ? msOf(message.time) : s.clockOffsetMs === undefined ? null : s.now + s.clockOffsetMs
+  s.rows.presence.push({ machineId: s.m.id, at: s.now, online: false, session: message.session, reason: message.reason, machineTime: deathTime })
+  s.condition('link:offline', true, `${s.m.name} went offline (${message.reason === 'shutdown' ? 'shut down' : 'connection lost'})`, deathTime)
+  return true
+}
+
+function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessage) {
+  const st = s.status
+  const time = s.time!
+  s.rows.readings.push({
+    machineId: s.m.id, seq: message.seq, part: message.part, time, receivedAt: s.now, status: message.status,
+    diameterUm: message.diameterUm, roundnessUm: message.roundnessUm ?? null, lengthUm: message.lengthUm ?? null,
+    offsetUm: message.offsetUm, jobPartNumber: st.jobPartNumber,
+  })
+  st.lastReadingAt = time
+  st.lastDiameterUm = message.diameterUm
+  const decision = s.step({
+    // The engine counts readings (parts gauged), not messages: the message sequence also counts
+    // events, and the engine would take each gap for parts it never saw (too-early dresses,
+    // holds ending early, cycle time 5× too short). Duplicates never reach this point.
+    type: 'reading', seq: (s.engine?.lastSeq ?? 0) + 1, time, deviationUm: message.diameterUm, status: message.status,
+    roundnessUm: message.roundnessUm ?? undefined, lengthUm: message.lengthUm ?? undefined, offsetInForceUm: message.offsetUm,
+  })
+  s.record(decision, message.seq)
+  s.live.push({ type: 'reading', machineId: s.m.id, seq: message.seq, time, part: message.part, status: message.status, diameterUm: message.diameterUm, offsetUm: message.offsetUm })
+}
+
+function onBirth<J extends MachineJobRecord>(s: Step<J>, message: BirthMessage) {
+  const st = s.status
+  const wasRunning = st.online
+  const executionBefore = st.execution
+  // A birth naming another job than the one running means the job changed while the machine
+  // was away (docs/mqtt.md, "birth"): taken as a job change, after the restart below.
+  const runningJob = st.jobPartNumber ?? s.job?.partNumber ?? null
+  const jobChanged = !!message.job && !!s.engine && runningJob !== null && message.job.partNumber !== runningJob
+  st.online = true
+  st.session = message.session
+  st.execution = message.execution
+  st.cycleTimeS = message.cycleTimeS
+  st.appliedOffsetUm = message.offsetUm
+  if (!jobChanged) st.jobPartNumber = message.job?.partNumber ?? st.jobPartNumber
+  s.rows.presence.push({ machineId: s.m.id, at: s.now, online: true, session: message.session, reason: wasRunning ? 'reconnected' : 'birth', machineTime: s.time })
+  s.condition('link:offline', false, '')
+  if (!s.engine) s.startEngine(message.job, message.offsetUm, message.pipelineParts)
+  else {
+    s.feed(message, executionBefore)
+    if (jobChanged) machineJobChange(s, message.job!, message.seq)
+  }
+}
+
+function onState<J extends MachineJobRecord>(s: Step<J>, message: StateMessage) {
+  const st = s.status
+  const before = st.execution
+  st.execution = message.execution
+  st.activeFaults = [...message.activeFaults]
+  s.feed(message, before)
+  s.condition('machine:stopped', message.execution === 'STOPPED', `${s.m.name} stopped${message.reason ? `: ${message.reason}` : ''}`)
+}
+
+function onAck<J extends MachineJobRecord>(s: Step<J>, message: AckMessage) {
+  s.rows.answers.push({ id: message.commandId, machineId: s.m.id, status: message.result, appliedOffsetUm: message.offsetUm, ackAt: s.now, ackReason: message.reason ?? null })
+  commandAnswered(s.outstanding, message.commandId, message)
+  s.status.appliedOffsetUm = message.offsetUm
+  s.feed(message, s.status.execution)
+  s.live.push({ type: 'command', machineId: s.m.id, id: message.commandId, command: message.command, status: message.result })
+}
+
+function onEvent<J extends MachineJobRecord>(s: Step<J>, message: EventMessage) {
+  const st = s.status
+  const name = s.m.name
+  switch (message.type) {
+    case 'part_loaded': st.blanksLeft = message.blanksLeft; break
+    case 'pallet_change': st.blanksLeft = message.blanks; break
+    case 'part_ground': st.lastCycleAt = s.time; break
+    case 'part_unloaded': if (message.disposition === 'good') st.partsGood++; else st.partsScrap++; break
+    case 'dress':
+      delete s.outstanding.dress // whoever asked, the wheel is dressed
+      s.feed(message, st.execution)
+      break
+    case 'wheel_change': case 'mastering': s.feed(message, st.execution); break
+    case 'job_change': machineJobChange(s, message.job, message.seq); break
+    case 'fault_raised':
+      if (!st.activeFaults.includes(message.fault)) st.activeFaults = [...st.activeFaults, message.fault]
+      s.condition(`fault:${message.fault}`, true, `${name}: ${message.fault.replaceAll('_', ' ')}${message.message ? ` — ${message.message}` : ''}`)
+      break
+    case 'fault_cleared':
+      st.activeFaults = st.activeFaults.filter(f => f !== message.fault)
+      s.condition(`fault:${message.fault}`, false, '')
+      break
+  }
+}
+
+/**
+ * A job change, from the machine or the web: the running engine gets the new settings and holds
+ * until the parts ground before the change have left the pipeline. A refused change leaves the
+ * engine on the previous job's tolerances while the machine grinds the new one: that must wake
+ * someone, not vanish as an ignored input.
+ */
+function changeJob<J extends MachineJobRecord>(s: Step<J>, settings: CompensationSettingsInput, seq: number, what: string) {
+  const d = s.step({ type: 'job-change', settings, ...(s.time !== null ? { time: s.time } : {}) })
+  s.jobDecision = d
+  if (d?.kind === 'ignored') s.condition('engine:settings', true, `${s.m.name}: ${what} — compensation still uses the previous job's settings (${d.reason})`)
+  else {
+    s.record(d, seq)
+    s.condition('engine:settings', false, '')
+  }
+}
+
+/** A new job announced by the machine (a job_change event, or a birth naming another job). */
+function machineJobChange<J extends MachineJobRecord>(s: Step<J>, job: JobInfo, seq: number) {
+  s.status.jobPartNumber = job.partNumber
+  if (s.engine) changeJob(s, s.settingsFor(job, s.engine.settings.pipelineParts), seq, `new job ${job.partNumber}`)
+  else s.startEngine(job, s.status.appliedOffsetUm ?? 0)
+}
+
+/** The jobs page or a settings activation: our job record and tuning change, the running engine is told. */
+function onJobAssigned<J extends MachineJobRecord>(s: Step<J>, message: JobAssignedMessage<J>) {
+  s.job = message.job
+  s.tuning = message.job ? message.tuning : null
+  if (!s.engine || !message.job) return
+  changeJob(s, s.settingsFor(null, s.engine.settings.pipelineParts), s.status.lastSeq, `job ${message.job.partNumber} assigned`)
+}
