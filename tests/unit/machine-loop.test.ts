@@ -1,0 +1,88 @@
+// The machine loop (shared/utils/machine-loop.ts) on its own: pure, so each case is a machine, a
+// message and a clock. The whole loop through ingest is pinned by the golden night
+// (ingest-golden-night.test.ts); these are the parts the golden night does not reach.
+import { describe, expect, it } from 'vitest'
+import { applyMachineMessage, engineInputsOf, type MachineLoop, type MachineLoopMessage } from '../../shared/utils/machine-loop'
+import { alertDefaultRules } from '../../shared/utils/alert-routing'
+import type { SequencedMessage } from '../../shared/utils/contract'
+
+const T0 = Date.parse('2026-12-01T22:00:00.000Z')
+const iso = (s: number) => new Date(T0 + s * 1000).toISOString()
+const JOB = { partNumber: 'HX-410', upperTolNm: 4000, lowerTolNm: -4000, cycleTimeS: 20, roundnessLimitNm: null }
+
+function machine(trendRules: MachineLoop['trendRules']): MachineLoop {
+  return {
+    id: 'm1', cellId: 'cell-a', name: 'M1', job: JOB, tuning: null, engine: null, outstanding: {}, reportedConditions: new Map(), clockOffsetMs: undefined, trendRaised: false, trendRules,
+    status: {
+      machineId: 'm1', online: false, session: null, execution: null, activeFaults: [], lastSeq: 0, lastMessageAt: null, lastReadingAt: null, lastCycleAt: null,
+      lastDiameterUm: null, partsGood: 0, partsScrap: 0, blanksLeft: null, cycleTimeS: null, appliedOffsetUm: null, requestedOffsetUm: null, jobPartNumber: null,
+      engineState: null, prediction: null, updatedAt: 0,
+    },
+  }
+}
+
+const birth = (seq: number): MachineLoopMessage => ({
+  kind: 'birth', seq, time: iso(seq), session: 1, adapter: { name: 't', version: '1' }, machine: { name: 't', model: 't' },
+  job: { jobId: 'j1', partNumber: 'HX-410', nominalMm: 20, lowerToleranceUm: -4, upperToleranceUm: 4 }, execution: 'ACTIVE', offsetUm: 0, pipelineParts: 2, cycleTimeS: 20, wheelDiameterMm: 300,
+})
+const reading = (seq: number, diameterUm: number, offsetUm = 0): MachineLoopMessage => ({ kind: 'reading', seq, time: iso(seq * 20), part: seq, status: 'ok', diameterUm, roundnessUm: 0.3, offsetUm })
+
+/** A machine whose size grows 0.25 µm a part and never takes the offsets it is sent. */
+function driftingNight(trendRules: MachineLoop['trendRules']) {
+  let m = machine(trendRules)
+  const trend: { seq: number, active: boolean }[] = []
+  m = applyMachineMessage(m, birth(1), T0).machine
+  for (let seq = 2; seq < 60; seq++) {
+    const r = applyMachineMessage(m, reading(seq, -3 + 0.25 * seq), T0 + seq * 20_000)
+    for (const c of r.conditions) if (c.condition === 'trend:nears-tolerance') trend.push({ seq, active: c.active })
+    m = r.machine
+  }
+  return { m, trend }
+}
+
+describe('the machine loop', () => {
+  it('leaves its input machine as it was (pure) and gives the machine after the message', () => {
+    const m = machine(null)
+    const before = JSON.stringify(m)
+    const r = applyMachineMessage(m, birth(1), T0)
+    expect(JSON.stringify(m)).toBe(before)
+    expect(r.machine.status.online).toBe(true)
+    expect(r.machine.engine).not.toBeNull()
+    expect(r.rows.presence).toHaveLength(1)
+  })
+
+  it('raises "size will meet tolerance soon" in the fold when the routing rules are given, and not without them', () => {
+    const judged = driftingNight(alertDefaultRules().trend)
+    expect(judged.trend[0]?.active).toBe(true) // raised once the size heads for the limit
+    expect(judged.m.trendRaised).toBe(judged.trend[judged.trend.length - 1]!.active)
+    const notJudged = driftingNight(null)
+    expect(notJudged.trend).toEqual([])
+    expect(notJudged.m.trendRaised).toBe(false)
+  })
+
+  it('a job change from the web goes to the running engine; a refused one raises "settings not valid" as the machine\'s own does', () => {
+    let m = applyMachineMessage(machine(null), birth(1), T0).machine
+    const ok = applyMachineMessage(m, { kind: 'job-assigned', job: { ...JOB, partNumber: 'HX-412' }, tuning: null }, T0 + 1000)
+    expect(ok.jobDecision?.kind).not.toBe('ignored')
+    expect(ok.rows.decisions).toHaveLength(1)
+    expect(ok.conditions.map(c => [c.condition, c.active])).toContainEqual(['engine:settings', false])
+    m = ok.machine
+    // Tolerances upside down: the engine refuses them and keeps the previous job's.
+    const bad = applyMachineMessage(m, { kind: 'job-assigned', job: { ...JOB, upperTolNm: -1000, lowerTolNm: 1000 }, tuning: null }, T0 + 2000)
+    expect(bad.jobDecision?.kind).toBe('ignored')
+    expect(bad.conditions.map(c => [c.condition, c.active])).toContainEqual(['engine:settings', true])
+    expect(bad.machine.engine!.settings.upperSpecUm).toBe(4)
+  })
+
+  it('reads restarts from the state a machine comes back from, and offsets only from applied offset answers', () => {
+    const state = (execution: 'ACTIVE' | 'READY'): SequencedMessage => ({ kind: 'state', seq: 5, time: iso(5), execution, activeFaults: [] })
+    for (const from of ['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED']) expect(engineInputsOf(state('ACTIVE'), T0, from, 0)).toEqual([{ type: 'restart', time: T0 }])
+    expect(engineInputsOf(state('ACTIVE'), T0, 'READY', 0)).toEqual([])
+    expect(engineInputsOf(state('READY'), T0, 'STOPPED', 0)).toEqual([])
+    const ack = (result: 'applied' | 'rejected'): SequencedMessage => ({ kind: 'ack', seq: 6, time: iso(6), commandId: 'x', command: 'offset', result, offsetUm: 1.5 })
+    expect(engineInputsOf(ack('applied'), T0, null, 0)).toEqual([{ type: 'offset-applied', offsetUm: 1.5, time: T0 }])
+    expect(engineInputsOf(ack('rejected'), T0, null, 0)).toEqual([])
+    // A birth restarts the engine, and tells it the offset the machine came back with when it differs.
+    expect(engineInputsOf(birth(7) as SequencedMessage, T0, 'STOPPED', 2)).toEqual([{ type: 'restart', time: T0 }, { type: 'offset-applied', offsetUm: 0, time: T0 }])
+  })
+})
