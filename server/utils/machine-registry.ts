@@ -6,7 +6,7 @@ import { and, eq } from 'drizzle-orm'
 import { restoreCompensationState, type CompensationDecision, type CompensationState } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 import type { OutstandingCommands } from '#shared/utils/command-gate'
-import { TREND_CONDITION, type MachineLoop } from '#shared/utils/machine-loop'
+import { TREND_CONDITION, emptyMachineStatus, type MachineLoop } from '#shared/utils/machine-loop'
 
 export type JobRow = typeof schema.jobs.$inferSelect
 export type StatusRow = typeof schema.machineStatus.$inferSelect
@@ -17,15 +17,6 @@ export interface MachineContext extends Omit<MachineLoop<JobRow>, 'trendRules'> 
 }
 
 const registry = new Map<string, MachineContext>()
-
-export function emptyStatus(machineId: string): StatusRow {
-  return {
-    machineId, online: false, session: null, execution: null, activeFaults: [], lastSeq: 0,
-    lastMessageAt: null, lastReadingAt: null, lastCycleAt: null, lastDiameterUm: null, partsGood: 0, partsScrap: 0,
-    blanksLeft: null, cycleTimeS: null, appliedOffsetUm: null, requestedOffsetUm: null, jobPartNumber: null,
-    engineState: null, prediction: null, updatedAt: 0,
-  }
-}
 
 export async function loadMachineRegistry() {
   const db = useDb()
@@ -38,7 +29,7 @@ export async function loadMachineRegistry() {
     .where(and(eq(schema.alarms.condition, TREND_CONDITION), eq(schema.alarms.active, true)))).map(r => r.machineId))
   const next = new Map<string, MachineContext>()
   for (const m of rows) {
-    const status = statuses.get(m.id) ?? emptyStatus(m.id)
+    const status = statuses.get(m.id) ?? emptyMachineStatus(m.id)
     let engine: CompensationState | null = null
     if (status.engineState) {
       try { engine = restoreCompensationState(status.engineState) }
@@ -100,7 +91,7 @@ export async function refreshMachineContext(id: string) {
   const prev = registry.get(id)
   const tuning = job ? await activeTuningFor(job.id, id) : null
   registry.set(id, {
-    id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyStatus(id), engine: prev?.engine ?? null, tuning,
+    id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyMachineStatus(id), engine: prev?.engine ?? null, tuning,
     outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, trendRaised: prev?.trendRaised ?? false,
   })
 }

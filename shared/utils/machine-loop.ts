@@ -50,6 +50,16 @@ export interface MachineStatusRecord {
   updatedAt: number
 }
 
+/** A machine never heard from. */
+export function emptyMachineStatus(machineId: string): MachineStatusRecord {
+  return {
+    machineId, online: false, session: null, execution: null, activeFaults: [], lastSeq: 0,
+    lastMessageAt: null, lastReadingAt: null, lastCycleAt: null, lastDiameterUm: null, partsGood: 0, partsScrap: 0,
+    blanksLeft: null, cycleTimeS: null, appliedOffsetUm: null, requestedOffsetUm: null, jobPartNumber: null,
+    engineState: null, prediction: null, updatedAt: 0,
+  }
+}
+
 /** Everything the loop knows of one machine between two messages. */
 export interface MachineLoop<J extends MachineJobRecord = MachineJobRecord> {
   id: string

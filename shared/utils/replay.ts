@@ -16,6 +16,8 @@ import { parseCompensationSettings, type CompensationSettingsInput } from './com
 import { spcWithinSigmaMovingRange } from './spc'
 import { csvReadRecords, type CsvProblem } from './csv'
 import { wheelEventInput, type WheelEventFields } from './wheel-events'
+import { engineInputsOf } from './machine-loop'
+import type { SequencedMessage } from './contract'
 
 export type ReplayItem =
   | { kind: 'reading', seq: number, time: number, deviationUm: number | null, status: string, roundnessUm?: number | null, offsetUm: number }
@@ -27,6 +29,34 @@ export type ReplayItem =
 export function replayWheelEvent(seq: number, type: 'dress' | 'wheel-change', event: WheelEventFields, time: number): ReplayItem {
   const input = wheelEventInput(type, event, time) as { offsetUm?: number, partsSinceDress?: number }
   return { kind: 'event', seq, time, type, ...(input.offsetUm !== undefined ? { offsetUm: input.offsetUm } : {}), ...(input.partsSinceDress !== undefined ? { partsSinceDress: input.partsSinceDress } : {}) }
+}
+
+/**
+ * A recorded stream of one machine's messages (in message order, each with its machine time) as
+ * replay items: what the engine was told, read through the machine loop's own mapping
+ * (engineInputsOf), so a replay hears the restarts, applied offsets and wheel events ingest fed.
+ */
+export function replayItemsOf(recorded: readonly { message: SequencedMessage, time: number }[]): ReplayItem[] {
+  const items: ReplayItem[] = []
+  let execution: string | null = null
+  let offsetUm: number | null = null // the offset last known in force (a birth that differs from it is applied)
+  for (const { message: m, time } of recorded) {
+    if (m.kind === 'reading') {
+      items.push({ kind: 'reading', seq: m.seq, time, deviationUm: m.diameterUm, status: m.status, roundnessUm: m.roundnessUm ?? null, offsetUm: m.offsetUm })
+      offsetUm ??= m.offsetUm
+      continue
+    }
+    // A birth before the first reading is where the replay's engine starts, as ingest's engine starts at it.
+    const inputs: CompensationInput[] = m.kind === 'birth' && !items.some(i => i.kind === 'reading') ? [] : engineInputsOf(m, time, execution, offsetUm)
+    for (const input of inputs) {
+      if (input.type === 'offset-applied') { items.push({ kind: 'offset-applied', seq: m.seq, time, offsetUm: input.offsetUm }); offsetUm = input.offsetUm }
+      else if (input.type === 'dress' || input.type === 'wheel-change') items.push(replayWheelEvent(m.seq, input.type, input, time))
+      else if (input.type === 'restart' || input.type === 'mastered') items.push({ kind: 'event', seq: m.seq, time, type: input.type })
+    }
+    if (m.kind === 'birth') { execution = m.execution; offsetUm ??= m.offsetUm }
+    else if (m.kind === 'state') execution = m.execution
+  }
+  return items
 }
 
 export interface ReplayOptions {

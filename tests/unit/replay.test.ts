@@ -5,7 +5,7 @@ import { createEngineController } from '../../simulator/engine-controller'
 import { loadScenarioFile } from '../../simulator/scenario'
 import type { BirthMessage, CommandMessage, SequencedMessage } from '../../shared/utils/contract'
 import type { CompensationSettingsInput } from '../../shared/utils/compensation-settings'
-import { replayRun, replayMeasuredLag, replayItemsFromGaugeCsv, replayWheelEvent, type ReplayItem } from '../../shared/utils/replay'
+import { replayRun, replayMeasuredLag, replayItemsFromGaugeCsv, replayItemsOf, type ReplayItem } from '../../shared/utils/replay'
 
 const scenarios = join(import.meta.dirname, '../../simulator/scenarios')
 
@@ -32,19 +32,8 @@ function recordNight(file: string, machineId: string, hours: number, seed: numbe
   return { messages, commands, birth, settings, finalState: engine.states.get(machineId)! }
 }
 
-/** The recorded run as replay items, the way the controller fed its engine. */
-function itemsOf(messages: SequencedMessage[]): ReplayItem[] {
-  const items: ReplayItem[] = []
-  for (const m of messages) {
-    const time = Date.parse(m.time)
-    if (m.kind === 'reading') items.push({ kind: 'reading', seq: m.seq, time, deviationUm: m.diameterUm, status: m.status, roundnessUm: m.roundnessUm ?? null, offsetUm: m.offsetUm })
-    else if (m.kind === 'ack' && m.command === 'offset') items.push({ kind: 'offset-applied', seq: m.seq, time, offsetUm: m.offsetUm })
-    else if (m.kind === 'event' && m.type === 'dress') items.push(replayWheelEvent(m.seq, 'dress', m, time))
-    else if (m.kind === 'event' && m.type === 'wheel_change') items.push(replayWheelEvent(m.seq, 'wheel-change', m, time))
-    else if (m.kind === 'event' && m.type === 'mastering') items.push({ kind: 'event', seq: m.seq, time, type: 'mastered' })
-  }
-  return items
-}
+/** The recorded run as replay items, read as the machine loop reads it (replayItemsOf → engineInputsOf). */
+const itemsOf = (messages: SequencedMessage[]): ReplayItem[] => replayItemsOf(messages.map(message => ({ message, time: Date.parse(message.time) })))
 
 describe('replay of a seeded simulated night', () => {
   // The headless loop (simulator/engine-controller.ts) acts on every decision, as the server does.

@@ -1,0 +1,63 @@
+// A recorded run for replay (GET /api/replay/readings): the machine's readings in a time window
+// with the offsets in force and what the engine was told between them (replayItemsOf, the machine
+// loop's own mapping), plus the settings that ran, built as ingest built them
+// (compensationSettingsFor: what the machine announced, our job record, the active version).
+import { and, asc, between, desc, eq, inArray, lte } from 'drizzle-orm'
+import type { BirthMessage, JobInfo, SequencedMessage } from '#shared/utils/contract'
+import type { CompensationSettingsInput } from '#shared/utils/compensation'
+import type { CompensationTuning } from '#shared/utils/compensation-tuning'
+import { compensationSettingsFor } from '#shared/utils/machine-loop'
+import { replayItemsOf, type ReplayItem } from '#shared/utils/replay'
+
+const MAX_READINGS = 50_000
+
+/** What the machine said of itself at its last birth before the window (the engine's pipeline and cycle come from it). */
+export interface ReplayMachineFacts { job: JobInfo | null, pipelineParts: number | undefined, cycleTimeS: number | undefined }
+
+export async function recordedRun(machineId: string, from: number, to: number) {
+  const db = useDb()
+  const [machine] = await db.select().from(schema.machines).where(eq(schema.machines.id, machineId))
+  if (!machine) throw createError({ statusCode: 404, message: `There is no machine "${machineId}".` })
+  const r = schema.readings
+  const readings = await db.select().from(r).where(and(eq(r.machineId, machineId), between(r.time, from, to))).orderBy(asc(r.seq)).limit(MAX_READINGS + 1)
+  if (readings.length > MAX_READINGS) throw createError({ statusCode: 413, message: `That window holds more than ${MAX_READINGS.toLocaleString('en')} readings; pick a shorter one.` })
+  if (!readings.length) throw createError({ statusCode: 404, message: 'No readings in that window.' })
+  const mm = schema.machineMessages
+  const firstSeq = readings[0]!.seq
+  const messages = await db.select().from(mm).where(and(eq(mm.machineId, machineId), between(mm.seq, firstSeq, readings[readings.length - 1]!.seq), inArray(mm.kind, ['event', 'ack', 'birth', 'state']))).orderBy(asc(mm.seq))
+  const recorded: { message: SequencedMessage, time: number }[] = [
+    ...readings.map(x => ({ time: x.time, message: { kind: 'reading', seq: x.seq, time: new Date(x.time).toISOString(), part: x.part, status: x.status, diameterUm: x.diameterUm, roundnessUm: x.roundnessUm, lengthUm: x.lengthUm, offsetUm: x.offsetUm } as SequencedMessage })),
+    ...messages.map(m => ({ time: m.time, message: m.payload as SequencedMessage })), // stored as decoded (contract.ts)
+  ].sort((a, b) => a.message.seq - b.message.seq)
+  const items: ReplayItem[] = replayItemsOf(recorded)
+
+  // The job ground in the window (its part number on the readings), else the machine's current job.
+  const partNumber = readings.find(x => x.jobPartNumber)?.jobPartNumber ?? null
+  const [job] = partNumber
+    ? await db.select().from(schema.jobs).where(eq(schema.jobs.partNumber, partNumber))
+    : machine.currentJobId ? await db.select().from(schema.jobs).where(eq(schema.jobs.id, machine.currentJobId)) : []
+  const ran = job ? await versionInForce(job.id, machineId, from) : null
+  const [lastBirth] = await db.select().from(mm).where(and(eq(mm.machineId, machineId), eq(mm.kind, 'birth'), lte(mm.seq, firstSeq))).orderBy(desc(mm.seq)).limit(1)
+  const birth = lastBirth?.payload as BirthMessage | undefined
+  const facts: ReplayMachineFacts = { job: birth?.job ?? null, pipelineParts: birth?.pipelineParts, cycleTimeS: birth?.cycleTimeS }
+  const engineSettings: CompensationSettingsInput = compensationSettingsFor(facts.job, job ?? null, facts.pipelineParts, facts.cycleTimeS, (ran?.settings ?? null) as CompensationTuning | null)
+  return {
+    machine: { id: machine.id, name: machine.name },
+    job: job ? { id: job.id, partNumber: job.partNumber, upperUm: job.upperTolNm / 1000, lowerUm: job.lowerTolNm / 1000, upperTolNm: job.upperTolNm, lowerTolNm: job.lowerTolNm, cycleTimeS: job.cycleTimeS, roundnessLimitNm: job.roundnessLimitNm } : null,
+    settingsThatRan: ran,
+    /** the settings the engine ran with, whole (tuning, limits, pipeline, cycle, roundness limit) */
+    engineSettings,
+    facts,
+    initialOffsetUm: readings[0]!.offsetUm,
+    items,
+  }
+}
+
+/** The settings version in force for the job on that machine at `at` (its own, else the job's). */
+async function versionInForce(jobId: number, machineId: string, at: number) {
+  const cs = schema.compensationSettings
+  const versions = await useDb().select().from(cs).where(and(eq(cs.jobId, jobId), inArray(cs.status, ['active', 'retired']), lte(cs.activatedAt, at))).orderBy(desc(cs.activatedAt))
+  const inForce = (v: typeof versions[number]) => v.retiredAt === null || v.retiredAt > at
+  const pick = versions.find(v => v.machineId === machineId && inForce(v)) ?? versions.find(v => v.machineId === null && inForce(v))
+  return pick ? { id: pick.id, version: pick.version, settings: pick.settings } : null
+}
