@@ -207,6 +207,7 @@ describe('each person\'s job, end to end', async () => {
     await station.fill('[data-test=dress-amount]', '5000')
     await station.click('[data-test=confirm-log]')
     await station.getByRole('alert').filter({ hasText: 'at most 2000 µm' }).waitFor()
+    expect(await station.getByRole('alert').innerText()).not.toMatch(/valueUm/) // in words, not the field's key
     expect(await station.locator('[data-test=confirm-panel]').count()).toBe(1) // still open, the figure kept to correct
     await station.fill('[data-test=dress-amount]', '15')
     await shot(station, 'operator-station-tablet')
