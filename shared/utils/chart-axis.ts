@@ -2,6 +2,7 @@
 // data: an axis fitted to the sizes alone left the lines off the chart, and a chart without its
 // tolerance reads as fine when it is not. A chart with no sizes yet (the chart library then hands
 // over no usable extent) still shows the lines. Values in the chart's display unit. Pure.
+// docs/screens.md
 export function chartSizeAxisBounds(lines: readonly number[], marginShare = 0.15) {
   const finite = lines.filter(Number.isFinite)
   if (!finite.length) return {}

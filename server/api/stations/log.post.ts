@@ -1,6 +1,7 @@
 // What someone did at the machine: dress (with the amount dressed off, if given), wheel change,
 // gauge mastering, a size measured by hand (kept beside the gauge's readings: the response steps
 // ask for it), or a note. Only at a station. Figures arrive in µm; the station page converts.
+// The bounds below are plausibility limits of our own (docs/screens.md).
 import { z } from 'zod'
 
 const body = z.object({
