@@ -2,32 +2,18 @@
 // stream (/api/stream). Reconnects with back-off and resumes from the last event id; when the
 // server cannot replay (restart, too long away) it says "resync" and the snapshot is reloaded.
 import { defineStore } from 'pinia'
+import type { LiveAlarm, LiveEvent, LiveEventOf, LiveEventType, LiveStatus } from '#shared/types/live'
 
+export type { LiveAlarm, LivePrediction, LiveStatus } from '#shared/types/live'
 export interface LiveLimits { targetUm: number, upperSpecUm: number, lowerSpecUm: number, upperCompUm: number | null, lowerCompUm: number | null }
-export interface LivePrediction {
-  levelUm: number | null, slopeUmPerPart: number | null, minutesToCompLimit: number | null, minutesToSpecLimit: number | null, partsToDress: number | null, partsToCompLimit: number | null, cycleTimeS: number
-  /** minutes until the size is at risk with compensation running (server: size-risk.ts) */
-  minutesAtRisk?: number | null
-}
-export interface LiveStatus {
-  online: boolean, execution: string | null, activeFaults: string[], lastReadingAt: number | null, lastMessageAt: number | null, lastDiameterUm: number | null,
-  partsGood: number, partsScrap: number, blanksLeft: number | null, cycleTimeS: number | null, appliedOffsetUm: number | null, requestedOffsetUm: number | null,
-  jobPartNumber: string | null, prediction: LivePrediction | null, holdReason: string | null, engineOn: boolean, lastSeq: number
-}
-export interface LiveAlarm {
-  id: number, machineId: string | null, condition: string, title: string, steps: string[], priority: number, state: string, active: boolean, latching: boolean,
-  message: string, raisedAt: number, lastChangeAt: number, activations: number, closedAt: number | null, shelvedUntil: number | null, shelveReason: string | null,
-  /** cell alarms (machineId null): the cell and the machines that reported it or stopped under it */
-  cellId: string | null, machines: string[],
-  /** the alarm this one is a consequence of; suppressedBy says it in words while suppressed under it */
-  causeAlarmId: number | null, suppressedBy: string | null
-}
 export interface LiveReading { t: number, v: number, part: number, seq: number }
 export interface LiveMachine {
   id: string, name: string, cellId: string, job: { partNumber: string, description: string, nominalMm: number, cycleTimeS: number } | null,
   limits: LiveLimits, status: LiveStatus, recent: LiveReading[]
 }
 export type LiveConnection = 'connecting' | 'live' | 'reconnecting'
+
+const LIVE_EVENT_TYPES: readonly LiveEventType[] = ['reading', 'status', 'decision', 'command', 'alarm', 'machine-event']
 
 const STALE_AFTER_MS = 40_000 // heartbeats come every 15 s
 /** Away this long, the figures on screen are called not current (a blip of a reconnect is not). */
@@ -49,6 +35,16 @@ export const useLiveStore = defineStore('live', () => {
 
   /** bumps on every applied reading; pages that chart a machine watch it */
   const readingTick = ref(0)
+  /**
+   * Per machine, how many decisions that act (and answers to commands) and how many logged
+   * machine events the stream has brought: the machine page reloads its decision table and event
+   * log when these move, instead of asking every few seconds.
+   */
+  const activity = ref<Record<string, { decisions: number, events: number }>>({})
+  function bump(machineId: string, what: 'decisions' | 'events') {
+    const a = activity.value[machineId] ?? (activity.value[machineId] = { decisions: 0, events: 0 })
+    a[what]++
+  }
   const listeners = new Set<(machineId: string, r: LiveReading) => void>()
 
   let source: EventSource | null = null
@@ -57,7 +53,7 @@ export const useLiveStore = defineStore('live', () => {
   let retryTimer: ReturnType<typeof setTimeout> | null = null
   let watchdog: ReturnType<typeof setInterval> | null = null
   let ticker: ReturnType<typeof setInterval> | null = null
-  let pending: { type: string, data: any }[] = []
+  let pending: LiveEvent[] = []
   let flushTimer: ReturnType<typeof setTimeout> | null = null
   let started = false
 
@@ -72,26 +68,26 @@ export const useLiveStore = defineStore('live', () => {
     error.value = null
   }
 
-  function apply(type: string, d: any) {
-    if (type === 'reading') {
-      const m = machines.value[d.machineId]
-      if (!m || d.diameterUm === null) return
-      const last = m.recent[m.recent.length - 1]
-      if (last && d.seq <= last.seq) return // already in the snapshot
-      const r = { t: d.time, v: d.diameterUm, part: d.part, seq: d.seq }
-      const next = m.recent.length >= LIVE_CPK_WINDOW ? m.recent.slice(1) : m.recent.slice()
-      next.push(r)
-      m.recent = markRaw(next) as LiveReading[]
-      for (const l of listeners) l(d.machineId, r)
-    }
-    else if (type === 'status') {
-      const m = machines.value[d.machineId]
-      if (m) m.status = d.status
-    }
-    else if (type === 'alarm') {
-      const a = d.alarm as LiveAlarm
-      if (a.closedAt) delete alarms.value[a.id]
-      else alarms.value[a.id] = a
+  function applyReading(d: LiveEventOf<'reading'>) {
+    const m = machines.value[d.machineId]
+    if (!m || d.diameterUm === null) return
+    const last = m.recent[m.recent.length - 1]
+    if (last && d.seq <= last.seq) return // already in the snapshot
+    const r = { t: d.time, v: d.diameterUm, part: d.part, seq: d.seq }
+    const next = m.recent.length >= LIVE_CPK_WINDOW ? m.recent.slice(1) : m.recent.slice()
+    next.push(r)
+    m.recent = markRaw(next) as LiveReading[]
+    for (const l of listeners) l(d.machineId, r)
+  }
+
+  function apply(e: LiveEvent) {
+    switch (e.type) {
+      case 'reading': applyReading(e); break
+      case 'status': { const m = machines.value[e.machineId]; if (m) m.status = e.status; break }
+      case 'alarm': upsertAlarm(e.alarm); break
+      case 'decision': if (e.action !== 'none') bump(e.machineId, 'decisions'); break
+      case 'command': bump(e.machineId, 'decisions'); bump(e.machineId, 'events'); break
+      case 'machine-event': if (!(LIVE_EVENT_LOG_QUIET_TYPES as readonly (string | null)[]).includes(e.eventType)) bump(e.machineId, 'events'); break
     }
   }
 
@@ -100,7 +96,7 @@ export const useLiveStore = defineStore('live', () => {
     const batch = pending
     pending = []
     let readings = 0
-    for (const e of batch) { apply(e.type, e.data); if (e.type === 'reading') readings++ }
+    for (const e of batch) { apply(e); if (e.type === 'reading') readings++ }
     if (readings) readingTick.value++
   }
 
@@ -117,13 +113,13 @@ export const useLiveStore = defineStore('live', () => {
     const url = lastEventId ? `/api/stream?lastEventId=${encodeURIComponent(lastEventId)}` : '/api/stream'
     const es = new EventSource(url, { withCredentials: true })
     source = es
-    const onData = (type: string) => (ev: MessageEvent) => {
+    const onData = (ev: MessageEvent<string>) => {
       if (ev.lastEventId) lastEventId = ev.lastEventId
       heard()
-      pending.push({ type, data: JSON.parse(ev.data) })
+      pending.push(JSON.parse(ev.data) as LiveEvent) // the server's own event, as live-bus.ts typed it
       flushTimer ??= setTimeout(flush, FLUSH_MS)
     }
-    for (const t of ['reading', 'status', 'decision', 'command', 'alarm', 'machine-event']) es.addEventListener(t, onData(t))
+    for (const t of LIVE_EVENT_TYPES) es.addEventListener(t, onData)
     es.addEventListener('hello', heard)
     es.addEventListener('hb', heard)
     es.addEventListener('resync', async (ev: MessageEvent) => {
@@ -201,5 +197,5 @@ export const useLiveStore = defineStore('live', () => {
     else alarms.value[a.id] = a
   }
 
-  return { machines, alarms, connection, lastHeardAt, staleSince, notCurrentSince, now, loaded, error, readingTick, start, stop, onReading, alarmsOf, upsertAlarm, reload: loadSnapshot }
+  return { machines, alarms, activity, connection, lastHeardAt, staleSince, notCurrentSince, now, loaded, error, readingTick, start, stop, onReading, alarmsOf, upsertAlarm, reload: loadSnapshot }
 })

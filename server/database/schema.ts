@@ -1,6 +1,7 @@
 // The database schema. One table per concern; times are epoch milliseconds (UTC).
 import { sqliteTable, integer, text, real, index, uniqueIndex } from 'drizzle-orm/sqlite-core'
 import { sql } from 'drizzle-orm'
+import type { MachinePrediction } from '../../shared/utils/machine-loop'
 
 export const ROLES = ['admin', 'engineer', 'lead', 'operator', 'viewer'] as const
 
@@ -123,7 +124,7 @@ export const machineStatus = sqliteTable('machine_status', {
   /** the compensation engine's state (shared/utils/compensation.ts), JSON */
   engineState: text('engine_state', { mode: 'json' }),
   /** the engine's latest prediction, for the overview */
-  prediction: text('prediction', { mode: 'json' }),
+  prediction: text('prediction', { mode: 'json' }).$type<MachinePrediction | null>(),
   updatedAt: integer('updated_at').notNull(),
 })
 

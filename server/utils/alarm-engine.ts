@@ -11,7 +11,7 @@
 //     suppressed under that alarm while its cause is active, and stands on its own if it outlasts it.
 import { eq, isNull } from 'drizzle-orm'
 import { applyAlarmAction, alarmCreateRecord, isAlarmChattering, type AlarmAction, type AlarmRecord } from '#shared/utils/alarm-model'
-import { alarmKindFor, type AlarmKind } from '#shared/utils/alarm-catalogue'
+import { alarmKindFor, alarmView, type AlarmKind } from '#shared/utils/alarm-catalogue'
 
 type AlarmRow = typeof schema.alarms.$inferSelect
 export const MAX_SHELVE_MS = 12 * 60 * 60 * 1000 // a night shift; common practice
@@ -139,22 +139,6 @@ async function transition(row: AlarmRow | undefined, ch: Change): Promise<{ row?
   else open.set(key, row)
   publishLive({ type: 'alarm', alarm: alarmView(row) })
   return { row }
-}
-
-export function alarmView(row: AlarmRow) {
-  const kind = alarmKindFor(row.condition)
-  const rec = row.record as AlarmRecord
-  return {
-    id: row.id, machineId: row.machineId, cellId: row.cellId, condition: row.condition, title: kind.title, steps: kind.steps, priority: row.priority,
-    state: row.state, active: row.active, latching: row.latching, message: row.message, raisedAt: row.raisedAt,
-    lastChangeAt: row.lastChangeAt, activations: row.activations, closedAt: row.closedAt,
-    shelvedUntil: rec.shelvedUntil, shelveReason: rec.shelveReason,
-    /** cell alarms: the machines that reported it or stopped under it */
-    machines: row.machines ?? [],
-    /** the alarm this one is a consequence of; while suppressed, `suppressedBy` says it in words */
-    causeAlarmId: row.causeAlarmId, suppressedBy: rec.suppressedBy ?? null,
-    stopsMachine: kind.stopsMachine, mayWait: kind.mayWait,
-  }
 }
 
 // ---------------------------------------------------------------- conditions in

@@ -10,7 +10,7 @@ import type { InStatement } from '@libsql/client'
 import { claimedSeq, decodeMachineMessage, deliveryBreach, parseMqttTopic, type CommandMessage } from '#shared/utils/contract'
 import type { CompensationDecision } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
-import { applyMachineMessage, appendLoopRows, emptyLoopRows, type AlarmCondition, type MachineLoop, type MachineLoopMessage, type MachineLoopRows } from '#shared/utils/machine-loop'
+import { applyMachineMessage, appendLoopRows, emptyLoopRows, liveStatusView, type AlarmCondition, type MachineLoop, type MachineLoopMessage, type MachineLoopRows } from '#shared/utils/machine-loop'
 import type { AlertRoutingRules } from '#shared/utils/alert-routing'
 
 export type { AlarmCondition } from '#shared/utils/machine-loop'
@@ -187,7 +187,7 @@ export class IngestPipeline {
       ctx.job = loop.job
       ctx.tuning = loop.tuning
       ctx.trendRaised = loop.trendRaised
-      effects.live.push({ type: 'status', machineId: ctx.id, status: publicStatus(ctx) })
+      effects.live.push({ type: 'status', machineId: ctx.id, status: liveStatusView(ctx) })
     }
     for (const d of dead) if (d.machineId) effects.conditions.push({ machineId: d.machineId, condition: 'link:bad-data', active: true, message: `bad data from ${d.machineId}: ${d.reason}`, at: now })
     this.stats.stored += rows.readings.length + rows.messages.length
@@ -301,12 +301,6 @@ function statementsOf({ rows, machines }: Fold, dead: DeadLetterRow[], now: numb
   const changed = [...machines.values()].filter(f => f.changed)
   statements.push(...insertStatements(schema.machineStatus, changed.map(f => ({ ...f.loop.status, engineState: f.loop.engine, updatedAt: now })), { onConflict: { update: 'machineId' } }))
   return statements
-}
-
-/** What the browser may see of a machine's status. */
-export function publicStatus(ctx: MachineContext) {
-  const { engineState: _e, ...s } = ctx.status
-  return { ...s, name: ctx.name, cellId: ctx.cellId, holdReason: ctx.engine?.holdReason ?? null, engineOn: !!ctx.engine }
 }
 
 let pipeline: IngestPipeline | null = null

@@ -1,13 +1,9 @@
 // In-process bus from ingest and the alarm engine to the live stream (SSE) and notifications.
+// The events are typed in shared/types/live.ts, the one declaration the browser's store reads too.
 import { EventEmitter } from 'node:events'
+import type { LiveEvent } from '#shared/types/live'
 
-export type LiveEvent =
-  | { type: 'reading', machineId: string, seq: number, time: number, part: number, status: string, diameterUm: number | null, offsetUm: number }
-  | { type: 'status', machineId: string, status: Record<string, unknown> }
-  | { type: 'decision', machineId: string, seq: number, action: string, reason: string, offsetUm: number, correctionUm: number | null }
-  | { type: 'command', machineId: string, id: string, command: string, status: string }
-  | { type: 'alarm', alarm: Record<string, unknown> }
-  | { type: 'machine-event', machineId: string, seq: number, kind: string, eventType: string | null, time: number }
+export type { LiveEvent } from '#shared/types/live'
 
 const bus = new EventEmitter()
 bus.setMaxListeners(1000)

@@ -43,7 +43,7 @@ export async function cellSnapshot() {
   const alarms = await openAlarmViews()
   const machines = await Promise.all(allMachineContexts().map(async ctx => ({
     ...machineIdentity(ctx),
-    status: publicStatus(ctx),
+    status: liveStatusView(ctx),
     recent: await recentReadings(ctx.id, LIVE_CPK_WINDOW),
   })))
   const order = new Map((await useDb().select({ id: schema.machines.id, sort: schema.machines.sortOrder }).from(schema.machines)).map(m => [m.id, m.sort]))

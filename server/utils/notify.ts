@@ -341,7 +341,7 @@ export async function startNotifications(opts: { pushAgent?: Agent } = {}) {
   }
   stopFns.push(() => { ingest.trendRules = () => null })
   stopFns.push(onLive((e) => {
-    if (e.type === 'alarm') void routeAlarm(e.alarm as unknown as AlarmView, Date.now())
+    if (e.type === 'alarm') void routeAlarm(e.alarm, Date.now())
   }))
   const sweep = setInterval(() => { void sweepAlerts() }, SWEEP_MS)
   sweep.unref()

@@ -19,7 +19,7 @@
 // The defaults are our choices for a lights-out cell, not figures from a standard; docs/alarms.md
 // lists them (a unit test keeps that table and this one equal). Priorities keep "top" for fire,
 // mist and safety.
-import type { AlarmPriority } from './alarm-model'
+import type { AlarmPriority, AlarmRecord } from './alarm-model'
 
 export interface AlarmKind {
   priority: AlarmPriority
@@ -92,4 +92,27 @@ export function alarmEngineConditionHolds(code: string, e: AlarmEngineOffsets): 
     return e.offsetUm <= min + margin || e.offsetUm >= max - margin
   }
   return false
+}
+
+/** An alarm as stored (the alarms table's row, as far as its view needs it). */
+export interface AlarmViewRow {
+  id: number, machineId: string | null, cellId: string | null, condition: string, priority: number, state: string, active: boolean, latching: boolean,
+  message: string, raisedAt: number, lastChangeAt: number, activations: number, closedAt: number | null, record: unknown, machines: string[] | null, causeAlarmId: number | null
+}
+
+/** What the browser (and the alert router) sees of an alarm: its row in the catalogue's words. */
+export function alarmView(row: AlarmViewRow) {
+  const kind = alarmKindFor(row.condition)
+  const rec = row.record as AlarmRecord
+  return {
+    id: row.id, machineId: row.machineId, cellId: row.cellId, condition: row.condition, title: kind.title, steps: kind.steps, priority: row.priority,
+    state: row.state, active: row.active, latching: row.latching, message: row.message, raisedAt: row.raisedAt,
+    lastChangeAt: row.lastChangeAt, activations: row.activations, closedAt: row.closedAt,
+    shelvedUntil: rec.shelvedUntil, shelveReason: rec.shelveReason,
+    /** cell alarms: the machines that reported it or stopped under it */
+    machines: row.machines ?? [],
+    /** the alarm this one is a consequence of; while suppressed, `suppressedBy` says it in words */
+    causeAlarmId: row.causeAlarmId, suppressedBy: rec.suppressedBy ?? null,
+    stopsMachine: kind.stopsMachine, mayWait: kind.mayWait,
+  }
 }

@@ -9,10 +9,10 @@ import { mqttSeqResetJump, type AckMessage, type BirthMessage, type CommandMessa
 import { minutesUntilSizeAtRisk } from './size-risk'
 import { alarmEngineConditionHolds, alarmKindFor } from './alarm-catalogue'
 import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from './command-gate'
-import { createCompensationState, stepCompensation, type CompensationDecision, type CompensationInput, type CompensationSettingsInput, type CompensationState } from './compensation'
+import { createCompensationState, stepCompensation, type CompensationDecision, type CompensationInput, type CompensationPrediction, type CompensationSettingsInput, type CompensationState } from './compensation'
 import type { CompensationTuning } from './compensation-tuning'
 import { wheelEventInput } from './wheel-events'
-import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules, type AlertTrendPrediction } from './alert-routing'
+import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules } from './alert-routing'
 
 /** The alarm "size will meet tolerance soon", raised from the engine's prediction (docs/alarms.md). */
 export const TREND_CONDITION = 'trend:nears-tolerance'
@@ -25,6 +25,9 @@ export interface MachineJobRecord {
   cycleTimeS: number
   roundnessLimitNm: number | null
 }
+
+/** The engine's latest prediction with the minutes until the size is at risk with compensation running (size-risk.ts). */
+export type MachinePrediction = CompensationPrediction & { minutesAtRisk: number | null }
 
 /** A machine's status as stored in machine_status (engineState is kept beside it, in `engine`). */
 export interface MachineStatusRecord {
@@ -46,7 +49,7 @@ export interface MachineStatusRecord {
   requestedOffsetUm: number | null
   jobPartNumber: string | null
   engineState: unknown
-  prediction: unknown
+  prediction: MachinePrediction | null
   updatedAt: number
 }
 
@@ -58,6 +61,12 @@ export function emptyMachineStatus(machineId: string): MachineStatusRecord {
     blanksLeft: null, cycleTimeS: null, appliedOffsetUm: null, requestedOffsetUm: null, jobPartNumber: null,
     engineState: null, prediction: null, updatedAt: 0,
   }
+}
+
+/** What the browser may see of a machine's status (the live stream's status event, the cell snapshot). */
+export function liveStatusView(m: { status: MachineStatusRecord, name: string, cellId: string, engine: CompensationState | null }) {
+  const { engineState: _e, ...s } = m.status
+  return { ...s, name: m.name, cellId: m.cellId, holdReason: m.engine?.holdReason ?? null, engineOn: !!m.engine }
 }
 
 /** Everything the loop knows of one machine between two messages. */
@@ -351,7 +360,7 @@ class Step<J extends MachineJobRecord> {
     this.live.push({ type: 'decision', machineId: m.id, seq, action: decisionAction(decision), reason: decision.reason, offsetUm: decision.offsetUm, correctionUm: decision.command?.correctionUm ?? null })
   }
 
-  private predictionWithRisk(decision: CompensationDecision) {
+  private predictionWithRisk(decision: CompensationDecision): MachinePrediction {
     const eng = this.engine
     const st = this.status
     const now = this.now
@@ -376,7 +385,7 @@ class Step<J extends MachineJobRecord> {
   judgeTrend() {
     const rules = this.m.trendRules
     if (!rules) return
-    const step = alertTrendStep(this.trendRaised, this.status.prediction as AlertTrendPrediction | null, alertTrendThreshold({ trend: rules }, this.status.jobPartNumber), rules.clearFactor)
+    const step = alertTrendStep(this.trendRaised, this.status.prediction, alertTrendThreshold({ trend: rules }, this.status.jobPartNumber), rules.clearFactor)
     this.trendRaised = step.raised
     if (step.changed) this.condition(TREND_CONDITION, step.raised, `${this.m.name}: ${step.message}`, this.status.lastReadingAt)
   }

@@ -5,7 +5,7 @@ export default defineEventHandler(async (event) => {
   await requireUser(event)
   const ctx = machineFromParams(event)
   return {
-    ...machineIdentity(ctx), status: publicStatus(ctx), alarms: await openAlarmViews(ctx.id), recent: await recentReadings(ctx.id, LIVE_CPK_WINDOW),
+    ...machineIdentity(ctx), status: liveStatusView(ctx), alarms: await openAlarmViews(ctx.id), recent: await recentReadings(ctx.id, LIVE_CPK_WINDOW),
     dress: ctx.engine ? compensationDressOutlook(ctx.engine) : null,
   }
 })
