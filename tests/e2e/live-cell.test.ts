@@ -76,6 +76,26 @@ describe('live cell', async () => {
     await overview.close(); await machine.close()
   })
 
+  it('the machine page takes new decisions and events from the stream, not from a 15 s poll', async () => {
+    const page = await signedInPage('engineer')
+    await page.goto(url(`/machines/${M}`))
+    await page.waitForSelector('[data-test=live-indicator][data-state=live]')
+    await page.waitForSelector('[data-test=events]')
+    const rows = (sel: string) => page.evaluate(s => document.querySelectorAll(`${s} tbody tr, ${s} li`).length, sel)
+    await new Promise(r => setTimeout(r, 1500)) // the first load is in
+    const eventsBefore = await rows('[data-test=events]')
+    const firstDecision = () => page.evaluate(() => document.querySelector('[data-test=decisions] tbody tr')?.textContent ?? '')
+    const decisionBefore = await firstDecision()
+    // A gauge mastered (a logged event) and parts well over size (the engine offsets).
+    await publish(event({ type: 'mastering', correctionUm: 0.2 }))
+    for (let i = 0; i < 6; i++) await publish(reading(1.8))
+    // Within 4 s: the page polled every 15 s before, so this fails most of the time without the stream.
+    await page.waitForFunction(([n]) => document.querySelectorAll('[data-test=events] li').length > n, [eventsBefore], { timeout: 4000 })
+    await page.waitForFunction(([t]) => (document.querySelector('[data-test=decisions] tbody tr')?.textContent ?? '') !== t, [decisionBefore], { timeout: 4000 })
+    expect(await firstDecision()).toMatch(/offset|µm/i)
+    await page.close()
+  })
+
   it('the chart\'s "shift" range is the plant calendar\'s shift, and follows it when the plant moves its shifts', async () => {
     const db = openTestDb(owl.dataDir)
     const timeZone = String((await db.execute(`select time_zone from cells c join machines m on m.cell_id = c.id where m.id = '${M}'`)).rows[0]![0])
