@@ -19,3 +19,22 @@ export function chartSizeAxisBounds(lines: readonly number[], marginShare = 0.15
 
 /** The axis ends are the bounds above, odd figures (2.6, -8.9): their labels crowd the round ones beside them. */
 export const CHART_SIZE_AXIS_LABEL_ENDS = { showMinLabel: false, showMaxLabel: false } as const
+
+/**
+ * The layout of a size chart with the offset in force in a small panel of its own below it, on
+ * the same time axis (drawn over the sizes on a second axis, its steps crossed the tolerance lines
+ * and read as parts out of size). `timeAxis` is the chart's time axis with its labels; the upper
+ * panel hides them. Series in the panel take `xAxisIndex: 1, yAxisIndex: 1`.
+ */
+export function chartSizeWithOffsetPanel(o: { left: number, right: number, top: number, bottom: number, timeAxis: Record<string, unknown> }) {
+  const axis = { ...o.timeAxis, position: 'bottom', axisLine: { ...(o.timeAxis.axisLine as object | undefined), onZero: false } }
+  return {
+    grid: [{ left: o.left, right: o.right, top: o.top, bottom: '34%' }, { left: o.left, right: o.right, height: '14%', bottom: o.bottom }],
+    axisPointer: { link: [{ xAxisIndex: 'all' }] },
+    // Each time axis at the bottom of its panel, not across the size or offset zero.
+    xAxis: [{ ...axis, axisLabel: { show: false } }, { ...axis, gridIndex: 1 }],
+  }
+}
+
+/** The offset panel's value axis (add its name and colours). */
+export const CHART_OFFSET_PANEL_AXIS = { type: 'value', gridIndex: 1, nameGap: 6, scale: true, splitNumber: 2 } as const

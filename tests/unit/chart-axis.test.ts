@@ -1,7 +1,7 @@
 // Every size chart shows its tolerance lines: the axis reaches past them whatever the data.
 // Worked by hand: a band of 4 with 15 % margin reaches 0.6 past each line.
 import { describe, it, expect } from 'vitest'
-import { chartSizeAxisBounds } from '../../shared/utils/chart-axis'
+import { chartSizeAxisBounds, chartSizeWithOffsetPanel } from '../../shared/utils/chart-axis'
 
 describe('chartSizeAxisBounds', () => {
   it('widens an axis fitted to sizes well inside ±2 to the lines and 15 % of the band beyond', () => {
@@ -26,5 +26,15 @@ describe('chartSizeAxisBounds', () => {
   })
   it('leaves the axis to the data when there are no lines', () => {
     expect(chartSizeAxisBounds([])).toEqual({})
+  })
+})
+
+describe('chartSizeWithOffsetPanel', () => {
+  it('puts the offset in its own panel under the sizes, both time axes at the bottom of their panel', () => {
+    const c = chartSizeWithOffsetPanel({ left: 50, right: 20, top: 30, bottom: 24, timeAxis: { type: 'time', axisLine: { lineStyle: { color: 'grey' } }, axisLabel: { color: 'grey' } } })
+    expect(c.grid).toHaveLength(2)
+    expect(c.xAxis[0]).toMatchObject({ position: 'bottom', axisLine: { onZero: false, lineStyle: { color: 'grey' } }, axisLabel: { show: false } })
+    expect(c.xAxis[1]).toMatchObject({ gridIndex: 1, position: 'bottom', axisLine: { onZero: false }, axisLabel: { color: 'grey' } })
+    expect(c.axisPointer.link).toEqual([{ xAxisIndex: 'all' }]) // one time under the pointer in both panels
   })
 })
