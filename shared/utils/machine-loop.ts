@@ -5,6 +5,8 @@
 // (server/utils/ingest.ts); the replay route maps stored messages to engine inputs with
 // engineInputsOf, and the simulator's headless controller runs the same fold
 // (simulator/engine-controller.ts), so a preview or a simulated night decides what ingest decides.
+// Over 400 lines on purpose: the loop's record types, its step and the handler of each message
+// kind are one unit, read top to bottom; split, each part would be read only beside the others.
 import { mqttSeqResetJump, type AckMessage, type BirthMessage, type CommandMessage, type DeathMessage, type EventMessage, type JobInfo, type MachineMessage, type ReadingMessage, type SequencedMessage, type StateMessage } from './contract'
 import { minutesUntilSizeAtRisk } from './size-risk'
 import { alarmEngineConditionHolds, alarmKindFor } from './alarm-catalogue'
