@@ -12,8 +12,9 @@
 //   live         — each event published on the live bus (ingest and alarm engine), in order
 // Normalised: keys of every object are sorted (key order is not behaviour); ingest's commit
 // timings (stats.lastCommitMs, recentCommitMs) are left out — the only wall-clock figures.
-// Not covered: the trend alarm ("size will meet tolerance soon"), which notify.ts raises from the
-// live status events outside this harness; its input (status.prediction.minutesAtRisk) is recorded.
+// Not covered: the trend alarm ("size will meet tolerance soon"), which the machine loop judges only
+// with the routing rules notifications hand ingest, and they are not started here
+// (tests/unit/machine-loop.test.ts covers it); its input (status.prediction.minutesAtRisk) is recorded.
 //
 // RULE: re-record only for a documented change of behaviour, and name it in the commit message:
 //   UPDATE_GOLDEN=1 npx vitest run --project unit tests/unit/ingest-golden-night.test.ts
