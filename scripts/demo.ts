@@ -54,6 +54,8 @@ const env = {
   MQTT_PORT: mqttPort,
   OWLSHIFT_PUBLIC_URL: process.env.OWLSHIFT_PUBLIC_URL ?? `http://localhost:${port}`,
   OWLSHIFT_ALARM_DELAY_SCALE: process.env.OWLSHIFT_ALARM_DELAY_SCALE ?? String(1 / speed),
+  // The simulated machines' clocks run at its speed, ahead of the server's on purpose: not doubted.
+  OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: process.env.OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S ?? (speed === 1 ? '300' : '0'),
   ...(mail ? { SMTP_URL: `smtp://127.0.0.1:${mail.smtpPort}` } : {}),
 }
 const server = spawn(process.execPath, [...SERVER_NODE_ARGS, SERVER_ENTRY], { stdio: 'inherit', env })

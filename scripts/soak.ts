@@ -34,7 +34,7 @@ async function main() {
   const [port, mqttPort] = [await freePort(), await freePort()]
   const base = `http://127.0.0.1:${port}`
   const server = spawn(process.execPath, [...SERVER_NODE_ARGS, SERVER_ENTRY], {
-    env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'soak-session-password-long-enough-123', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort), OWLSHIFT_BACKUP_EVERY_H: '0' },
+    env: { PATH: process.env.PATH!, PORT: String(port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: dataDir, OWLSHIFT_SEED_DEMO: '1', NUXT_SESSION_PASSWORD: 'soak-session-password-long-enough-123', MQTT_HOST: '127.0.0.1', MQTT_PORT: String(mqttPort), OWLSHIFT_BACKUP_EVERY_H: '0', OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: '0' /* simulated clocks run at --speed */ },
     stdio: ['ignore', 'inherit', 'pipe'],
   })
   await new Promise<void>((resolve, reject) => {

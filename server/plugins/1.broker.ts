@@ -157,6 +157,7 @@ export default defineNitroPlugin((nitroApp) => {
     await ensureDemoMachineCredentials()
     const ingest = useIngest()
     ingest.onCommitted = handleCommitted
+    ingest.clockToleranceMs = config.mqtt.clockToleranceS ? config.mqtt.clockToleranceS * 1000 : null
     setBrokerHandle(config.mqtt.url ? await startExternal(config.mqtt.url, config.mqtt) : await startEmbedded(config.mqtt.host, config.mqtt.port))
   })().catch((err) => {
     console.error(`[owlshift] the MQTT broker could not start: ${(err as Error).message}. Check MQTT_PORT / MQTT_URL.`)

@@ -24,6 +24,7 @@ const envSchema = z.object({
   OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
   OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
   OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
+  OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: z.coerce.number().min(0).max(86_400).refine(v => v === 0 || v >= 5, 'must be 0 (off) or at least 5 seconds').default(300),
   OWLSHIFT_TRUSTED_PROXIES: z.string().default('').superRefine((v, ctx) => {
     const bad = v.split(',').map(s => s.trim()).filter(s => s && !parseProxyEntry(s))
     if (bad.length) ctx.addIssue({ code: 'custom', message: `not an IP address or address/prefix: ${bad.join(', ')} (e.g. 127.0.0.1,10.0.0.0/8,::1)` })
@@ -48,6 +49,8 @@ export interface OwlshiftConfig {
     clientId: string
     host: string
     port: number
+    /** seconds a machine's clock may be from the server's before it is doubted (shared/utils/machine-clock.ts); 0: never */
+    clockToleranceS: number
   }
   maintenance: {
     /** hours between scheduled backups; 0 = none */
@@ -95,6 +98,7 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       clientId: e.MQTT_CLIENT_ID,
       host: e.MQTT_HOST,
       port: e.MQTT_PORT,
+      clockToleranceS: e.OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S,
     },
     maintenance: {
       backupEveryH: e.OWLSHIFT_BACKUP_EVERY_H,

@@ -10,7 +10,7 @@ import type { InStatement } from '@libsql/client'
 import { claimedSeq, decodeMachineMessage, deliveryBreach, parseMqttTopic, type CommandMessage } from '#shared/utils/contract'
 import type { CompensationDecision } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
-import { applyMachineMessage, appendLoopRows, emptyLoopRows, liveStatusView, type AlarmCondition, type MachineLoop, type MachineLoopMessage, type MachineLoopRows } from '#shared/utils/machine-loop'
+import { applyMachineMessage, appendLoopRows, emptyLoopRows, liveStatusView, type AlarmCondition, type MachineLoop, type MachineLoopMessage, type MachineLoopOptions, type MachineLoopRows } from '#shared/utils/machine-loop'
 import type { AlertRoutingRules } from '#shared/utils/alert-routing'
 
 export type { AlarmCondition } from '#shared/utils/machine-loop'
@@ -92,6 +92,8 @@ export class IngestPipeline {
   onCommitted: (effects: IngestEffects) => Promise<void> | void = () => {}
   /** the routing rules' trend thresholds while notifications run (notify.ts sets it); null: the trend is not judged */
   trendRules: () => AlertRoutingRules['trend'] | null = () => null
+  /** how far a machine's clock may be from the server's before it is doubted (OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S); null: never */
+  clockToleranceMs: number | null = null
 
   /** Resolves once the arrival is committed (or dead-lettered). Never rejects for bad input. */
   accept(arrival: Arrival): Promise<void> {
@@ -171,7 +173,7 @@ export class IngestPipeline {
     const dead: DeadLetterRow[] = []
     const messages = decodeAll(items, now, dead)
     const fresh = await leaveOutStored(messages)
-    const fold = foldMachines(fresh, now, this.trendRules())
+    const fold = foldMachines(fresh, now, this.trendRules(), { clockToleranceMs: this.clockToleranceMs })
     await writeBatch(statementsOf(fold, dead, now))
 
     // Committed: memory follows, counters move.
@@ -184,6 +186,7 @@ export class IngestPipeline {
       ctx.outstanding = loop.outstanding
       ctx.reportedConditions = loop.reportedConditions
       ctx.clockOffsetMs = loop.clockOffsetMs
+      ctx.clock = loop.clock
       ctx.job = loop.job
       ctx.tuning = loop.tuning
       ctx.trendRaised = loop.trendRaised
@@ -256,7 +259,7 @@ async function leaveOutStored(messages: ForMachine[]): Promise<ForMachine[]> {
 }
 
 /** Each machine's messages through its loop, on working copies (memory changes only after the commit). */
-function foldMachines(messages: ForMachine[], now: number, trendRules: AlertRoutingRules['trend'] | null): Fold {
+function foldMachines(messages: ForMachine[], now: number, trendRules: AlertRoutingRules['trend'] | null, opts: MachineLoopOptions): Fold {
   const fold: Fold = {
     machines: new Map(),
     rows: emptyLoopRows(),
@@ -270,7 +273,7 @@ function foldMachines(messages: ForMachine[], now: number, trendRules: AlertRout
       f = { ctx, loop: { ...ctx, trendRules }, changed: false }
       fold.machines.set(ctx.id, f)
     }
-    const r = applyMachineMessage(f.loop, message, now)
+    const r = applyMachineMessage(f.loop, message, now, opts)
     if (message.kind === 'job-assigned') fold.jobDecisions.set(index, r.jobDecision)
     if (r.unchanged) continue
     f.loop = r.machine

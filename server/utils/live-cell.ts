@@ -67,8 +67,14 @@ export async function cellTimeZone(cellId: string) {
   return c?.tz ?? 'UTC'
 }
 
-/** The window for a range, anchored at the machine's latest reading (or now). */
+/**
+ * The window for a range, anchored at the machine's latest reading (or now); at the server's clock
+ * while the machine's is doubted, or when its latest reading is dated ahead of the server's.
+ */
 export async function machineWindow(ctx: MachineContext, range: LiveRange) {
-  const end = ctx.status.lastReadingAt ?? Date.now()
+  const now = Date.now()
+  const last = ctx.status.lastReadingAt
+  const tolerance = useOwlshiftConfig().mqtt.clockToleranceS
+  const end = last === null || ctx.clock?.doubt || (tolerance && last > now + tolerance * 1000) ? now : last
   return liveRangeWindow(range, end, { timeZone: await cellTimeZone(ctx.cellId), shifts: await plantShifts(useDb()) })
 }

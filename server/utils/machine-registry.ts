@@ -40,7 +40,7 @@ export async function loadMachineRegistry() {
     const prev = registry.get(m.id)
     next.set(m.id, {
       id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning,
-      outstanding: outstanding.get(m.id) ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs,
+      outstanding: outstanding.get(m.id) ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock,
       trendRaised: trendRaised.has(m.id),
     })
   }
@@ -92,7 +92,7 @@ export async function refreshMachineContext(id: string) {
   const tuning = job ? await activeTuningFor(job.id, id) : null
   registry.set(id, {
     id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyMachineStatus(id), engine: prev?.engine ?? null, tuning,
-    outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, trendRaised: prev?.trendRaised ?? false,
+    outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock, trendRaised: prev?.trendRaised ?? false,
   })
 }
 

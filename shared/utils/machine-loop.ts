@@ -14,6 +14,7 @@ import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingC
 import { createCompensationState, stepCompensation, type CompensationDecision, type CompensationInput, type CompensationPrediction, type CompensationSettingsInput, type CompensationState } from './compensation'
 import type { CompensationTuning } from './compensation-tuning'
 import { wheelEventInput } from './wheel-events'
+import { commandClockOffsetMs, judgeMachineClock, trustedClock, type MachineClock } from './machine-clock'
 import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules } from './alert-routing'
 
 /** The alarm "size will meet tolerance soon", raised from the engine's prediction (docs/alarms.md). */
@@ -86,8 +87,10 @@ export interface MachineLoop<J extends MachineJobRecord = MachineJobRecord> {
   outstanding: OutstandingCommands
   /** the last state told to the alarm engine for each engine condition */
   reportedConditions: ReadonlyMap<string, boolean>
-  /** the machine's clock minus the server's, from its newest message */
+  /** the machine's clock minus the server's, from its newest message: how commands are dated for it; 0 while its clock is doubted */
   clockOffsetMs: number | undefined
+  /** whether its clock is trusted (machine-clock.ts); absent: nothing judged yet */
+  clock?: MachineClock
   /** "size will meet tolerance soon" is raised for this machine */
   trendRaised: boolean
   /** the routing rules' trend thresholds; null: nobody is woken by the trend, it is not judged */
@@ -277,6 +280,7 @@ class Step<J extends MachineJobRecord> {
   outstanding: OutstandingCommands
   reported: Map<string, boolean> | null = null // copied on the first change
   clockOffsetMs: number | undefined
+  clock: MachineClock
   job: J | null
   tuning: CompensationTuning | null
   trendRaised: boolean
@@ -293,6 +297,7 @@ class Step<J extends MachineJobRecord> {
     this.engine = m.engine
     this.outstanding = { ...m.outstanding }
     this.clockOffsetMs = m.clockOffsetMs
+    this.clock = m.clock ?? trustedClock()
     this.job = m.job
     this.tuning = m.tuning
     this.trendRaised = m.trendRaised
@@ -337,7 +342,8 @@ class Step<J extends MachineJobRecord> {
     const { m, now, status: st } = this
     const cycleTimeS = st.cycleTimeS ?? 20
     const expiresAt = now + commandLifeMs(cycleTimeS)
-    const cmds = gateCommands(decisionCommands(decision, m.id, seq, this.time ?? now, cycleTimeS), this.outstanding, now, expiresAt)
+    // dated on the machine's clock (the machine judges expiry), the server's while that is doubted
+    const cmds = gateCommands(decisionCommands(decision, m.id, seq, this.clock.doubt ? now : this.time ?? now, cycleTimeS), this.outstanding, now, expiresAt)
     this.rows.decisions.push({
       machineId: m.id, seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null,
       offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason: decision.reason, inputs: decision.inputs,
@@ -396,7 +402,7 @@ class Step<J extends MachineJobRecord> {
     const m = this.m
     const machine: MachineLoop<J> = unchanged ? m : {
       ...m, status: this.status, engine: this.engine, outstanding: this.outstanding, reportedConditions: this.reported ?? m.reportedConditions,
-      clockOffsetMs: this.clockOffsetMs, job: this.job, tuning: this.tuning, trendRaised: this.trendRaised,
+      clockOffsetMs: this.clockOffsetMs, clock: this.clock, job: this.job, tuning: this.tuning, trendRaised: this.trendRaised,
     }
     return { machine, rows: this.rows, commands: this.commands, conditions: this.conditions, live: this.live, jobDecision: this.jobDecision, unchanged }
   }
@@ -406,7 +412,7 @@ class Step<J extends MachineJobRecord> {
  * One message through one machine's loop. `machine` is not changed: the result's `machine` is
  * the machine after the message. Duplicates must be left out before (ingest looks them up).
  */
-export function applyMachineMessage<J extends MachineJobRecord>(machine: MachineLoop<J>, message: MachineLoopMessage<J>, now: number): MachineLoopResult<J> {
+export function applyMachineMessage<J extends MachineJobRecord>(machine: MachineLoop<J>, message: MachineLoopMessage<J>, now: number, opts: MachineLoopOptions = {}): MachineLoopResult<J> {
   const s = new Step(machine, now)
   if (message.kind === 'job-assigned') { onJobAssigned(s, message); s.judgeTrend(); return s.result() }
   if (message.kind === 'death') return onDeath(s, message) ? s.result() : s.result(true)
@@ -421,7 +427,7 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
   }
   const time = msOf(message.time)
   s.time = time
-  if (message.seq >= st.lastSeq) s.clockOffsetMs = time - now
+  judgeClock(s, time, message.kind === 'birth', message.seq >= st.lastSeq, opts.clockToleranceMs ?? null)
   st.lastSeq = Math.max(st.lastSeq, message.seq)
   st.lastMessageAt = now
   if (message.kind === 'reading') onReading(s, message)
@@ -435,6 +441,21 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
   }
   s.judgeTrend()
   return s.result()
+}
+
+/** How the server runs the loop. */
+export interface MachineLoopOptions {
+  /** how far a machine's clock may be from the server's before it is doubted; null or absent: never (machine-clock.ts) */
+  clockToleranceMs?: number | null
+}
+
+/** The machine's clock after a message, and the alarm "Machine clock wrong" when the doubt comes or goes. */
+function judgeClock<J extends MachineJobRecord>(s: Step<J>, time: number, birth: boolean, newest: boolean, toleranceMs: number | null) {
+  const before = s.clock.doubt
+  s.clock = judgeMachineClock(s.clock, { time, birth, newest }, s.now, toleranceMs)
+  s.clockOffsetMs = s.clock.offsetMs === undefined ? undefined : commandClockOffsetMs(s.clock)
+  if (!!before === !!s.clock.doubt) return
+  s.condition('link:clock', !!s.clock.doubt, s.clock.doubt ? `${s.m.name}: its clock is ${s.clock.doubt} (${new Date(time).toISOString()}); commands and its time window go by the server's clock until it is set right` : '')
 }
 
 /** A will or a clean shutdown; false for a stale will from an older connection. */

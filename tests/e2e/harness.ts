@@ -51,6 +51,9 @@ export async function setupOwlshift(extraEnv: Record<string, string> = {}, opts:
       // The catalogue's on/off delays (a minute or two per condition) would only make each alarm
       // test wait; they are tested in tests/unit/alarm-filtering.test.ts and over whole nights.
       OWLSHIFT_ALARM_DELAY_SCALE: '0',
+      // The tests' machines run on fixed dates days before the server's clock (mqtt-helpers.ts):
+      // clocks that far off would be doubted. tests/e2e/machine-data.test.ts turns the check on.
+      OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: '0',
       ...extraEnv,
     },
   })

@@ -1,7 +1,7 @@
 // What the server makes of data that machines send outside the contract (docs/mqtt.md), checked
 // against the built server and its embedded broker with Debian's mosquitto_pub (mosquitto-clients),
 // a client nobody in the project wrote: how a message is published (QoS, retain), what a birth
-// says about the job, numbers that come late, are refused or jump.
+// says about the job, numbers that come late, are refused or jump, clocks far from the server's.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { spawnSync } from 'node:child_process'
 import type { Client } from '@libsql/client'
@@ -11,7 +11,8 @@ import { birth, reading, payloadOf, topicFor, machineClient, publishAcked, CELL 
 import { machineClientId, type MachineMessage } from '../../shared/utils/contract'
 
 describe('machine data outside the contract', async () => {
-  const owl = await setupOwlshift()
+  // machine clocks are judged here (5 min, the default); the harness turns the check off elsewhere
+  const owl = await setupOwlshift({ OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: '300' })
   let db: Client
   let creds: ReturnType<typeof demoCredentials>
   beforeAll(() => { db = openTestDb(owl.dataDir); creds = demoCredentials(owl.dataDir) })
@@ -95,6 +96,39 @@ describe('machine data outside the contract', async () => {
     const again = await (await fetch(url(`/api/reports/range?cell=${CELL}&machine=cg-03&from=${from}&to=${to}`), { headers: { cookie } })).json() as { completeness: { missingSequenceNumbers: number, gaps: { fromSeq: number, toSeq: number, missing: number }[] } }
     expect(again.completeness.missingSequenceNumbers).toBe(2)
     expect(again.completeness.gaps).toEqual([expect.objectContaining({ fromSeq: 5_000_002, toSeq: 5_000_003, missing: 2 })])
+    await c.endAsync()
+  })
+
+  it('doubts a machine clock far from the server\'s: an alarm says so, and commands and the chart window go by the server\'s clock', async () => {
+    const c = await machineClient(owl.mqttUrl, 'cg-04', creds['cg-04']!.password)
+    const iso = (ms: number) => new Date(ms).toISOString()
+    const live = (seq: number, time: number) => ({ ...reading(seq, 0.1), time: iso(time) }) as MachineMessage
+    const send = (m: MachineMessage) => publishAcked(c, topicFor('cg-04', m), payloadOf(m))
+    const clockAlarm = async () => (await db.execute(`select active, message from alarms where machine_id = 'cg-04' and condition = 'link:clock' order by id desc limit 1`)).rows[0]
+    await send({ ...birth(1), time: iso(Date.now()) } as MachineMessage)
+    await send(live(2, Date.now()))
+    expect(await clockAlarm()).toBeUndefined()
+    // one reading dated 1970: the clock went back
+    await send(live(3, Date.parse('1970-01-01T00:00:05.000Z')))
+    // the lead's hold is dated on the server's clock, not 1970: it does not expire on arrival
+    const cookie = await sessionCookie('cleo@larkspur.example')
+    const sent = await fetch(url('/api/machines/cg-04/commands'), { method: 'POST', headers: { 'content-type': 'application/json', cookie }, body: JSON.stringify({ type: 'hold', confirmed: true }) })
+    expect(sent.status).toBe(200)
+    const { id } = await sent.json() as { id: string }
+    const payload = JSON.parse(String((await db.execute({ sql: 'select payload from commands where id = ?', args: [id] })).rows[0]!.payload)) as { issuedAt: string, expiresAt: string }
+    expect(Math.abs(Date.parse(payload.issuedAt) - Date.now())).toBeLessThan(60_000)
+    expect(Date.parse(payload.expiresAt)).toBeGreaterThan(Date.now())
+    // and an alarm says what is wrong
+    await expect.poll(async () => (await clockAlarm())?.active).toBe(1)
+    expect(String((await clockAlarm())!.message)).toMatch(/Finch: its clock is 5\d years behind its own previous message/)
+    // a reading dated 2099: the chart's hour window stays at the server's clock
+    await send(live(4, Date.parse('2099-06-01T00:00:00.000Z')))
+    const chart = await (await fetch(url('/api/machines/cg-04/readings?range=1h'), { headers: { cookie } })).json() as { from: number, to: number }
+    expect(Math.abs(chart.to - Date.now())).toBeLessThan(60_000)
+    expect(chart.to - chart.from).toBe(3_600_000)
+    // set right: the next reading near the server's clock lifts the doubt
+    await send(live(5, Date.now()))
+    await expect.poll(async () => (await clockAlarm())?.active).toBe(0)
     await c.endAsync()
   })
 })
