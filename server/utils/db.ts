@@ -1,8 +1,8 @@
 // The one database handle. libSQL speaks to a local SQLite file or a libSQL server alike.
 import { createClient, type Client } from '@libsql/client'
 import { drizzle, type LibSQLDatabase } from 'drizzle-orm/libsql'
-import { mkdirSync, accessSync, constants } from 'node:fs'
-import { dirname } from 'node:path'
+import { mkdirSync, accessSync, constants, readdirSync } from 'node:fs'
+import { dirname, join } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import * as schema from '../database/schema'
 import { ConfigError, type OwlshiftConfig } from './config'
@@ -40,6 +40,11 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
   const c = file ? reconnectAfterBusy(raw, CONNECTION_PRAGMAS) : raw
   try {
     if (file) {
+      // Before anything is written: a damaged page otherwise shows up later as some other failure
+      // (the broker's, a migration's). SQLite's quick_check reads every page once
+      // (https://sqlite.org/pragma.html#pragma_quick_check).
+      const problems = (await c.execute('PRAGMA quick_check(5)')).rows.map(r => String(r[0]))
+      if (problems.join() !== 'ok') throw new ConfigError(damagedDatabaseMessage(file, problems.join('; '), config.dataDir))
       // WAL lets readers go on while ingest writes; the busy timeout rides out short lock waits.
       await c.execute('PRAGMA journal_mode = WAL')
       for (const p of CONNECTION_PRAGMAS) await c.execute(p)
@@ -48,11 +53,32 @@ export async function openDatabase(config: OwlshiftConfig): Promise<Db> {
   }
   catch (err) {
     c.close()
-    throw new ConfigError(`Owlshift cannot start: the database at DATABASE_URL "${config.databaseUrl}" cannot be opened (${(err as Error).message}).`)
+    if (err instanceof ConfigError) throw err
+    const why = (err as Error).message
+    if (file && /SQLITE_CORRUPT|SQLITE_NOTADB|malformed|not a database/i.test(`${(err as { code?: string }).code ?? ''} ${why}`)) throw new ConfigError(damagedDatabaseMessage(file, why, config.dataDir))
+    throw new ConfigError(`Owlshift cannot start: the database at DATABASE_URL "${config.databaseUrl}" cannot be opened (${why}).`)
   }
   client = c
   db = drizzle(c, { schema })
   return db
+}
+
+/** What a person reads when the database file is damaged: which file, and how to restore it (docs/operations.md, "Restore"). */
+export function damagedDatabaseMessage(file: string, detail: string, dataDir: string): string {
+  const dir = join(dataDir, 'backups')
+  let backups: string[] = []
+  try { backups = readdirSync(dir).filter(f => /^owlshift-\d{8}T\d{6}Z\.db$/.test(f)).sort().reverse() }
+  catch { /* no backups folder */ }
+  return [
+    `Owlshift cannot start: the database file ${file} is damaged (SQLite integrity check: ${detail.slice(0, 300)}).`,
+    'Nothing was written to it. To restore from a backup:',
+    '  1. Keep Owlshift stopped.',
+    `  2. Move ${file} and its -wal and -shm files aside (keep them: they may still be read).`,
+    backups.length
+      ? `  3. Copy the newest good backup to ${file}: the newest in ${dir} is ${backups[0]}${backups.length > 1 ? ` (then ${backups.slice(1, 3).join(', ')})` : ''}.`
+      : `  3. Copy your newest backup to ${file}: there is none in ${dir}, use one from your own copies.`,
+    '  4. Start Owlshift. Machines resend what they still hold; readings acknowledged after the backup are not in it (docs/operations.md, "Restore").',
+  ].join('\n')
 }
 
 const BUSY_TIMEOUT_MS = 5000

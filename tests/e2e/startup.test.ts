@@ -2,7 +2,8 @@
 // unwritable data folder; the session password is required.
 import { describe, it, expect } from 'vitest'
 import { spawnSync } from 'node:child_process'
-import { mkdtempSync, writeFileSync } from 'node:fs'
+import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs'
+import { createClient } from '@libsql/client'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { rootDir } from './harness'
@@ -15,6 +16,29 @@ function start(env: Record<string, string>) {
 }
 
 describe('start-up checks', () => {
+  it('says plainly which database file is damaged and how to restore it, instead of blaming the broker', async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'owl-'))
+    const file = join(dir, 'owlshift.db')
+    // a database of a few hundred pages, then one page in the middle overwritten (a bad disk block)
+    const db = createClient({ url: `file:${file}` })
+    await db.execute('create table t (id integer primary key, v text)')
+    await db.execute(`with recursive n(i) as (select 1 union all select i + 1 from n where i < 20000) insert into t select i, printf('%040d', i) from n`)
+    await db.execute('create index t_v on t (v)')
+    db.close()
+    const bytes = readFileSync(file)
+    const page = 4096
+    bytes.fill(0x5a, 300 * page, 301 * page) // an index page: opening the file and reading its header go fine
+    writeFileSync(file, bytes)
+    mkdirSync(join(dir, 'backups'))
+    writeFileSync(join(dir, 'backups', 'owlshift-20261203T020000Z.db'), '')
+    writeFileSync(join(dir, 'backups', 'owlshift-20261204T020000Z.db'), '')
+    const r = start({ OWLSHIFT_DATA_DIR: dir, MQTT_PORT: '0' })
+    expect(r.status).toBe(1)
+    expect(r.stderr).toContain(`the database file ${file} is damaged`)
+    expect(r.stderr).toContain('the newest in')
+    expect(r.stderr).toContain('owlshift-20261204T020000Z.db (then owlshift-20261203T020000Z.db)')
+    expect(r.stdout + r.stderr).not.toMatch(/MQTT_PORT|Listening/)
+  })
   it('refuses a DATABASE_URL that is not libSQL', () => {
     const r = start({ OWLSHIFT_DATA_DIR: mkdtempSync(join(tmpdir(), 'owl-')), DATABASE_URL: 'mysql://db/owl' })
     expect(r.status).toBe(1)
