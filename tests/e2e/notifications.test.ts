@@ -165,7 +165,8 @@ describe('notifications', async () => {
     await c.endAsync()
     const toast = page.locator('[data-test=in-page-alert]').filter({ hasText: 'Coolant fault' })
     await toast.waitFor({ timeout: 10_000 })
-    expect(await toast.innerText()).toMatch(/High priority · .*coolant fault — flow low[\s\S]*In-page alert: shown while Owlshift is open/)
+    // The one priority mark (bars and its word), then machine and title, then the message in the user's words.
+    expect(await toast.innerText()).toMatch(/^high\s+Wren: Coolant fault\s+Wren: coolant fault — flow low[\s\S]*In-page alert: shown while Owlshift is open/)
     for (const [name, viewport] of [['desktop', { width: 1440, height: 900 }], ['phone', { width: 390, height: 844 }]] as const) {
       await page.setViewportSize(viewport)
       for (const theme of ['dark', 'light']) {
