@@ -1,6 +1,6 @@
 import { fileURLToPath } from 'node:url'
 
-// Owlshift — Nuxt configuration. Root-level layout (srcDir '.') as in the design card.
+// Owlshift — Nuxt configuration. Root-level layout (srcDir '.'): docs/architecture.md#folders.
 export default defineNuxtConfig({
   compatibilityDate: '2026-06-01',
   srcDir: '.',

@@ -1,13 +1,13 @@
 // ISO 286 shaft fits: the limits of a shaft tolerance class such as h6 or g5 for a nominal
 // diameter. Pure: no I/O. Units: diameter in mm, deviations in µm (upper = es, lower = ei).
 //
-// Sources:
+// Sources (docs/jobs.md#tolerance-from-an-iso-286-fit):
 // - Standard tolerance grades: ISO 286-1:2010, table 1 (standard tolerance grades IT1–IT18).
-//   IT5 and IT6 are checked against reference-values §5; IT3, IT4, IT7 and IT8 are from memory
+//   IT5 and IT6 as reproduced in engineering references; IT3, IT4, IT7 and IT8 are from memory
 //   of the same table.
 // - Fundamental deviations of shafts: ISO 286-2:2010 / ISO 286-1 table 2 (shafts a–zc), from
 //   memory for the letters below; the tests check whole classes against values printed in
-//   engineering handbooks (also from memory) and h6 against reference-values §5.
+//   engineering handbooks (also from memory) and h6 as 0 / −IT6.
 
 /** Diameter steps of ISO 286-1 up to 30 mm: "over … up to and including" (mm). */
 const STEPS_MM = [3, 6, 10, 18, 30] as const
@@ -16,8 +16,8 @@ const STEPS_MM = [3, 6, 10, 18, 30] as const
 const IT_UM: Record<number, readonly number[]> = {
   3: [2, 2.5, 2.5, 3, 4], // from memory
   4: [3, 4, 4, 5, 6], // from memory
-  5: [4, 5, 6, 8, 9], // reference-values §5
-  6: [6, 8, 9, 11, 13], // reference-values §5
+  5: [4, 5, 6, 8, 9], // ISO 286-1 table 1, as reproduced in engineering references
+  6: [6, 8, 9, 11, 13], // ISO 286-1 table 1, as reproduced in engineering references
   7: [10, 12, 15, 18, 21], // from memory
   8: [14, 18, 22, 27, 33], // from memory
 }
