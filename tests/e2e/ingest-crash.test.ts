@@ -1,6 +1,6 @@
 // Kill -9 the server while the simulator publishes a few hundred messages a second; restart it.
 // Every sequence number must be in the database exactly once, and the simulator must have
-// nothing left unacknowledged (design invariants 1 and 2).
+// nothing left unacknowledged (invariants 1 and 2, docs/architecture.md#the-ingest-invariants-and-where-they-hold).
 import { describe, it, expect } from 'vitest'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'

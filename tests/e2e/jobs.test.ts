@@ -41,7 +41,7 @@ describe('jobs', async () => {
     expect(res.status).toBe(200)
     expect(await res.json()).toEqual({ imported: 2 })
     const row = (await db.execute(`select upper_tol_nm, lower_tol_nm, iso_fit from jobs where part_number = 'QZ-2'`)).rows[0]!
-    expect([row.upper_tol_nm, row.lower_tol_nm, row.iso_fit]).toEqual([0, -8000, 'h5']) // h5 at 12 mm (reference-values §5)
+    expect([row.upper_tol_nm, row.lower_tol_nm, row.iso_fit]).toEqual([0, -8000, 'h5']) // h5 at 12 mm (ISO 286, docs/jobs.md#tolerance-from-an-iso-286-fit)
     const exported = await (await call('viewer', 'GET', '/api/jobs/export')).text()
     expect(exported).toContain('QZ-2,"Shank, long",steel,in-feed,12,h5,')
     expect(await count(`select count(*) from audit_log where action = 'job.import'`)).toBe(1)

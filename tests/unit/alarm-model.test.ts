@@ -338,7 +338,7 @@ describe('rate metrics (EEMUA 191 via UK HSE; ISA-18.2 figures from memory, docs
   it('150 a day is about one per ten minutes and very likely acceptable', () => {
     const m = alarmRateMetrics(evenly(150), { from: T0, to: T0 + DAY })
     expect(m.perDay).toBe(150)
-    expect(m.averagePerTenMinutes).toBeCloseTo(150 / 144, 10) // ≈ 1 per 10 min (reference §8)
+    expect(m.averagePerTenMinutes).toBeCloseTo(150 / 144, 10) // ≈ 1 per 10 min (EEMUA 191, docs/alarms.md#the-practice-in-short-from-memory)
     expect(m.tenMinuteWindows).toBe(144)
     expect(m.verdict).toBe('very-likely-acceptable')
     expect(m.floodWindowShare).toBe(0)

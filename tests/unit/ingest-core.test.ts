@@ -1,5 +1,6 @@
-// The ingest pipeline against its invariants (docs: design notes "Invariants"), run outside Nitro on
-// a real SQLite file with the native writer (tests/support/server-harness.ts).
+// The ingest pipeline against its invariants, run outside Nitro on a real SQLite file with the
+// native writer (tests/support/server-harness.ts). The invariants, numbered as the tests below
+// name them: docs/architecture.md#the-ingest-invariants-and-where-they-hold.
 import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'

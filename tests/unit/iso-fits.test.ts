@@ -1,14 +1,15 @@
 import { describe, it, expect } from 'vitest'
 import { isoShaftLimits, isoToleranceGradeUm, parseIsoShaftFit } from '../../shared/utils/iso-fits'
 
-// reference-values §5: ISO 286-1 table of standard tolerance grades (µm).
+// ISO 286-1 table of standard tolerance grades (µm), as reproduced in engineering references
+// (docs/jobs.md#tolerance-from-an-iso-286-fit).
 const REFERENCE_IT: [number, number, number][] = [
   // [diameter mm inside the step, IT5, IT6]
   [3, 4, 6], [1, 4, 6], [3.175, 5, 8], [6, 5, 8], [6.3, 6, 9], [10, 6, 9], [12, 8, 11], [18, 8, 11], [18.01, 9, 13], [30, 9, 13],
 ]
 
 describe('ISO 286-1 standard tolerance grades', () => {
-  it.each(REFERENCE_IT)('at %s mm IT5 = %s µm, IT6 = %s µm (reference-values §5)', (d, it5, it6) => {
+  it.each(REFERENCE_IT)('at %s mm IT5 = %s µm, IT6 = %s µm (ISO 286-1 table 1)', (d, it5, it6) => {
     expect(isoToleranceGradeUm(5, d)).toBe(it5)
     expect(isoToleranceGradeUm(6, d)).toBe(it6)
   })
@@ -23,13 +24,13 @@ describe('ISO 286-1 standard tolerance grades', () => {
 })
 
 describe('ISO 286-2 shaft limits', () => {
-  // reference-values §5: h6 has upper deviation 0 and lower deviation −IT6.
-  it.each(REFERENCE_IT)('h6 at %s mm is 0 / −IT6 (reference-values §5)', (d, _it5, it6) => {
+  // ISO 286-2: h6 has upper deviation 0 and lower deviation −IT6 (docs/jobs.md#tolerance-from-an-iso-286-fit).
+  it.each(REFERENCE_IT)('h6 at %s mm is 0 / −IT6 (ISO 286-2)', (d, _it5, it6) => {
     const l = isoShaftLimits('h6', d)
     expect(l.upperUm).toBe(0)
     expect(l.lowerUm).toBe(-it6)
   })
-  it('h5 at 12 mm is 0 / −8 µm (h: es = 0, IT5 from reference-values §5)', () => {
+  it('h5 at 12 mm is 0 / −8 µm (h: es = 0, IT5 from ISO 286-1 table 1)', () => {
     expect(isoShaftLimits('h5', 12)).toMatchObject({ upperUm: 0, lowerUm: -8, itUm: 8 })
   })
   // Whole classes as printed in engineering handbook fit tables (ISO 286-2 extracts), from memory.

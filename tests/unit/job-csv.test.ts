@@ -39,7 +39,7 @@ describe('jobs CSV', () => {
     expect(problems).toEqual([])
     expect(rows.map(r => [r.line, r.values.partNumber, r.values.upperTolNm, r.values.lowerTolNm])).toEqual([
       [2, 'QX-100', 2000, -2000],
-      [3, 'QX-101', 0, -8000], // h5 at 12 mm: 0 / −IT5 = −8 µm (reference-values §5)
+      [3, 'QX-101', 0, -8000], // h5 at 12 mm: 0 / −IT5 = −8 µm (ISO 286-1/-2, docs/jobs.md#tolerance-from-an-iso-286-fit)
       [4, 'QX-102', -7000, -20000], // g6 at 25 mm: −7 / −20 µm (ISO 286-2, from memory)
     ])
     expect(rows[1]!.values.description).toBe('Shaft, long')

@@ -1,7 +1,7 @@
 // The libSQL test server (tests/support/libsql-http-server.ts) driven by the real @libsql/client over
 // http:// and ws://, checked against two outside references: the same statements through @libsql/client's
 // local-file mode (native SQLite, no server in between), and the Hrana 2/3 and HTTP API v2
-// specifications (docs/HRANA_2_SPEC.md, HRANA_3_SPEC.md, HTTP_V2_SPEC.md in tursodatabase/libsql)
+// specifications (HRANA_2_SPEC.md, HRANA_3_SPEC.md, HTTP_V2_SPEC.md in the docs folder of tursodatabase/libsql)
 // for what goes over the wire.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { createClient, type Client, type InStatement } from '@libsql/client'

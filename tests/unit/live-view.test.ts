@@ -1,5 +1,5 @@
 // The live cell's pure helpers against outside references: capability per ISO 22514-2 naming with
-// σ_within = MR̄/d2 (d2 = 1.128 for n = 2, reference-values §1) recomputed with simple-statistics;
+// σ_within = MR̄/d2 (d2 = 1.128 for n = 2, docs/spc.md#control-chart-constants) recomputed with simple-statistics;
 // file signatures from the JPEG, PNG and WebP specifications; shift starts across a daylight-saving
 // change checked against hand-worked UTC instants.
 import { describe, it, expect } from 'vitest'
@@ -15,13 +15,14 @@ import {
 /** Cpk by hand from simple-statistics: individuals, σ_within = mean |x_i − x_{i−1}| / d2(2). */
 function referenceCpk(xs: number[], lsl: number, usl: number) {
   const mr = ss.mean(xs.slice(1).map((x, i) => Math.abs(x - xs[i]!)))
-  const sigma = mr / (2 / Math.sqrt(Math.PI)) // d2(2) = 2/√π = 1.1284, the table's 1.128 (reference-values §1) unrounded
+  const sigma = mr / (2 / Math.sqrt(Math.PI)) // d2(2) = 2/√π = 1.1284, the Pyzdek table's 1.128 unrounded (docs/spc.md#control-chart-constants)
   const mu = ss.mean(xs)
   return Math.min(usl - mu, mu - lsl) / (3 * sigma)
 }
 
 describe('liveRollingCpk', () => {
-  it('worked example: μ 0.5, σ_within 0.5, limits ±3 µm → Cpk 1.667 (reference-values §4, derived check)', () => {
+  // docs/spc.md#capability
+  it('worked example: μ 0.5, σ_within 0.5, limits ±3 µm → Cpk 1.667 (derived from the formulas)', () => {
     // Alternating μ ± h gives every moving range 2h, so σ_within = 2h/1.128 = 0.5 when h = 0.282.
     const xs = Array.from({ length: 40 }, (_, i) => 0.5 + (i % 2 ? 0.282 : -0.282))
     const r = liveRollingCpk(xs, -3, 3)!

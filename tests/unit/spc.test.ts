@@ -24,7 +24,7 @@ function normalStream(seed: number) {
 }
 
 // Montgomery, Introduction to SQC, 30 individual values (μ0 = 10, σ = 1), as reproduced in the
-// IMSL chart documentation's EWMA example (reference-values §3).
+// IMSL chart documentation's EWMA example (docs/spc.md#ewma-and-cusum-charts).
 const MONTGOMERY = [
   9.45, 7.99, 9.29, 11.66, 12.16, 10.18, 8.04, 11.46, 9.2, 10.34, 9.03, 11.47, 10.51, 9.4, 10.08,
   9.37, 10.62, 10.31, 8.52, 10.84, 10.9, 9.33, 12.29, 11.5, 10.6, 11.08, 10.38, 11.62, 11.31, 10.52,
@@ -35,7 +35,7 @@ describe('basic statistics', () => {
   const sample = Array.from({ length: 257 }, () => 3 + 0.7 * rnd())
 
   it('mean and standard deviation agree with simple-statistics', () => {
-    // Cross-check against the general-purpose library simple-statistics (reference-values §1, last line).
+    // Cross-check against the general-purpose library simple-statistics (docs/spc.md#a-second-oracle).
     expect(spcMean(sample)).toBeCloseTo(ss.mean(sample), 12)
     expect(spcSampleStdDev(sample)).toBeCloseTo(ss.sampleStandardDeviation(sample), 12)
     expect(spcOverallSigma(sample)).toBeCloseTo(ss.sampleStandardDeviation(sample), 12)
@@ -65,7 +65,8 @@ describe('basic statistics', () => {
     expect(Math.exp(spcLogGamma(3.7))).toBeCloseTo(ss.gamma(3.7), 6)
   })
 
-  it('moving-range σ is MR̄/1.128 (reference-values §1: individuals use moving ranges of 2)', () => {
+  // docs/spc.md#chart-limits: individuals use moving ranges of 2.
+  it('moving-range σ is MR̄/1.128 (d2 at n = 2, Pyzdek table)', () => {
     const v = [1, 3, 2, 5, 4]
     expect(spcAverageMovingRange(v)).toBe((2 + 1 + 3 + 1) / 4)
     expect(Math.abs(spcWithinSigmaMovingRange(v) / (1.75 / 1.128) - 1)).toBeLessThan(1e-3)
@@ -89,7 +90,7 @@ describe('basic statistics', () => {
 
 describe('control chart constants computed from their formulas', () => {
   // Standard SPC constant tables: Pyzdek, Handbook for Quality Management, appendix; also ASTM E2587
-  // (reference-values §1), compared to 1e-3.
+  // (docs/spc.md#control-chart-constants), compared to 1e-3.
   const table: Record<number, number[]> = {
     //    A2     A3     d2     d3     c4      D3     D4     B3     B4     E2
     2: [1.88, 2.659, 1.128, 0.853, 0.7979, 0, 3.267, 0, 3.267, 2.659],
@@ -126,7 +127,8 @@ describe('Shewhart chart limits', () => {
     [10.4, 10.1, 9.7, 10.0, 10.3],
     [9.6, 10.0, 10.2, 9.9, 10.1],
   ]
-  it('X̄-R uses X̿ ± A2·R̄ and D3·R̄…D4·R̄ (Pyzdek table, reference-values §1, n = 5)', () => {
+  // docs/spc.md#chart-limits
+  it('X̄-R uses X̿ ± A2·R̄ and D3·R̄…D4·R̄ (Pyzdek table, n = 5)', () => {
     const c = spcXbarRLimits(groups)
     const rBar = (0.4 + 0.7 + 0.6) / 3
     const grand = ss.mean(groups.map((g) => ss.mean(g)))
@@ -137,7 +139,7 @@ describe('Shewhart chart limits', () => {
     expect(c.range.lcl).toBe(0)
     expect(c.sigmaWithin).toBeCloseTo(rBar / 2.326, 3)
   })
-  it('X̄-s uses X̿ ± A3·s̄ and B3·s̄…B4·s̄ (Pyzdek table, reference-values §1, n = 5)', () => {
+  it('X̄-s uses X̿ ± A3·s̄ and B3·s̄…B4·s̄ (Pyzdek table, n = 5)', () => {
     const c = spcXbarSLimits(groups)
     const sBar = ss.mean(groups.map((g) => ss.sampleStandardDeviation(g)))
     expect(c.xbar.ucl - c.xbar.center).toBeCloseTo(1.427 * sBar, 3)
@@ -145,7 +147,7 @@ describe('Shewhart chart limits', () => {
     expect(c.stdDev.lcl).toBe(0)
     expect(c.sigmaWithin).toBeCloseTo(sBar / 0.94, 3)
   })
-  it('individuals chart uses X̄ ± 2.659·MR̄ and MR UCL 3.267·MR̄ (reference-values §1, n = 2)', () => {
+  it('individuals chart uses X̄ ± 2.659·MR̄ and MR UCL 3.267·MR̄ (Pyzdek table, n = 2)', () => {
     const c = spcIndividualsLimits(MONTGOMERY)
     const mr = spcAverageMovingRange(MONTGOMERY)
     expect(c.individuals.ucl).toBeCloseTo(ss.mean(MONTGOMERY) + 2.659 * mr, 2)
@@ -154,7 +156,8 @@ describe('Shewhart chart limits', () => {
 })
 
 describe('capability', () => {
-  it('USL/LSL ±3 µm, μ 0.5, σ 0.5 → Cp 2.000, Cpk 1.667 (reference-values §4, derived check)', () => {
+  // docs/spc.md#capability
+  it('USL/LSL ±3 µm, μ 0.5, σ 0.5 → Cp 2.000, Cpk 1.667 (derived from the formulas)', () => {
     const c = spcCapability({ mean: 0.5, withinSigma: 0.5, overallSigma: 0.5, usl: 3, lsl: -3 })
     expect(c.cp).toBeCloseTo(2, 3)
     expect(c.cpk).toBeCloseTo(1.667, 3)
@@ -174,14 +177,15 @@ describe('capability', () => {
 })
 
 describe('EWMA and CUSUM worked examples', () => {
-  it('tabular CUSUM k = 0.5, h = 5 first signals at observation 29 with C⁺ = 5.28, C⁺30 = 5.30 (Montgomery via IMSL, reference-values §3)', () => {
+  // docs/spc.md#ewma-and-cusum-charts
+  it('tabular CUSUM k = 0.5, h = 5 first signals at observation 29 with C⁺ = 5.28, C⁺30 = 5.30 (Montgomery via IMSL)', () => {
     const pts = spcCusumChart(MONTGOMERY, { target: 10, sigma: 1, k: 0.5, h: 5 })
     const first = pts.findIndex((p) => p.signal)
     expect(first + 1).toBe(29)
     expect(pts[28]!.upper).toBeCloseTo(5.28, 2)
     expect(pts[29]!.upper).toBeCloseTo(5.3, 2)
   })
-  it('EWMA λ 0.10, L 2.7, exact limits first signals at observation 29, z 10.6468 > UCL 10.6187 (Montgomery via IMSL, reference-values §3)', () => {
+  it('EWMA λ 0.10, L 2.7, exact limits first signals at observation 29, z 10.6468 > UCL 10.6187 (Montgomery via IMSL)', () => {
     const pts = spcEwmaChart(MONTGOMERY, { target: 10, sigma: 1, lambda: 0.1, L: 2.7, limits: 'exact' })
     const first = pts.findIndex((p) => p.signal)
     expect(first + 1).toBe(29)
@@ -203,7 +207,7 @@ describe('EWMA and CUSUM worked examples', () => {
     expect(ex[29]!.ucl).toBeLessThan(as[29]!.ucl)
     expect(as[29]!.ucl - as[0]!.ucl).toBe(0)
   })
-  it('EWMA λ 0.10, L 2.814 has in-control ARL ≈ 500 (Lucas & Saccucci 1990, reference-values §3; simulated)', () => {
+  it('EWMA λ 0.10, L 2.814 has in-control ARL ≈ 500 (Lucas & Saccucci 1990; simulated)', () => {
     const rnd = normalStream(123)
     const runs = 1200
     let total = 0
@@ -223,7 +227,7 @@ describe('run rules', () => {
   const c = { center: 0, sigma: 1 }
   const fired = (values: number[], rules = SPC_NELSON_RULES) => spcRunRules(values, { ...c, rules })
 
-  // Western Electric Statistical Quality Control Handbook (1956), zone rules (reference-values §2).
+  // Western Electric Statistical Quality Control Handbook (1956), zone rules (docs/spc.md#run-rules).
   it('WE rule 1: one point beyond 3σ', () => {
     expect(spcRunRules([0, 0.5, 3.2, 0], c)).toEqual([{ rule: 'we-1', index: 2 }])
   })
@@ -240,7 +244,7 @@ describe('run rules', () => {
     expect(spcRunRules(v, c)).toEqual([{ rule: 'we-4', index: 7 }, { rule: 'we-4', index: 8 }])
     expect(spcRunRules(v.slice(0, 7), c)).toEqual([])
   })
-  it('WE rules: in-control ARL ≈ 370 for rule 1 alone and ≈ 92 for all four (reference-values §2; simulated)', () => {
+  it('WE rules: in-control ARL ≈ 370 for rule 1 alone and ≈ 92 for all four (Western Electric handbook; simulated)', () => {
     const rnd = normalStream(99)
     const arl = (rules: Parameters<typeof spcRunRules>[1]['rules'], runs: number, len: number) => {
       let total = 0
@@ -259,7 +263,7 @@ describe('run rules', () => {
     expect(a4).toBeLessThan(92 * 1.07)
   })
 
-  // L. S. Nelson, Journal of Quality Technology 16(4), 1984 (reference-values §2).
+  // L. S. Nelson, Journal of Quality Technology 16(4), 1984 (docs/spc.md#run-rules).
   it('Nelson 2: nine in a row on one side (not eight)', () => {
     expect(fired(Array(9).fill(-0.5)).filter((v) => v.rule === 'nelson-2')).toEqual([{ rule: 'nelson-2', index: 8 }])
     expect(fired(Array(8).fill(-0.5)).filter((v) => v.rule === 'nelson-2')).toEqual([])

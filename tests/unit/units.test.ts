@@ -2,7 +2,7 @@ import { describe, it, expect } from 'vitest'
 import { mmToInch, inchToMm, umToMicroinch, microinchToUm, umToTenths, formatDeviation, formatSize, formatTolerance, deviationFromUnit, sizeFromUnit } from '../../shared/utils/units'
 
 // Source: international yard and pound agreement (1959): 1 in = 25.4 mm exactly
-// (reference-values §6).
+// (docs/units.md#conversions).
 describe('inch definition', () => {
   it('1 in is 25.4 mm exactly, both ways', () => {
     expect(inchToMm(1)).toBe(25.4)

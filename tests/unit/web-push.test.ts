@@ -7,7 +7,8 @@ import webpush from 'web-push'
 import { startFakePushService, checkVapid, decryptPush, type FakePushService } from '../helpers/fake-push-service'
 import { sendWebPush, newVapidKeys } from '../../server/utils/web-push-send'
 
-describe('RFC 8291 §5 worked example (reference-values §10)', () => {
+// docs/notifications.md#tests
+describe('RFC 8291 §5 worked example', () => {
   it('decrypts the published message to the published plaintext', () => {
     // RFC 8291 §5, Figure "Example of Encrypted Message": receiver key, auth secret and body.
     const receiverPrivate = Buffer.from('q1dXpw3UpT5VOmu_cf_v6ih07Aems3njxI-JWgLcM94', 'base64url')
