@@ -14,7 +14,7 @@ import { applyAlarmAction, alarmCreateRecord, isAlarmChattering, type AlarmActio
 import { alarmKindFor, alarmView, type AlarmKind } from '#shared/utils/alarm-catalogue'
 
 type AlarmRow = typeof schema.alarms.$inferSelect
-export const MAX_SHELVE_MS = 12 * 60 * 60 * 1000 // a night shift; common practice
+export const MAX_SHELVE_MS = 12 * 60 * 60 * 1000 // a night shift; common practice (docs/alarms.md#the-practice-in-short-from-memory)
 const BAD_DATA_WINDOW_MS = 10 * 60_000
 const BAD_DATA_THRESHOLD = 5
 

@@ -1,6 +1,6 @@
 // How large a request body each route takes, decided from its headers before any of it is read
 // (server/middleware/0.body-limit.ts). JSON forms are small; the two routes that carry files get
-// room for them. docs/operations.md, "Request size".
+// room for them. docs/operations.md#request-size.
 import type { H3Event } from 'h3'
 
 const KB = 1024

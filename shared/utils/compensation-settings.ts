@@ -3,7 +3,7 @@
 // Units: every size, limit and deviation is µm of DIAMETER deviation from nominal; every offset
 // (max step, budget since dress, allowed range, minimum step) is µm of AXIS offset. A positive
 // offset makes parts larger by gain × offset. Defaults marked "common practice" come from the
-// trade (docs/compensation.md, "Sources and trade facts"), not from a published source.
+// trade (docs/compensation.md#sources-and-trade-facts), not from a published source.
 import { z } from 'zod'
 
 const finite = z.number()
@@ -42,7 +42,7 @@ export const compensationSettingsSchema = z
     drift: z
       .object({
         /** level weight λ1 and slope weight λ2 of the double EWMA: at ξ = 1 the closed loop has
-         *  the poles 1 − λ1 and 1 − λ2 (docs/compensation.md, "Sources"); defaults tuned by npm run bench:control */
+         *  the poles 1 − λ1 and 1 − λ2 (docs/compensation.md#sources-and-trade-facts); defaults tuned by npm run bench:control */
         levelWeight: z.number().gt(0).max(1).default(0.15),
         slopeWeight: z.number().gt(0).max(1).default(0.02),
       })
@@ -78,7 +78,7 @@ export const compensationSettingsSchema = z
     /** readings without feedback commands after each event; dress, wheel change, job change and
      *  restart are raised to at least the pipeline, so parts ground before the event never steer.
      *  0 (the default) = the pipeline only: the first part ground after the event is used at once
-     *  (docs/compensation.md, "Through a dress") */
+     *  (docs/compensation.md#through-a-dress) */
     holdParts: z
       .object({
         dress: parts(0, 1000).default(0),
@@ -101,7 +101,7 @@ export const compensationSettingsSchema = z
         roundnessLimitUm: positive.optional(),
         /** what the machine does to its wheel offset at a dress or wheel change when it does not
          *  report the new offset: keeps it, gives back the offset taken since the last dress, or
-         *  resets it (docs/compensation.md, "Through a dress") */
+         *  resets it (docs/compensation.md#through-a-dress) */
         machineOffset: z.enum(DRESS_MACHINE_OFFSET).default('keeps'),
         /** learn how far each dress's predicted step was off and add it to the next prediction */
         learnStep: z.boolean().default(true),

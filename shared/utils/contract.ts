@@ -57,7 +57,7 @@ export const mqttTopics = {
 }
 
 /**
- * Why a message's delivery breaks the contract (docs/mqtt.md, "Connection"), or null. QoS 0 is never
+ * Why a message's delivery breaks the contract (docs/mqtt.md#qos-and-retain-are-enforced), or null. QoS 0 is never
  * acknowledged, so a message lost on the way is never sent again and nobody knows; a retained
  * reading, event or ack would be handed again to every new subscriber as if it were new. Unknown
  * (undefined) QoS or retain flags pass: not every path can tell.
@@ -70,7 +70,7 @@ export function deliveryBreach(kind: MachineTopicKind, qos: number | undefined, 
 
 /**
  * The one MQTT client id a machine may connect with: its session (and the commands queued in it)
- * belongs to its account, so no other account can take it over (docs/mqtt.md, "Connection").
+ * belongs to its account, so no other account can take it over (docs/mqtt.md#a-session-belongs-to-its-machines-account).
  */
 export function machineClientId(cell: string, machine: string): string {
   topic(cell, machine, 'presence') // checks both ids

@@ -6,7 +6,7 @@ import { spcCapability, spcMean, spcOverallSigma, spcWithinSigmaMovingRange } fr
 import type { AlarmActionKind } from './alarm-model'
 import { shiftAt, type ShiftCalendar, type ShiftWindow } from './shift-calendar'
 
-export const LIVE_CPK_WINDOW = 125 // common practice: ≥ 100 individual parts for a capability figure
+export const LIVE_CPK_WINDOW = 125 // common practice: ≥ 100 individual parts for a capability figure (docs/spc.md#capability)
 export const LIVE_TREND_POINTS = 60
 
 /** Cpk of the last parts (individuals; within σ from the moving range). Null when not computable. */

@@ -1,4 +1,4 @@
-// Whether a machine's clock can be trusted (docs/mqtt.md, "Machine clocks"). Owlshift keeps the
+// Whether a machine's clock can be trusted (docs/mqtt.md#machine-clocks). Owlshift keeps the
 // machine's time on everything it stores, and dates the commands it sends on the machine's clock
 // (the machine judges their expiry). A clock far from the server's would make those commands
 // expire on arrival or live for years, and move the machine page's time window, so such a clock

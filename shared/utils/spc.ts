@@ -6,6 +6,7 @@
 //   d3(n)² = 2∬_{x<y} [1 − Φ(y)^n − (1−Φ(x))^n + (Φ(y)−Φ(x))^n] dx dy − d2²
 //   c4(n) = √(2/(n−1)) · Γ(n/2) / Γ((n−1)/2)
 // (formulas as in the SAS/QC documentation "Deriving control chart constants").
+// Sources, published tables and worked checks for everything here: docs/spc.md.
 
 // ---------------------------------------------------------------- basic statistics
 

@@ -1,4 +1,4 @@
-// What a machine's dress or wheel change tells the compensation engine (docs/mqtt.md, "Events"):
+// What a machine's dress or wheel change tells the compensation engine (docs/mqtt.md#event):
 // the offset the control now has when it changed it at the event, and for a dress the parts the
 // machine ground since its last dress. One mapping for ingest, replay and the simulator's loop.
 import type { CompensationInput } from './compensation'

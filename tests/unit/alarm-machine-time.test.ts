@@ -1,7 +1,7 @@
 // Machine time beside server time: every alarm transition a machine message causes, and every
 // presence change, carries the machine's clock as well as the server's receive time. A backlog that
 // arrives hours late (store and forward after an outage) must still land in the shift its messages
-// belong to (docs/report-time-model.md, "Two clocks").
+// belong to (docs/report-time-model.md#two-clocks).
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { asc, eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'

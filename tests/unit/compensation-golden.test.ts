@@ -103,7 +103,7 @@ describe('compensation engine: golden decisions (recorded before the speed work)
     // Re-recorded 2026-12-01 after the closed loop started numbering readings for the engine (it
     // had passed the message number, which also counts events: the engine took ~4 parts per
     // reading as missing, dressed too often and ended holds early).
-    // Re-recorded 2026-12-04 for the dress (docs/compensation.md, "Through a dress"): the plant now
+    // Re-recorded 2026-12-04 for the dress (docs/compensation.md#through-a-dress): the plant now
     // takes the wear since the last dress off at a dress (docs/plant-model.md) and the demo shop's
     // machines keep, give back or reset their offset; the engine predicts and pre-corrects the
     // step, re-learns from the first part after an event, forgives rejects ground before a

@@ -69,13 +69,13 @@ function feed(state: CompensationState, inputs: CompensationInput[]) {
 // ---------------------------------------------------------------- settings
 
 describe('settings', () => {
-  it('default target is mid-tolerance and compensation limits sit at 60 % of the half tolerance (common practice: 50–70 %, docs/compensation.md "Sources and trade facts")', () => {
+  it('default target is mid-tolerance and compensation limits sit at 60 % of the half tolerance (common practice: 50–70 %, docs/compensation.md#sources-and-trade-facts)', () => {
     const s = parseCompensationSettings({ upperSpecUm: 4, lowerSpecUm: -2 })
     expect(s.targetUm).toBe(1)
     expect(s.upperCompUm).toBeCloseTo(1 + 0.6 * 3, 12)
     expect(s.lowerCompUm).toBeCloseTo(1 - 0.6 * 3, 12)
     expect(s.strategy).toBe('drift')
-    expect(s.pipelineParts).toBe(3) // 2–5 parts between wheel and gauge (common practice, docs/compensation.md "Sources and trade facts")
+    expect(s.pipelineParts).toBe(3) // 2–5 parts between wheel and gauge (common practice, docs/compensation.md#sources-and-trade-facts)
   })
   it('resolved settings parse again to the same value (idempotent, JSON-safe)', () => {
     const s = parseCompensationSettings({ upperSpecUm: 2, lowerSpecUm: -2, dress: { policy: 'adaptive' } })
@@ -89,7 +89,7 @@ describe('settings', () => {
     expect(() => createCompensationState({ upperSpecUm: 1, lowerSpecUm: -1, targetUm: 5 })).toThrow(/targetUm must lie inside/)
     expect(() => createCompensationState({ upperSpecUm: 1, lowerSpecUm: -1 }, { offsetUm: Infinity })).toThrow(/initial offset/)
   })
-  it('Holt weights put the error poles at 1 − λ1 and 1 − λ2 (double EWMA at ξ = 1, docs/compensation.md "Sources", derived)', () => {
+  it('Holt weights put the error poles at 1 − λ1 and 1 − λ2 (double EWMA at ξ = 1, docs/compensation.md#sources-and-trade-facts, derived)', () => {
     const { alpha, beta } = compensationHoltWeights(0.3, 0.1)
     // z² + (α + αβ − 2)z + (1 − α) must have the roots 0.7 and 0.9.
     for (const z of [0.7, 0.9]) expect(z * z + (alpha + alpha * beta - 2) * z + (1 - alpha)).toBeCloseTo(0, 12)
@@ -114,7 +114,7 @@ describe('control laws against the run-to-run literature', () => {
     expect(decision.command!.correctionUm).toBeCloseTo(1.2 * decision.command!.offsetDeltaUm, 12)
   })
 
-  it('ewma bias under a linear drift is δ·(d + 1/λ)/ξ: λ 0.3, δ 0.02, d 3, ξ 1 → 0.127 µm (Ingolfsson & Sachs 1993 model, derived: docs/compensation.md "Sources")', () => {
+  it('ewma bias under a linear drift is δ·(d + 1/λ)/ξ: λ 0.3, δ 0.02, d 3, ξ 1 → 0.127 µm (Ingolfsson & Sachs 1993 model, derived: docs/compensation.md#sources-and-trade-facts)', () => {
     const { y } = runLoop({ settings: { ...BASE, strategy: 'ewma', pipelineParts: 3, ewma: { lambda: 0.3 } }, parts: 600, disturbance: (k) => 0.02 * k })
     expect(y.at(-1)!).toBeCloseTo(0.127, 3)
   })
@@ -131,7 +131,7 @@ describe('control laws against the run-to-run literature', () => {
     }
   })
 
-  it('drift: at ξ = 1 the deviations decay with the poles 1 − λ1 and 1 − λ2 (docs/compensation.md "Sources", derived)', () => {
+  it('drift: at ξ = 1 the deviations decay with the poles 1 − λ1 and 1 − λ2 (docs/compensation.md#sources-and-trade-facts, derived)', () => {
     const l1 = 0.3
     const l2 = 0.1
     const d = 2

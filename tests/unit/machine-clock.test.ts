@@ -1,4 +1,4 @@
-// When a machine's clock is doubted (shared/utils/machine-clock.ts, docs/mqtt.md "Machine clocks").
+// When a machine's clock is doubted (shared/utils/machine-clock.ts, docs/mqtt.md#machine-clocks).
 import { describe, it, expect } from 'vitest'
 import { judgeMachineClock, clockSpanWords, commandClockOffsetMs, trustedClock, type MachineClock } from '../../shared/utils/machine-clock'
 

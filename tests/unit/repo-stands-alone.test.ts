@@ -21,7 +21,7 @@ const OUTSIDE_NOTES: readonly RegExp[] = [
 ]
 /** A relative path to a folder named `shared`, resolved from the file that names it. */
 const SHARED_PATH = /(?:\.\.\/)+shared(?:\/[\w.@-]+)*/g
-/** `docs/page.md` or `docs/page.md#section`, not part of a longer path (../docs/…, x/docs/…). */
+/** `docs/<page>.md` or `docs/<page>.md#<section>`, not part of a longer path (../docs/…, x/docs/…). */
 const DOCS_REF = /(?<![\w./-])docs\/([\w./-]+?\.md)(?:#([\p{L}\p{N}_-]+))?/gu
 /** A Markdown link's target: [text](target). */
 const MD_LINK = /\]\(([^)\s]+)\)/g
@@ -174,6 +174,7 @@ describe('the repository stands alone', () => {
   it('every docs/ page and section named in a comment or a doc exists', () => {
     const named = texts.reduce((n, [, t]) => n + [...t.matchAll(DOCS_REF)].length, 0)
     expect(named).toBeGreaterThan(50)
-    expect(texts.flatMap(([f, t]) => brokenDocLinks(f, t))).toEqual([])
+    const self = relative(root, fileURLToPath(import.meta.url)).split(sep).join('/') // its samples are broken on purpose
+    expect(texts.filter(([f]) => f !== self).flatMap(([f, t]) => brokenDocLinks(f, t))).toEqual([])
   })
 })
