@@ -118,6 +118,9 @@ export interface CompensationState {
   dressStepErrorUm: number | null
   dressStepErrorSqUm2: number | null
   dressStepCount: number
+  /** the size error the last dress left on the wheel (estimated from how far its step was from the
+   *  prediction): the next dress takes it off again (docs/compensation.md#through-a-dress) */
+  dressLeftErrorUm: number | null
   /** `readings` at the last step event (null: no event window open), and the readings (first and
    *  last, counted like `readings`) whose parts were ground after an event before a correction
    *  could land: their rejects do not count toward the stop (docs: "The stop rule") */
@@ -239,6 +242,7 @@ export function createCompensationState(settings: CompensationSettingsInput | Co
     dressStepErrorUm: null,
     dressStepErrorSqUm2: null,
     dressStepCount: 0,
+    dressLeftErrorUm: null,
     eventAtReading: null,
     graceFromReading: 0,
     graceToReading: 0,
@@ -343,6 +347,7 @@ function copyState(state: CompensationState): CompensationState {
     dressStepErrorUm: state.dressStepErrorUm,
     dressStepErrorSqUm2: state.dressStepErrorSqUm2,
     dressStepCount: state.dressStepCount,
+    dressLeftErrorUm: state.dressLeftErrorUm ?? null,
     eventAtReading: state.eventAtReading,
     graceFromReading: state.graceFromReading,
     graceToReading: state.graceToReading,
@@ -778,7 +783,8 @@ function predictDressStep(st: CompensationState, partsSinceDress: number | undef
   const sigmaUm = s.dress.learnStep && st.dressStepErrorSqUm2 !== null && st.dressStepCount >= 2
     ? Math.sqrt(st.dressStepErrorSqUm2)
     : Math.hypot(0.5 * wearUm, DRESS_ERROR_SIGMA_UM)
-  return { stepUm: -wearUm + learntUm, sigmaUm, wearUm, learntUm }
+  const leftUm = s.dress.learnStep ? st.dressLeftErrorUm ?? 0 : 0
+  return { stepUm: -wearUm + learntUm - leftUm, sigmaUm, wearUm, learntUm: learntUm - leftUm }
 }
 
 /**
@@ -1069,17 +1075,22 @@ function learnReading(st: CompensationState, disturbance: number, offsetForPart:
 function learnDressStep(st: CompensationState, observedUm: number): void {
   const wear = st.dressWearPredictedUm ?? 0
   const offWear = observedUm + wear
-  const predicted = -wear + (st.dressStepErrorUm ?? 0)
+  const predicted = -wear + (st.dressStepErrorUm ?? 0) - (st.dressLeftErrorUm ?? 0)
   const errorSq = (observedUm - predicted) ** 2
+  const surpriseUm = observedUm - predicted
+  const offWearOwn = offWear + (st.dressLeftErrorUm ?? 0)
   // From zero, not from the first dress: one dress's own error (about a micron) must not be taken
   // whole as the next one's.
-  st.dressStepErrorUm = (st.dressStepErrorUm ?? 0) + DRESS_LEARN_WEIGHT * (offWear - (st.dressStepErrorUm ?? 0))
+  st.dressStepErrorUm = (st.dressStepErrorUm ?? 0) + DRESS_LEARN_WEIGHT * (offWearOwn - (st.dressStepErrorUm ?? 0))
+  st.dressLeftErrorUm = Math.max(-DRESS_ERROR_SIGMA_UM, Math.min(DRESS_ERROR_SIGMA_UM, DRESS_LEFT_GAIN * surpriseUm))
   st.dressStepErrorSqUm2 = st.dressStepErrorSqUm2 === null ? errorSq : st.dressStepErrorSqUm2 + DRESS_LEARN_WEIGHT * (errorSq - st.dressStepErrorSqUm2)
   st.dressStepCount++
 }
 
 /** Weight of the newest dress in what is learnt from dresses (an EWMA over about six dresses: one dress's own error is about a micron). */
 const DRESS_LEARN_WEIGHT = 0.15
+/** How much of a dress's surprise is taken as the error it left on the wheel (docs/compensation.md#through-a-dress). */
+const DRESS_LEFT_GAIN = 0.5
 
 /**
  * A run of outliers that agree with each other (all within k·σ of their median) is a level shift,
@@ -1198,6 +1209,7 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       st.stepPriorUm = null
       st.dressWearPredictedUm = null
       st.dressStepErrorUm = null
+      st.dressLeftErrorUm = null
       st.dressStepErrorSqUm2 = null
       st.dressStepCount = 0
       openEventWindow(st)
