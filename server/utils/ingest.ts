@@ -103,7 +103,8 @@ export class IngestPipeline {
 
   /**
    * A changeover or new tuning decided on the web: the machine's job and tuning change and its
-   * running engine gets a `job-change` input, in the same commit order as the machine's messages.
+   * running engine gets a `job-change` input (new tuning for the same part: a `settings` input, which
+   * keeps what the engine learnt), in the same commit order as the machine's messages.
    * Resolves with the engine's answer once committed (null when no engine runs yet: the next
    * birth starts it with this job).
    */

@@ -44,6 +44,9 @@ export type CompensationEvent =
   | { type: 'dress'; offsetUm?: number; partsSinceDress?: number; time?: number }
   | { type: 'wheel-change'; offsetUm?: number; time?: number }
   | { type: 'job-change'; settings?: CompensationSettingsInput; offsetUm?: number; time?: number }
+  /** new settings for the same job (a version put in force): what was learnt stays unless the
+   *  strategy, the gain or the pipeline changed, which is then a job change */
+  | { type: 'settings'; settings: CompensationSettingsInput; time?: number }
   | { type: 'mastered'; time?: number }
   | { type: 'restart'; time?: number }
 
@@ -277,7 +280,7 @@ export function stepCompensation(state: CompensationState, input: CompensationIn
   const type = input && typeof input === 'object' ? (input as { type?: unknown }).type : undefined
   let decision: CompensationDecision
   if (type === 'reading') decision = onReading(st, input as CompensationReading)
-  else if (type === 'offset-applied' || type === 'dress' || type === 'wheel-change' || type === 'job-change' || type === 'mastered' || type === 'restart') {
+  else if (type === 'offset-applied' || type === 'dress' || type === 'wheel-change' || type === 'job-change' || type === 'settings' || type === 'mastered' || type === 'restart') {
     const result = onEvent(st, input as CompensationEvent)
     if (result.kind === 'ignored') return { state, decision: result }
     decision = result
@@ -1214,6 +1217,24 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       st.dressStepCount = 0
       openEventWindow(st)
       reason = `wheel change recorded${offsetNote}; the first part of the new wheel re-learns level and slope`
+      break
+    }
+    case 'settings': {
+      let next: CompensationSettings
+      try {
+        next = parseCompensationSettings(ev.settings)
+      } catch (err) {
+        return ignored(st, null, `new settings refused, settings kept: ${(err as Error).message}`)
+      }
+      // The level, slope and what dresses taught describe the machine and the part, not the
+      // settings; they stay valid unless the model itself changes (docs/compensation.md#settings-defaults).
+      const modelChanged = (['strategy', 'gain', 'pipelineParts'] as const).filter((k) => next[k] !== s[k])
+      if (modelChanged.length) {
+        const asJobChange = onEvent(st, { type: 'job-change', settings: ev.settings, ...(ev.time !== undefined ? { time: ev.time } : {}) })
+        return { ...asJobChange, reason: `new settings change the ${modelChanged.join(', ')}: ${asJobChange.reason}` }
+      }
+      st.settings = next
+      reason = 'new settings in force for the same job: the level, slope and what dresses taught are kept'
       break
     }
     case 'job-change': {

@@ -557,15 +557,15 @@ function onEvent<J extends MachineJobRecord>(s: Step<J>, message: EventMessage) 
 }
 
 /**
- * A job change, from the machine or the web: the running engine gets the new settings and holds
- * until the parts ground before the change have left the pipeline. A refused change leaves the
- * engine on the previous job's tolerances while the machine grinds the new one: that must wake
- * someone, not vanish as an ignored input.
+ * A job change, from the machine or the web (or new settings for the same job): the running engine
+ * gets the new settings and, on a job change, holds until the parts ground before it have left the
+ * pipeline. Refused settings leave the engine on the previous ones while the machine grinds on:
+ * that must wake someone, not vanish as an ignored input.
  */
-function changeJob<J extends MachineJobRecord>(s: Step<J>, settings: CompensationSettingsInput, seq: number, what: string) {
-  const d = s.step({ type: 'job-change', settings, ...(s.time !== null ? { time: s.time } : {}) })
+function changeJob<J extends MachineJobRecord>(s: Step<J>, settings: CompensationSettingsInput, seq: number, what: string, type: 'job-change' | 'settings' = 'job-change') {
+  const d = s.step({ type, settings, ...(s.time !== null ? { time: s.time } : {}) })
   s.jobDecision = d
-  if (d?.kind === 'ignored') s.condition('engine:settings', true, `${s.m.name}: ${what} — compensation still uses the previous job's settings (${d.reason})`)
+  if (d?.kind === 'ignored') s.condition('engine:settings', true, `${s.m.name}: ${what} — compensation still uses the previous ${type === 'settings' ? 'settings' : "job's settings"} (${d.reason})`)
   else {
     s.record(d, seq)
     s.condition('engine:settings', false, '')
@@ -579,10 +579,17 @@ function machineJobChange<J extends MachineJobRecord>(s: Step<J>, job: JobInfo, 
   else s.startEngine(job, s.status.appliedOffsetUm ?? 0)
 }
 
-/** The jobs page or a settings activation: our job record and tuning change, the running engine is told. */
+/**
+ * The jobs page or a settings activation: our job record and tuning change, the running engine is
+ * told. The same part with new tuning is a `settings` input, which keeps what the engine has learnt
+ * about this machine and part (docs/compensation.md#inputs); another part is a job change.
+ */
 function onJobAssigned<J extends MachineJobRecord>(s: Step<J>, message: JobAssignedMessage<J>) {
+  const samePart = s.job !== null && message.job !== null && s.job.partNumber === message.job.partNumber
   s.job = message.job
   s.tuning = message.job ? message.tuning : null
   if (!s.engine || !message.job) return
-  changeJob(s, s.settingsFor(null, s.engine.settings.pipelineParts), s.status.lastSeq, `job ${message.job.partNumber} assigned`)
+  const settings = s.settingsFor(null, s.engine.settings.pipelineParts)
+  if (samePart) changeJob(s, settings, s.status.lastSeq, `new settings for ${message.job.partNumber}`, 'settings')
+  else changeJob(s, settings, s.status.lastSeq, `job ${message.job.partNumber} assigned`)
 }

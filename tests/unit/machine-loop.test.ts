@@ -74,6 +74,26 @@ describe('the machine loop', () => {
     expect(bad.machine.engine!.settings.upperSpecUm).toBe(4)
   })
 
+  it('new settings for the same part keep what the engine learnt; a new strategy or another part starts over (docs/compensation.md#inputs)', () => {
+    let m = applyMachineMessage(machine(null), birth(1), T0).machine
+    for (let seq = 2; seq < 30; seq++) m = applyMachineMessage(m, reading(seq, 1 + 0.01 * seq), T0 + seq * 20_000).machine
+    const learnt = m.engine!.level
+    expect(learnt).not.toBeNull()
+    // An engineer puts a version in force with a different max step: same part, same model.
+    const tuned = applyMachineMessage(m, { kind: 'job-assigned', job: JOB, tuning: { maxStepUm: 1.5 } }, T0 + 31 * 20_000)
+    expect(tuned.jobDecision?.reason).toMatch(/kept/)
+    expect(tuned.machine.engine!.settings.maxStepUm).toBe(1.5)
+    expect(tuned.machine.engine!.level).toBe(learnt)
+    expect(tuned.machine.engine!.holdRemaining).toBe(0)
+    // Another strategy is another model: the estimates start over, as at a job change.
+    const restrategised = applyMachineMessage(tuned.machine, { kind: 'job-assigned', job: JOB, tuning: { maxStepUm: 1.5, strategy: 'ewma' } }, T0 + 32 * 20_000)
+    expect(restrategised.jobDecision?.reason).toMatch(/change the strategy/)
+    expect(restrategised.machine.engine!.level).toBeNull()
+    // Another part number is a job change whatever its settings.
+    const other = applyMachineMessage(tuned.machine, { kind: 'job-assigned', job: { ...JOB, partNumber: 'HX-412' }, tuning: { maxStepUm: 1.5 } }, T0 + 33 * 20_000)
+    expect(other.machine.engine!.level).toBeNull()
+  })
+
   it('reads restarts from the state a machine comes back from, and offsets only from applied offset answers', () => {
     const state = (execution: 'ACTIVE' | 'READY'): SequencedMessage => ({ kind: 'state', seq: 5, time: iso(5), execution, activeFaults: [] })
     for (const from of ['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED']) expect(engineInputsOf(state('ACTIVE'), T0, from, 0)).toEqual([{ type: 'restart', time: T0 }])
