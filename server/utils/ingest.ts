@@ -12,6 +12,7 @@ import type { CompensationDecision } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 import { applyMachineMessage, appendLoopRows, emptyLoopRows, liveStatusView, type AlarmCondition, type MachineLoop, type MachineLoopMessage, type MachineLoopOptions, type MachineLoopRows } from '#shared/utils/machine-loop'
 import type { AlertRoutingRules } from '#shared/utils/alert-routing'
+import { ingestCommitFailed, ingestCommitSucceeded, ingestHealthAtStart, ingestOutageWords, ingestSettle, ingestSettlesAt, type IngestHealth } from '#shared/utils/ingest-health'
 
 export type { AlarmCondition } from '#shared/utils/machine-loop'
 
@@ -76,6 +77,13 @@ function knownMachineOfTopic(topic: string): string | null {
   return t.ok && machineContext(t.machine) ? t.machine : null
 }
 
+/** An error as health shows it: SQLite's code beside its message ("SQLITE_FULL: database or disk is full"). */
+function errorWords(err: unknown): string {
+  const e = err as { message?: unknown, code?: unknown } | null
+  const message = typeof e?.message === 'string' ? e.message : String(err)
+  return typeof e?.code === 'string' && !message.includes(e.code) ? `${e.code}: ${message}` : message
+}
+
 /** The machine a topic names (known or not); a refused message's number belongs to its numbering. */
 function topicMachine(topic: string): string | null {
   const t = parseMqttTopic(topic)
@@ -87,7 +95,10 @@ export class IngestPipeline {
   private timer: NodeJS.Timeout | null = null
   private flushing: Promise<void> | null = null
   private afterCommit: Promise<void> = Promise.resolve()
+  private settleTimer: NodeJS.Timeout | null = null
   readonly stats: IngestStats = { accepted: 0, stored: 0, readings: 0, duplicates: 0, deadLetters: 0, commits: 0, lastCommitMs: 0, recentCommitMs: [] }
+  /** whether commits succeed: for /api/health and /api/metrics (shared/utils/ingest-health.ts) */
+  health: IngestHealth = ingestHealthAtStart(Date.now())
   /** called after each commit with what it caused (commands to send, live events, alarm conditions) */
   onCommitted: (effects: IngestEffects) => Promise<void> | void = () => {}
   /** the routing rules' trend thresholds while notifications run (notify.ts sets it); null: the trend is not judged */
@@ -135,6 +146,8 @@ export class IngestPipeline {
         try {
           const { effects, jobDecisions } = await this.commit(batch.map(p => p.item))
           batch.forEach((p, i) => p.resolve(jobDecisions.get(i) ?? null))
+          this.health = ingestCommitSucceeded(this.health, Date.now())
+          this.settleLater()
           // Commands, live events and alarms run in commit order but off the commit path: with an
           // external broker, sending a command waits for a PUBACK that mqtt.js queues behind the
           // very messages waiting on the next commit.
@@ -146,6 +159,7 @@ export class IngestPipeline {
           // Nothing is acknowledged; the machines will send again. Reload state from the database
           // so memory matches what is committed.
           log.error({ err: err }, '[ingest] commit failed, nothing acknowledged')
+          this.health = ingestCommitFailed(this.health, Date.now(), errorWords(err), batch.length)
           await loadMachineRegistry().catch(() => {})
           for (const p of batch) p.reject(err as Error)
         }
@@ -157,6 +171,27 @@ export class IngestPipeline {
       // Arrivals during the last commit's after-work found a flush running and set no timer.
       if (this.queue.length) this.kick(0)
     }
+  }
+
+  /**
+   * After a run of failed commits, once commits have stayed good long enough (ingest-health.ts),
+   * the alarm says how long machine data was not stored: nothing could be written to say it then.
+   */
+  private settleLater() {
+    const at = ingestSettlesAt(this.health)
+    if (at === null || this.settleTimer) return
+    this.settleTimer = setTimeout(() => {
+      this.settleTimer = null
+      const now = Date.now()
+      const { health, outage } = ingestSettle(this.health, now)
+      this.health = health
+      if (!outage) { this.settleLater(); return } // failed again since: wait from that failure
+      const condition: AlarmCondition = { machineId: null, condition: 'server:ingest-failed', active: true, message: ingestOutageWords(outage), at: now }
+      this.afterCommit = this.afterCommit
+        .then(() => this.onCommitted({ commands: [], live: [], conditions: [condition] }))
+        .catch((err) => { log.error({ err: err }, '[ingest] the alarm for data not stored could not be raised') })
+    }, Math.max(0, at - Date.now()))
+    this.settleTimer.unref()
   }
 
   /** Waits until everything queued so far is committed. */

@@ -1,5 +1,6 @@
 // Health and metrics figures, gathered in one place for /api/health and /api/metrics.
 import { sql } from 'drizzle-orm'
+import { ingestLostMs, ingestSecondsSinceCommit, ingestSettle } from '#shared/utils/ingest-health'
 
 function quantile(sorted: number[], q: number): number {
   if (!sorted.length) return 0
@@ -43,6 +44,12 @@ export async function prometheusText(): Promise<string> {
     ['{quantile="0.5"}', quantile(sorted, 0.5) / 1000], ['{quantile="0.99"}', quantile(sorted, 0.99) / 1000],
     ['_count', s.commits], ['_sum', sorted.reduce((a, b) => a + b, 0) / 1000],
   ])
+  const now = Date.now()
+  const h = ingestSettle(ingest.health, now).health
+  metric('owlshift_commit_failures_total', 'counter', 'Ingest commits that failed (nothing in them was acknowledged; the machines send it again).', [['', h.commitFailures]])
+  metric('owlshift_ingest_failing', 'gauge', '1 from a failed ingest commit until commits have succeeded for 10 s with none failing.', [['', h.failing ? 1 : 0]])
+  metric('owlshift_seconds_since_last_commit', 'gauge', 'Seconds since the last ingest commit that succeeded while commits were good (since start before the first): those a nearly full disk lets through between failing ones do not count. Grows while machines are idle too.', [['', Math.round(ingestSecondsSinceCommit(h, now) * 10) / 10]])
+  metric('owlshift_ingest_lost_seconds_total', 'counter', 'Seconds since start during which ingest commits failed (the failure going on now included).', [['', Math.round(ingestLostMs(h, now) / 100) / 10]])
   metric('owlshift_ingest_queue_depth', 'gauge', 'Messages waiting for the next commit.', [['', ingest.queueDepth]])
   metric('owlshift_machines_connected', 'gauge', 'Machines connected to the broker.', [['', broker?.connectedMachines() ?? 0]])
   const refused = broker?.refusedConnections

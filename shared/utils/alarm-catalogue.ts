@@ -2,7 +2,8 @@
 // priority, whether it latches (needs a reset at the machine after the cause is fixed), a title,
 // default response steps, and how it is filtered and routed:
 //   scope        'cell': one alarm for the whole cell listing its machines (fire, mist), however
-//                many machines report it; 'machine': one alarm per machine
+//                many machines report it; 'machine': one alarm per machine; 'server': about the
+//                server itself (no machine, no cell)
 //   onDelayS     the condition must last this long before the alarm stands; one that clears
 //                sooner is no alarm and wakes nobody
 //   offDelayS    the condition must stay clear this long before the alarm clears; a return within
@@ -26,7 +27,7 @@ export interface AlarmKind {
   latching: boolean
   title: string
   steps: string[]
-  scope: 'machine' | 'cell'
+  scope: 'machine' | 'cell' | 'server'
   onDelayS: number
   offDelayS: number
   stopsMachine: boolean
@@ -65,6 +66,7 @@ export const alarmCatalogue: Record<string, AlarmKind> = {
   'link:clock': { priority: 3, latching: false, title: 'Machine clock wrong', steps: ['Set the clock of the machine (or its adapter) right, in UTC; use NTP where the control allows it.', 'Until then commands are dated and the machine page is shown by the server\'s clock.'], ...urgent(0, 0) },
   'link:sequence-reset': { priority: 3, latching: false, title: 'Message numbering restarted', steps: ['Check that the machine\'s adapter keeps its message number on disk and never starts it again.', 'Messages sent around the jump may be missing; compare the machine\'s own log.'], ...urgent(0, 0), mayWait: true, momentary: true },
   'link:bad-data': { priority: 4, latching: false, title: 'Repeated bad data', steps: ['See the dead letters for the reasons; fix the adapter.'], ...urgent(0, 0), mayWait: true, momentary: true },
+  'server:ingest-failed': { priority: 3, latching: false, title: 'Machine data not stored for a while', steps: ['Find in the server log why the database could not be written (a full disk, a disk I/O error) and make sure it cannot happen again.', 'No corrections went to the machines while data was not stored: measure a few parts made then by hand.', 'Check data completeness for the machines: what they could not keep is missing.'], ...urgent(0, 0), scope: 'server', mayWait: true, momentary: true },
   'supply:starving': { priority: 3, latching: false, title: 'Cell about to run out of blanks', steps: ['Stage the next pallet.'], ...urgent(60, 60) },
 }
 
