@@ -79,5 +79,6 @@ export async function enforceBodyLimit(event: H3Event) {
     req.on('data', onData).on('end', onEnd).on('error', onError)
   })
   if (!body) throw tooLarge(event, rule)
-  event._requestBody = body
+  // h3's readRawBody takes a Buffer as it is (Buffer.isBuffer), though its type names only BodyInit.
+  event._requestBody = body as unknown as BodyInit
 }

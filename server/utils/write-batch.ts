@@ -12,7 +12,8 @@ import { startWalCheckpointer, WRITER_AUTOCHECKPOINT_PAGES, type WalCheckpointer
 import { useDbClient } from './db'
 
 type NativeDb = InstanceType<typeof Database>
-type NativeStatement = ReturnType<NativeDb['prepare']>
+// prepare()'s generic default does not come through ReturnType<>: name the statement type itself.
+type NativeStatement = Database.Statement<unknown[]>
 
 let native: { db: NativeDb, prepared: Map<string, NativeStatement>, begin: NativeStatement, commit: NativeStatement, rollback: NativeStatement, checkpointer: WalCheckpointer } | null = null
 
