@@ -21,6 +21,11 @@
 //   plant's latency, acked then), dress (done before the next part, acked then), hold
 //   (FEED_HOLD at once), resume (refused while a fault is active); expired commands are
 //   acked "expired"; a repeated command id is acked again with the first result.
+//   Allowance (docs/mqtt.md, "The allowance"; with `obeyAllowance`): every command received in
+//   time brings the allowance it carries; a part is started only within the allowance held, after
+//   a dress, wheel change, mastering, job change, gauge fault or restart only with a grant based on
+//   it. Short of one, the machine finishes the part in the wheel, waits one cycle for a renewal,
+//   then holds (FEED_HOLD, holdCauses ["allowance"]) and keeps journaling; a resume ends the hold.
 
 import {
   createPlant, plantChangeWheel, plantDress, plantGauge, plantGrind, plantMaster, plantOffsetInForce,
@@ -28,8 +33,9 @@ import {
 } from '../shared/utils/plant'
 import { createSeededRandom, type SeededRandom } from '../shared/utils/random'
 import type {
-  AckMessage, BirthMessage, CommandMessage, EventMessage, ExecutionState, FaultCode, JobInfo, ReadingMessage, SequencedMessage, StateMessage,
+  AckMessage, AllowanceGrant, BirthMessage, CommandMessage, EventMessage, ExecutionState, FaultCode, HoldCause, JobInfo, ReadingMessage, SequencedMessage, StateMessage,
 } from '../shared/utils/contract'
+import { heldAllowanceAfter, mayStartPart, voidsAllowance } from '../shared/utils/allowance'
 
 /** A message before numbering: everything but seq and time (distributes over unions). */
 type Body<T> = T extends unknown ? Omit<T, 'seq' | 'time'> : never
@@ -53,6 +59,10 @@ export interface CellOptions {
   startMs?: number
   /** last sequence number already used per machine (from a journal); numbering continues after it */
   lastSeq?: Record<string, number>
+  /** machines start a part only within the allowance the server granted (docs/mqtt.md); default false */
+  obeyAllowance?: boolean
+  /** how long (simulated s) a machine short of an allowance waits for a renewal before it holds; default its cycle time */
+  allowanceWaitS?: number
   onMessage: (machineId: string, message: SequencedMessage) => void
 }
 
@@ -69,6 +79,10 @@ interface Stats {
   commands: { applied: number; rejected: number; expired: number }
   trueDev: Welford
   measuredDev: Welford
+  /** parts ground after the machine last received a command, and how many of them were truly out of tolerance */
+  sinceLastWord: { parts: number; trulyOut: number }
+  /** holds for want of an allowance */
+  allowanceHolds: number
 }
 
 interface Welford { n: number; mean: number; m2: number; sumSq: number }
@@ -108,6 +122,15 @@ interface SimMachine {
   lastRequestedOffsetUm: number
   acks: Map<string, AckMessage | 'pending'>
   stats: Stats
+  /** the allowance held, the seq of the last message that used it up, and the allowance hold */
+  allowance: AllowanceGrant | null
+  everGranted: boolean
+  voidedAtSeq: number
+  allowanceHold: boolean
+  /** waiting (a cycle at most) for a renewal before holding: the wait's token, null when not waiting */
+  waitingForAllowance: number | null
+  waits: number
+  holdCausesSent: string
 }
 
 type Action =
@@ -118,6 +141,7 @@ type Action =
   | { kind: 'faultClear'; fault: FaultCode }
   | { kind: 'scheduled'; item: ScenarioScheduleItem }
   | { kind: 'stopEnd' }
+  | { kind: 'allowanceWaitEnd'; wait: number }
 
 interface Entry { at: number; machine: number; order: number; action: Action }
 
@@ -174,6 +198,9 @@ export interface MachineSummary {
   trulyOutOfTolerance: number
   /** truly out of tolerance but sorted good (gauge error) */
   escapes: number
+  /** parts ground after the machine last received a command, and the truly out of tolerance among them */
+  sinceLastWord: { parts: number; trulyOut: number }
+  allowanceHolds: number
   dresses: number
   masterings: number
   faults: number
@@ -232,7 +259,9 @@ export function createCell(options: CellOptions): Cell {
       stats: {
         partsGround: 0, partsGauged: 0, good: 0, rejects: {}, trulyOutOfTolerance: 0, escapes: 0, dresses: 0, masterings: 0, faults: 0,
         commands: { applied: 0, rejected: 0, expired: 0 }, trueDev: welford(), measuredDev: welford(),
+        sinceLastWord: { parts: 0, trulyOut: 0 }, allowanceHolds: 0,
       },
+      allowance: null, everGranted: false, voidedAtSeq: 0, allowanceHold: false, waitingForAllowance: null, waits: 0, holdCausesSent: '',
     }
     plantSetUpOffset(plant, 0, spec.initialOffsetUm) // the offset already in the control when the night starts
     return m
@@ -253,30 +282,41 @@ export function createCell(options: CellOptions): Cell {
 
   // Every emitted message gets the machine's next sequence number and the current simulated time;
   // kind, seq and time come first on the wire, for people reading mosquitto_sub output.
-  function emit<T extends SequencedMessage>(m: SimMachine, body: Body<T>): T {
+  function emit<T extends SequencedMessage>(m: SimMachine, body: Body<T>, executionBefore: string | null = m.execution): T {
     const { kind, ...rest } = body as { kind: string }
     const message = { kind, seq: ++m.seq, time: isoAt(now), ...rest } as unknown as T
+    if (voidsAllowance(message, executionBefore)) m.voidedAtSeq = message.seq
     onMessage(m.id, message)
     return message
   }
   const event = (m: SimMachine, body: Record<string, unknown>) => emit<EventMessage>(m, { kind: 'event', ...body } as Body<EventMessage>)
 
-  function desiredExecution(m: SimMachine): { state: ExecutionState; reason?: string } {
+  function desiredExecution(m: SimMachine): { state: ExecutionState; reason?: string; holdCauses?: HoldCause[] } {
     const stopping = m.faults.filter((f) => stoppingFaults.has(f))
     if (stopping.length) return { state: 'STOPPED', reason: `fault: ${stopping.join(', ')}` }
     const interrupting = m.faults.filter((f) => f !== 'gauge_fault')
     if (interrupting.length) return { state: 'INTERRUPTED', reason: `fault: ${interrupting.join(', ')}` }
     if (m.plannedStop) return { state: 'STOPPED', reason: 'planned stop' }
-    if (m.hold) return { state: 'FEED_HOLD', reason: 'hold command' }
+    if (m.hold && m.allowanceHold) return { state: 'FEED_HOLD', reason: 'hold command; allowance used up', holdCauses: ['command', 'allowance'] }
+    if (m.hold) return { state: 'FEED_HOLD', reason: 'hold command', holdCauses: ['command'] }
+    if (m.allowanceHold) return { state: 'FEED_HOLD', reason: 'allowance used up: no word from the compensator', holdCauses: ['allowance'] }
+    // A machine that obeys the allowance starts its first cycle on the compensator's first word.
+    if (options.obeyAllowance && !m.everGranted) return { state: 'READY', reason: 'waiting for the compensator\'s first allowance' }
     return { state: 'ACTIVE' }
   }
 
   function updateExecution(m: SimMachine): void {
-    const { state, reason } = desiredExecution(m)
-    if (state === m.execution) return
+    const { state, reason, holdCauses } = desiredExecution(m)
+    // A hold whose causes change (a hold command on top of an allowance hold) is told too.
+    const causes = holdCauses?.join() ?? ''
+    if (state === m.execution && (state !== 'FEED_HOLD' || causes === m.holdCausesSent)) return
     const wasActive = m.execution === 'ACTIVE'
+    const before = m.execution
     m.execution = state
-    emit<StateMessage>(m, { kind: 'state', execution: state, activeFaults: [...m.faults], ...(reason ? { reason } : {}) })
+    m.holdCausesSent = state === 'FEED_HOLD' ? causes : ''
+    if (state !== 'ACTIVE') m.waitingForAllowance = null
+    emit<StateMessage>(m, { kind: 'state', execution: state, activeFaults: [...m.faults], ...(reason ? { reason } : {}), ...(holdCauses && options.obeyAllowance ? { holdCauses } : {}) }, before)
+    if (state === before) return
     if (state === 'ACTIVE') {
       plantSetRunning(m.plant, now, true)
       m.token++
@@ -323,6 +363,8 @@ export function createCell(options: CellOptions): Cell {
     const ground = plantGrind(m.plant, now)
     m.partLoaded = false
     m.stats.partsGround++
+    m.stats.sinceLastWord.parts++
+    if (ground.trueUm < m.job.lowerToleranceUm || ground.trueUm > m.job.upperToleranceUm) m.stats.sinceLastWord.trulyOut++
     event(m, { type: 'part_ground', part: ground.serial, offsetUm: round3(ground.offsetUm), wheelDiameterMm: round3(ground.wheelDiameterMm) })
     const gauged = plantGauge(m.plant, now)
     if (!gauged) return
@@ -409,6 +451,15 @@ export function createCell(options: CellOptions): Cell {
   }
 
   function onLoad(m: SimMachine): void {
+    if (options.obeyAllowance && !mayStartPart(m.allowance, m.plant.partsGround + 1, m.voidedAtSeq)) {
+      // Not within the allowance: wait a cycle for a renewal, then hold (docs/mqtt.md, "The allowance").
+      if (m.waitingForAllowance === null) {
+        m.waitingForAllowance = ++m.waits
+        agenda.push(now + Math.max(m.spec.cycleTimeS, options.allowanceWaitS ?? 0), m.index, { kind: 'allowanceWaitEnd', wait: m.waits })
+      }
+      return
+    }
+    m.waitingForAllowance = null
     if (m.blanksLeft === 0) {
       if (m.palletsInStock === 0) { raiseFault(m, 'empty_pallet', null, 'stacker empty: no blanks left'); return }
       m.palletsInStock--
@@ -464,6 +515,14 @@ export function createCell(options: CellOptions): Cell {
       case 'faultClear': clearFault(m, a.fault); break
       case 'scheduled': onScheduled(m, a.item); break
       case 'stopEnd': m.plannedStop = false; updateExecution(m); break
+      case 'allowanceWaitEnd':
+        if (m.waitingForAllowance === a.wait && m.execution === 'ACTIVE') {
+          m.waitingForAllowance = null
+          m.allowanceHold = true
+          m.stats.allowanceHolds++
+          updateExecution(m)
+        }
+        break
     }
   }
 
@@ -478,7 +537,7 @@ export function createCell(options: CellOptions): Cell {
       const birth = emit<BirthMessage>(m, {
         kind: 'birth', session, adapter: simulatorAdapter, machine: { name: m.spec.name, model: m.spec.model }, job: m.job,
         execution: m.execution, offsetUm: round3(plantOffsetInForce(m.plant, now)), pipelineParts: m.plant.params.pipelineParts,
-        cycleTimeS: m.spec.cycleTimeS, wheelDiameterMm: round3(m.plant.wheelDiameterMm),
+        cycleTimeS: m.spec.cycleTimeS, wheelDiameterMm: round3(m.plant.wheelDiameterMm), ...(options.obeyAllowance ? { lastPart: m.plant.partsGround } : {}),
       })
       return birth
     },
@@ -496,11 +555,24 @@ export function createCell(options: CellOptions): Cell {
     },
     deliverCommand(machineId, command) {
       const m = getMachine(machineId)
+      m.stats.sinceLastWord = { parts: 0, trulyOut: 0 }
       const previous = m.acks.get(command.id)
       if (previous === 'pending') return
       if (previous) { const { seq: _s, time: _t, ...again } = previous; emit<AckMessage>(m, again); return }
       if (now * 1000 + startMs > Date.parse(command.expiresAt)) { ack(m, command, 'expired', `received at ${isoAt(now)}, after its expiry ${command.expiresAt}`); return }
+      if (options.obeyAllowance && command.allowance) {
+        m.allowance = heldAllowanceAfter(m.allowance, command.allowance)
+        if (!m.everGranted) { m.everGranted = true; updateExecution(m) }
+        // A machine waiting for a renewal starts its next part as soon as one lets it.
+        if (m.waitingForAllowance !== null && m.execution === 'ACTIVE' && mayStartPart(m.allowance, m.plant.partsGround + 1, m.voidedAtSeq)) {
+          m.waitingForAllowance = null
+          agenda.push(now, m.index, { kind: 'load', token: m.token })
+        }
+      }
       switch (command.type) {
+        case 'allowance':
+          ack(m, command, 'applied')
+          return
         case 'offset': {
           const limit = scenario.machineOffsetLimitUm
           const step = command.offsetUm - m.lastRequestedOffsetUm
@@ -524,9 +596,10 @@ export function createCell(options: CellOptions): Cell {
           ack(m, command, 'applied')
           return
         case 'resume':
-          if (!m.hold) { ack(m, command, 'rejected', 'the machine is not on hold'); return }
+          if (!m.hold && !m.allowanceHold) { ack(m, command, 'rejected', 'the machine is not on hold'); return }
           if (m.faults.some((f) => f !== 'gauge_fault')) { ack(m, command, 'rejected', `fault active: ${m.faults.join(', ')}`); return }
           m.hold = false
+          m.allowanceHold = false
           updateExecution(m)
           ack(m, command, 'applied')
           return
@@ -538,6 +611,7 @@ export function createCell(options: CellOptions): Cell {
         id: m.id, partNumber: m.job.partNumber,
         partsGround: m.stats.partsGround, partsGauged: m.stats.partsGauged, good: m.stats.good, rejects: { ...m.stats.rejects },
         trulyOutOfTolerance: m.stats.trulyOutOfTolerance, escapes: m.stats.escapes, dresses: m.stats.dresses, masterings: m.stats.masterings,
+        sinceLastWord: { ...m.stats.sinceLastWord }, allowanceHolds: m.stats.allowanceHolds,
         faults: m.stats.faults, commands: { ...m.stats.commands },
         trueMeanUm: m.stats.trueDev.mean, trueSdUm: sd(m.stats.trueDev), trueRmsUm: rms(m.stats.trueDev),
         measuredMeanUm: m.stats.measuredDev.mean, measuredSdUm: sd(m.stats.measuredDev),
@@ -553,6 +627,7 @@ export function createCell(options: CellOptions): Cell {
         totals: {
           partsGround: sum((s) => s.partsGround), partsGauged: sum((s) => s.partsGauged), good: sum((s) => s.good), rejects,
           trulyOutOfTolerance: sum((s) => s.trulyOutOfTolerance), escapes: sum((s) => s.escapes), dresses: sum((s) => s.dresses),
+          sinceLastWord: { parts: sum((s) => s.sinceLastWord.parts), trulyOut: sum((s) => s.sinceLastWord.trulyOut) }, allowanceHolds: sum((s) => s.allowanceHolds),
           masterings: sum((s) => s.masterings), faults: sum((s) => s.faults),
           commands: { applied: sum((s) => s.commands.applied), rejected: sum((s) => s.commands.rejected), expired: sum((s) => s.commands.expired) },
           trueMeanUm: all.trueDev.mean, trueSdUm: sd(all.trueDev), trueRmsUm: rms(all.trueDev),

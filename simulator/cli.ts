@@ -29,6 +29,7 @@ const usage = `Owlshift cell simulator
   --credentials <file>   JSON {"cg-01": {"username": "…", "password": "…"}, …} (one entry per machine)
   --state-dir <dir>      journals for store-and-forward (default data/simulator)
   --headless             no broker: run in-process with the compensation engine, as fast as possible
+  --ignore-allowance     machines grind on without an allowance (a bare broker, no Owlshift behind it)
   --quiet                no progress lines
   --help`
 
@@ -76,7 +77,7 @@ async function main(): Promise<void> {
       options: {
         scenario: { type: 'string' }, machines: { type: 'string' }, speed: { type: 'string' }, hours: { type: 'string' }, seed: { type: 'string' },
         start: { type: 'string' }, broker: { type: 'string' }, username: { type: 'string' }, password: { type: 'string' }, credentials: { type: 'string' },
-        'state-dir': { type: 'string' }, headless: { type: 'boolean' }, quiet: { type: 'boolean' }, help: { type: 'boolean' },
+        'state-dir': { type: 'string' }, headless: { type: 'boolean' }, 'ignore-allowance': { type: 'boolean' }, quiet: { type: 'boolean' }, help: { type: 'boolean' },
       },
       strict: true,
     }).values
@@ -114,6 +115,7 @@ async function main(): Promise<void> {
 
   const sim = await startSimulator({
     scenario, seed, machines, speed, hours, brokerUrl: args.broker, credentials, stateDir: args['state-dir'] ?? 'data/simulator', startMs,
+    obeyAllowance: !args['ignore-allowance'],
     onLog: (line) => { if (!args.quiet) console.log(`  ${line}`) },
   })
   if (credentials) {

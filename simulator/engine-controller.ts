@@ -9,10 +9,13 @@ import type { CompensationSettingsInput, CompensationState } from '../shared/uti
 import type { CommandMessage, JobInfo, SequencedMessage } from '../shared/utils/contract'
 import { applyMachineMessage, emptyMachineStatus, type MachineJobRecord, type MachineLoop } from '../shared/utils/machine-loop'
 import type { HeadlessController } from './headless'
+import type { AllowanceSettings } from '../shared/utils/allowance'
 
 export interface EngineControllerOptions {
   /** engine settings on top of those taken from the machine's birth (tolerance, pipeline, cycle time): the job's tuning */
   settings?: Partial<CompensationSettingsInput>
+  /** grant allowances as the server does (allowance.ts); absent: none */
+  allowance?: AllowanceSettings
 }
 
 /** The job the machine announces, as our job record (its tolerances, in nm as stored). */
@@ -41,7 +44,7 @@ export function createEngineController(options: EngineControllerOptions = {}): H
     onMessage(machineId: string, message: SequencedMessage): CommandMessage[] | undefined {
       const loop = loopFor(machineId, message)
       if (!loop) return
-      const r = applyMachineMessage(loop, message, Date.parse(message.time))
+      const r = applyMachineMessage(loop, message, Date.parse(message.time), { allowance: options.allowance ?? null })
       loops.set(machineId, r.machine)
       if (r.machine.engine) states.set(machineId, r.machine.engine)
       return r.commands.length ? r.commands : undefined

@@ -21,6 +21,8 @@ export interface HeadlessOptions {
   machines?: number
   /** null = open loop (no commands at all) */
   controller: HeadlessController | null
+  /** machines start parts only within the allowance the controller grants (docs/mqtt.md); default false */
+  obeyAllowance?: boolean
   onMessage?: (machineId: string, message: SequencedMessage) => void
   onCommand?: (machineId: string, command: CommandMessage) => void
 }
@@ -42,6 +44,7 @@ export function runHeadless(options: HeadlessOptions): HeadlessResult {
     scenario: options.scenario,
     seed: options.seed,
     machines: options.machines,
+    obeyAllowance: options.obeyAllowance,
     onMessage(machineId, message) {
       messages++
       options.onMessage?.(machineId, message)

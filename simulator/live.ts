@@ -36,6 +36,9 @@ export interface SimulatorOptions {
   reconnectMs?: number
   /** after the last simulated hour, wait this long for outstanding acknowledgements */
   drainTimeoutMs?: number
+  /** machines start parts only within the allowance the server grants (docs/mqtt.md); default true.
+   *  false for a bare broker with no Owlshift behind it */
+  obeyAllowance?: boolean
   onLog?: (line: string) => void
 }
 
@@ -90,7 +93,10 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
   if (startMs !== requestedStart) log(`journals reach ${new Date(resumeMs).toISOString()}: machine time resumes at ${new Date(startMs).toISOString()}`)
 
   cell = createCell({
-    scenario, seed: options.seed, machines: specs.length, startMs, lastSeq,
+    scenario, seed: options.seed, machines: specs.length, startMs, lastSeq, obeyAllowance: options.obeyAllowance ?? true,
+    // Fast-forwarded, a renewal's trip through the network takes many simulated seconds: a machine
+    // waits at least four ticks for one before it holds (a real machine waits its cycle time).
+    allowanceWaitS: (4 * (options.tickMs ?? 50) / 1000) * options.speed,
     onMessage: (machineId, message) => links.get(machineId)!.publish(message),
   })
   const theCell = cell

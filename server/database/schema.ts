@@ -2,6 +2,7 @@
 import { sqliteTable, integer, text, real, index, uniqueIndex } from 'drizzle-orm/sqlite-core'
 import { sql } from 'drizzle-orm'
 import type { MachinePrediction } from '../../shared/utils/machine-loop'
+import type { AllowanceState } from '../../shared/utils/allowance'
 
 export const ROLES = ['admin', 'engineer', 'lead', 'operator', 'viewer'] as const
 
@@ -125,6 +126,8 @@ export const machineStatus = sqliteTable('machine_status', {
   engineState: text('engine_state', { mode: 'json' }),
   /** the engine's latest prediction, for the overview */
   prediction: text('prediction', { mode: 'json' }).$type<MachinePrediction | null>(),
+  /** the parts allowance: part serials it counts from and the last grant sent (shared/utils/allowance.ts) */
+  allowance: text('allowance', { mode: 'json' }).$type<AllowanceState | null>(),
   updatedAt: integer('updated_at').notNull(),
 })
 

@@ -7,6 +7,7 @@ import { Aedes } from 'aedes'
 import mqtt from 'mqtt'
 import { databaseReady } from './0.database'
 import { mqttTopics, machineClientId } from '#shared/utils/contract'
+import { defaultAllowanceSettings } from '#shared/utils/allowance'
 
 /** Marks packets the server itself publishes: only those are forwarded to machines. */
 const SERVER_MARK = 'owlshift-server-internal'
@@ -158,6 +159,7 @@ export default defineNitroPlugin((nitroApp) => {
     const ingest = useIngest()
     ingest.onCommitted = handleCommitted
     ingest.clockToleranceMs = config.mqtt.clockToleranceS ? config.mqtt.clockToleranceS * 1000 : null
+    ingest.allowance = { ...defaultAllowanceSettings, ...config.mqtt.allowance }
     setBrokerHandle(config.mqtt.url ? await startExternal(config.mqtt.url, config.mqtt) : await startEmbedded(config.mqtt.host, config.mqtt.port))
   })().catch((err) => {
     console.error(`[owlshift] the MQTT broker could not start: ${(err as Error).message}. Check MQTT_PORT / MQTT_URL.`)

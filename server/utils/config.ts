@@ -24,6 +24,8 @@ const envSchema = z.object({
   OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
   OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
   OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
+  OWLSHIFT_ALLOWANCE_MAX_MIN: z.coerce.number().min(0).max(24 * 60).default(30),
+  OWLSHIFT_ALLOWANCE_GUARD: z.coerce.number().min(0).max(1).default(0.25),
   OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: z.coerce.number().min(0).max(86_400).refine(v => v === 0 || v >= 5, 'must be 0 (off) or at least 5 seconds').default(300),
   OWLSHIFT_TRUSTED_PROXIES: z.string().default('').superRefine((v, ctx) => {
     const bad = v.split(',').map(s => s.trim()).filter(s => s && !parseProxyEntry(s))
@@ -51,6 +53,8 @@ export interface OwlshiftConfig {
     port: number
     /** seconds a machine's clock may be from the server's before it is doubted (shared/utils/machine-clock.ts); 0: never */
     clockToleranceS: number
+    /** the parts allowance: at most this many minutes of parts, and the guard band as a fraction of the half tolerance (shared/utils/allowance.ts) */
+    allowance: { maxMinutes: number, guardFraction: number }
   }
   maintenance: {
     /** hours between scheduled backups; 0 = none */
@@ -99,6 +103,7 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       host: e.MQTT_HOST,
       port: e.MQTT_PORT,
       clockToleranceS: e.OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S,
+      allowance: { maxMinutes: e.OWLSHIFT_ALLOWANCE_MAX_MIN, guardFraction: e.OWLSHIFT_ALLOWANCE_GUARD },
     },
     maintenance: {
       backupEveryH: e.OWLSHIFT_BACKUP_EVERY_H,

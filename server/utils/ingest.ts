@@ -13,6 +13,7 @@ import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 import { applyMachineMessage, appendLoopRows, emptyLoopRows, liveStatusView, type AlarmCondition, type MachineLoop, type MachineLoopMessage, type MachineLoopOptions, type MachineLoopRows } from '#shared/utils/machine-loop'
 import type { AlertRoutingRules } from '#shared/utils/alert-routing'
 import { ingestCommitFailed, ingestCommitSucceeded, ingestHealthAtStart, ingestOutageWords, ingestSettle, ingestSettlesAt, type IngestHealth } from '#shared/utils/ingest-health'
+import { defaultAllowanceSettings, type AllowanceSettings } from '#shared/utils/allowance'
 
 export type { AlarmCondition } from '#shared/utils/machine-loop'
 
@@ -105,6 +106,8 @@ export class IngestPipeline {
   trendRules: () => AlertRoutingRules['trend'] | null = () => null
   /** how far a machine's clock may be from the server's before it is doubted (OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S); null: never */
   clockToleranceMs: number | null = null
+  /** how parts allowances are granted (shared/utils/allowance.ts; OWLSHIFT_ALLOWANCE_*) */
+  allowance: AllowanceSettings | null = defaultAllowanceSettings
 
   /** Resolves once the arrival is committed (or dead-lettered). Never rejects for bad input. */
   accept(arrival: Arrival): Promise<void> {
@@ -209,7 +212,7 @@ export class IngestPipeline {
     const dead: DeadLetterRow[] = []
     const messages = decodeAll(items, now, dead)
     const fresh = await leaveOutStored(messages)
-    const fold = foldMachines(fresh, now, this.trendRules(), { clockToleranceMs: this.clockToleranceMs })
+    const fold = foldMachines(fresh, now, this.trendRules(), { clockToleranceMs: this.clockToleranceMs, allowance: this.allowance })
     await writeBatch(statementsOf(fold, dead, now))
 
     // Committed: memory follows, counters move.

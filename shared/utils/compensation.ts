@@ -906,6 +906,11 @@ function boundedCommand(st: CompensationState, desiredUm: number): { command: Co
   return { command: { correctionUm: delta * s.gain, offsetDeltaUm: delta, newOffsetUm, limitedBy }, limitedBy }
 }
 
+/** The engine's part-to-part spread now (µm of diameter): robust σ of its recent residuals, its prior until enough are in. */
+export function compensationSigmaUm(state: CompensationState): number {
+  return robustSigma(state)
+}
+
 function robustSigma(st: CompensationState): number {
   const o = st.settings.outliers
   if (st.residuals.length < 8) return Math.max(o.sigmaPriorUm, o.sigmaFloorUm)

@@ -116,6 +116,11 @@ const shortText = z.string().max(200, 'must be at most 200 characters')
 /** MTConnect Execution values (MTConnect Standard, Part 2, Execution data item). */
 export const executionStates = ['READY', 'ACTIVE', 'INTERRUPTED', 'FEED_HOLD', 'STOPPED', 'OPTIONAL_STOP', 'PROGRAM_STOPPED', 'PROGRAM_COMPLETED', 'WAIT'] as const
 export type ExecutionState = (typeof executionStates)[number]
+/** States a machine comes back from to ACTIVE as a restart: the engine re-learns, and the allowance it held is used up (docs/mqtt.md). */
+export const restartFromStates: ReadonlySet<string> = new Set<ExecutionState>(['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED'])
+/** Why a machine stands in FEED_HOLD: a hold command, its allowance used up, or both (docs/mqtt.md, "state"). */
+export const holdCauses = ['command', 'allowance'] as const
+export type HoldCause = (typeof holdCauses)[number]
 
 export const faultCodes = [
   'loader_jam', 'empty_pallet', 'gauge_fault', 'coolant_fault', 'mist_collector_fault', 'fire_alarm', 'wheel_contact_lost', 'wheel_worn_out',
@@ -146,6 +151,8 @@ export const birthMessageSchema = z.object({
   pipelineParts: z.number().int().min(0).max(50),
   cycleTimeS: z.number().positive().max(3600),
   wheelDiameterMm: z.number().positive().max(2000),
+  /** serial of the last part ground (0: none yet); optional — the allowance counts from it (docs/mqtt.md) */
+  lastPart: z.number().int().min(0).optional(),
 })
 
 /** The will. Fixed at CONNECT time, so it carries no seq of its own; `session` names the birth it ends. */
@@ -165,6 +172,8 @@ export const stateMessageSchema = z.object({
   execution: z.enum(executionStates),
   activeFaults: z.array(z.enum(faultCodes)).max(faultCodes.length),
   reason: shortText.optional(),
+  /** in FEED_HOLD: what holds it (a hold command, its allowance used up) */
+  holdCauses: z.array(z.enum(holdCauses)).max(holdCauses.length).optional(),
 })
 
 const eventBase = { kind: z.literal('event'), seq, time: isoTime }
@@ -208,7 +217,7 @@ export const readingMessageSchema = z.object({
   if (r.status !== 'ok' && r.diameterUm !== null) ctx.addIssue({ code: 'custom', message: `diameterUm must be null when status is ${r.status}`, path: ['diameterUm'] })
 })
 
-export const commandTypes = ['offset', 'dress', 'hold', 'resume'] as const
+export const commandTypes = ['offset', 'dress', 'hold', 'resume', 'allowance'] as const
 export type CommandType = (typeof commandTypes)[number]
 
 export const ackMessageSchema = z.object({
@@ -225,19 +234,35 @@ export const ackMessageSchema = z.object({
 })
 
 // ── server → machine ────────────────────────────────────────────────────────
+/**
+ * The parts allowance (docs/mqtt.md, "The allowance"): the machine may start parts up to serial
+ * `throughPart` without hearing from the server again. `basedOnSeq` is the machine's newest message
+ * the server had when it granted it: a grant based on messages older than the machine's last dress,
+ * wheel change, mastering, job change, gauge fault or restart counts for nothing.
+ */
+export const allowanceGrantSchema = z.object({
+  throughPart: z.number().int('must be a whole number').min(0, 'must be ≥ 0'),
+  basedOnSeq: z.number().int('must be a whole number').min(0, 'must be ≥ 0').max(mqttSeqMax),
+})
+export type AllowanceGrant = z.infer<typeof allowanceGrantSchema>
+
 const commandBase = {
   kind: z.literal('command'),
   id: z.string().regex(/^[A-Za-z0-9_.:-]{1,64}$/, 'must be 1–64 characters of A–Z a–z 0–9 _ . : -'),
   issuedAt: isoTime,
   /** on the machine's clock; see docs/mqtt.md */
   expiresAt: isoTime,
+  /** the allowance, carried on every command Owlshift sends */
+  allowance: allowanceGrantSchema.optional(),
 }
 export const commandMessageSchema = z.discriminatedUnion('type', [
   z.object({ ...commandBase, type: z.literal('offset'), offsetUm: micrometres(gaugeRangeUm), reason: shortText.optional() }),
   z.object({ ...commandBase, type: z.literal('dress'), reason: shortText.optional() }),
   z.object({ ...commandBase, type: z.literal('hold'), reason: shortText.optional() }),
   z.object({ ...commandBase, type: z.literal('resume'), reason: shortText.optional() }),
-], { error: (issue) => (issue.code === 'invalid_union' ? 'command type must be one of offset, dress, hold, resume' : undefined) })
+  /** a renewal: nothing but the allowance */
+  z.object({ ...commandBase, type: z.literal('allowance'), allowance: allowanceGrantSchema, reason: shortText.optional() }),
+], { error: (issue) => (issue.code === 'invalid_union' ? 'command type must be one of offset, dress, hold, resume, allowance' : undefined) })
   .refine((c) => Date.parse(c.expiresAt) > Date.parse(c.issuedAt), { message: 'expiresAt must be later than issuedAt', path: ['expiresAt'] })
 
 export type BirthMessage = z.infer<typeof birthMessageSchema>

@@ -181,7 +181,7 @@ const EVENT_WORDS: Record<string, string> = {
   dress: 'wheel dressed', wheel_change: 'wheel changed', pallet_change: 'pallet changed', mastering: 'gauge mastered',
   job_change: 'job changed', fault_raised: 'fault raised', fault_cleared: 'fault cleared',
 }
-const COMMAND_WORDS: Record<string, string> = { offset: 'offset', dress: 'dress', hold: 'hold', resume: 'resume' }
+const COMMAND_WORDS: Record<string, string> = { offset: 'offset', dress: 'dress', hold: 'hold', resume: 'resume', allowance: 'parts allowance' }
 const STATION_WORDS: Record<string, string> = { 'dress': 'dress logged', 'wheel-change': 'wheel change logged', 'mastering': 'gauge mastering logged', 'note': 'note', 'hand-measurement': 'measured by hand' }
 
 /** A machine message (kind and stored type) or a station log kind in the event log's words. */
@@ -194,6 +194,7 @@ export function liveEventWords(kind: string, type: string | null): string {
   if (kind === 'ack') {
     const [command = '', result = ''] = (type ?? '').split(':')
     const what = COMMAND_WORDS[command] ?? command
+    if (command === 'allowance' && result === 'applied') return 'machine took its parts allowance'
     if (result === 'applied') return `machine carried out the ${what}`
     if (result === 'rejected') return `machine refused the ${what}`
     if (result === 'expired') return `${what} expired before the machine took it`

@@ -7,7 +7,7 @@
 // (simulator/engine-controller.ts), so a preview or a simulated night decides what ingest decides.
 // Over 400 lines on purpose: the loop's record types, its step and the handler of each message
 // kind are one unit, read top to bottom; split, each part would be read only beside the others.
-import { mqttSeqResetJump, type AckMessage, type BirthMessage, type CommandMessage, type DeathMessage, type EventMessage, type JobInfo, type MachineMessage, type ReadingMessage, type SequencedMessage, type StateMessage } from './contract'
+import { mqttSeqResetJump, restartFromStates, type AckMessage, type BirthMessage, type CommandMessage, type DeathMessage, type EventMessage, type JobInfo, type MachineMessage, type ReadingMessage, type SequencedMessage, type StateMessage } from './contract'
 import { minutesUntilSizeAtRisk } from './size-risk'
 import { alarmEngineConditionHolds, alarmKindFor } from './alarm-catalogue'
 import { gateCommands, commandAnswered, offsetCommandInFlight, type OutstandingCommands } from './command-gate'
@@ -16,6 +16,7 @@ import type { CompensationTuning } from './compensation-tuning'
 import { wheelEventInput } from './wheel-events'
 import { commandClockOffsetMs, judgeMachineClock, trustedClock, type MachineClock } from './machine-clock'
 import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules } from './alert-routing'
+import { allowanceFor, allowanceRenewalDue, emptyAllowanceState, voidsAllowance, withAllowance, type AllowanceSettings, type AllowanceState } from './allowance'
 
 /** The alarm "size will meet tolerance soon", raised from the engine's prediction (docs/alarms.md). */
 export const TREND_CONDITION = 'trend:nears-tolerance'
@@ -53,6 +54,8 @@ export interface MachineStatusRecord {
   jobPartNumber: string | null
   engineState: unknown
   prediction: MachinePrediction | null
+  /** the parts allowance: the part serials it counts from and the last grant sent (allowance.ts); null: none yet */
+  allowance: AllowanceState | null
   updatedAt: number
 }
 
@@ -62,7 +65,7 @@ export function emptyMachineStatus(machineId: string): MachineStatusRecord {
     machineId, online: false, session: null, execution: null, activeFaults: [], lastSeq: 0,
     lastMessageAt: null, lastReadingAt: null, lastCycleAt: null, lastDiameterUm: null, partsGood: 0, partsScrap: 0,
     blanksLeft: null, cycleTimeS: null, appliedOffsetUm: null, requestedOffsetUm: null, jobPartNumber: null,
-    engineState: null, prediction: null, updatedAt: 0,
+    engineState: null, prediction: null, allowance: null, updatedAt: 0,
   }
 }
 
@@ -116,7 +119,7 @@ export type DecisionRow = {
   reason: string, inputs: unknown, alerts: unknown, slopeUmPerPart: number | null
 }
 export type CommandRow = {
-  id: string, machineId: string, type: string, origin: 'engine', payload: CommandMessage, issuedAt: number, expiresAt: number, status: 'sent', requestedOffsetUm: number | null
+  id: string, machineId: string, type: string, origin: 'engine' | 'allowance', payload: CommandMessage, issuedAt: number, expiresAt: number, status: 'sent', requestedOffsetUm: number | null
 }
 export type PresenceRow = { machineId: string, at: number, online: boolean, session: number | null, reason: string, machineTime: number | null }
 export type GapRow = { machineId: string, fromSeq: number, toSeq: number, detectedAt: number }
@@ -179,7 +182,6 @@ export interface MachineLoopResult<J extends MachineJobRecord = MachineJobRecord
 export type DecisionAction = 'stop' | 'offset' | 'dress' | 'hold' | 'none'
 
 /** Execution states a machine comes back from to ACTIVE as a restart (the engine re-learns). */
-const RESTART_FROM = new Set(['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED'])
 const ENGINE_ALARM_CODES = ['budget-used-up', 'offset-range-limit', 'gauge-suspect', 'consecutive-rejects'] as const
 const round3 = (x: number) => Math.round(x * 1000) / 1000
 const msOf = (iso: string) => Date.parse(iso)
@@ -252,7 +254,7 @@ export function engineInputsOf(message: SequencedMessage, time: number, executio
       return restart
     }
     case 'state':
-      return executionBefore && RESTART_FROM.has(executionBefore) && message.execution === 'ACTIVE' ? [{ type: 'restart', time }] : []
+      return executionBefore && restartFromStates.has(executionBefore) && message.execution === 'ACTIVE' ? [{ type: 'restart', time }] : []
     case 'ack':
       return message.result === 'applied' && message.command === 'offset' ? [{ type: 'offset-applied', offsetUm: message.offsetUm, time }] : []
     case 'event':
@@ -284,6 +286,8 @@ class Step<J extends MachineJobRecord> {
   job: J | null
   tuning: CompensationTuning | null
   trendRaised: boolean
+  /** how allowances are granted; null: none are */
+  allowanceSettings: AllowanceSettings | null = null
   readonly rows: MachineLoopRows = emptyLoopRows()
   readonly commands: CommandMessage[] = []
   readonly conditions: AlarmCondition[] = []
@@ -389,6 +393,44 @@ class Step<J extends MachineJobRecord> {
     for (const input of engineInputsOf(message, this.time!, executionBefore, this.engine?.offsetUm ?? null)) this.record(this.step(input), message.seq)
   }
 
+  /** Part serials the allowance counts from (allowance.ts). */
+  notePart(field: 'lastPartGround' | 'lastPartGauged', serial: number | undefined) {
+    if (serial === undefined || !this.allowanceSettings) return
+    const a = this.status.allowance ?? emptyAllowanceState()
+    if (a[field] !== null && a[field] >= serial) return
+    this.status.allowance = { ...a, [field]: serial }
+  }
+
+  /**
+   * The allowance after a message: carried on every command this step sends, and sent on its own
+   * as a renewal when one is due (allowance.ts, allowanceRenewalDue). `basedOnSeq` is the machine's
+   * newest message, so a grant is never older than what the machine last told us.
+   */
+  grantAllowance(voided: boolean, trigger: string) {
+    if (!this.allowanceSettings) return
+    const st = this.status
+    const a = st.allowance ?? emptyAllowanceState()
+    const eng = this.engine
+    const offsetsUm = [st.appliedOffsetUm, eng?.offsetUm, st.requestedOffsetUm].filter((u): u is number => typeof u === 'number')
+    const next = allowanceFor({ engine: eng, lastPartGround: a.lastPartGround, lastPartGauged: a.lastPartGauged, offsetsUm, current: st.online, settings: this.allowanceSettings })
+    const grant = { throughPart: next.throughPart, basedOnSeq: st.lastSeq }
+    const renew = st.online && allowanceRenewalDue(a.sent, next, a.lastPartGround, voided)
+    if (!this.commands.length && !renew) return
+    for (let i = 0; i < this.commands.length; i++) this.commands[i] = withAllowance(this.commands[i]!, grant)
+    for (const row of this.rows.commands) row.payload = this.commands.find(c => c.id === row.id) ?? row.payload
+    if (!this.commands.length) {
+      const t = this.clock.doubt ? this.now : this.time ?? this.now + (this.clockOffsetMs ?? 0)
+      const expiresAt = this.now + commandLifeMs(st.cycleTimeS ?? 20)
+      const command: CommandMessage = {
+        kind: 'command', type: 'allowance', id: `${this.m.id}.${trigger}.allowance`, issuedAt: new Date(t).toISOString(),
+        expiresAt: new Date(t + commandLifeMs(st.cycleTimeS ?? 20)).toISOString(), allowance: grant, reason: next.reason.slice(0, 200),
+      }
+      this.commands.push(command)
+      this.rows.commands.push({ id: command.id, machineId: this.m.id, type: 'allowance', origin: 'allowance', payload: command, issuedAt: this.now, expiresAt, status: 'sent', requestedOffsetUm: null })
+    }
+    st.allowance = { ...a, sent: { ...grant, parts: next.parts, reason: next.reason, at: this.now } }
+  }
+
   /** "Size will meet tolerance soon": the routing rules' hysteresis over the prediction (alert-routing.ts). */
   judgeTrend() {
     const rules = this.m.trendRules
@@ -414,9 +456,16 @@ class Step<J extends MachineJobRecord> {
  */
 export function applyMachineMessage<J extends MachineJobRecord>(machine: MachineLoop<J>, message: MachineLoopMessage<J>, now: number, opts: MachineLoopOptions = {}): MachineLoopResult<J> {
   const s = new Step(machine, now)
-  if (message.kind === 'job-assigned') { onJobAssigned(s, message); s.judgeTrend(); return s.result() }
+  s.allowanceSettings = opts.allowance ?? null
+  if (message.kind === 'job-assigned') {
+    onJobAssigned(s, message)
+    s.grantAllowance(false, `j${now.toString(36)}`)
+    s.judgeTrend()
+    return s.result()
+  }
   if (message.kind === 'death') return onDeath(s, message) ? s.result() : s.result(true)
   const st = s.status
+  const executionBefore = st.execution
   if (st.lastSeq > 0 && message.seq > st.lastSeq + mqttSeqResetJump) {
     // Not that many lost messages: the machine restarted its numbering (docs/mqtt.md, "seq").
     s.condition('link:sequence-reset', true, `${machine.name}: message numbers jumped from ${st.lastSeq.toLocaleString('en-US')} to ${message.seq.toLocaleString('en-US')}; taken as a restart of its numbering, not as missing messages`, msOf(message.time))
@@ -439,6 +488,7 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
     else if (message.kind === 'ack') onAck(s, message)
     else onEvent(s, message)
   }
+  s.grantAllowance(voidsAllowance(message, executionBefore), String(message.seq))
   s.judgeTrend()
   return s.result()
 }
@@ -447,6 +497,8 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
 export interface MachineLoopOptions {
   /** how far a machine's clock may be from the server's before it is doubted; null or absent: never (machine-clock.ts) */
   clockToleranceMs?: number | null
+  /** how allowances are granted (allowance.ts); null or absent: none are granted */
+  allowance?: AllowanceSettings | null
 }
 
 /** The machine's clock after a message, and the alarm "Machine clock wrong" when the doubt comes or goes. */
@@ -480,6 +532,7 @@ function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessa
   })
   st.lastReadingAt = time
   st.lastDiameterUm = message.diameterUm
+  s.notePart('lastPartGauged', message.part)
   const decision = s.step({
     // The engine counts readings (parts gauged), not messages: the message sequence also counts
     // events, and the engine would take each gap for parts it never saw (too-early dresses,
@@ -505,6 +558,7 @@ function onBirth<J extends MachineJobRecord>(s: Step<J>, message: BirthMessage) 
   st.cycleTimeS = message.cycleTimeS
   st.appliedOffsetUm = message.offsetUm
   if (!jobChanged) st.jobPartNumber = message.job?.partNumber ?? st.jobPartNumber
+  s.notePart('lastPartGround', message.lastPart)
   s.rows.presence.push({ machineId: s.m.id, at: s.now, online: true, session: message.session, reason: wasRunning ? 'reconnected' : 'birth', machineTime: s.time })
   s.condition('link:offline', false, '')
   if (!s.engine) s.startEngine(message.job, message.offsetUm, message.pipelineParts)
@@ -535,9 +589,9 @@ function onEvent<J extends MachineJobRecord>(s: Step<J>, message: EventMessage) 
   const st = s.status
   const name = s.m.name
   switch (message.type) {
-    case 'part_loaded': st.blanksLeft = message.blanksLeft; break
+    case 'part_loaded': st.blanksLeft = message.blanksLeft; s.notePart('lastPartGround', message.part - 1); break
     case 'pallet_change': st.blanksLeft = message.blanks; break
-    case 'part_ground': st.lastCycleAt = s.time; break
+    case 'part_ground': st.lastCycleAt = s.time; s.notePart('lastPartGround', message.part); break
     case 'part_unloaded': if (message.disposition === 'good') st.partsGood++; else st.partsScrap++; break
     case 'dress':
       delete s.outstanding.dress // whoever asked, the wheel is dressed

@@ -22,6 +22,8 @@ describe('crash and restart under load', () => {
       scenario: loadScenarioFile('simulator/scenarios/quiet-night.json'), seed: 11, machines: 4, speed,
       hours: (9 * speed) / 3600, brokerUrl: `mqtt://127.0.0.1:${mqttPort}`, stateDir: join(dataDir, 'sim'),
       credentials: id => creds[id], reconnectMs: 200, drainTimeoutMs: 30_000,
+      // The load must go on through the outage; machines that stop on their allowance are tests/e2e/outage.test.ts's.
+      obeyAllowance: false,
     })
     const t0 = Date.now()
     await new Promise(r => setTimeout(r, 3000))

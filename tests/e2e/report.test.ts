@@ -55,6 +55,9 @@ describe('overnight report', async () => {
     const sim = await startSimulator({
       scenario, seed: 21, machines: 4, speed: 200, hours: 0.8, brokerUrl: owl.mqttUrl, stateDir: join(owl.dataDir, 'sim'),
       credentials: id => creds[id], drainTimeoutMs: 30_000,
+      // The ground truth's times assume machines cycling from the scenario's start; a machine that
+      // obeys its allowance first waits for Owlshift's first word (tests/e2e/outage.test.ts).
+      obeyAllowance: false,
     })
     summary = await sim.finished
     // every unload event the simulator sent has been stored

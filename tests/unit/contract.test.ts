@@ -9,6 +9,7 @@ import {
   mqttMaxPayloadBytes, topicKindOf, type MachineMessage,
 } from '../../shared/utils/contract'
 import { runHeadless } from '../../simulator/headless'
+import { defaultAllowanceSettings } from '../../shared/utils/allowance'
 import { createEngineController } from '../../simulator/engine-controller'
 import { loadScenarioFile } from '../../simulator/scenario'
 import { fileURLToPath } from 'node:url'
@@ -95,6 +96,14 @@ describe('commands', () => {
       expect(decodeCommandMessage(JSON.stringify({ ...cmd, type })).ok, type).toBe(true)
     }
   })
+  it('carries the allowance on any command; an allowance command must have one, whole and not negative (docs/mqtt.md, "The allowance")', () => {
+    const allowance = { throughPart: 934, basedOnSeq: 5120 }
+    expect(decodeCommandMessage(JSON.stringify({ ...cmd, allowance }))).toMatchObject({ ok: true, value: { allowance } })
+    expect(decodeCommandMessage(JSON.stringify({ ...cmd, type: 'allowance', allowance }))).toMatchObject({ ok: true })
+    expect(decodeCommandMessage(JSON.stringify({ ...cmd, type: 'allowance' }))).toMatchObject({ ok: false, reason: expect.stringMatching(/allowance/) })
+    expect(decodeCommandMessage(JSON.stringify({ ...cmd, allowance: { throughPart: -1, basedOnSeq: 3 } }))).toMatchObject({ ok: false, reason: expect.stringMatching(/allowance\.throughPart: must be ≥ 0/) })
+    expect(decodeCommandMessage(JSON.stringify({ ...cmd, allowance: { throughPart: 2.5, basedOnSeq: 3 } }))).toMatchObject({ ok: false, reason: expect.stringMatching(/whole number/) })
+  })
   it('refuses a command without an id, with an expiry before issue, or of unknown type', () => {
     expect(decodeCommandMessage(JSON.stringify({ ...cmd, id: '' }))).toMatchObject({ ok: false, reason: expect.stringMatching(/id: must be 1–64/) })
     expect(decodeCommandMessage(JSON.stringify({ ...cmd, expiresAt: '2026-03-02T21:00:00.000Z' }))).toMatchObject({ ok: false, reason: expect.stringMatching(/expiresAt must be later/) })
@@ -109,7 +118,7 @@ describe('every message the simulator emits validates', () => {
     it(`scenario ${file}`, () => {
       const scenario = loadScenarioFile(dir + file)
       const messages: MachineMessage[] = []
-      runHeadless({ scenario, seed: 3, hours: 3, machines: 4, controller: createEngineController(), onMessage: (_m, msg) => messages.push(msg) })
+      runHeadless({ scenario, seed: 3, hours: 3, machines: 4, controller: createEngineController({ allowance: defaultAllowanceSettings }), obeyAllowance: true, onMessage: (_m, msg) => messages.push(msg) })
       expect(messages.length).toBeGreaterThan(500)
       const kinds = new Set<string>()
       for (const message of messages) {

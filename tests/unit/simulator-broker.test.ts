@@ -97,7 +97,7 @@ describe('simulator against an MQTT broker', () => {
     let broker = await startBroker(port, arrivals, wills)
     const sim = await startSimulator({
       scenario, seed: 5, machines: 3, speed: 2400, hours: 1.2, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
-      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20,
+      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, obeyAllowance: false,
     })
     cleanups.push(() => sim.stop({ graceful: false }))
     await until(() => arrivals.length > 300, 10_000, 'first messages')
@@ -129,7 +129,7 @@ describe('simulator against an MQTT broker', () => {
     cleanups.push(() => rmSync(stateDir, { recursive: true, force: true }))
     const options = {
       scenario, seed: 9, machines: 2, speed: 3600, hours: 0.3, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
-      credentials: (id: string) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, drainTimeoutMs: 50,
+      credentials: (id: string) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, drainTimeoutMs: 50, obeyAllowance: false,
     }
     // first run: no broker at all; then a crash (no graceful shutdown)
     const first = await startSimulator(options)
@@ -171,7 +171,7 @@ describe('simulator against an MQTT broker', () => {
     cleanups.push(() => broker.kill())
     const sim = await startSimulator({
       scenario, seed: 2, machines: 1, speed: 60, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
-      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20,
+      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, obeyAllowance: false,
     })
     cleanups.push(() => sim.stop({ graceful: false }))
     await until(() => arrivals.some((a) => a.message.kind === 'birth'), 10_000, 'birth')
@@ -201,7 +201,7 @@ describe('simulator against an MQTT broker', () => {
     const logs: string[] = []
     const wrong = await startSimulator({
       scenario, seed: 2, machines: 1, speed: 600, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir: join(stateDir, 'wrong'),
-      credentials: (id) => ({ username: id, password: 'nope' }), reconnectMs: 100, tickMs: 20, onLog: (l) => logs.push(l),
+      credentials: (id) => ({ username: id, password: 'nope' }), reconnectMs: 100, tickMs: 20, onLog: (l) => logs.push(l), obeyAllowance: false,
     })
     await wait(400)
     await wrong.stop({ graceful: false })
@@ -211,7 +211,7 @@ describe('simulator against an MQTT broker', () => {
 
     const sim = await startSimulator({
       scenario, seed: 2, machines: 1, speed: 600, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir: join(stateDir, 'right'),
-      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20,
+      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, obeyAllowance: false,
     })
     await until(() => arrivals.some((a) => a.message.kind === 'birth'), 10_000, 'birth')
     const birth = arrivals.find((a) => a.message.kind === 'birth')!.message as { session: number }

@@ -90,7 +90,7 @@ describe('simulator against a real Mosquitto', () => {
     try {
       await wait(300) // let the subscription settle before the first publish
       const stateDir = join(dir, 'state')
-      const sim = await startSimulator({ scenario, seed: 4, machines: 2, speed: 600, hours: 0.75, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir, reconnectMs: 100, tickMs: 20 })
+      const sim = await startSimulator({ scenario, seed: 4, machines: 2, speed: 600, hours: 0.75, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir, reconnectMs: 100, tickMs: 20, obeyAllowance: false })
       await until(() => lines.some((l) => l.includes('"kind":"birth"') && l.includes('/cg-01/')), 10_000, 'the birth of cg-01')
 
       // a command as any MQTT tool would send it; expiry on the machine's clock

@@ -2,6 +2,7 @@
 // the machine's ack updates the command (status sent → applied / rejected / expired).
 import { z } from 'zod'
 import { eq } from 'drizzle-orm'
+import { withAllowance } from '#shared/utils/allowance'
 
 const body = z.object({
   type: z.enum(['hold', 'resume'], 'Choose hold or resume.'),
@@ -28,7 +29,8 @@ export default defineEventHandler(async (event) => {
   // The machine's clock decides expiry: date the command on that clock as it reads now (its newest
   // message's offset from ours), not at its last part, which may be long past (waiting, held).
   const machineNow = now + (ctx.clockOffsetMs ?? 0)
-  const command = { kind: 'command' as const, type, id, issuedAt: new Date(machineNow).toISOString(), expiresAt: new Date(machineNow + EXPIRES_MS).toISOString(), reason: (reason || `${type} by ${user.name}`).slice(0, 200) }
+  // Every command carries the machine's allowance as last granted (docs/mqtt.md, "The allowance").
+  const command = withAllowance({ kind: 'command' as const, type, id, issuedAt: new Date(machineNow).toISOString(), expiresAt: new Date(machineNow + EXPIRES_MS).toISOString(), reason: (reason || `${type} by ${user.name}`).slice(0, 200) }, ctx.status.allowance?.sent)
   await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type, origin: `user:${user.id}`, payload: command, issuedAt: now, expiresAt: now + EXPIRES_MS, status: 'sent' })
   const sent = await sendCommand(ctx.cellId, ctx.id, command)
   if (!sent) {

@@ -1,0 +1,1 @@
+ALTER TABLE `machine_status` ADD `allowance` text;

@@ -1,0 +1,166 @@
+// The parts allowance (docs/mqtt.md, "The allowance"): how many more parts a machine may start
+// without hearing from Owlshift again, so that a machine whose compensator has gone quiet stops
+// before wear and warm-up walk its size out of tolerance. Pure. The server grants it in the machine
+// loop (machine-loop.ts) from the compensation engine's state; the simulator's machines obey it
+// (simulator/cell.ts) with the machine's side below.
+//
+// The grant names a part serial, not a count: a grant that arrives late, twice or out of order
+// never lets a machine grind more than the server meant when it sent it, and the parts a machine
+// ground since the server last heard of it count against the grant whether the server saw them or not.
+import { compensationSigmaUm, type CompensationState } from './compensation'
+import { restartFromStates, type AllowanceGrant, type CommandMessage, type MachineMessage } from './contract'
+
+export interface AllowanceSettings {
+  /** guard band inside each tolerance limit: at least this fraction of the half tolerance … */
+  guardFraction: number
+  /** … and at least this many σ of the engine's part-to-part spread (µm) */
+  guardSigmas: number
+  /** never more than this many minutes of parts at the engine's cycle time */
+  maxMinutes: number
+}
+
+/** Defaults (docs/mqtt.md, "The allowance"): a quarter of the half tolerance or 3 σ, whichever is wider; at most 30 minutes. */
+export const defaultAllowanceSettings: AllowanceSettings = { guardFraction: 0.25, guardSigmas: 3, maxMinutes: 30 }
+
+/** What the server keeps of a machine's allowance (machine_status.allowance). */
+export interface AllowanceState {
+  /** serial of the last part the machine is known to have ground (part_ground, part_loaded − 1, birth's lastPart) */
+  lastPartGround: number | null
+  /** serial of the last part whose reading the engine has taken */
+  lastPartGauged: number | null
+  /** the last grant sent, with the parts it meant beyond the part in the wheel, why, and when (server's clock) */
+  sent: (AllowanceGrant & { parts: number, reason: string, at: number }) | null
+}
+
+export const emptyAllowanceState = (): AllowanceState => ({ lastPartGround: null, lastPartGauged: null, sent: null })
+
+export interface AllowanceInputs {
+  engine: CompensationState | null
+  lastPartGround: number | null
+  lastPartGauged: number | null
+  /** the offsets the coming parts may be ground with (axis µm): the one in force and the ones asked for */
+  offsetsUm: readonly number[]
+  /** the engine holds the machine's latest state: it is not catching up with messages that came late */
+  current: boolean
+  settings?: AllowanceSettings
+}
+
+export interface Allowance {
+  /** parts the machine may start beyond the part in the wheel */
+  parts: number
+  /** the serial of the last part it may start */
+  throughPart: number
+  /** why this many, in plain words */
+  reason: string
+  /** the guard band used (µm inside each limit), when the prediction was used */
+  guardUm: number | null
+}
+
+const EVENT_WORDS: Record<string, string> = { 'dress': 'dress', 'wheel-change': 'wheel change', 'job-change': 'job change', 'restart': 'restart', 'mastered': 'gauge mastering' }
+
+/** Why the engine cannot vouch for the coming parts now (null: it can). */
+export function engineUnsure(st: CompensationState | null): string | null {
+  if (!st) return 'no compensation engine runs for this machine'
+  if (st.level === null) return 'the engine has not learnt the size yet'
+  if (st.relearnPending !== null) return `the engine re-learns the size after the ${EVENT_WORDS[st.relearnPending] ?? st.relearnPending}`
+  if (st.learning) return 'the engine re-learns the size'
+  if (st.flushRemaining > 0 || st.holdRemaining > 0) return st.holdReason ?? 'parts ground before the last event are still on their way to the gauge'
+  if (st.invalidRun > 0) return 'the last reading was unusable (gauge)'
+  if (st.outlierRun > 0) return 'the last reading was far from the prediction'
+  if (st.outOfToleranceRun > 0) return 'the last part was out of tolerance'
+  return null
+}
+
+/**
+ * The allowance the engine's state vouches for: the parts until the predicted size of a part ground
+ * at an unchanged offset reaches the guard band inside tolerance, at most `maxMinutes` of parts, and
+ * none beyond the part in the wheel while the engine is unsure or not current. Sizes are predicted
+ * per part serial from the engine's level at the last gauged part and its slope; with several
+ * offsets possible (one in force, one asked for) the smallest allowance of them counts.
+ */
+export function allowanceFor(x: AllowanceInputs): Allowance {
+  const settings = x.settings ?? defaultAllowanceSettings
+  const base = x.lastPartGround ?? (x.lastPartGauged !== null && x.engine ? x.lastPartGauged + x.engine.settings.pipelineParts : 0)
+  const zero = (reason: string, guardUm: number | null = null): Allowance => ({ parts: 0, throughPart: base + 1, reason, guardUm })
+  if (!x.current) return zero('catching up with messages that arrived late: nothing is vouched for from them')
+  const unsure = engineUnsure(x.engine)
+  if (unsure) return zero(unsure)
+  const st = x.engine!
+  if (x.lastPartGauged === null) return zero('no part gauged yet')
+  const s = st.settings
+  const half = (s.upperSpecUm - s.lowerSpecUm) / 2
+  const guardUm = Math.max(settings.guardFraction * half, settings.guardSigmas * compensationSigmaUm(st))
+  const lo = s.lowerSpecUm + guardUm
+  const hi = s.upperSpecUm - guardUm
+  if (!(lo < hi)) return zero(`the size spreads too widely to run unwatched (guard band ${fmt(guardUm)} µm leaves no room)`, guardUm)
+  const offsets = x.offsetsUm.filter(Number.isFinite)
+  if (!offsets.length) return zero('the offset in force is not known')
+  const inWheel = base + 1
+  const level = st.level!
+  const slope = st.slope
+  let parts = Number.POSITIVE_INFINITY
+  for (const u of offsets) {
+    const sizeInWheel = level + (inWheel - x.lastPartGauged) * slope + s.gain * u
+    if (sizeInWheel > hi || sizeInWheel < lo) return zero(`the part in the wheel is predicted at ${fmt(sizeInWheel)} µm, in the guard band`, guardUm)
+    if (Math.abs(slope) < 1e-12) continue
+    const room = slope > 0 ? (hi - sizeInWheel) / slope : (sizeInWheel - lo) / -slope
+    parts = Math.min(parts, Math.floor(room + 1e-9))
+  }
+  const cap = Math.max(0, Math.floor((settings.maxMinutes * 60) / st.cycleTimeS))
+  const capped = parts >= cap
+  const n = Math.max(0, Math.min(parts, cap))
+  const reason = capped
+    ? `${n} parts: the most allowed (${settings.maxMinutes} min at ${fmt(st.cycleTimeS, 1)} s a part)`
+    : `${n} parts until the predicted size reaches the guard band (${fmt(guardUm)} µm inside tolerance)`
+  return { parts: n, throughPart: inWheel + n, reason, guardUm }
+}
+
+/**
+ * Whether a machine message uses up the allowance the machine holds (both sides apply it): after a
+ * dress, a wheel change, a gauge mastering, a job change, a gauge fault or a restart the coming sizes
+ * are not what the grant foresaw, and only a grant based on that message or a later one counts.
+ */
+export function voidsAllowance(message: MachineMessage, executionBefore: string | null): boolean {
+  if (message.kind === 'event') {
+    return message.type === 'dress' || message.type === 'wheel_change' || message.type === 'mastering' || message.type === 'job_change'
+      || (message.type === 'fault_raised' && message.fault === 'gauge_fault')
+  }
+  if (message.kind === 'state') return message.execution === 'ACTIVE' && !!executionBefore && restartFromStates.has(executionBefore)
+  return false
+}
+
+/**
+ * Whether the server sends a renewal now (besides the grant every command carries): when none was
+ * sent, when the machine has just used up what it held, when the new grant is lower than the last
+ * one (it must hear at once), and when half of the last grant's parts are ground and the new one
+ * reaches further. So a grant is renewed as parts are ground and never runs out while the server is healthy.
+ */
+export function allowanceRenewalDue(sent: AllowanceState['sent'], next: Allowance, lastPartGround: number | null, voided: boolean): boolean {
+  if (!sent || voided) return true
+  if (next.throughPart < sent.throughPart) return true
+  if (next.throughPart === sent.throughPart) return false
+  const left = sent.throughPart - (lastPartGround ?? 0)
+  return left <= Math.floor(next.parts / 2)
+}
+
+// ── the machine's side (contract rule; the simulator's machines run it) ──────────────────────
+
+/** The grant a machine holds after a command with one arrived in time: the newest basis wins (a tie: the later arrival). */
+export function heldAllowanceAfter(held: AllowanceGrant | null, incoming: AllowanceGrant | undefined): AllowanceGrant | null {
+  if (!incoming) return held
+  return !held || incoming.basedOnSeq >= held.basedOnSeq ? { throughPart: incoming.throughPart, basedOnSeq: incoming.basedOnSeq } : held
+}
+
+/** Whether a machine may start part `serial`: it holds a grant reaching it, based on its last voiding message (seq) or later. */
+export function mayStartPart(held: AllowanceGrant | null, serial: number, voidedAtSeq: number): boolean {
+  return !!held && held.basedOnSeq >= voidedAtSeq && serial <= held.throughPart
+}
+
+/** A command with the allowance attached (a copy). */
+export function withAllowance<C extends CommandMessage>(command: C, grant: AllowanceGrant | null | undefined): C {
+  return grant ? { ...command, allowance: { throughPart: grant.throughPart, basedOnSeq: grant.basedOnSeq } } : command
+}
+
+function fmt(v: number, digits = 2): string {
+  return v.toFixed(digits)
+}
