@@ -21,7 +21,7 @@
 //   plant's latency, acked then), dress (done before the next part, acked then), hold
 //   (FEED_HOLD at once), resume (refused while a fault is active); expired commands are
 //   acked "expired"; a repeated command id is acked again with the first result.
-//   Allowance (docs/mqtt.md, "The allowance"; with `obeyAllowance`): every command received in
+//   Allowance (docs/mqtt.md#the-allowance; with `obeyAllowance`): every command received in
 //   time brings the allowance it carries; a part is started only within the allowance held, after
 //   a dress, wheel change, mastering, job change, gauge fault or restart only with a grant based on
 //   it. Short of one, the machine finishes the part in the wheel, waits one cycle for a renewal,
@@ -452,7 +452,7 @@ export function createCell(options: CellOptions): Cell {
 
   function onLoad(m: SimMachine): void {
     if (options.obeyAllowance && !mayStartPart(m.allowance, m.plant.partsGround + 1, m.voidedAtSeq)) {
-      // Not within the allowance: wait a cycle for a renewal, then hold (docs/mqtt.md, "The allowance").
+      // Not within the allowance: wait a cycle for a renewal, then hold (docs/mqtt.md#the-allowance).
       if (m.waitingForAllowance === null) {
         m.waitingForAllowance = ++m.waits
         agenda.push(now + Math.max(m.spec.cycleTimeS, options.allowanceWaitS ?? 0), m.index, { kind: 'allowanceWaitEnd', wait: m.waits })

@@ -1,4 +1,4 @@
-// The parts allowance (docs/mqtt.md, "The allowance"): how many more parts a machine may start
+// The parts allowance (docs/mqtt.md#the-allowance): how many more parts a machine may start
 // without hearing from Owlshift again, so that a machine whose compensator has gone quiet stops
 // before wear and warm-up walk its size out of tolerance. Pure. The server grants it in the machine
 // loop (machine-loop.ts) from the compensation engine's state; the simulator's machines obey it
@@ -19,7 +19,7 @@ export interface AllowanceSettings {
   maxMinutes: number
 }
 
-/** Defaults (docs/mqtt.md, "The allowance"): a quarter of the half tolerance or 3 σ, whichever is wider; at most 30 minutes. */
+/** Defaults (docs/mqtt.md#the-allowance): a quarter of the half tolerance or 3 σ, whichever is wider; at most 30 minutes. */
 export const defaultAllowanceSettings: AllowanceSettings = { guardFraction: 0.25, guardSigmas: 3, maxMinutes: 30 }
 
 /** What the server keeps of a machine's allowance (machine_status.allowance). */

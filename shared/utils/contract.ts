@@ -235,7 +235,7 @@ export const ackMessageSchema = z.object({
 
 // ── server → machine ────────────────────────────────────────────────────────
 /**
- * The parts allowance (docs/mqtt.md, "The allowance"): the machine may start parts up to serial
+ * The parts allowance (docs/mqtt.md#the-allowance): the machine may start parts up to serial
  * `throughPart` without hearing from the server again. `basedOnSeq` is the machine's newest message
  * the server had when it granted it: a grant based on messages older than the machine's last dress,
  * wheel change, mastering, job change, gauge fault or restart counts for nothing.

@@ -160,7 +160,7 @@ class ScriptedGrinder {
         if (this.partsSinceDress < 5) ack('rejected', `wheel dressed ${this.partsSinceDress} part(s) ago`)
         else { ack('applied'); this.dress('command', c.id) }
       }
-      else if (c.type === 'allowance') ack('applied') // takes it; this scripted machine does not stop for it (docs/mqtt.md, "The allowance")
+      else if (c.type === 'allowance') ack('applied') // takes it; this scripted machine does not stop for it (docs/mqtt.md#the-allowance)
       else if (c.type === 'hold') { this.running = false; this.heldByServerAtTick = this.tick; ack('applied'); this.state('FEED_HOLD', 'hold asked by the server') }
       else ack('rejected', 'not on hold')
     }

@@ -1,4 +1,4 @@
-// The parts allowance (shared/utils/allowance.ts, docs/mqtt.md "The allowance"): what the engine's
+// The parts allowance (shared/utils/allowance.ts, docs/mqtt.md#the-allowance): what the engine's
 // state vouches for, the machine's side of the rule, and the machine loop granting it.
 import { describe, expect, it } from 'vitest'
 import fc from 'fast-check'

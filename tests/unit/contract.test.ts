@@ -96,7 +96,7 @@ describe('commands', () => {
       expect(decodeCommandMessage(JSON.stringify({ ...cmd, type })).ok, type).toBe(true)
     }
   })
-  it('carries the allowance on any command; an allowance command must have one, whole and not negative (docs/mqtt.md, "The allowance")', () => {
+  it('carries the allowance on any command; an allowance command must have one, whole and not negative (docs/mqtt.md#the-allowance)', () => {
     const allowance = { throughPart: 934, basedOnSeq: 5120 }
     expect(decodeCommandMessage(JSON.stringify({ ...cmd, allowance }))).toMatchObject({ ok: true, value: { allowance } })
     expect(decodeCommandMessage(JSON.stringify({ ...cmd, type: 'allowance', allowance }))).toMatchObject({ ok: true })

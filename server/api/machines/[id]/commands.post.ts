@@ -29,7 +29,7 @@ export default defineEventHandler(async (event) => {
   // The machine's clock decides expiry: date the command on that clock as it reads now (its newest
   // message's offset from ours), not at its last part, which may be long past (waiting, held).
   const machineNow = now + (ctx.clockOffsetMs ?? 0)
-  // Every command carries the machine's allowance as last granted (docs/mqtt.md, "The allowance").
+  // Every command carries the machine's allowance as last granted (docs/mqtt.md#the-allowance).
   const command = withAllowance({ kind: 'command' as const, type, id, issuedAt: new Date(machineNow).toISOString(), expiresAt: new Date(machineNow + EXPIRES_MS).toISOString(), reason: (reason || `${type} by ${user.name}`).slice(0, 200) }, ctx.status.allowance?.sent)
   await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type, origin: `user:${user.id}`, payload: command, issuedAt: now, expiresAt: now + EXPIRES_MS, status: 'sent' })
   const sent = await sendCommand(ctx.cellId, ctx.id, command)
