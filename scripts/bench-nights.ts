@@ -6,7 +6,7 @@ import { runNight, nightTable, NIGHTS } from './lib/night-run'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
 
 const only = process.argv[2]
-const speed = Number(process.env.NIGHT_SPEED ?? 600)
+const speed = Number(process.env.NIGHT_SPEED ?? 240)
 const results = []
 for (const n of NIGHTS.filter(x => !only || x.name.startsWith(only))) {
   const r = await runNight({ ...n, speed })

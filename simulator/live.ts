@@ -16,7 +16,7 @@
 // clock starts after the last journalled message, so machine time never runs backwards.
 import { createCell, type Cell } from './cell'
 import { MachineLink } from './mqtt-machine'
-import type { CommandMessage } from '../shared/utils/contract'
+import type { CommandMessage, SequencedMessage } from '../shared/utils/contract'
 import type { Scenario } from './scenario'
 import { machinesFor } from './scenario'
 
@@ -34,12 +34,17 @@ export interface SimulatorOptions {
   startMs?: number
   tickMs?: number
   reconnectMs?: number
+  /** MQTT keep-alive and connect timeout of every machine (a run on an accelerated clock stretches them, so a busy host's lag is no lost link) */
+  keepaliveS?: number
+  connectTimeoutMs?: number
   /** after the last simulated hour, wait this long for outstanding acknowledgements */
   drainTimeoutMs?: number
   /** machines start parts only within the allowance the server grants (docs/mqtt.md); default true.
    *  false for a bare broker with no Owlshift behind it */
   obeyAllowance?: boolean
   onLog?: (line: string) => void
+  /** every message the cell emits, as it is handed to its link (what the machines really did) */
+  onMessage?: (machineId: string, message: SequencedMessage) => void
 }
 
 export interface SimulatorProgress {
@@ -75,7 +80,7 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
     const link = new MachineLink({
       brokerUrl: options.brokerUrl, cell: scenario.cell, machine: spec.id,
       username: creds?.username, password: creds?.password, stateDir: options.stateDir,
-      reconnectMs: options.reconnectMs,
+      reconnectMs: options.reconnectMs, keepaliveS: options.keepaliveS, connectTimeoutMs: options.connectTimeoutMs,
       machineTime: () => cell!.isoAt(cell!.timeS),
       onConnected: (session) => cell!.announce(spec.id, session),
       onCommand: (command) => commands.push([spec.id, command]),
@@ -97,7 +102,7 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
     // Fast-forwarded, a renewal's trip through the network takes many simulated seconds: a machine
     // waits at least four ticks for one before it holds (a real machine waits its cycle time).
     allowanceWaitS: (4 * (options.tickMs ?? 50) / 1000) * options.speed,
-    onMessage: (machineId, message) => links.get(machineId)!.publish(message),
+    onMessage: (machineId, message) => { options.onMessage?.(machineId, message); links.get(machineId)!.publish(message) },
   })
   const theCell = cell
   theCell.startMachines()

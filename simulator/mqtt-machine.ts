@@ -34,6 +34,8 @@ export interface MachineLinkOptions {
   onLog?: (line: string) => void
   reconnectMs?: number
   keepaliveS?: number
+  /** how long a connection attempt may take (ms of the simulator's clock; default 10 s) */
+  connectTimeoutMs?: number
   /** messages sent but not yet acknowledged at most (back-pressure towards the broker) */
   maxInFlight?: number
 }
@@ -125,7 +127,7 @@ export class MachineLink {
       password: this.options.password,
       keepalive: this.options.keepaliveS ?? 30,
       reconnectPeriod: 0, // reconnects are ours: every connection gets its own will and session number
-      connectTimeout: 10_000,
+      connectTimeout: this.options.connectTimeoutMs ?? 10_000,
       will: { topic: mqttTopics.presence(cell, machine), payload: Buffer.from(JSON.stringify(will)), qos: 1, retain: true },
     })
     this.client = client

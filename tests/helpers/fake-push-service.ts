@@ -37,12 +37,15 @@ export interface FakePushService {
   close(): Promise<void>
 }
 
-export function makeSelfSignedCertificate(): { dir: string, certFile: string, keyFile: string } {
+/** `validFrom` (epoch ms): the certificate's start, for a server on a faked clock (made under Debian's faketime: openssl 3.0 cannot date it). */
+export function makeSelfSignedCertificate(validFrom?: number): { dir: string, certFile: string, keyFile: string } {
   const dir = mkdtempSync(join(tmpdir(), 'owlshift-tls-'))
   const certFile = join(dir, 'cert.pem')
   const keyFile = join(dir, 'key.pem')
-  execFileSync('openssl', ['req', '-x509', '-newkey', 'ec', '-pkeyopt', 'ec_paramgen_curve:prime256v1', '-nodes', '-keyout', keyFile, '-out', certFile,
-    '-days', '2', '-subj', '/CN=localhost', '-addext', 'subjectAltName=IP:127.0.0.1,DNS:localhost'], { stdio: 'pipe' })
+  const args = ['req', '-x509', '-newkey', 'ec', '-pkeyopt', 'ec_paramgen_curve:prime256v1', '-nodes', '-keyout', keyFile, '-out', certFile,
+    '-days', '2', '-subj', '/CN=localhost', '-addext', 'subjectAltName=IP:127.0.0.1,DNS:localhost']
+  if (validFrom === undefined) execFileSync('openssl', args, { stdio: 'pipe' })
+  else execFileSync('faketime', [new Date(validFrom).toISOString().slice(0, 19).replace('T', ' '), 'openssl', ...args], { stdio: 'pipe', env: { ...process.env, TZ: 'UTC' } })
   return { dir, certFile, keyFile }
 }
 
@@ -73,8 +76,9 @@ export function decryptPush(body: Buffer, receiverPrivateKey: Buffer, authSecret
   return ece.decrypt(body, { version: 'aes128gcm', privateKey: ecdh, authSecret: authSecret.toString('base64url') })
 }
 
-export async function startFakePushService(): Promise<FakePushService> {
-  const { certFile, keyFile } = makeSelfSignedCertificate()
+/** `nowS`: the service's clock in seconds and `validFrom` its certificate's start (a run on an accelerated plant clock passes that clock). */
+export async function startFakePushService(opts: { nowS?: () => number, validFrom?: number } = {}): Promise<FakePushService> {
+  const { certFile, keyFile } = makeSelfSignedCertificate(opts.validFrom)
   const certPem = readFileSync(certFile, 'utf8')
   const subs = new Map<string, { ecdh: ReturnType<typeof createECDH>, auth: Buffer, gone: 404 | 410 | null }>()
   const received: ReceivedPush[] = []
@@ -90,7 +94,7 @@ export async function startFakePushService(): Promise<FakePushService> {
       if (req.method !== 'POST') return reject(405, 'only POST')
       if (!sub) return reject(404, 'no such subscription')
       if (sub.gone) return reject(sub.gone, sub.gone === 410 ? 'subscription expired' : 'no such subscription')
-      const v = checkVapid(req.headers.authorization, origin)
+      const v = checkVapid(req.headers.authorization, origin, opts.nowS?.())
       if ('reason' in v) return reject(403, v.reason)
       const ttl = Number(req.headers.ttl)
       if (!Number.isInteger(ttl) || ttl < 0) return reject(400, 'TTL header missing (RFC 8030 §5.2)')
