@@ -131,6 +131,7 @@ interface SimMachine {
   waitingForAllowance: number | null
   waits: number
   holdCausesSent: string
+  compensator: { status: 'online' | 'offline' | 'paused'; reason: string } | null
 }
 
 type Action =
@@ -234,6 +235,8 @@ export interface Cell {
   /** run exactly the next action (for drivers that interleave their own work) */
   step(): void
   deliverCommand(machineId: string, command: CommandMessage): void
+  /** what the machine knows of its compensator (docs/mqtt.md#the-servers-presence): said in its allowance hold */
+  noteCompensator(machineId: string, status: 'online' | 'offline' | 'paused', reason?: string): void
   lastSeq(machineId: string): number
   summary(): { machines: MachineSummary[]; totals: Omit<MachineSummary, 'id' | 'partNumber' | 'execution' | 'activeFaults' | 'lastSeq'> }
 }
@@ -261,7 +264,7 @@ export function createCell(options: CellOptions): Cell {
         commands: { applied: 0, rejected: 0, expired: 0 }, trueDev: welford(), measuredDev: welford(),
         sinceLastWord: { parts: 0, trulyOut: 0 }, allowanceHolds: 0,
       },
-      allowance: null, everGranted: false, voidedAtSeq: 0, allowanceHold: false, waitingForAllowance: null, waits: 0, holdCausesSent: '',
+      allowance: null, everGranted: false, voidedAtSeq: 0, allowanceHold: false, waitingForAllowance: null, waits: 0, holdCausesSent: '', compensator: null,
     }
     plantSetUpOffset(plant, 0, spec.initialOffsetUm) // the offset already in the control when the night starts
     return m
@@ -299,10 +302,16 @@ export function createCell(options: CellOptions): Cell {
     if (m.plannedStop) return { state: 'STOPPED', reason: 'planned stop' }
     if (m.hold && m.allowanceHold) return { state: 'FEED_HOLD', reason: 'hold command; allowance used up', holdCauses: ['command', 'allowance'] }
     if (m.hold) return { state: 'FEED_HOLD', reason: 'hold command', holdCauses: ['command'] }
-    if (m.allowanceHold) return { state: 'FEED_HOLD', reason: 'allowance used up: no word from the compensator', holdCauses: ['allowance'] }
+    if (m.allowanceHold) return { state: 'FEED_HOLD', reason: allowanceHoldReason(m), holdCauses: ['allowance'] }
     // A machine that obeys the allowance starts its first cycle on the compensator's first word.
     if (options.obeyAllowance && !m.everGranted) return { state: 'READY', reason: 'waiting for the compensator\'s first allowance' }
     return { state: 'ACTIVE' }
+  }
+
+  function allowanceHoldReason(m: SimMachine): string {
+    const c = m.compensator
+    const why = c?.status === 'offline' ? 'compensator offline' : c?.status === 'paused' ? 'compensator paused on purpose' : 'no word from the compensator'
+    return `allowance used up: ${why}${c && c.status !== 'online' && c.reason ? ` (${c.reason})` : ''}`.slice(0, 200)
   }
 
   function updateExecution(m: SimMachine): void {
@@ -604,6 +613,9 @@ export function createCell(options: CellOptions): Cell {
           ack(m, command, 'applied')
           return
       }
+    },
+    noteCompensator(machineId, status, reason = '') {
+      getMachine(machineId).compensator = { status, reason }
     },
     lastSeq: (machineId) => getMachine(machineId).seq,
     summary() {

@@ -126,7 +126,7 @@ async function main(): Promise<void> {
   const progress = setInterval(() => {
     if (args.quiet) return
     const p = sim.progress()
-    console.log(`${p.machineTime}  ${p.simulatedHours.toFixed(2)}/${p.totalHours} h  parts ${p.partsGround}  links up ${p.connected}/${p.machines}  awaiting ack ${p.pendingAcks}  commands in ${p.commandsReceived}`)
+    console.log(`${p.machineTime}  ${p.simulatedHours.toFixed(2)}/${p.totalHours} h  parts ${p.partsGround}  links up ${p.connected}/${p.machines}${p.compensatorAway ? `  compensator offline (${p.compensatorAway})` : ''}  awaiting ack ${p.pendingAcks}  commands in ${p.commandsReceived}`)
   }, 5000)
   let interrupted = false
   process.once('SIGINT', () => { interrupted = true; console.log('stopping…'); void sim.stop({ graceful: true }) })

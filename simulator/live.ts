@@ -55,6 +55,8 @@ export interface SimulatorProgress {
   pendingAcks: number
   connected: number
   machines: number
+  /** machines that know their compensator is offline or paused (its presence, or their connection down) */
+  compensatorAway: number
   commandsReceived: number
 }
 
@@ -84,6 +86,7 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
       machineTime: () => cell!.isoAt(cell!.timeS),
       onConnected: (session) => cell!.announce(spec.id, session),
       onCommand: (command) => commands.push([spec.id, command]),
+      onCompensator: (c) => cell?.noteCompensator(spec.id, c.status === 'unknown' ? 'offline' : c.status, c.reason),
       onLog: log,
     })
     links.set(spec.id, link)
@@ -151,6 +154,7 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
       partsGround: theCell.summary().totals.partsGround,
       pendingAcks: pendingAcks(),
       connected: [...links.values()].filter((l) => l.isConnected).length,
+      compensatorAway: [...links.values()].filter((l) => l.compensator.status === 'offline' || l.compensator.status === 'paused').length,
       machines: links.size,
       commandsReceived: [...links.values()].reduce((a, l) => a + l.commandsReceived, 0),
     }),

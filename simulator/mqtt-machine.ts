@@ -10,10 +10,16 @@
 //
 // The will (death, retained, on the presence topic) names the connection session; it is set
 // anew for every connection because its session number changes.
+//
+// The machine also reads the server's presence (docs/mqtt.md#the-servers-presence): it knows
+// at once when its compensator is offline or paused (or its own connection is down), and when a
+// new server run comes online it sends a fresh birth, so the server knows where its live
+// messages begin after the backlog.
 import mqtt, { type MqttClient } from 'mqtt'
 import { join } from 'node:path'
 import {
-  decodeCommandMessage, machineClientId, mqttTopics, topicKindOf, type CommandMessage, type DeathMessage, type MachineTopicKind, type SequencedMessage,
+  decodeCommandMessage, decodeServerPresence, machineClientId, mqttTopics, serverPresenceTopic, topicKindOf,
+  type CommandMessage, type DeathMessage, type MachineTopicKind, type SequencedMessage, type ServerPresence,
 } from '../shared/utils/contract'
 import { MachineJournal, type JournalEntry } from './journal'
 
@@ -31,6 +37,8 @@ export interface MachineLinkOptions {
   /** called once per connection, after the backlog is queued: must publish a birth */
   onConnected: (session: number) => void
   onCommand: (command: CommandMessage) => void
+  /** the compensator went offline, paused or came online (its presence, or this connection) */
+  onCompensator?: (status: CompensatorStatus) => void
   onLog?: (line: string) => void
   reconnectMs?: number
   keepaliveS?: number
@@ -39,6 +47,9 @@ export interface MachineLinkOptions {
   /** messages sent but not yet acknowledged at most (back-pressure towards the broker) */
   maxInFlight?: number
 }
+
+/** What the machine knows of its compensator: the server's presence, or its own connection down. */
+export interface CompensatorStatus { status: ServerPresence['status'] | 'unknown', reason: string, startedAt: string | null }
 
 export class MachineLink {
   readonly journal: MachineJournal
@@ -54,6 +65,10 @@ export class MachineLink {
   connections = 0
   commandsReceived = 0
   invalidCommands = 0
+  compensator: CompensatorStatus = { status: 'unknown', reason: 'not connected yet', startedAt: null }
+  /** the server run whose presence this connection has seen (a new one coming online prompts a birth) */
+  private runSeen: string | null = null
+  private presenceSeen = false
 
   constructor(readonly options: MachineLinkOptions) {
     this.journal = new MachineJournal(join(options.stateDir, options.cell, `${options.machine}.journal`))
@@ -139,13 +154,15 @@ export class MachineLink {
       this.nextToSend = 0
       this.inFlight = 0
       this.options.onLog?.(`${machine}: connected (session ${session})`)
-      client.subscribe(mqttTopics.command(cell, machine), { qos: 1 }, (err) => {
+      this.presenceSeen = false
+      client.subscribe([mqttTopics.command(cell, machine), serverPresenceTopic], { qos: 1 }, (err) => {
         if (err) this.options.onLog?.(`${machine}: cannot subscribe to commands: ${err.message}`)
       })
       this.options.onConnected(session)
       this.pump()
     })
-    client.on('message', (_topic, payload) => {
+    client.on('message', (topic, payload) => {
+      if (topic === serverPresenceTopic) { this.onServerPresence(session, payload); return }
       this.commandsReceived++
       const decoded = decodeCommandMessage(payload)
       if (!decoded.ok) { this.invalidCommands++; this.options.onLog?.(`${machine}: ignored a command: ${decoded.reason}`); return }
@@ -158,9 +175,36 @@ export class MachineLink {
       const wasConnected = this.connected && this.client === client
       if (this.client === client) { this.connected = false; this.client = null }
       client.end(true)
-      if (wasConnected) this.options.onLog?.(`${machine}: connection lost; ${this.pending} message(s) kept for later`)
+      if (wasConnected) {
+        this.options.onLog?.(`${machine}: connection lost; ${this.pending} message(s) kept for later`)
+        this.setCompensator({ status: 'offline', reason: 'no connection to the broker', startedAt: this.compensator.startedAt })
+      }
       if (!this.stopped) this.reconnectTimer = setTimeout(() => this.connect(), this.options.reconnectMs ?? 1000)
     })
+  }
+
+  private setCompensator(next: CompensatorStatus): void {
+    const was = this.compensator.status
+    this.compensator = next
+    if (next.status !== was) {
+      const words = next.status === 'online' ? 'compensator online' : next.status === 'paused' ? 'compensator paused' : 'compensator offline'
+      this.options.onLog?.(`${this.options.machine}: ${words}${next.reason ? ` — ${next.reason}` : ''}`)
+    }
+    this.options.onCompensator?.(next)
+  }
+
+  private onServerPresence(session: number, payload: Buffer): void {
+    const decoded = decodeServerPresence(payload)
+    if (!decoded.ok) { this.options.onLog?.(`${this.options.machine}: ignored the server's presence: ${decoded.reason}`); return }
+    const p = decoded.value
+    const first = !this.presenceSeen
+    this.presenceSeen = true
+    this.setCompensator({ status: p.status, reason: p.reason ?? '', startedAt: p.startedAt })
+    // A new server run online: a birth tells it where the live messages begin (the birth of this
+    // connection did, when this presence is the first the connection sees).
+    const newRun = p.startedAt !== this.runSeen
+    this.runSeen = p.startedAt
+    if (p.status === 'online' && newRun && !first && this.connected) this.options.onConnected(session)
   }
 
   /** Sends journalled messages in order while the window allows. */

@@ -6,10 +6,10 @@ import net from 'node:net'
 import { Aedes } from 'aedes'
 import mqtt from 'mqtt'
 import { databaseReady } from './0.database'
-import { mqttTopics, machineClientId } from '#shared/utils/contract'
+import { mqttTopics, machineClientId, parseMqttTopic, serverPresenceTopic } from '#shared/utils/contract'
 import { defaultAllowanceSettings } from '#shared/utils/allowance'
 
-/** Marks packets the server itself publishes: only those are forwarded to machines. */
+/** Marks packets the server itself publishes: only those (and its retained presence) are forwarded to machines. */
 const SERVER_MARK = 'owlshift-server-internal'
 
 interface MachineClient { owlMachine?: string, id: string }
@@ -77,26 +77,33 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
       const machineId = (client as unknown as MachineClient | null)?.owlMachine
       if (!client) return done(null) // the server's own publish
       if (!machineId) return done(new Error('not authenticated as a machine'))
+      // Only a machine's own topics may keep a retained message: nobody else's presence, and never the server's.
+      const t = parseMqttTopic(packet.topic)
+      if (!t.ok || t.machine !== machineId) packet.retain = false
       ingest.accept({ topic: packet.topic, payload: Buffer.isBuffer(packet.payload) ? packet.payload : Buffer.from(packet.payload), clientId: client.id, machineIdentity: machineId, qos: packet.qos, retain: packet.retain })
         .then(() => done(null), err => done(err as Error))
     },
     authorizeSubscribe: (client, sub, done) => {
       const machineId = (client as unknown as MachineClient).owlMachine
       const ctx = machineId ? machineContext(machineId) : undefined
-      // A machine may read its own commands and nothing else.
-      if (ctx && sub.topic === mqttTopics.command(ctx.cellId, ctx.id)) return done(null, sub)
+      // A machine may read its own commands and the server's presence, nothing else.
+      if (ctx && (sub.topic === mqttTopics.command(ctx.cellId, ctx.id) || sub.topic === serverPresenceTopic)) return done(null, sub)
       done(null, null as never)
     },
-    authorizeForward: (_client, packet) => ((packet as { clientId?: string }).clientId === SERVER_MARK ? packet : null),
+    // A retained message handed over at subscription comes without its publisher: on the presence
+    // topic it can only be the server's (authorizePublish strips a machine's retain flag there).
+    authorizeForward: (_client, packet) => ((packet as { clientId?: string }).clientId === SERVER_MARK || (packet.topic === serverPresenceTopic && packet.retain) ? packet : null),
   })
   const server = net.createServer(socket => broker.handle(socket))
   const sockets = new Set<net.Socket>()
   server.on('connection', (s) => { sockets.add(s); s.on('close', () => sockets.delete(s)) })
   const boundPort = await listenWithRetry(server, port, host)
   log.info(`[owlshift] MQTT broker (embedded) listening on ${host}:${boundPort}`)
-  setCommandPublisher((topic, payload) => new Promise((resolve, reject) => {
-    broker.publish({ cmd: 'publish', topic, payload: Buffer.from(payload), qos: 1, retain: false, dup: false, clientId: SERVER_MARK } as never, err => (err ? reject(err) : resolve()))
-  }))
+  const publish = (topic: string, payload: string, retain: boolean) => new Promise<void>((resolve, reject) => {
+    broker.publish({ cmd: 'publish', topic, payload: Buffer.from(payload), qos: 1, retain, dup: false, clientId: SERVER_MARK } as never, err => (err ? reject(err) : resolve()))
+  })
+  setCommandPublisher((topic, payload) => publish(topic, payload, false))
+  setServerPresencePublisher(publish)
   return {
     kind: 'embedded',
     port: boundPort,
@@ -104,6 +111,7 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
     connectedMachines: () => broker.connectedClients,
     close: async () => {
       setCommandPublisher(null)
+      setServerPresencePublisher(null)
       // Stop accepting, then cut the machines' connections: close() alone waits for them to leave.
       const closed = new Promise<void>(r => server.close(() => r()))
       for (const s of sockets) s.destroy()
@@ -118,6 +126,8 @@ async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<
   const client = mqtt.connect(url, {
     clientId: cfg.clientId, clean: false, protocolVersion: 4, username: cfg.username, password: cfg.password,
     reconnectPeriod: 1000, keepalive: 30,
+    // Owlshift's presence to its machines: "offline" when the broker loses it (docs/mqtt.md#the-servers-presence).
+    will: { ...serverPresenceWill(), qos: 1, retain: true },
   })
   // Hold the PUBACK until the message is committed.
   client.handleMessage = (packet, callback) => {
@@ -139,13 +149,15 @@ async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<
   client.on('connect', (ack) => {
     log.info(`[owlshift] connected to the external MQTT broker ${url} (session ${ack.sessionPresent ? 'resumed' : 'new'})`)
     client.subscribe(mqttTopics.serverSubscriptions, { qos: 1 }, (err) => { if (err) log.error(`[owlshift] subscribe failed: ${err.message}`) })
+    announceServerPresence('online').catch(err => log.error(`[owlshift] could not announce itself to the machines: ${(err as Error).message}`))
   })
   client.on('error', err => log.error(`[owlshift] external MQTT broker: ${err.message}`))
   setCommandPublisher(async (topic, payload) => { await client.publishAsync(topic, payload, { qos: 1 }) })
+  setServerPresencePublisher(async (topic, payload, retain) => { await client.publishAsync(topic, payload, { qos: 1, retain }) })
   return {
     kind: 'external',
     connectedMachines: () => allMachineContexts().filter(m => m.status.online).length,
-    close: async () => { setCommandPublisher(null); await client.endAsync() },
+    close: async () => { setCommandPublisher(null); setServerPresencePublisher(null); await client.endAsync() },
   }
 }
 
@@ -161,12 +173,17 @@ export default defineNitroPlugin((nitroApp) => {
     ingest.clockToleranceMs = config.mqtt.clockToleranceS ? config.mqtt.clockToleranceS * 1000 : null
     ingest.allowance = { ...defaultAllowanceSettings, ...config.mqtt.allowance }
     setBrokerHandle(config.mqtt.url ? await startExternal(config.mqtt.url, config.mqtt) : await startEmbedded(config.mqtt.host, config.mqtt.port))
+    if (!config.mqtt.url) await announceServerPresence('online')
   })().catch((err) => {
     console.error(`[owlshift] the MQTT broker could not start: ${(err as Error).message}. Check MQTT_PORT / MQTT_URL.`)
     process.exit(1)
   })
   nitroApp.hooks.hook('close', async () => {
     await ready
+    // A planned stop says so: the machines' allowance still decides when they hold, but nobody
+    // takes it for a crash (docs/mqtt.md#the-servers-presence).
+    await announceServerPresence('paused', 'Owlshift stopped on purpose (an update or maintenance); it comes back by itself')
+      .catch(err => log.warn(`[owlshift] could not tell the machines it pauses: ${(err as Error).message}`))
     await useIngest().drain()
     await brokerHandle()?.close()
     setBrokerHandle(null)

@@ -40,6 +40,12 @@ function topic(cell: string, machine: string, kind: TopicKind): string {
   return `${mqttNamespace}/${cell}/${machine}/${kind}`
 }
 
+/**
+ * The server's own presence (docs/mqtt.md#the-servers-presence): three levels, where every machine
+ * topic has five, and "_" cannot begin a cell id — no cell or machine can publish or take it.
+ */
+export const serverPresenceTopic = `${mqttNamespace}/_server/presence`
+
 /** Topic builders. Subscriptions use MQTT wildcards (+ one level). */
 export const mqttTopics = {
   presence: (cell: string, machine: string) => topic(cell, machine, 'presence'),
@@ -234,6 +240,30 @@ export const ackMessageSchema = z.object({
 })
 
 // ── server → machine ────────────────────────────────────────────────────────
+/**
+ * The server's presence, retained on serverPresenceTopic: `online` while it runs (its will says
+ * `offline`), `paused` on a planned stop. `startedAt` names the server's run: a machine that sees
+ * a new run come online sends a fresh birth, so the server knows where its live messages begin.
+ */
+export const serverPresenceSchema = z.object({
+  kind: z.literal('server'),
+  status: z.enum(['online', 'offline', 'paused']),
+  startedAt: isoTime,
+  /** server's clock, when it said so (not on the will: fixed when it connected) */
+  time: isoTime.optional(),
+  reason: shortText.optional(),
+})
+export type ServerPresence = z.infer<typeof serverPresenceSchema>
+
+/** Decodes the server's presence as a machine receives it. */
+export function decodeServerPresence(payload: string | Uint8Array): Decoded<ServerPresence> {
+  const json = decodeJson(payload)
+  if (!json.ok) return json
+  const parsed = serverPresenceSchema.safeParse(json.value)
+  if (!parsed.success) return { ok: false, reason: `invalid server presence: ${describeIssues(parsed.error)}` }
+  return { ok: true, value: parsed.data }
+}
+
 /**
  * The parts allowance (docs/mqtt.md#the-allowance): the machine may start parts up to serial
  * `throughPart` without hearing from the server again. `basedOnSeq` is the machine's newest message

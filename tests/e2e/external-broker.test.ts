@@ -15,7 +15,7 @@ import { freePort, openTestDb, rootDir } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { birth, reading, payloadOf, topicFor, CELL } from './mqtt-helpers'
 import { demoShop } from '../../shared/utils/demo-shop'
-import { mqttTopics, machineClientId } from '../../shared/utils/contract'
+import { mqttTopics, machineClientId, serverPresenceTopic } from '../../shared/utils/contract'
 
 const MOSQUITTO = ['/usr/sbin/mosquitto', '/usr/bin/mosquitto'].find(p => existsSync(p))
 const SERVER_USER = 'owlshift-server'
@@ -150,5 +150,32 @@ describe('external broker (Mosquitto)', () => {
     const back = mosquittoSub(['-c', '-i', machineClientId(CELL, A), ...account(A), '-t', mqttTopics.command(CELL, A), '-C', '1', '-W', '5', '-v'])
     expect(back.status, back.err).toBe(0)
     expect(JSON.parse(back.out.slice(back.out.indexOf('{'))).type).toBe('hold')
+  })
+
+  it('every machine account reads Owlshift\'s presence, only Owlshift writes it; the broker says "offline" when Owlshift is killed, "paused" when it is stopped', async () => {
+    const presence = (machine: string) => {
+      const r = mosquittoSub(['-i', machineClientId(CELL, machine), ...account(machine), '-t', serverPresenceTopic, '-C', '1', '-W', '5'])
+      expect(r.status, r.err).toBe(0)
+      return JSON.parse(r.out) as { status: string, startedAt: string, reason?: string }
+    }
+    const first = presence('cg-01')
+    expect(first).toMatchObject({ kind: 'server', status: 'online' })
+    expect(presence('cg-04').startedAt).toBe(first.startedAt)
+    // A machine's account cannot write it (the ACL drops the publish): still Owlshift's own.
+    const fake = spawnSync('mosquitto_pub', ['-h', '127.0.0.1', '-p', String(brokerPort), '-V', 'mqttv311', '-q', '1', '-r', '-i', machineClientId(CELL, 'cg-02'), ...account('cg-02'), '-t', serverPresenceTopic, '-m', JSON.stringify({ kind: 'server', status: 'online', startedAt: '2000-01-01T00:00:00.000Z' })], { encoding: 'utf8' })
+    expect(fake.status, fake.stderr).toBe(0)
+    expect(presence('cg-01').startedAt).toBe(first.startedAt)
+    // kill -9: the broker publishes Owlshift's will.
+    await killServer(server, 'SIGKILL')
+    await until(async () => presence('cg-01').status === 'offline', 'the will')
+    expect(presence('cg-03').reason).toMatch(/without a word/)
+    server = await startServer({ dataDir, port: server.port, env: env() })
+    await until(async () => presence('cg-01').status === 'online', 'online again')
+    expect(presence('cg-01').startedAt).not.toBe(first.startedAt) // another run
+    // a planned stop says so
+    await killServer(server, 'SIGTERM')
+    expect(presence('cg-01')).toMatchObject({ status: 'paused', reason: expect.stringMatching(/on purpose/) })
+    server = await startServer({ dataDir, port: server.port, env: env() })
+    await until(async () => presence('cg-01').status === 'online', 'online after the planned stop')
   })
 })

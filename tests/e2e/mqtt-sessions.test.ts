@@ -6,7 +6,7 @@ import { spawnSync } from 'node:child_process'
 import { url } from '@nuxt/test-utils/e2e'
 import { setupOwlshift, demoCredentials, sessionCookie, demoUser } from './harness'
 import { birth, payloadOf, topicFor, machineClient, CELL } from './mqtt-helpers'
-import { mqttTopics, machineClientId } from '../../shared/utils/contract'
+import { mqttTopics, machineClientId, serverPresenceTopic } from '../../shared/utils/contract'
 
 describe('MQTT sessions are bound to the machine\'s account', async () => {
   const owl = await setupOwlshift()
@@ -48,6 +48,25 @@ describe('MQTT sessions are bound to the machine\'s account', async () => {
     expect(back.status, back.err).toBe(0)
     expect(back.out).toContain(commandTopic(A))
     expect(JSON.parse(back.out.slice(back.out.indexOf('{'))).type).toBe('hold')
+  })
+
+  it('every machine account reads Owlshift\'s retained presence; a machine cannot put one of its own there', async () => {
+    const presence = (machine: string) => {
+      const r = mosquittoSub(['-i', machineClientId(CELL, machine), ...as(machine), '-t', serverPresenceTopic, '-C', '1', '-W', '5'])
+      expect(r.status, r.err).toBe(0)
+      return JSON.parse(r.out) as { kind: string, status: string, startedAt: string }
+    }
+    const real = presence('cg-01')
+    expect(real).toMatchObject({ kind: 'server', status: 'online' })
+    expect(presence('cg-02')).toEqual(real)
+    // cg-02 publishes a retained "presence" of its own: refused as bad data, never kept or forwarded.
+    const fake = spawnSync('mosquitto_pub', ['-h', '127.0.0.1', '-p', String(owl.mqttPort), '-V', 'mqttv311', '-q', '1', '-r', '-i', machineClientId(CELL, 'cg-02'), ...as('cg-02'),
+      '-t', serverPresenceTopic, '-m', JSON.stringify({ kind: 'server', status: 'offline', startedAt: real.startedAt })], { encoding: 'utf8' })
+    expect(fake.status, fake.stderr).toBe(0)
+    expect(presence('cg-03')).toEqual(real)
+    // and no machine reads another's topics
+    const other = mosquittoSub(['-i', machineClientId(CELL, 'cg-03'), ...as('cg-03'), '-t', mqttTopics.command(CELL, 'cg-04'), '-C', '1', '-W', '2'])
+    expect(other.out).toBe('')
   })
 
   it('a second machine on the same client id does not knock the first one off', async () => {

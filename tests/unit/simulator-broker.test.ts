@@ -14,7 +14,7 @@ import { fileURLToPath } from 'node:url'
 import { Aedes } from 'aedes'
 import { startSimulator, type RunningSimulator } from '../../simulator/live'
 import { loadScenarioFile } from '../../simulator/scenario'
-import { decodeMachineMessage, mqttTopics, type MachineMessage } from '../../shared/utils/contract'
+import { decodeMachineMessage, mqttTopics, serverPresenceTopic, type MachineMessage } from '../../shared/utils/contract'
 
 const scenario = { ...loadScenarioFile(fileURLToPath(new URL('../../simulator/scenarios/quiet-night.json', import.meta.url))), faultRatesPerHour: {} }
 const password = (id: string) => `pw-${id}`
@@ -188,6 +188,39 @@ describe('simulator against an MQTT broker', () => {
     expect(acks.find((a) => a.commandId === 'c-1')).toMatchObject({ result: 'applied', offsetUm: -1.25 })
     expect(acks.find((a) => a.commandId === 'c-2')).toMatchObject({ result: 'expired' })
     expect(sim.links.get('cg-01')!.invalidCommands).toBe(1)
+  }, 30_000)
+
+  it('reads the server\'s presence: says "compensator offline" at once, waits for its first allowance, and sends a fresh birth when a new server run comes online', async () => {
+    const port = await freePort()
+    const stateDir = mkdtempSync(join(tmpdir(), 'owlshift-sim-'))
+    cleanups.push(() => rmSync(stateDir, { recursive: true, force: true }))
+    const arrivals: Arrival[] = [], wills: MachineMessage[] = []
+    const broker = await startBroker(port, arrivals, wills)
+    cleanups.push(() => broker.kill())
+    const presence = (status: string, startedAt: string) => new Promise<void>((r) => broker.broker.publish({
+      cmd: 'publish', topic: serverPresenceTopic, payload: Buffer.from(JSON.stringify({ kind: 'server', status, startedAt, reason: status === 'offline' ? 'gone' : undefined })), qos: 1, retain: true, dup: false,
+    }, () => r()))
+    await presence('online', '2026-12-01T20:00:00.000Z')
+    const logs: string[] = []
+    const sim = await startSimulator({
+      scenario, seed: 2, machines: 1, speed: 600, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
+      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, onLog: (l) => logs.push(l),
+    })
+    cleanups.push(() => sim.stop({ graceful: false }))
+    const births = () => arrivals.filter((a) => a.message.kind === 'birth').length
+    await until(() => births() === 1 && sim.links.get('cg-01')!.compensator.status === 'online', 10_000, 'birth and the retained presence')
+    expect(sim.cell.summary().machines[0]!.execution).toBe('READY') // no allowance yet: it waits for the compensator's first word
+    // the same run again: nothing new; a new run online: a fresh birth
+    await presence('online', '2026-12-01T20:00:00.000Z')
+    await wait(200)
+    expect(births()).toBe(1)
+    await presence('online', '2026-12-01T21:00:00.000Z')
+    await until(() => births() === 2, 5_000, 'a fresh birth for the new server run')
+    // the server's will: at once
+    await presence('offline', '2026-12-01T21:00:00.000Z')
+    await until(() => sim.progress().compensatorAway === 1, 5_000, 'compensator offline')
+    expect(logs.some((l) => /cg-01: compensator offline — gone/.test(l))).toBe(true)
+    expect(births()).toBe(2)
   }, 30_000)
 
   it('refuses wrong credentials at the broker and publishes the death will when a machine drops', async () => {
