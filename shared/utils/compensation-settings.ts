@@ -107,6 +107,18 @@ export const compensationSettingsSchema = z
         learnStep: z.boolean().default(true),
       })
       .prefault({}),
+    /** a restart after a stop: the machine cooled while stopped, so the size steps by the warm-up it
+     *  lost, then warms up again (docs/compensation.md#restart-after-a-stop) */
+    restart: z
+      .object({
+        /** size change from cold to fully warm (µm of diameter, signed: negative = warm parts come out
+         *  smaller), from the machine builder or a cold start; unset: learnt from restarts after long stops */
+        warmupUm: z.number().min(-100).max(100).optional(),
+        /** time constants of warming while running and cooling while stopped (min); common practice, from memory */
+        warmupTauMin: positive.default(30),
+        coolingTauMin: positive.default(60),
+      })
+      .prefault({}),
     /** M consecutive parts out of tolerance → stop request */
     stopAfterOutOfTolerance: parts(1, 1000).default(3),
     /** alert when the trend meets a specification limit within this many parts */

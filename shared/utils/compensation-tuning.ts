@@ -70,6 +70,7 @@ export const TUNING_FIELDS = [
   { path: 'dress.intervalParts', label: 'Dress every (parts)', kind: 'number', help: 'fixed policy' },
   { path: 'dress.wearBudgetUm', label: 'Wear budget (µm)', kind: 'number', help: 'adaptive policy' },
   { path: 'dress.machineOffset', label: 'What the machine does to its offset at a dress', kind: 'choice', choices: ['keeps', 'gives-back', 'resets'], help: 'keeps = leaves it; gives-back = undoes what was taken since the last dress; resets = sets a value it reports. A machine that reports its new offset is believed either way' },
+  { path: 'restart.warmupUm', label: 'Size change cold to warm (µm)', kind: 'number', help: 'negative = warm parts come out smaller; from the machine builder or a cold start. Empty: learnt from long stops' },
   { path: 'stopAfterOutOfTolerance', label: 'Stop after rejects in a row', kind: 'number', help: '' },
 ] as const
 

@@ -124,6 +124,15 @@ export interface CompensationState {
   /** the size error the last dress left on the wheel (estimated from how far its step was from the
    *  prediction): the next dress takes it off again (docs/compensation.md#through-a-dress) */
   dressLeftErrorUm: number | null
+  /** the machine's thermal state as a fraction of its warm-up (0 cold … 1 warm), at thermalAtMs;
+   *  an engine starts on a machine taken as warm (docs/compensation.md#restart-after-a-stop) */
+  thermalFraction: number
+  thermalAtMs: number | null
+  /** warm-up learnt from restarts (µm, signed) when the setting does not give it */
+  warmupLearntUm: number | null
+  /** after a restart: the projected pre-stop level and the change of thermal fraction, to learn the warm-up */
+  restartStepBase: number | null
+  restartFractionStep: number | null
   /** `readings` at the last step event (null: no event window open), and the readings (first and
    *  last, counted like `readings`) whose parts were ground after an event before a correction
    *  could land: their rejects do not count toward the stop (docs: "The stop rule") */
@@ -246,6 +255,11 @@ export function createCompensationState(settings: CompensationSettingsInput | Co
     dressStepErrorSqUm2: null,
     dressStepCount: 0,
     dressLeftErrorUm: null,
+    thermalFraction: 1,
+    thermalAtMs: null,
+    warmupLearntUm: null,
+    restartStepBase: null,
+    restartFractionStep: null,
     eventAtReading: null,
     graceFromReading: 0,
     graceToReading: 0,
@@ -263,13 +277,13 @@ export function restoreCompensationState(json: unknown): CompensationState {
   if (!raw || typeof raw !== 'object') throw new Error('compensation state: expected an object')
   const st = raw as CompensationState
   if (st.version !== COMPENSATION_STATE_VERSION) throw new Error(`compensation state: unknown version ${String(st.version)}`)
-  parseCompensationSettings(st.settings)
+  const settings = parseCompensationSettings(st.settings) // settings added since get their defaults
   if (!Number.isFinite(st.offsetUm) || !Array.isArray(st.offsetRing)) throw new Error('compensation state: offset fields are missing or not numbers')
   // Fields added since the state was stored get their fresh values; stored fields win. The learnt
   // raw dress step of states stored before the step was predicted means something else now: dropped.
   const fresh = createCompensationState(st.settings, { offsetUm: st.offsetUm })
   const { dressStepUm: _legacy, ...stored } = st as CompensationState & { dressStepUm?: unknown }
-  return structuredClone({ ...fresh, ...stored })
+  return structuredClone({ ...fresh, ...stored, settings })
 }
 
 // ---------------------------------------------------------------- stepping
@@ -351,6 +365,11 @@ function copyState(state: CompensationState): CompensationState {
     dressStepErrorSqUm2: state.dressStepErrorSqUm2,
     dressStepCount: state.dressStepCount,
     dressLeftErrorUm: state.dressLeftErrorUm ?? null,
+    thermalFraction: state.thermalFraction ?? 1,
+    thermalAtMs: state.thermalAtMs ?? null,
+    warmupLearntUm: state.warmupLearntUm ?? null,
+    restartStepBase: state.restartStepBase ?? null,
+    restartFractionStep: state.restartFractionStep ?? null,
     eventAtReading: state.eventAtReading,
     graceFromReading: state.graceFromReading,
     graceToReading: state.graceToReading,
@@ -459,6 +478,7 @@ function onReading(st: CompensationState, r: CompensationReading): CompensationD
   const pairedOffset = advancePart(st)
   const offsetForPart = typeof r.offsetInForceUm === 'number' && Number.isFinite(r.offsetInForceUm) ? r.offsetInForceUm : pairedOffset
   updateCycleTime(st, seq, r.time)
+  advanceThermal(st, r.time)
   st.lastSeq = seq
   // An offset change between consecutive parts moves r = y − b·u by (ξ − 1)·b·Δu when the model
   // gain is off; allow for ξ in [0.5, 1.5] in the outlier screen.
@@ -844,7 +864,7 @@ function preCorrectionOffset(st: CompensationState): { offsetUm: number; why: st
   const ahead = s.strategy === 'drift' && st.level !== null ? st.level + (s.pipelineParts + 1) * st.slope
     : s.strategy === 'ewma' && st.ewmaLevel !== null ? st.ewmaLevel : null
   if (ahead === null) return null
-  return { offsetUm: (s.targetUm - ahead - st.stepPriorUm) / s.gain, why: `pre-correct the predicted dress step ${fmt(st.stepPriorUm)} µm` }
+  return { offsetUm: (s.targetUm - ahead - st.stepPriorUm) / s.gain, why: `pre-correct the predicted ${st.relearnPending === 'restart' ? 'restart' : 'dress'} step ${fmt(st.stepPriorUm)} µm` }
 }
 
 function desiredOffset(st: CompensationState, stepMean: number | null): { offsetUm: number; why: string } | null {
@@ -983,6 +1003,7 @@ function timeUpdate(st: CompensationState): void {
   if (st.learning) {
     st.learnSamples = st.learnSamples.map((v) => v + st.slope)
     if (st.dressStepBase !== null) st.dressStepBase += st.slope
+    if (st.restartStepBase !== null) st.restartStepBase += st.slope
     if (st.learnPriorUm !== null) st.learnPriorUm += st.slope
   }
 }
@@ -1004,7 +1025,8 @@ function learnReading(st: CompensationState, disturbance: number, offsetForPart:
     const kind = st.relearnPending
     const projected = st.level !== null ? st.level + st.slope : null
     st.dressStepBase = kind === 'dress' ? projected : null
-    st.learnPriorUm = kind === 'dress' && projected !== null && st.stepPriorUm !== null ? projected + st.stepPriorUm : null
+    st.restartStepBase = kind === 'restart' ? projected : null
+    st.learnPriorUm = (kind === 'dress' || kind === 'restart') && projected !== null && st.stepPriorUm !== null ? projected + st.stepPriorUm : null
     st.learnPriorWeight = st.learnPriorUm === null ? 0 : sigma ** 2 / Math.max(st.stepPriorSigmaUm, sigma) ** 2
     st.stepPriorUm = null
     st.learnSamples = []
@@ -1070,7 +1092,9 @@ function learnReading(st: CompensationState, disturbance: number, offsetForPart:
     st.learnPriorUm = null
     if (st.levelAtDressUm === null) st.levelAtDressUm = st.level
     if (st.dressStepBase !== null && s.dress.learnStep) learnDressStep(st, st.level - st.dressStepBase)
+    if (st.restartStepBase !== null) learnWarmup(st, st.level - st.restartStepBase)
     st.dressStepBase = null
+    st.restartStepBase = null
     st.dressWearPredictedUm = null
   }
   return { outlier: false, consistent, note }
@@ -1188,17 +1212,13 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       reason = `dress recorded${offsetNote}`
       // Pre-correct the predicted step (not for monitor-only or step), within every bound; what
       // max step cuts off follows on the next readings.
-      if ((s.strategy === 'ewma' || s.strategy === 'drift') && st.level !== null && offsetNote !== OFFSET_UNKNOWN) {
-        st.stepPriorUm = predicted.stepUm
-        st.stepPriorSigmaUm = predicted.sigmaUm
-        st.dressWearPredictedUm = predicted.wearUm
-        const wish = preCorrectionOffset(st)
-        const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm)
-        command = bounded?.command ?? null
-        if (command) st.offsetUm = command.newOffsetUm
-        if (bounded && (bounded.limitedBy.includes('budget-since-dress') || bounded.limitedBy.includes('offset-range'))) st.graceValid = false
-        reason += `; predicted step ${fmt(predicted.stepUm)} µm (wear ${fmt(predicted.wearUm)} µm${predicted.learntUm !== 0 ? `, learnt ${fmt(predicted.learntUm)} µm` : ''})`
-        if (command) reason += ` → pre-correct to offset ${fmt(command.newOffsetUm)} µm (Δ ${fmt(command.offsetDeltaUm)})${command.limitedBy.length ? ` limited by ${command.limitedBy.join(', ')}` : ''}`
+      if (offsetNote !== OFFSET_UNKNOWN) {
+        const pre = preCorrectStep(st, predicted.stepUm, predicted.sigmaUm)
+        if (pre.predicted) {
+          st.dressWearPredictedUm = predicted.wearUm
+          command = pre.command
+          reason += `; predicted step ${fmt(predicted.stepUm)} µm (wear ${fmt(predicted.wearUm)} µm${predicted.learntUm !== 0 ? `, learnt ${fmt(predicted.learntUm)} µm` : ''})${pre.note}`
+        }
       }
       reason += `; the first part ground after it re-learns the level (slope kept)`
       break
@@ -1299,7 +1319,21 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       st.stepPriorUm = null
       st.dressWearPredictedUm = null
       openEventWindow(st)
-      reason = `restart recorded: the first part ground after it re-learns the level (slope kept)`
+      reason = 'restart recorded'
+      const cooled = coolWhileStopped(st, ev.time)
+      if (cooled) {
+        reason += `; stopped ${Math.round(cooled.stoppedMin)} min`
+        const warmupUm = s.restart.warmupUm ?? st.warmupLearntUm
+        const stepUm = warmupUm === null ? null : warmupUm * cooled.fractionStep
+        if (stepUm !== null && Math.abs(stepUm) >= s.minStepUm * s.gain) {
+          // It warms up again from here: the size moves back at the start of the warm-up curve's rate.
+          st.slope += warmupUm! * (1 - st.thermalFraction) * st.cycleTimeS / 60 / s.restart.warmupTauMin
+          const pre = preCorrectStep(st, stepUm, Math.max(0.5, 0.3 * Math.abs(stepUm)))
+          command = pre.command
+          reason += `: predicted step ${fmt(stepUm)} µm (warm-up ${fmt(warmupUm!)} µm ${s.restart.warmupUm !== undefined ? 'set' : 'learnt'}, ${Math.round(-cooled.fractionStep * 100)} % of it lost)${pre.note}`
+        } else if (warmupUm === null) reason += `: warm-up not known yet${cooled.fractionStep <= -1 / 3 ? ' (learnt from this restart)' : ''}`
+      }
+      reason += `; the first part ground after it re-learns the level (slope kept)`
       break
     }
   }
@@ -1313,6 +1347,63 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
     reason,
     inputs: { event: ev.type, offsetUm: st.offsetUm, holdRemaining: st.holdRemaining, flushRemaining: st.flushRemaining },
   }
+}
+
+/**
+ * At a step event with a predicted size step (µm, on the disturbance): remember it for the first
+ * readings after the event and command the offset the strategy wants with it (drift and ewma; not
+ * step or none), through every bound. Returns the command and a note for the reason.
+ */
+function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number): { predicted: boolean; command: CompensationCommand | null; note: string } {
+  const s = st.settings
+  if (!(s.strategy === 'ewma' || s.strategy === 'drift') || st.level === null) return { predicted: false, command: null, note: '' }
+  st.stepPriorUm = stepUm
+  st.stepPriorSigmaUm = sigmaUm
+  const wish = preCorrectionOffset(st)
+  const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm)
+  const command = bounded?.command ?? null
+  if (command) st.offsetUm = command.newOffsetUm
+  if (bounded && (bounded.limitedBy.includes('budget-since-dress') || bounded.limitedBy.includes('offset-range'))) st.graceValid = false
+  const note = command ? ` → pre-correct to offset ${fmt(command.newOffsetUm)} µm (Δ ${fmt(command.offsetDeltaUm)})${command.limitedBy.length ? ` limited by ${command.limitedBy.join(', ')}` : ''}` : ''
+  return { predicted: true, command, note }
+}
+
+/** The machine's thermal fraction while it runs: towards warm with the warm-up time constant. */
+function advanceThermal(st: CompensationState, time: number | undefined): void {
+  if (typeof time !== 'number' || !Number.isFinite(time)) return
+  if (st.thermalAtMs !== null && time > st.thermalAtMs) {
+    st.thermalFraction = 1 + (st.thermalFraction - 1) * Math.exp(-(time - st.thermalAtMs) / 60_000 / st.settings.restart.warmupTauMin)
+  }
+  if (st.thermalAtMs === null || time > st.thermalAtMs) st.thermalAtMs = time
+}
+
+/**
+ * A restart at `time`: the machine stood still since the last part it reported and cooled, with the
+ * cooling time constant. Returns how long it stood and the change of the thermal fraction
+ * (negative), or null when the times are not known. Kept for learning the warm-up.
+ */
+function coolWhileStopped(st: CompensationState, time: number | undefined): { stoppedMin: number; fractionStep: number } | null {
+  st.restartFractionStep = null
+  if (typeof time !== 'number' || !Number.isFinite(time) || st.thermalAtMs === null || !(time > st.thermalAtMs)) return null
+  const stoppedMin = (time - st.thermalAtMs) / 60_000
+  const before = st.thermalFraction
+  st.thermalFraction = before * Math.exp(-stoppedMin / st.settings.restart.coolingTauMin)
+  st.thermalAtMs = time
+  st.restartFractionStep = st.thermalFraction - before
+  return { stoppedMin, fractionStep: st.restartFractionStep }
+}
+
+/**
+ * After the re-learning of a restart: the step observed over the thermal fraction lost is the
+ * warm-up (signed). Only stops that lost at least a third of it teach (a short stop's step is
+ * mostly noise); averaged over restarts, half weight each.
+ */
+function learnWarmup(st: CompensationState, observedUm: number): void {
+  const f = st.restartFractionStep
+  st.restartFractionStep = null
+  if (f === null || f > -1 / 3) return
+  const warmupUm = Math.max(-100, Math.min(100, observedUm / f))
+  st.warmupLearntUm = st.warmupLearntUm === null ? warmupUm : st.warmupLearntUm + 0.5 * (warmupUm - st.warmupLearntUm)
 }
 
 const OFFSET_UNKNOWN = ': the machine resets its offset at a dress but did not report it — offset unknown until it does, no pre-correction'

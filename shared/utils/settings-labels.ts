@@ -23,6 +23,8 @@ const MORE_LABELS: Record<string, string> = {
   'dress.maxIntervalParts': 'Dress at the latest after (parts)',
   'dress.roundnessLimitUm': 'Dress when roundness is over (µm)',
   'dress.learnStep': 'Learn the size step of each dress',
+  'restart.warmupTauMin': 'Warm-up time constant (min)',
+  'restart.coolingTauMin': 'Cooling time constant while stopped (min)',
   nearLimitParts: 'Warn when the trend meets tolerance within (parts)',
   cycleTimeS: 'Cycle time until measured (s)',
   settings: 'Settings',

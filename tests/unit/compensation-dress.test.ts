@@ -117,6 +117,34 @@ describe('the error a dress leaves on the wheel', () => {
   })
 })
 
+describe('a restart after a long stop (docs/compensation.md#restart-after-a-stop)', () => {
+  // First-order thermal model, the plant's (docs/plant-model.md): stopped, the machine cools as
+  // θ·e^{−t/τ_cool} (Newton's law of cooling; time constants are common practice, from memory).
+  const restarts = (scenario: LoopScenario) => {
+    const seen: { reason: string; trueStepUm: number | null }[] = []
+    runControlLoop(scenario, { strategy: 'drift', seed: 3, delay: 3, onDecision(d, input) { if (input.type === 'restart') seen.push({ reason: d.reason, trueStepUm: null }) } })
+    return seen.map(r => ({ ...r, predictedUm: Number(/predicted step ([-+\d.]+) µm/.exec(r.reason)?.[1]) }))
+  }
+  it('with the warm-up in the settings: the step is the warm-up lost while stopped, pre-corrected at the restart', () => {
+    const [r] = restarts({ name: 'stop', about: '', plant: { ...calm }, engine: { restart: { warmupUm: -6 } }, events: [{ atPart: 600, kind: 'stop', minutes: 120 }], parts: 700 })
+    // −A·(1 − e^{−120/60}) with A = −6 µm: +5.19 µm (the machine was warm: it ran 600 parts of 20 s).
+    expect(r!.predictedUm).toBeCloseTo(6 * (1 - Math.exp(-2)), 1)
+    expect(r!.reason).toMatch(/pre-correct to offset/)
+  })
+  it('without it: learnt from the first long stop, predicted at the next', () => {
+    const [first, second] = restarts({ name: 'stops', about: '', plant: { ...calm }, events: [{ atPart: 500, kind: 'stop', minutes: 90 }, { atPart: 1000, kind: 'stop', minutes: 90 }], parts: 1100 })
+    expect(first!.reason).toMatch(/warm-up not known yet/)
+    // The plant's warm-up is −6 µm (docs/plant-model.md); 90 min lose 1 − e^{−1.5} = 78 % of it.
+    expect(second!.predictedUm).toBeGreaterThan(6 * (1 - Math.exp(-1.5)) - 0.6)
+    expect(second!.predictedUm).toBeLessThan(6 * (1 - Math.exp(-1.5)) + 0.6)
+    expect(second!.reason).toMatch(/learnt/)
+  })
+  it('a short stop predicts a small step', () => {
+    const [short] = restarts({ name: 'short', about: '', plant: { ...calm }, engine: { restart: { warmupUm: -6 } }, events: [{ atPart: 600, kind: 'stop', minutes: 3 }], parts: 650 })
+    expect(Math.abs(short!.predictedUm || 0)).toBeLessThan(0.4)
+  })
+})
+
 describe('the stop rule after an event', () => {
   it('rejects of parts ground before a correction could land do not stop the cell; they are said in the reason', () => {
     // The dress left the size 4 µm low; the machine applies every command (parts carry their offset).

@@ -461,6 +461,16 @@ describe('state is plain JSON', () => {
     expect(restored.levelAtDressUm).toBeNull()
     expect(restored.level).toBe(st.level)
   })
+  it('restore gives a state stored before the restart settings their defaults, and a restart steps on it', () => {
+    const st = feed(createCompensationState({ upperSpecUm: 2, lowerSpecUm: -2 }), [reading(1, 0.3)]).state
+    const { restart: _r, ...olderSettings } = st.settings
+    const { thermalFraction: _f, thermalAtMs: _t, warmupLearntUm: _w, ...older } = { ...st, settings: olderSettings }
+    const restored = restoreCompensationState(JSON.stringify(older))
+    expect(restored.settings.restart).toEqual({ warmupTauMin: 30, coolingTauMin: 60 })
+    expect(restored.thermalFraction).toBe(1)
+    const after = stepCompensation(restored, { type: 'restart', time: Date.now() })
+    expect(after.decision.kind).toBe('event')
+  })
   it('restore refuses something that is not a state', () => {
     expect(() => restoreCompensationState('{"version":99}')).toThrow(/unknown version/)
     expect(() => restoreCompensationState(42)).toThrow(/expected an object/)
