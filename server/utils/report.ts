@@ -7,7 +7,7 @@
 // in the shift it belongs to; people's actions, gap detections and dead letters by the server's.
 // The classes of time (running, stopped by cause, no contact, planned stop, no data) are described
 // in docs/report-time-model.md.
-import { and, asc, desc, eq, gte, inArray, isNull, lt, or, sql } from 'drizzle-orm'
+import { and, asc, desc, eq, gte, inArray, isNull, lt, or, sql, type SQL } from 'drizzle-orm'
 import type { LibSQLDatabase } from 'drizzle-orm/libsql'
 import * as schema from '../database/schema'
 import {
@@ -26,6 +26,7 @@ import {
 import { executionStates } from '../../shared/utils/contract'
 import { parseCompensationSettings } from '../../shared/utils/compensation-settings'
 import { wearCompare, type WearBoundaryKind, type WearSummary } from '../../shared/utils/wheel-wear'
+import { wakeUpsByPerson, WAKE_ATTEMPT_STATUSES, type WakeUps } from '../../shared/utils/wake-ups'
 
 export type ReportDb = LibSQLDatabase<typeof schema>
 
@@ -189,6 +190,12 @@ export interface ReportAlarms {
   /** `at`: the machine's time of the message that raised it (the server's when none did); `serverAt` the server's */
   list: { alarmId: number; at: number; serverAt: number; machineId: string | null; priority: number; condition: string; message: string; ackMs: number | null; ackBy: string | null }[]
   rates: AlarmRateMetrics
+  /**
+   * What reached people (shared/utils/wake-ups.ts): per person, the alarms of this scope they were
+   * sent a push, SMS or call for in the range (server clock), how many were needed and how many
+   * not, and the messages by channel — beside the load figures, which count alarms raised.
+   */
+  reached: (WakeUps & { name: string, role: string | null })[]
 }
 
 export interface ReportCompleteness {
@@ -994,7 +1001,26 @@ async function alarmsOf(db: ReportDb, ids: string[], from: number, to: number, m
     list,
     // the load over the time measured so far (a running shift is not diluted by its future hours)
     rates: alarmRateMetrics(list.filter((l) => l.at < measuredTo).map((l) => ({ at: l.at, priority: l.priority as AlarmPriority })), { from, to: Math.max(measuredTo, from + 1) }),
+    reached: await reachedPeople(db, scopeCond, from, to),
   }
+}
+
+/** Who was sent what in the range, for the alarms of the scope (people's phones ring on the server's clock). */
+async function reachedPeople(db: ReportDb, scopeCond: SQL | undefined, from: number, to: number): Promise<ReportAlarms['reached']> {
+  const d = schema.notificationDeliveries
+  const a = schema.alarms
+  const sends = await db.select({ at: d.at, alarmId: d.alarmId, userId: d.userId, channel: d.channel, status: d.status }).from(d).innerJoin(a, eq(a.id, d.alarmId))
+    .where(and(gte(d.at, from), lt(d.at, to), inArray(d.status, [...WAKE_ATTEMPT_STATUSES]), sql`${d.userId} is not null`, scopeCond))
+  if (!sends.length) return []
+  // The alarms sent, and the stops requested by compensation up to an hour after the range (a warning they followed was needed).
+  const firstAt = sql<number>`(select min(t.at) from ${schema.alarmTransitions} t where t.alarm_id = ${a.id})`
+  const alarms = await db.select({ id: a.id, machineId: a.machineId, condition: a.condition, priority: a.priority, raisedAt: firstAt }).from(a)
+    .where(or(inArray(a.id, [...new Set(sends.map((x) => x.alarmId!))]), and(eq(a.condition, 'engine:stop-requested'), gte(a.raisedAt, from), lt(a.raisedAt, to + 3_600_000))))
+  const users = await db.select({ id: schema.users.id, name: schema.users.name, role: schema.users.role }).from(schema.users)
+  return wakeUpsByPerson(sends.map((x) => ({ ...x, alarmId: x.alarmId!, userId: x.userId! })), alarms.map((x) => ({ ...x, raisedAt: Number(x.raisedAt) }))).map((p) => {
+    const u = users.find((x) => x.id === p.userId)
+    return { ...p, name: u?.name ?? `user ${p.userId}`, role: u?.role ?? null }
+  })
 }
 
 const presencePlaced = sql<number>`coalesce(${schema.presenceLog.machineTime}, ${schema.presenceLog.at})`
@@ -1149,6 +1175,7 @@ export async function buildShiftSummary(db: ReportDb, cellId: string, shift: Pic
     noData ? '' : top ? `Largest stop: ${top.cause}, ${Math.round(top.ms / 60_000)} min.` : 'No unplanned stops.',
     unseen.length && !noData ? `No data from ${unseen.join(', ')} (left out of the figures).` : '',
     `Alarms: ${r.alarms.annunciations}${r.alarms.ackTimes.unacknowledged ? `, ${r.alarms.ackTimes.unacknowledged} not acknowledged` : ''}.`,
+    r.alarms.reached.length ? `Woken: ${r.alarms.reached.filter((p) => p.alarms).map((p) => `${p.name} for ${p.alarms} (${p.needed} needed)`).join(', ') || 'nobody'}.` : '',
     r.completeness.missingSequenceNumbers || r.completeness.deadLetters ? `Data: ${r.completeness.missingSequenceNumbers} messages missing, ${r.completeness.deadLetters} refused.` : 'Data: complete.',
     r.notes.length ? `${r.notes.length} note(s) left during the shift.` : '',
     `Report: ${link}`,

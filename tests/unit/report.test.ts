@@ -308,3 +308,50 @@ describe('readings stored out of order', () => {
     finally { fx.close() }
   })
 })
+
+describe('what reached people, beside the alarm load', () => {
+  // A night worked out by hand from the delivery log (the rule: docs/notifications.md, "What reached
+  // people"): the lead is woken for a loader jam (stops the machine: needed), a trend warning a stop
+  // request followed 20 minutes later (needed) and a trend warning nothing followed (not needed);
+  // the engineer is sent an e-mail only, and a push that failed; a send after the shift is left out.
+  it('counts, per person, alarms woken for, needed or not, and messages by channel', async () => {
+    const fx = await openReportFixture()
+    try {
+      await seedCell(fx, scenario, 4, 'Europe/Berlin')
+      const now = Date.now()
+      const person = async (name: string, role: 'lead' | 'engineer') => (await fx.db.insert(schema.users).values({ email: `${name}@larkspur.example`, name, role, passwordHash: 'x', createdAt: now, updatedAt: now }).returning({ id: schema.users.id }))[0]!.id
+      const lead = await person('Cleo Marchetti', 'lead')
+      const engineer = await person('Bram Okonjo', 'engineer')
+      const alarm = async (machineId: string, condition: string, priority: number, at: number) => {
+        const [row] = await fx.db.insert(schema.alarms).values({ machineId, cellId: 'cell-a', condition, priority, state: 'unacknowledged', active: true, message: condition, raisedAt: at, lastChangeAt: at, record: {} }).returning({ id: schema.alarms.id })
+        await fx.db.insert(schema.alarmTransitions).values({ alarmId: row!.id, at, fromState: 'normal', toState: 'unacknowledged', action: 'condition-active', where: 'system', machineAt: at })
+        return row!.id
+      }
+      const jam = await alarm('cg-01', 'fault:loader_jam', 3, start + H)
+      const warned = await alarm('cg-02', 'trend:nears-tolerance', 2, start + 2 * H)
+      await alarm('cg-02', 'engine:stop-requested', 2, start + 2 * H + 20 * MIN) // nobody sent for it
+      const idle = await alarm('cg-03', 'trend:nears-tolerance', 2, start + 3 * H)
+      const send = (at: number, alarmId: number, userId: number, channel: string, status: string) => fx.db.insert(schema.notificationDeliveries).values({ at, alarmId, userId, channel, status })
+      await send(start + H, jam, lead, 'push', 'sent')
+      await send(start + H + 5 * MIN, jam, lead, 'sms', 'sent')
+      await send(start + H + 6 * MIN, jam, lead, 'sms', 'delivered') // an outcome, not an attempt
+      await send(start + H + 10 * MIN, jam, lead, 'call', 'sent')
+      await send(start + 2 * H, warned, lead, 'push', 'sent')
+      await send(start + 3 * H, idle, lead, 'push', 'sent')
+      await send(start + 3 * H, idle, lead, 'none', 'duplicate') // the router's decision, not a message
+      await send(start + 3 * H + 10 * MIN, idle, engineer, 'push', 'failed')
+      await send(start + 3 * H + 10 * MIN, idle, engineer, 'email', 'sent')
+      await send(start + 9 * H, jam, engineer, 'push', 'sent') // after the shift
+      const r = await reportBuild(fx.db, { cellId: 'cell-a', from: start, to: start + 8 * H })
+      expect(r.alarms.annunciations).toBe(4)
+      expect(r.alarms.reached).toEqual([
+        { userId: lead, name: 'Cleo Marchetti', role: 'lead', alarms: 3, needed: 2, notNeeded: 1, notNeededList: [{ alarmId: idle, condition: 'trend:nears-tolerance', machineId: 'cg-03', at: start + 3 * H }], sent: { push: 3, sms: 1, call: 1, email: 0 }, failed: 0 },
+        { userId: engineer, name: 'Bram Okonjo', role: 'engineer', alarms: 0, needed: 0, notNeeded: 0, notNeededList: [], sent: { push: 0, sms: 0, call: 0, email: 1 }, failed: 1 },
+      ])
+      // one machine's report counts only what was sent for that machine's alarms
+      const one = await reportBuild(fx.db, { cellId: 'cell-a', machineId: 'cg-01', from: start, to: start + 8 * H })
+      expect(one.alarms.reached.map((p) => [p.name, p.alarms, p.needed])).toEqual([['Cleo Marchetti', 1, 1]])
+    }
+    finally { fx.close() }
+  })
+})
