@@ -8,7 +8,8 @@
 //     outage arrives within a second, yet its jam lasted ten minutes), else on the server's;
 //   - cell scope: fire and mist are one alarm for the cell, whichever machines report them;
 //   - consequences: a stop another standing alarm explains (the fire stopped the machine) is
-//     suppressed under that alarm while its cause is active, and stands on its own if it outlasts it.
+//     suppressed under that alarm while its cause is active, and stands on its own if it outlasts it;
+//     so is a warning about the parts or trend of a machine such a cause has stopped.
 import { eq, isNull } from 'drizzle-orm'
 import { applyAlarmAction, alarmCreateRecord, isAlarmChattering, type AlarmAction, type AlarmRecord } from '#shared/utils/alarm-model'
 import { alarmKindFor, alarmView, type AlarmKind } from '#shared/utils/alarm-catalogue'
@@ -246,7 +247,7 @@ async function promoteDue(now: number, machineId?: string) {
     return p.condition.machineId === machineId && p.condition.machineAt != null && clock !== undefined && clock >= delayed(p).machineAt!
   }
   // Causes first: a stop and its fault due together, the stop finds its cause standing.
-  const consequenceLast = (p: Pending) => (alarmKindFor(p.condition.condition).suppression === 'consequence' ? 1 : 0)
+  const consequenceLast = (p: Pending) => (isConsequence(alarmKindFor(p.condition.condition)) ? 1 : 0)
   for (const [key, p] of [...pendingOn].sort((a, b) => consequenceLast(a[1]) - consequenceLast(b[1]))) {
     if (!isDue(p)) continue
     cancel(pendingOn, key)
@@ -274,7 +275,7 @@ async function raise(scope: Scope, c: AlarmCondition, at: number) {
   }
   const machines = scope.machineId ? undefined : [...new Set([...(row?.machines ?? []), ...(cellReporters.get(scope.key) ?? [])])]
   const message = scope.machineId ? c.message : cellMessage(kind, scope, machines!)
-  const cause = kind.suppression === 'consequence' ? causeFor(scope, c.condition) : undefined
+  const cause = isConsequence(kind) ? causeFor(scope, c.condition) : undefined
   const actions: AlarmAction[] = [{ kind: 'condition-active' }]
   if (cause) actions.push({ kind: 'suppress', by: `${cause.kind.title} (alarm ${cause.row.id})` })
   const r = await transition(row, { scope, condition: c.condition, actions, at, actor: SYSTEM, message, machineAt: c.machineAt, extra: { ...(machines ? { machines } : {}), ...(cause ? { causeAlarmId: cause.row.id } : {}) } })
@@ -321,6 +322,9 @@ async function listMachines(scope: Scope, more: string[]) {
   publishLive({ type: 'alarm', alarm: alarmView(next) })
 }
 
+/** Suppressed under a standing cause: a stop it explains, or a warning about a machine it has stopped (alarm-catalogue.ts). */
+const isConsequence = (k: AlarmKind) => k.suppression === 'consequence' || k.suppression === 'while-stopped'
+
 /** The standing alarm a consequence on this machine belongs under: active, stops machines, on the machine or its cell. */
 function causeFor(scope: Scope, condition: string): { row: AlarmRow, kind: AlarmKind, scope: Scope } | undefined {
   let best: { row: AlarmRow, kind: AlarmKind, scope: Scope } | undefined
@@ -339,9 +343,11 @@ async function suppressConsequencesOf(causeScope: Scope, cause: AlarmRow) {
   const kind = alarmKindFor(cause.condition)
   for (const row of [...open.values()]) {
     const k = alarmKindFor(row.condition)
-    if (k.suppression !== 'consequence' || !(row.record as AlarmRecord).active || row.state === 'suppressed' || row.state === 'shelved' || row.state === 'out-of-service') continue
-    // Only stops that came with or after the cause: a machine stopped before the fault came is not its consequence.
-    if (conditionStart(row) < conditionStart(cause) - CAUSE_SLACK_MS) continue
+    if (!isConsequence(k) || !(row.record as AlarmRecord).active || row.state === 'suppressed' || row.state === 'shelved' || row.state === 'out-of-service') continue
+    // Only stops that came with or after the cause: a machine stopped before the fault came is not
+    // its consequence. A warning about the parts or the trend goes under whichever came first: the
+    // parts out of tolerance before a stop requested by compensation are what it is about.
+    if (k.suppression === 'consequence' && conditionStart(row) < conditionStart(cause) - CAUSE_SLACK_MS) continue
     const mine = cause.machineId ? row.machineId === cause.machineId : (!!row.machineId && machineContext(row.machineId)?.cellId === cause.cellId)
     if (!mine) continue
     await transition(row, { scope: { key: rowKey(row), machineId: row.machineId, cellId: row.cellId }, condition: row.condition, actions: [{ kind: 'suppress', by: `${kind.title} (alarm ${cause.id})` }], at: cause.lastChangeAt, actor: SYSTEM, extra: { causeAlarmId: cause.id } })

@@ -13,8 +13,12 @@
 //   mayWait      "hold till morning" is allowed: it neither stops a machine nor will within the hour
 //   suppression  'cause': a fault that stops the machine — the stops it explains are suppressed
 //                under it while it stands; 'consequence': a stop such a cause explains — suppressed
-//                under it (designed suppression), announced if it outlasts the cause; null: neither
-//                ("offline" explains no stop: it only hides the machine)
+//                under it (designed suppression), announced if it outlasts the cause; 'while-stopped':
+//                a warning about the parts or the trend of a running machine — suppressed under a
+//                cause that has its machine stopped, whichever came first (state-based suppression:
+//                the parts still in the pipeline at a stop are what the stop was about, and a held
+//                machine's trend warns of nothing); null: neither ("offline" explains no stop: it
+//                only hides the machine)
 //   hysteresis   for analogue conditions, the deadband between raising and clearing (in words;
 //                the rule is where the value is judged); null for discrete ones
 // The defaults are our choices for a lights-out cell, not figures from a standard; docs/alarms.md
@@ -32,7 +36,7 @@ export interface AlarmKind {
   offDelayS: number
   stopsMachine: boolean
   mayWait: boolean
-  suppression: 'cause' | 'consequence' | null
+  suppression: 'cause' | 'consequence' | 'while-stopped' | null
   hysteresis: string | null
   /** raised and cleared at once (an event, not a state): no delays */
   momentary?: boolean
@@ -41,6 +45,8 @@ export interface AlarmKind {
 type Filtering = Omit<AlarmKind, 'priority' | 'latching' | 'title' | 'steps'>
 const stopping = (onDelayS: number, offDelayS = 0): Filtering => ({ scope: 'machine', onDelayS, offDelayS, stopsMachine: true, mayWait: false, suppression: 'cause', hysteresis: null })
 const urgent = (onDelayS: number, offDelayS: number, hysteresis: string | null = null): Filtering => ({ scope: 'machine', onDelayS, offDelayS, stopsMachine: false, mayWait: false, suppression: null, hysteresis })
+/** A warning about a running machine's parts or trend: nothing to warn of while a cause has it stopped. */
+const warning = (onDelayS: number, offDelayS: number, hysteresis: string | null = null): Filtering => ({ ...urgent(onDelayS, offDelayS, hysteresis), suppression: 'while-stopped' })
 
 export const alarmCatalogue: Record<string, AlarmKind> = {
   'fault:fire_alarm': { priority: 1, latching: true, title: 'Fire alarm', steps: ['Follow the site fire plan; do not enter the cell alone.', 'Confirm the suppression system fired and the machine is stopped.', 'Inspect the enclosure, ducting and mist collector before any restart.'], ...stopping(0), scope: 'cell' },
@@ -53,11 +59,11 @@ export const alarmCatalogue: Record<string, AlarmKind> = {
   'fault:empty_pallet': { priority: 3, latching: false, title: 'Pallet empty', steps: ['Load a full pallet of blanks.'], ...stopping(60, 60) },
   'engine:stop-requested': { priority: 2, latching: true, title: 'Stop requested by compensation', steps: ['Read the decision log for the reason.', 'Measure the last parts by hand.', 'Fix the cause, then reset here at the machine.'], ...stopping(0) },
   'engine:gauge-suspect': { priority: 2, latching: false, title: 'Gauge suspect', steps: ['Check the gauge for chips and coolant.', 'Master the gauge and log it.'], ...urgent(60, 120) },
-  'engine:consecutive-rejects': { priority: 2, latching: false, title: 'Parts out of tolerance in a row', steps: ['Hold the machine.', 'Measure by hand and correct the offset.'], ...urgent(90, 120) },
-  'engine:offset-range-limit': { priority: 2, latching: false, title: 'Offset at its allowed limit', steps: ['Dress or change the wheel; compensation cannot go further.'], ...urgent(60, 300, 'clears once the offset is back inside the allowed range by 10 % of its span') },
-  'engine:budget-used-up': { priority: 3, latching: false, title: 'Compensation budget since dress used up', steps: ['Dress the wheel.'], ...urgent(60, 300, 'clears once 10 % of the offset budget since dress is free again (after a dress)') },
-  'engine:trend-near-limit': { priority: 3, latching: false, title: 'Size trend nears tolerance', steps: ['Watch the trend; dress if the wheel is due.'], ...urgent(60, 300, 'advisory in the decision log; the alarm that wakes people is "Size will meet tolerance soon"') },
-  'trend:nears-tolerance': { priority: 2, latching: false, title: 'Size will meet tolerance soon', steps: ['Open the machine and read the minutes left on its trend.', 'Dress the wheel or correct the offset before the size meets the limit.', 'Acknowledge, so the next person on call is not woken.'], ...urgent(120, 600, 'raised below the job\'s threshold (30 min by default), cleared above threshold × 1.5') },
+  'engine:consecutive-rejects': { priority: 2, latching: false, title: 'Parts out of tolerance in a row', steps: ['Hold the machine.', 'Measure by hand and correct the offset.'], ...warning(90, 120) },
+  'engine:offset-range-limit': { priority: 2, latching: false, title: 'Offset at its allowed limit', steps: ['Dress or change the wheel; compensation cannot go further.'], ...warning(60, 300, 'clears once the offset is back inside the allowed range by 10 % of its span') },
+  'engine:budget-used-up': { priority: 3, latching: false, title: 'Compensation budget since dress used up', steps: ['Dress the wheel.'], ...warning(60, 300, 'clears once 10 % of the offset budget since dress is free again (after a dress)') },
+  'engine:trend-near-limit': { priority: 3, latching: false, title: 'Size trend nears tolerance', steps: ['Watch the trend; dress if the wheel is due.'], ...warning(60, 300, 'advisory in the decision log; the alarm that wakes people is "Size will meet tolerance soon"') },
+  'trend:nears-tolerance': { priority: 2, latching: false, title: 'Size will meet tolerance soon', steps: ['Open the machine and read the minutes left on its trend.', 'Dress the wheel or correct the offset before the size meets the limit.', 'Acknowledge, so the next person on call is not woken.'], ...warning(120, 600, 'raised below the job\'s threshold (30 min by default), cleared above threshold × 1.5') },
   'engine:settings': { priority: 2, latching: false, title: 'Compensation off: settings not valid', steps: ['Check the job\'s tolerance and compensation settings.'], ...urgent(0, 0) },
   'machine:stopped': { priority: 3, latching: false, title: 'Machine stopped', steps: ['Find why it stopped in the event log.'], ...stopping(60, 30), suppression: 'consequence' },
   'link:offline': { priority: 3, latching: false, title: 'Machine offline', steps: ['Check the machine\'s network and its adapter.'], ...stopping(120, 30), suppression: null },

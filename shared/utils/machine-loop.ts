@@ -574,7 +574,11 @@ function onState<J extends MachineJobRecord>(s: Step<J>, message: StateMessage) 
   st.execution = message.execution
   st.activeFaults = [...message.activeFaults]
   s.feed(message, before)
-  s.condition('machine:stopped', message.execution === 'STOPPED', `${s.m.name} stopped${message.reason ? `: ${message.reason}` : ''}`)
+  // A machine held for its allowance (it heard nothing from Owlshift in time) is stopped as surely
+  // as by a fault, and nobody asked for it: the lead must hear. A hold by command is not: the
+  // engine's stop request is its own alarm, and a person's hold was meant.
+  const heldForAllowance = message.execution === 'FEED_HOLD' && !!message.holdCauses?.includes('allowance')
+  s.condition('machine:stopped', message.execution === 'STOPPED' || heldForAllowance, `${s.m.name} ${heldForAllowance ? 'held' : 'stopped'}${message.reason ? `: ${message.reason}` : ''}`)
 }
 
 function onAck<J extends MachineJobRecord>(s: Step<J>, message: AckMessage) {

@@ -18,7 +18,7 @@ const S = 1000
 const MIN = 60 * S
 
 beforeAll(async () => {
-  h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7'])
+  h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7', 'm8', 'm9'])
   engine = await import('../../server/utils/alarm-engine')
 })
 afterAll(() => h.close())
@@ -156,6 +156,35 @@ describe('consequences are suppressed under their cause while it stands (designe
     expect((await alarmsOf('m7', 'machine:stopped'))[0]).toMatchObject({ state: 'unacknowledged', causeAlarmId: null })
     await engine.applyAlarmConditions([cond('m7', 'machine:stopped', false, t + 8 * MIN), cond('m7', 'link:offline', false, t + 8 * MIN), cond('m7', 'fault:coolant_fault', false, t + 8 * MIN)])
     await engine.alarmTick(t + 10 * MIN)
+  })
+
+  it('parts out of tolerance in a row go under the stop compensation requested for them, whichever came first (state-based suppression); once the stop is reset, what still stands is announced', async () => {
+    const t = Date.now()
+    // m8: the rejects begin, compensation asks to stop 30 s later, the rejects' 90 s on-delay runs out after it.
+    await engine.applyAlarmConditions([cond('m8', 'engine:consecutive-rejects', true, t)])
+    await engine.applyAlarmConditions([cond('m8', 'engine:stop-requested', true, t + 30 * S)])
+    await engine.alarmTick(t + 100 * S)
+    const [stop] = await alarmsOf('m8', 'engine:stop-requested')
+    expect(stop).toMatchObject({ state: 'unacknowledged', active: true })
+    expect((await alarmsOf('m8', 'engine:consecutive-rejects'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: stop!.id })
+    // m9: the rejects alarm already stands (announced) when the stop request comes: it goes under it too.
+    await engine.applyAlarmConditions([cond('m9', 'engine:consecutive-rejects', true, t)])
+    await engine.alarmTick(t + 91 * S)
+    expect((await alarmsOf('m9', 'engine:consecutive-rejects'))[0]!.state).toBe('unacknowledged')
+    await engine.applyAlarmConditions([cond('m9', 'engine:stop-requested', true, t + 2 * MIN), cond('m9', 'trend:nears-tolerance', true, t + 2 * MIN)])
+    await engine.alarmTick(t + 5 * MIN) // the trend alarm's on-delay is 120 s: it comes under the standing stop as well
+    const [stop9] = await alarmsOf('m9', 'engine:stop-requested')
+    expect((await alarmsOf('m9', 'engine:consecutive-rejects'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: stop9!.id })
+    expect((await alarmsOf('m9', 'trend:nears-tolerance'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: stop9!.id })
+    // The stop is latched: acknowledged and its condition gone, it still stands until reset at the machine.
+    await engine.applyAlarmConditions([cond('m9', 'engine:stop-requested', false, t + 6 * MIN), cond('m9', 'trend:nears-tolerance', false, t + 6 * MIN)])
+    await engine.actOnAlarm(stop9!.id, { kind: 'acknowledge' }, { userId: null, where: 'web test' })
+    await engine.alarmTick(t + 20 * MIN)
+    expect((await alarmsOf('m9', 'engine:consecutive-rejects'))[0]!.state).toBe('suppressed')
+    await engine.actOnAlarm(stop9!.id, { kind: 'reset' }, { userId: null, where: 'station:m9' })
+    // Still out of tolerance after the reset: announced on its own; the trend that cleared closes quietly.
+    expect((await alarmsOf('m9', 'engine:consecutive-rejects'))[0]).toMatchObject({ state: 'unacknowledged', active: true })
+    expect((await alarmsOf('m9', 'trend:nears-tolerance'))[0]).toMatchObject({ state: 'normal', active: false })
   })
 
   it('people cannot suppress or unsuppress by hand', async () => {

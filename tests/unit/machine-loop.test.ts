@@ -94,6 +94,16 @@ describe('the machine loop', () => {
     expect(other.machine.engine!.level).toBeNull()
   })
 
+  it('a machine held for its allowance raises "machine stopped" (nobody asked for the hold); a hold by command does not (its own alarm, or a person meant it)', () => {
+    const m = applyMachineMessage(machine(null), birth(1), T0).machine
+    const state = (seq: number, holdCauses?: ('command' | 'allowance')[]): MachineLoopMessage => ({ kind: 'state', seq, time: iso(seq), execution: 'FEED_HOLD', activeFaults: [], reason: 'allowance used up: no word from the compensator', ...(holdCauses ? { holdCauses } : {}) })
+    const stopped = (msg: MachineLoopMessage) => applyMachineMessage(m, msg, T0 + 2000).conditions.filter(c => c.condition === 'machine:stopped').map(c => [c.active, c.message])
+    expect(stopped(state(2, ['allowance']))).toEqual([[true, 'M1 held: allowance used up: no word from the compensator']])
+    expect(stopped(state(2, ['command', 'allowance']))[0]![0]).toBe(true)
+    expect(stopped(state(2, ['command']))[0]![0]).toBe(false)
+    expect(stopped(state(2))[0]![0]).toBe(false)
+  })
+
   it('reads restarts from the state a machine comes back from, and offsets only from applied offset answers', () => {
     const state = (execution: 'ACTIVE' | 'READY'): SequencedMessage => ({ kind: 'state', seq: 5, time: iso(5), execution, activeFaults: [] })
     for (const from of ['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED']) expect(engineInputsOf(state('ACTIVE'), T0, from, 0)).toEqual([{ type: 'restart', time: T0 }])
