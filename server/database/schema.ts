@@ -96,6 +96,8 @@ export const machines = sqliteTable('machines', {
   // Broker credentials: the user name is the machine id; only a scrypt hash of the password is kept.
   mqttPasswordHash: text('mqtt_password_hash'),
   mqttRotatedAt: integer('mqtt_rotated_at'),
+  /** after it held for its parts allowance: 'owlshift' resumes it when safe, or a 'person' does (docs/mqtt.md#coming-back) */
+  resumeAfterOutage: text('resume_after_outage', { enum: ['owlshift', 'person'] }).notNull().default('owlshift'),
   createdAt: integer('created_at').notNull(),
 })
 
@@ -128,6 +130,8 @@ export const machineStatus = sqliteTable('machine_status', {
   prediction: text('prediction', { mode: 'json' }).$type<MachinePrediction | null>(),
   /** the parts allowance: part serials it counts from and the last grant sent (shared/utils/allowance.ts) */
   allowance: text('allowance', { mode: 'json' }).$type<AllowanceState | null>(),
+  /** in FEED_HOLD: what holds it, as the machine said (hold command, allowance) */
+  holdCauses: text('hold_causes', { mode: 'json' }).$type<string[] | null>(),
   updatedAt: integer('updated_at').notNull(),
 })
 

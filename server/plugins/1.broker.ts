@@ -166,7 +166,7 @@ export default defineNitroPlugin((nitroApp) => {
   if (!config.mqtt.enabled) return
   const ready = (async () => {
     await databaseReady
-    await loadMachineRegistry()
+    await loadMachineRegistry({ atStart: true })
     await ensureDemoMachineCredentials()
     const ingest = useIngest()
     ingest.onCommitted = handleCommitted

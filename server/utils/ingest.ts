@@ -33,6 +33,8 @@ interface InternalMessage { machineId: string, message: Extract<MachineLoopMessa
 
 export interface IngestEffects {
   commands: { cellId: string, machineId: string, command: CommandMessage }[]
+  /** machines held for their allowance alone that Owlshift may resume once their alarms are weighed (after-commit.ts) */
+  resumes: { machineId: string, seq: number }[]
   live: LiveEvent[]
   /** conditions for the alarm engine, in arrival order */
   conditions: AlarmCondition[]
@@ -191,7 +193,7 @@ export class IngestPipeline {
       if (!outage) { this.settleLater(); return } // failed again since: wait from that failure
       const condition: AlarmCondition = { machineId: null, condition: 'server:ingest-failed', active: true, message: ingestOutageWords(outage), at: now }
       this.afterCommit = this.afterCommit
-        .then(() => this.onCommitted({ commands: [], live: [], conditions: [condition] }))
+        .then(() => this.onCommitted({ commands: [], resumes: [], live: [], conditions: [condition] }))
         .catch((err) => { log.error({ err: err }, '[ingest] the alarm for data not stored could not be raised') })
     }, Math.max(0, at - Date.now()))
     this.settleTimer.unref()
@@ -229,6 +231,7 @@ export class IngestPipeline {
       ctx.job = loop.job
       ctx.tuning = loop.tuning
       ctx.trendRaised = loop.trendRaised
+      ctx.catchingUp = loop.catchingUp
       effects.live.push({ type: 'status', machineId: ctx.id, status: liveStatusView(ctx) })
     }
     for (const d of dead) if (d.machineId) effects.conditions.push({ machineId: d.machineId, condition: 'link:bad-data', active: true, message: `bad data from ${d.machineId}: ${d.reason}`, at: now })
@@ -302,7 +305,7 @@ function foldMachines(messages: ForMachine[], now: number, trendRules: AlertRout
   const fold: Fold = {
     machines: new Map(),
     rows: emptyLoopRows(),
-    effects: { commands: [], live: [], conditions: [] },
+    effects: { commands: [], resumes: [], live: [], conditions: [] },
     jobDecisions: new Map(),
   }
   const { rows, effects } = fold
@@ -319,6 +322,7 @@ function foldMachines(messages: ForMachine[], now: number, trendRules: AlertRout
     f.changed = true
     appendLoopRows(rows, r.rows)
     for (const command of r.commands) effects.commands.push({ cellId: ctx.cellId, machineId: ctx.id, command })
+    if (r.resumeCandidate && 'seq' in message) effects.resumes.push({ machineId: ctx.id, seq: message.seq })
     for (const e of r.live) effects.live.push(e)
     for (const c of r.conditions) effects.conditions.push(c)
   }

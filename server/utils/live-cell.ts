@@ -18,6 +18,8 @@ export function machineIdentity(ctx: MachineContext) {
     id: ctx.id, name: ctx.name, cellId: ctx.cellId,
     job: ctx.job ? { partNumber: ctx.job.partNumber, description: ctx.job.description, nominalMm: Number(ctx.job.nominalMm), cycleTimeS: ctx.job.cycleTimeS } : null,
     limits: machineLimits(ctx),
+    /** after it held for its parts allowance: Owlshift resumes it, or a person (docs/mqtt.md#coming-back) */
+    resumeAfterOutage: ctx.personResumes ? 'person' as const : 'owlshift' as const,
   }
 }
 

@@ -18,7 +18,11 @@ export interface MachineContext extends Omit<MachineLoop<JobRow>, 'trendRules'> 
 
 const registry = new Map<string, MachineContext>()
 
-export async function loadMachineRegistry() {
+/**
+ * Loads every machine. `atStart`: this server run has just begun, so whatever a machine sends
+ * before its next birth came late (docs/mqtt.md#coming-back): the engine catches up without commanding.
+ */
+export async function loadMachineRegistry(opts: { atStart?: boolean } = {}) {
   const db = useDb()
   const rows = await db.select().from(schema.machines)
   const jobs = new Map((await db.select().from(schema.jobs)).map(j => [j.id, j]))
@@ -41,7 +45,7 @@ export async function loadMachineRegistry() {
     next.set(m.id, {
       id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning,
       outstanding: outstanding.get(m.id) ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock,
-      trendRaised: trendRaised.has(m.id),
+      trendRaised: trendRaised.has(m.id), catchingUp: opts.atStart ? true : prev?.catchingUp ?? false, personResumes: m.resumeAfterOutage === 'person',
     })
   }
   // Swapped in at once: a machine connecting during the reload must not find itself missing.
@@ -93,6 +97,7 @@ export async function refreshMachineContext(id: string) {
   registry.set(id, {
     id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyMachineStatus(id), engine: prev?.engine ?? null, tuning,
     outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock, trendRaised: prev?.trendRaised ?? false,
+    catchingUp: prev?.catchingUp ?? false, personResumes: m.resumeAfterOutage === 'person',
   })
 }
 

@@ -164,3 +164,46 @@ export function withAllowance<C extends CommandMessage>(command: C, grant: Allow
 function fmt(v: number, digits = 2): string {
   return v.toFixed(digits)
 }
+
+// ── coming back ────────────────────────────────────────────────────────────────────────────
+
+export interface OutageResumeInputs {
+  name: string
+  online: boolean
+  /** the server is still taking in messages that came late (docs/mqtt.md#the-servers-presence) */
+  catchingUp: boolean
+  execution: string | null
+  holdCauses: readonly string[] | null
+  /** the machine's setting: a person resumes it after it held for its allowance */
+  personResumes: boolean
+  engine: CompensationState | null
+  lastDiameterUm: number | null
+  /** the machine's open alarms (and the cell's that stop machines): one active, or a latched stop standing, keeps it held */
+  alarms: readonly { title: string, active: boolean, latching: boolean, closedAt: number | null }[]
+}
+
+/**
+ * Why Owlshift does not resume a machine that held for its allowance (null: it resumes it). Only a
+ * hold for the allowance alone is Owlshift's to end — a hold command, a stop or a fault is someone
+ * else's — and only when the machine is back and live, its size as last known inside the limits
+ * (the last gauged part and the next one predicted at the offset in force), no alarm of it active
+ * and no latched stop standing, and its setting does not say a person resumes it.
+ */
+export function outageResumeRefusal(x: OutageResumeInputs): string | null {
+  if (!x.online) return `${x.name} is offline`
+  if (x.catchingUp) return `Owlshift is still taking in ${x.name}'s messages that came late`
+  if (x.execution !== 'FEED_HOLD' || !x.holdCauses || x.holdCauses.length !== 1 || x.holdCauses[0] !== 'allowance') return `${x.name} is not held for its allowance alone`
+  if (x.personResumes) return `${x.name}'s setting says a person resumes it after an outage`
+  const latched = x.alarms.filter(a => a.latching && a.closedAt === null)
+  if (latched.length) return `a latched stop stands (${latched.map(a => a.title).join(', ')}): it is reset at the machine`
+  const active = x.alarms.filter(a => a.active)
+  if (active.length) return `an alarm is active (${active.map(a => a.title).join(', ')})`
+  const st = x.engine
+  if (!st || st.level === null) return `the engine has no size of ${x.name} to go by`
+  const s = st.settings
+  const inside = (v: number) => v >= s.lowerSpecUm && v <= s.upperSpecUm
+  if (x.lastDiameterUm === null || !inside(x.lastDiameterUm)) return `the last part gauged (${x.lastDiameterUm === null ? 'no size' : `${fmt(x.lastDiameterUm)} µm`}) is not inside the tolerance`
+  const next = st.level + (s.pipelineParts + 1) * st.slope + s.gain * st.offsetUm
+  if (!inside(next)) return `the next part is predicted at ${fmt(next)} µm, outside the tolerance`
+  return null
+}

@@ -13,6 +13,7 @@ const WORDS: Record<string, string> = {
   'job.create': 'added a job', 'job.update': 'changed a job', 'job.import': 'imported jobs', 'job.archive': 'archived a job', 'job.restore': 'brought back an archived job',
   'machine.create': 'added a machine', 'machine.changeover': 'recorded a changeover', 'machine.credentials-rotated': 'made a new broker password',
   'machine.hold': 'sent a hold', 'machine.resume': 'sent a resume', 'machine.resume-refused': 'was refused a resume (latched stop)',
+  'machine.resume-setting': 'changed who resumes a machine after an outage',
   'alarm.acknowledge': 'acknowledged an alarm', 'alarm.shelve': 'shelved an alarm', 'alarm.unshelve': 'took an alarm off the shelf',
   'alarm.reset': 'reset an alarm at the machine', 'alarm.note': 'added a note to an alarm',
   'report.signoff': 'took a shift over', 'report.signoff-refused': 'was refused a second hand-over signature', 'report.note': 'wrote a shift note',

@@ -164,9 +164,10 @@ export function liveResumeRefusal(machineName: string, latched: readonly { title
   return `${machineName} cannot be resumed from here: ${what} must first be reset at ${machineName}'s own station, once the cause is fixed. Reset it there, then resume.`
 }
 
-/** Machine message types the event log leaves out: every part's own steps, and the machine's
- * "offset applied" answers, which the decisions list already shows as "applied". */
-export const LIVE_EVENT_LOG_QUIET_TYPES = ['part_loaded', 'part_ground', 'part_gauged', 'part_unloaded', 'offset:applied'] as const
+/** Machine message types the event log leaves out: every part's own steps, the machine's
+ * "offset applied" answers, which the decisions list already shows as "applied", and its taking of
+ * each parts allowance renewal (the machine's card says the allowance; a refusal still shows). */
+export const LIVE_EVENT_LOG_QUIET_TYPES = ['part_loaded', 'part_ground', 'part_gauged', 'part_unloaded', 'offset:applied', 'allowance:applied'] as const
 
 const EXECUTION_WORDS: Record<string, string> = {
   ACTIVE: 'grinding', FEED_HOLD: 'held', READY: 'ready', WAIT: 'waiting', STOPPED: 'stopped',

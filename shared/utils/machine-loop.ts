@@ -16,7 +16,7 @@ import type { CompensationTuning } from './compensation-tuning'
 import { wheelEventInput } from './wheel-events'
 import { commandClockOffsetMs, judgeMachineClock, trustedClock, type MachineClock } from './machine-clock'
 import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules } from './alert-routing'
-import { allowanceFor, allowanceRenewalDue, emptyAllowanceState, voidsAllowance, withAllowance, type AllowanceSettings, type AllowanceState } from './allowance'
+import { allowanceFor, allowanceRenewalDue, emptyAllowanceState, outageResumeRefusal, voidsAllowance, withAllowance, type AllowanceSettings, type AllowanceState } from './allowance'
 
 /** The alarm "size will meet tolerance soon", raised from the engine's prediction (docs/alarms.md). */
 export const TREND_CONDITION = 'trend:nears-tolerance'
@@ -56,6 +56,8 @@ export interface MachineStatusRecord {
   prediction: MachinePrediction | null
   /** the parts allowance: the part serials it counts from and the last grant sent (allowance.ts); null: none yet */
   allowance: AllowanceState | null
+  /** in FEED_HOLD: what holds it, as the machine said (a hold command, its allowance); null: not said or not held */
+  holdCauses: string[] | null
   updatedAt: number
 }
 
@@ -65,7 +67,7 @@ export function emptyMachineStatus(machineId: string): MachineStatusRecord {
     machineId, online: false, session: null, execution: null, activeFaults: [], lastSeq: 0,
     lastMessageAt: null, lastReadingAt: null, lastCycleAt: null, lastDiameterUm: null, partsGood: 0, partsScrap: 0,
     blanksLeft: null, cycleTimeS: null, appliedOffsetUm: null, requestedOffsetUm: null, jobPartNumber: null,
-    engineState: null, prediction: null, allowance: null, updatedAt: 0,
+    engineState: null, prediction: null, allowance: null, holdCauses: null, updatedAt: 0,
   }
 }
 
@@ -98,6 +100,14 @@ export interface MachineLoop<J extends MachineJobRecord = MachineJobRecord> {
   trendRaised: boolean
   /** the routing rules' trend thresholds; null: nobody is woken by the trend, it is not judged */
   trendRules: AlertRoutingRules['trend'] | null
+  /**
+   * Its messages now came late (a backlog): from the server's start or the machine's death until its
+   * next birth, which it sends live (docs/mqtt.md#the-servers-presence). The engine learns from them
+   * but no command goes out on them, and no allowance beyond the part in the wheel.
+   */
+  catchingUp?: boolean
+  /** after a hold for its allowance a person resumes it, not Owlshift (the machine's setting) */
+  personResumes?: boolean
 }
 
 /** A job or its settings changed on the web: enters the loop like a machine message (never from MQTT). */
@@ -177,6 +187,8 @@ export interface MachineLoopResult<J extends MachineJobRecord = MachineJobRecord
   jobDecision: CompensationDecision | null
   /** the message changed nothing (a stale will): the machine needs no write */
   unchanged: boolean
+  /** held for its allowance alone, back and live, size inside the limits: Owlshift may resume it once its alarms are weighed (allowance.ts, outageResumeRefusal) */
+  resumeCandidate: boolean
 }
 
 export type DecisionAction = 'stop' | 'offset' | 'dress' | 'hold' | 'none'
@@ -293,6 +305,8 @@ class Step<J extends MachineJobRecord> {
   readonly conditions: AlarmCondition[] = []
   readonly live: MachineLoopLiveEvent[] = []
   jobDecision: CompensationDecision | null = null
+  catchingUp: boolean
+  resumeCandidate = false
   /** the machine's time of the message (null for a will or a change from the web) */
   time: number | null = null
 
@@ -305,6 +319,7 @@ class Step<J extends MachineJobRecord> {
     this.job = m.job
     this.tuning = m.tuning
     this.trendRaised = m.trendRaised
+    this.catchingUp = !!m.catchingUp
   }
 
   reportedGet(condition: string) { return (this.reported ?? this.m.reportedConditions).get(condition) }
@@ -346,11 +361,15 @@ class Step<J extends MachineJobRecord> {
     const { m, now, status: st } = this
     const cycleTimeS = st.cycleTimeS ?? 20
     const expiresAt = now + commandLifeMs(cycleTimeS)
-    // dated on the machine's clock (the machine judges expiry), the server's while that is doubted
-    const cmds = gateCommands(decisionCommands(decision, m.id, seq, this.clock.doubt ? now : this.time ?? now, cycleTimeS), this.outstanding, now, expiresAt)
+    // dated on the machine's clock (the machine judges expiry), the server's while that is doubted;
+    // none on a message that came late: the machine is long past it (the birth that ends the
+    // backlog tells the engine the offset really in force)
+    const wanted = decisionCommands(decision, m.id, seq, this.clock.doubt ? now : this.time ?? now, cycleTimeS)
+    const cmds = this.catchingUp ? [] : gateCommands(wanted, this.outstanding, now, expiresAt)
+    const reason = this.catchingUp && wanted.length ? `from a message that came late, nothing sent: ${decision.reason}` : decision.reason
     this.rows.decisions.push({
       machineId: m.id, seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null,
-      offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason: decision.reason, inputs: decision.inputs,
+      offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason, inputs: decision.inputs,
       alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: decisionSlopeUmPerPart(decision),
     })
     for (const c of cmds) {
@@ -412,9 +431,9 @@ class Step<J extends MachineJobRecord> {
     const a = st.allowance ?? emptyAllowanceState()
     const eng = this.engine
     const offsetsUm = [st.appliedOffsetUm, eng?.offsetUm, st.requestedOffsetUm].filter((u): u is number => typeof u === 'number')
-    const next = allowanceFor({ engine: eng, lastPartGround: a.lastPartGround, lastPartGauged: a.lastPartGauged, offsetsUm, current: st.online, settings: this.allowanceSettings })
+    const next = allowanceFor({ engine: eng, lastPartGround: a.lastPartGround, lastPartGauged: a.lastPartGauged, offsetsUm, current: st.online && !this.catchingUp, settings: this.allowanceSettings })
     const grant = { throughPart: next.throughPart, basedOnSeq: st.lastSeq }
-    const renew = st.online && allowanceRenewalDue(a.sent, next, a.lastPartGround, voided)
+    const renew = st.online && !this.catchingUp && allowanceRenewalDue(a.sent, next, a.lastPartGround, voided)
     if (!this.commands.length && !renew) return
     for (let i = 0; i < this.commands.length; i++) this.commands[i] = withAllowance(this.commands[i]!, grant)
     for (const row of this.rows.commands) row.payload = this.commands.find(c => c.id === row.id) ?? row.payload
@@ -445,8 +464,9 @@ class Step<J extends MachineJobRecord> {
     const machine: MachineLoop<J> = unchanged ? m : {
       ...m, status: this.status, engine: this.engine, outstanding: this.outstanding, reportedConditions: this.reported ?? m.reportedConditions,
       clockOffsetMs: this.clockOffsetMs, clock: this.clock, job: this.job, tuning: this.tuning, trendRaised: this.trendRaised,
+      ...(this.catchingUp !== !!m.catchingUp ? { catchingUp: this.catchingUp } : {}),
     }
-    return { machine, rows: this.rows, commands: this.commands, conditions: this.conditions, live: this.live, jobDecision: this.jobDecision, unchanged }
+    return { machine, rows: this.rows, commands: this.commands, conditions: this.conditions, live: this.live, jobDecision: this.jobDecision, unchanged, resumeCandidate: this.resumeCandidate }
   }
 }
 
@@ -488,7 +508,15 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
     else if (message.kind === 'ack') onAck(s, message)
     else onEvent(s, message)
   }
-  s.grantAllowance(voidsAllowance(message, executionBefore), String(message.seq))
+  // A birth is live after any backlog: the allowance is renewed whatever it was.
+  s.grantAllowance(voidsAllowance(message, executionBefore) || message.kind === 'birth', String(message.seq))
+  // Back and live, or a hold for the allowance seen live: Owlshift may end a hold that is its own.
+  if (message.kind === 'birth' || (message.kind === 'state' && message.execution === 'FEED_HOLD')) {
+    s.resumeCandidate = outageResumeRefusal({
+      name: machine.name, online: st.online, catchingUp: s.catchingUp, execution: st.execution, holdCauses: st.holdCauses ?? null,
+      personResumes: !!machine.personResumes, engine: s.engine, lastDiameterUm: st.lastDiameterUm, alarms: [],
+    }) === null
+  }
   s.judgeTrend()
   return s.result()
 }
@@ -518,6 +546,7 @@ function onDeath<J extends MachineJobRecord>(s: Step<J>, message: DeathMessage):
   // A clean shutdown states its time; a will cannot, so its arrival is read on the machine's clock.
   const deathTime = message.time ? msOf(message.time) : s.clockOffsetMs === undefined ? null : s.now + s.clockOffsetMs
   s.rows.presence.push({ machineId: s.m.id, at: s.now, online: false, session: message.session, reason: message.reason, machineTime: deathTime })
+  s.catchingUp = true // what it sends next is its backlog, until its birth
   s.condition('link:offline', true, `${s.m.name} went offline (${message.reason === 'shutdown' ? 'shut down' : 'connection lost'})`, deathTime)
   return true
 }
@@ -546,6 +575,7 @@ function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessa
 
 function onBirth<J extends MachineJobRecord>(s: Step<J>, message: BirthMessage) {
   const st = s.status
+  s.catchingUp = false // sent live, after any backlog
   const wasRunning = st.online
   const executionBefore = st.execution
   // A birth naming another job than the one running means the job changed while the machine
@@ -555,6 +585,7 @@ function onBirth<J extends MachineJobRecord>(s: Step<J>, message: BirthMessage) 
   st.online = true
   st.session = message.session
   st.execution = message.execution
+  if (message.execution !== 'FEED_HOLD') st.holdCauses = null
   st.cycleTimeS = message.cycleTimeS
   st.appliedOffsetUm = message.offsetUm
   if (!jobChanged) st.jobPartNumber = message.job?.partNumber ?? st.jobPartNumber
@@ -573,6 +604,7 @@ function onState<J extends MachineJobRecord>(s: Step<J>, message: StateMessage) 
   const before = st.execution
   st.execution = message.execution
   st.activeFaults = [...message.activeFaults]
+  st.holdCauses = message.execution === 'FEED_HOLD' && message.holdCauses ? [...message.holdCauses] : null
   s.feed(message, before)
   // A machine held for its allowance (it heard nothing from Owlshift in time) is stopped as surely
   // as by a fault, and nobody asked for it: the lead must hear. A hold by command is not: the

@@ -4,7 +4,7 @@ import { describe, expect, it } from 'vitest'
 import fc from 'fast-check'
 import { createCompensationState, stepCompensation, type CompensationInput, type CompensationState } from '../../shared/utils/compensation'
 import {
-  allowanceFor, allowanceRenewalDue, defaultAllowanceSettings, engineUnsure, heldAllowanceAfter, mayStartPart, voidsAllowance, type Allowance,
+  allowanceFor, allowanceRenewalDue, defaultAllowanceSettings, engineUnsure, heldAllowanceAfter, mayStartPart, outageResumeRefusal, voidsAllowance, type Allowance,
 } from '../../shared/utils/allowance'
 import { applyMachineMessage, emptyMachineStatus, type MachineLoop, type MachineLoopMessage } from '../../shared/utils/machine-loop'
 import type { CommandMessage, SequencedMessage } from '../../shared/utils/contract'
@@ -115,6 +115,32 @@ describe('the machine\'s side of the rule', () => {
     held = heldAllowanceAfter(held, { throughPart: 6, basedOnSeq: 9 }) // lowered by a newer grant
     expect(held).toEqual({ throughPart: 6, basedOnSeq: 9 })
     expect(heldAllowanceAfter(held, undefined)).toBe(held)
+  })
+})
+
+describe('resuming after an outage (the rule; through ingest: outage-catch-up.test.ts)', () => {
+  const base = {
+    name: 'M1', online: true, catchingUp: false, execution: 'FEED_HOLD', holdCauses: ['allowance'], personResumes: false,
+    engine: watched(100, -1, 0.01), lastDiameterUm: 0, alarms: [],
+  }
+  it('resumes only a machine held for its allowance alone, back, live, inside tolerance, with no alarm standing and no person to do it', () => {
+    expect(outageResumeRefusal(base)).toBeNull()
+    expect(outageResumeRefusal({ ...base, online: false })).toMatch(/offline/)
+    expect(outageResumeRefusal({ ...base, catchingUp: true })).toMatch(/came late/)
+    expect(outageResumeRefusal({ ...base, holdCauses: ['command', 'allowance'] })).toMatch(/alone/)
+    expect(outageResumeRefusal({ ...base, holdCauses: null })).toMatch(/alone/)
+    expect(outageResumeRefusal({ ...base, execution: 'STOPPED' })).toMatch(/alone/)
+    expect(outageResumeRefusal({ ...base, personResumes: true })).toMatch(/a person resumes/)
+    expect(outageResumeRefusal({ ...base, alarms: [{ title: 'Fire alarm', active: false, latching: true, closedAt: null }] })).toMatch(/latched stop stands \(Fire alarm\)/)
+    expect(outageResumeRefusal({ ...base, alarms: [{ title: 'Loader jam', active: true, latching: false, closedAt: null }] })).toMatch(/alarm is active \(Loader jam\)/)
+    expect(outageResumeRefusal({ ...base, alarms: [{ title: 'Loader jam', active: false, latching: false, closedAt: null }] })).toBeNull()
+  })
+  it('not when the last part or the next one predicted is outside the tolerance', () => {
+    expect(outageResumeRefusal({ ...base, lastDiameterUm: 4.1 })).toMatch(/last part gauged \(4.10 µm\) is not inside/)
+    expect(outageResumeRefusal({ ...base, lastDiameterUm: null })).toMatch(/no size/)
+    // −1 + 0.01 × 100 = 0 at part 100; the next part (pipeline 3) at +0.04 µm: inside. An engine at +3.99 and climbing 0.01 a part: outside.
+    expect(outageResumeRefusal({ ...base, engine: watched(499, -1, 0.01) })).toMatch(/next part is predicted at 4.0\d µm, outside/)
+    expect(outageResumeRefusal({ ...base, engine: createCompensationState(settings) })).toMatch(/no size/)
   })
 })
 
