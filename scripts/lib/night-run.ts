@@ -30,6 +30,7 @@ import { SERVER_ENTRY, SERVER_NODE_ARGS } from './server-start'
 import type { NightSimArgs } from './night-sim'
 
 export interface NightOptions {
+  /** scenario: a path from `root` (or absolute) */
   name: string, scenario: string, seed: number, hours?: number, speed?: number, ackTopAfterMin?: number, root?: string
   /** plant hours after the scenario's start at which the night begins (the scenario's schedule is shifted back by it) */
   skipHours?: number
@@ -51,7 +52,11 @@ export interface NightResult {
   woken: Record<string, { alarms: number, needed: number, nuisance: number, attempts: number, emails: number }>
   wakes: NightWake[]
   stops: { machine: string, at: string, minutes: number, reason: string | null, leadAfterMin: number | null }[]
-  top: { alarms: number, longestGapMin: number | null, afterAck: number, acknowledged: number }
+  top: {
+    alarms: number, longestGapMin: number | null, afterAck: number, acknowledged: number
+    /** per top-priority alarm: pushes to the lead before it was acknowledged (the first and its reminders) */
+    pushesBeforeAck: number[]
+  }
   alarms: number
   conditions: string[]
 }
@@ -93,7 +98,7 @@ export async function runNight(o: NightOptions): Promise<NightResult> {
   const root = resolve(o.root ?? '.')
   const speed = o.speed ?? 240
   const hours = o.hours ?? 8
-  const scenario = JSON.parse(readFileSync(join(root, o.scenario), 'utf8')) as { start: string }
+  const scenario = JSON.parse(readFileSync(resolve(root, o.scenario), 'utf8')) as { start: string }
   const nightStart = Date.parse(scenario.start) + (o.skipHours ?? 0) * 3600_000
   const dir = mkdtempSync(join(tmpdir(), `owlshift-night-${o.name.replace(/\W+/g, '-')}-`))
   const [port, mqttPort] = [await free(), await free()]
@@ -133,7 +138,7 @@ export async function runNight(o: NightOptions): Promise<NightResult> {
     // The cell, on the same plant clock, starting beside the server; it waits for the go file and the night's start.
     const goFile = join(dir, 'go')
     const simArgs: NightSimArgs = {
-      scenario: join(root, o.scenario), seed: o.seed, hours, brokerUrl: `mqtt://127.0.0.1:${mqttPort}`, credentials: join(dir, 'machine-credentials.json'),
+      scenario: resolve(root, o.scenario), seed: o.seed, hours, brokerUrl: `mqtt://127.0.0.1:${mqttPort}`, credentials: join(dir, 'machine-credentials.json'),
       stateDir: join(dir, 'sim'), goFile, startAt: nightStart, skipHours: o.skipHours ?? 0, speed,
     }
     const sim = spawn(process.execPath, ['--import', 'tsx', join(root, 'scripts/lib/night-sim.ts'), JSON.stringify(simArgs)], { cwd: root, stdio: ['ignore', 'pipe', 'pipe'], env: clockEnv })
@@ -255,10 +260,12 @@ async function measure(db: ReturnType<typeof createClient>, statesFile: string, 
   const tops = [...alarms.values()].filter(a => a.priority === 1)
   let longestGapMin: number | null = null
   let afterAck = 0
+  const pushesBeforeAck: number[] = []
   for (const t of tops) {
     const ack = acks.get(t.id) ?? end
     const times = [...new Set(sends.filter(s => s.alarm === t.id && s.user === people.lead && s.channel === 'push').map(s => s.at))].sort((a, b) => a - b)
     const before = times.filter(x => x < ack)
+    pushesBeforeAck.push(before.length)
     for (let i = 1; i < before.length; i++) longestGapMin = Math.max(longestGapMin ?? 0, (before[i]! - before[i - 1]!) / MIN)
     if (before.length) longestGapMin = Math.max(longestGapMin ?? 0, (ack - before.at(-1)!) / MIN)
     afterAck += sends.filter(s => s.alarm === t.id && s.at > ack + 5_000).length
@@ -267,7 +274,7 @@ async function measure(db: ReturnType<typeof createClient>, statesFile: string, 
   // (60–90 plant s: 0.25 s of real time at 240×), and then the machines drift as if nobody compensated.
   const expiredCommands = Number((await db.execute(`select count(*) from commands where status = 'expired'`)).rows[0]![0])
   const commands = Number((await db.execute(`select count(*) from commands`)).rows[0]![0])
-  return { expiredCommands, commands, woken, wakes, stops, top: { alarms: tops.length, longestGapMin, afterAck, acknowledged: tops.filter(t => acks.has(t.id)).length }, alarms: alarms.size, conditions: [...alarms.values()].map(a => `${a.machine ?? 'cell'} ${a.condition}`) }
+  return { expiredCommands, commands, woken, wakes, stops, top: { alarms: tops.length, longestGapMin, afterAck, acknowledged: tops.filter(t => acks.has(t.id)).length, pushesBeforeAck }, alarms: alarms.size, conditions: [...alarms.values()].map(a => `${a.machine ?? 'cell'} ${a.condition}`) }
 }
 
 /** Markdown rows for docs/benchmarks.md. */
