@@ -1,12 +1,13 @@
 // A report database without the server: a temporary SQLite file with the real migrations, filled
 // with the messages of headless simulator runs stored the way ingest stores them (readings in
-// `readings`, every other numbered message in `machine_messages`, and a decision row per reading in
-// `decisions` as ingest writes one). Used by the report tests and `npm run bench:report`.
+// `readings`, every other numbered message in `machine_messages`, and a decision row for each reading
+// the engine acted on, as ingest writes them). Used by the report tests and `npm run bench:report`.
 //
-// Decision rows are rebuilt from the engine's state after each reading (the headless controller
-// keeps the state, not the decision): action offset when the offset moved, hold while the engine
-// holds (with its hold reason), the level and slope estimates as inputs. The report reads holds and
-// the slope (predicted wear) from them, as it does from the rows ingest writes.
+// The engine's figures are rebuilt from its state after each reading (the headless controller
+// keeps the state, not the decision): the slope estimate goes on the reading (slope_pm), and a
+// decision row is written when the offset moved (action offset) or the engine holds (with its hold
+// reason). The report reads holds and the slope (predicted wear) from them, as it does from what
+// ingest writes.
 import { mkdtempSync, rmSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
@@ -64,13 +65,13 @@ export class MessageRows {
     if (m.kind === 'birth') this.job.set(machineId, m.job?.partNumber ?? null)
     if (m.kind === 'event' && m.type === 'job_change') this.job.set(machineId, m.job.partNumber)
     if (m.kind === 'reading') {
-      this.readings.push([machineId, seq, m.part, time, time, m.status, m.diameterUm, m.roundnessUm ?? null, m.lengthUm ?? null, m.offsetUm, this.job.get(machineId) ?? null])
+      this.readings.push([machineId, seq, m.part, time, time, m.status, m.diameterUm, m.roundnessUm ?? null, m.lengthUm ?? null, m.offsetUm, this.job.get(machineId) ?? null, null])
       return
     }
     const type = m.kind === 'event' ? m.type : m.kind === 'ack' ? `${m.command}:${m.result}` : m.kind === 'state' ? m.execution : null
     this.messages.push([machineId, seq, m.kind, type, time, time, JSON.stringify({ ...m, seq })])
   }
-  /** The decision row ingest would write for a reading, from the engine state before and after it. */
+  /** What ingest would write of the engine's answer to a reading (just added), from its state before and after it. */
   decide(machineId: string, m: SequencedMessage, before: CompensationState | undefined, after: CompensationState): void {
     const seq = m.seq + (this.seqOffset[machineId] ?? 0)
     const at = Date.parse(m.time)
@@ -79,15 +80,17 @@ export class MessageRows {
     const held = before !== undefined && before.holdRemaining > 0 && !moved
     const action = moved ? 'offset' : held ? 'hold' : 'none'
     const reason = held ? `hold: ${before!.holdReason ?? 'hold'}` : moved ? `offset ${after.offsetUm} µm` : 'no change'
-    const inputs = { levelUm: after.level, slopeUmPerPart: after.slope, ewmaLevelUm: after.ewmaLevel, stepMeanUm: null, outOfTolerance: after.outOfToleranceRun > 0, outlier: after.outlierRun > 0 }
-    this.decisions.push([machineId, seq, at, action, moved ? after.offsetUm - before!.offsetUm : null, after.offsetUm, null, reason, JSON.stringify(inputs), null, Number.isFinite(inputs.slopeUmPerPart) ? inputs.slopeUmPerPart + 0 : null])
+    const slope = Number.isFinite(after.slope) ? after.slope + 0 : null
+    const reading = this.readings[this.readings.length - 1]
+    if (reading && reading[0] === machineId && reading[1] === seq) reading[11] = slope === null ? null : Math.round(slope * 1e6)
+    if (action !== 'none') this.decisions.push([machineId, seq, at, action, moved ? after.offsetUm - before!.offsetUm : null, after.offsetUm, null, reason, null, null, slope])
   }
   async flush(client: Client): Promise<void> {
     const stmts: InStatement[] = []
     const chunk = 100
     for (let i = 0; i < this.readings.length; i += chunk) {
       const rows = this.readings.slice(i, i + chunk)
-      stmts.push({ sql: `insert into readings (machine_id, seq, part, time, received_at, status, diameter_um, roundness_um, length_um, offset_um, job_part_number) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
+      stmts.push({ sql: `insert into readings (machine_id, seq, part, time, received_at, status, diameter_um, roundness_um, length_um, offset_um, job_part_number, slope_pm) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
     }
     for (let i = 0; i < this.messages.length; i += chunk) {
       const rows = this.messages.slice(i, i + chunk)

@@ -1,7 +1,7 @@
 // The least work issue 5 asks of every reading, with nothing of the product around it: an aedes
 // broker in a process of its own whose authorizePublish queues each message; every 2 ms (or 1,000
 // messages) the queue is decoded and validated with the contract's own schemas, run through the
-// compensation engine, and the reading, its decision and any offset command are written with the
+// compensation engine, and the reading (with the engine's figures), its decision when it acted and any offset command are written with the
 // product's statements (raw-insert.ts over the real migrations, one native write transaction, the
 // WAL checkpointer thread) together with each machine's engine state; only then are the PUBACKs
 // released and the commands published at QoS 1. No web server, alarm engine, live stream, status,
@@ -29,6 +29,7 @@ import { openNativeWriter, closeNativeWriter, writeBatch } from '../../server/ut
 import type { InValue } from '@libsql/client'
 import { decodeMachineMessage, mqttTopics, type CommandMessage } from '../../shared/utils/contract'
 import { createCompensationState, stepCompensation, type CompensationState } from '../../shared/utils/compensation'
+import { decisionAction, decisionKept, decisionSlopeUmPerPart, engineFigures } from '../../shared/utils/machine-loop'
 
 const root = fileURLToPath(new URL('../..', import.meta.url))
 const file = join(mkdtempSync(join(tmpdir(), 'owlshift-floor-')), 'floor.db')
@@ -86,9 +87,9 @@ function flush() {
     if (!decoded.ok || decoded.value.message.kind !== 'reading') continue
     const { machine, cell, message: m } = decoded.value
     const time = Date.parse(m.time)
-    readings.push({ machineId: machine, seq: m.seq, part: m.part, time, receivedAt: now, status: m.status, diameterUm: m.diameterUm, roundnessUm: m.roundnessUm ?? null, lengthUm: m.lengthUm ?? null, offsetUm: m.offsetUm, jobPartNumber: 'LTP-0630-R' })
     const state = engines.get(machine) ?? createCompensationState(settings, { offsetUm: 0 })
     const { state: next, decision } = stepCompensation(state, { type: 'reading', seq: state.lastSeq + 1, time, deviationUm: m.diameterUm, status: m.status, roundnessUm: m.roundnessUm ?? undefined, offsetInForceUm: m.offsetUm })
+    readings.push({ machineId: machine, seq: m.seq, part: m.part, time, receivedAt: now, status: m.status, diameterUm: m.diameterUm, roundnessUm: m.roundnessUm ?? null, lengthUm: m.lengthUm ?? null, offsetUm: m.offsetUm, jobPartNumber: 'LTP-0630-R', ...engineFigures(decision) })
     engines.set(machine, next)
     touched.add(machine)
     let commandId: string | null = null
@@ -98,7 +99,7 @@ function flush() {
       commands.push({ id: commandId, machineId: machine, type: 'offset', origin: 'engine', payload: command, issuedAt: now, expiresAt: now + 60_000, status: 'sent', requestedOffsetUm: command.offsetUm })
       outgoing.push({ topic: mqttTopics.command(cell, machine), command })
     }
-    decisions.push({ machineId: machine, seq: m.seq, at: now, action: decision.command ? 'offset' : decision.dress.now ? 'dress' : 'none', correctionUm: decision.command?.correctionUm ?? null, offsetUm: decision.offsetUm, commandId, reason: decision.reason, inputs: decision.inputs, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: typeof decision.inputs.slopeUmPerPart === 'number' ? decision.inputs.slopeUmPerPart : null })
+    if (decisionKept(decision)) decisions.push({ machineId: machine, seq: m.seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null, offsetUm: decision.offsetUm, commandId, reason: decision.reason, inputs: null, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: decisionSlopeUmPerPart(decision) })
   }
   const statements: Statement[] = [
     ...insertStatements(schema.readings, readings, { onConflict: 'nothing' }),

@@ -148,6 +148,14 @@ export const readings = sqliteTable('readings', {
   lengthUm: real('length_um'),
   offsetUm: real('offset_um').notNull(),
   jobPartNumber: text('job_part_number'),
+  /**
+   * What the compensation engine made of this part, kept here instead of a decision row for every
+   * part (only decisions that acted are rows): the size it expected for the part (its level
+   * estimate plus gain × the offset the part was ground with), nm; and its wear slope estimate
+   * after the part, pm per part (µm × 10⁶). Null where the engine had none (learning, no engine).
+   */
+  expectedNm: integer('expected_nm'),
+  slopePm: integer('slope_pm'),
 }, t => [uniqueIndex('readings_machine_seq').on(t.machineId, t.seq), index('readings_machine_time').on(t.machineId, t.time)])
 
 /** Every other numbered machine message (birth, state, event, ack), stored once. */
@@ -209,7 +217,12 @@ export const deadLetters = sqliteTable('dead_letters', {
   seq: integer('seq'),
 }, t => [index('dead_machine_at').on(t.machineId, t.receivedAt)])
 
-/** Every decision the compensation engine made, with its reason and inputs. */
+/**
+ * The compensation engine's decisions that did something: commanded an offset, held, stopped,
+ * asked for a dress, or raised an alert (since migration 0019; before it every decision was a row).
+ * A decision that changed nothing leaves its figures on the reading (expected size, slope) and can
+ * be recomputed exactly by replaying from the engine snapshot before it (engine_snapshots).
+ */
 export const decisions = sqliteTable('decisions', {
   id: integer('id').primaryKey({ autoIncrement: true }),
   machineId: text('machine_id').notNull(),
@@ -220,11 +233,28 @@ export const decisions = sqliteTable('decisions', {
   offsetUm: real('offset_um').notNull(),
   commandId: text('command_id'),
   reason: text('reason').notNull(),
-  inputs: text('inputs', { mode: 'json' }).notNull(),
+  /** the figures the decision used; null since migration 0019 (the reason states the main ones; a replay from the snapshot before it gives them all) */
+  inputs: text('inputs', { mode: 'json' }),
   alerts: text('alerts', { mode: 'json' }),
   /** the engine's wear slope (µm per part) from `inputs`, as a column so the report reads it without parsing JSON; null before migration 0011 */
   slopeUmPerPart: real('slope_um_per_part'),
 }, t => [index('decisions_machine_at').on(t.machineId, t.at)])
+
+/**
+ * The compensation engine's whole state every ENGINE_SNAPSHOT_EVERY_PARTS readings of a machine
+ * (shared/utils/machine-loop.ts), after the reading `seq`: a replay started from one decides part
+ * for part what ingest decided after it, so decisions that changed nothing need not be stored.
+ */
+export const engineSnapshots = sqliteTable('engine_snapshots', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  seq: integer('seq').notNull(),
+  /** server's clock */
+  at: integer('at').notNull(),
+  /** the machine's clock of the reading */
+  time: integer('time').notNull(),
+  state: text('state', { mode: 'json' }).notNull(),
+}, t => [index('engine_snapshots_machine_seq').on(t.machineId, t.seq)])
 
 /** Commands sent to machines and what became of them. */
 export const commands = sqliteTable('commands', {

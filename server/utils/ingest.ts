@@ -339,6 +339,7 @@ function statementsOf({ rows, machines }: Fold, dead: DeadLetterRow[], now: numb
     ...insertStatements(schema.deadLetters, dead),
     ...insertStatements(schema.presenceLog, rows.presence),
     ...insertStatements(schema.sequenceGaps, rows.gaps),
+    ...insertStatements(schema.engineSnapshots, rows.snapshots),
   ]
   for (const u of rows.answers) {
     // Only the machine the command went to may answer it (an ack naming another machine's command changes nothing).

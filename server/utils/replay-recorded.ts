@@ -2,9 +2,9 @@
 // with the offsets in force and what the engine was told between them (replayItemsOf, the machine
 // loop's own mapping), plus the settings that ran, built as ingest built them
 // (compensationSettingsFor: what the machine announced, our job record, the active version).
-import { and, asc, between, desc, eq, inArray, lte } from 'drizzle-orm'
+import { and, asc, between, desc, eq, gt, inArray, isNotNull, isNull, lt, lte, or } from 'drizzle-orm'
 import type { BirthMessage, JobInfo, SequencedMessage } from '#shared/utils/contract'
-import type { CompensationSettingsInput } from '#shared/utils/compensation'
+import { restoreCompensationState, type CompensationSettingsInput, type CompensationState } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 import { compensationSettingsFor } from '#shared/utils/machine-loop'
 import { replayItemsOf, type ReplayItem } from '#shared/utils/replay'
@@ -25,11 +25,7 @@ export async function recordedRun(machineId: string, from: number, to: number) {
   const mm = schema.machineMessages
   const firstSeq = readings[0]!.seq
   const messages = await db.select().from(mm).where(and(eq(mm.machineId, machineId), between(mm.seq, firstSeq, readings[readings.length - 1]!.seq), inArray(mm.kind, ['event', 'ack', 'birth', 'state']))).orderBy(asc(mm.seq))
-  const recorded: { message: SequencedMessage, time: number }[] = [
-    ...readings.map(x => ({ time: x.time, message: { kind: 'reading', seq: x.seq, time: new Date(x.time).toISOString(), part: x.part, status: x.status, diameterUm: x.diameterUm, roundnessUm: x.roundnessUm, lengthUm: x.lengthUm, offsetUm: x.offsetUm } as SequencedMessage })),
-    ...messages.map(m => ({ time: m.time, message: m.payload as SequencedMessage })), // stored as decoded (contract.ts)
-  ].sort((a, b) => a.message.seq - b.message.seq)
-  const items: ReplayItem[] = replayItemsOf(recorded)
+  const items: ReplayItem[] = replayItemsOf(recordedMessages(readings, messages))
 
   // The job ground in the window (its part number on the readings), else the machine's current job.
   const partNumber = readings.find(x => x.jobPartNumber)?.jobPartNumber ?? null
@@ -60,4 +56,46 @@ async function versionInForce(jobId: number, machineId: string, at: number) {
   const inForce = (v: typeof versions[number]) => v.retiredAt === null || v.retiredAt > at
   const pick = versions.find(v => v.machineId === machineId && inForce(v)) ?? versions.find(v => v.machineId === null && inForce(v))
   return pick ? { id: pick.id, version: pick.version, settings: pick.settings } : null
+}
+
+type ReadingRecord = typeof schema.readings.$inferSelect
+type MessageRecord = typeof schema.machineMessages.$inferSelect
+
+/** Stored readings and messages back as the machine sent them, in message order. */
+function recordedMessages(readings: ReadingRecord[], messages: MessageRecord[]): { message: SequencedMessage, time: number }[] {
+  return [
+    ...readings.map(x => ({ time: x.time, message: { kind: 'reading', seq: x.seq, time: new Date(x.time).toISOString(), part: x.part, status: x.status, diameterUm: x.diameterUm, roundnessUm: x.roundnessUm, lengthUm: x.lengthUm, offsetUm: x.offsetUm } as SequencedMessage })),
+    ...messages.map(m => ({ time: m.time, message: m.payload as SequencedMessage })), // stored as decoded (contract.ts)
+  ].sort((a, b) => a.message.seq - b.message.seq)
+}
+
+/**
+ * What ran on a machine from an engine snapshot on (engine_snapshots): the engine's state after the
+ * reading `seq`, the offset in force then, and every message after it up to `toSeq` as replay
+ * items. replayRun from that state decides, part for part, what ingest decided (the decisions
+ * that changed nothing are not stored; this is how they are had back).
+ */
+export async function recordedSinceSnapshot(machineId: string, snapshotSeq: number, toSeq: number): Promise<{ state: CompensationState, snapshotSeq: number, initialOffsetUm: number, items: ReplayItem[] } | null> {
+  const db = useDb()
+  const es = schema.engineSnapshots
+  const [snap] = await db.select().from(es).where(and(eq(es.machineId, machineId), lte(es.seq, snapshotSeq))).orderBy(desc(es.seq)).limit(1)
+  if (!snap) return null
+  const r = schema.readings
+  const mm = schema.machineMessages
+  const [at] = await db.select().from(r).where(and(eq(r.machineId, machineId), eq(r.seq, snap.seq)))
+  const readings = await db.select().from(r).where(and(eq(r.machineId, machineId), gt(r.seq, snap.seq), lte(r.seq, toSeq))).orderBy(asc(r.seq)).limit(MAX_READINGS + 1)
+  if (readings.length > MAX_READINGS) throw createError({ statusCode: 413, message: `More than ${MAX_READINGS.toLocaleString('en')} readings follow that snapshot; pick a shorter stretch.` })
+  const messages = await db.select().from(mm).where(and(eq(mm.machineId, machineId), gt(mm.seq, snap.seq), lte(mm.seq, toSeq), inArray(mm.kind, ['event', 'ack', 'birth', 'state']))).orderBy(asc(mm.seq))
+  // the machine's execution state at the snapshot: its last state or birth before it
+  const [last] = await db.select({ payload: mm.payload }).from(mm).where(and(eq(mm.machineId, machineId), lt(mm.seq, snap.seq), inArray(mm.kind, ['state', 'birth']), isNotNull(mm.payload))).orderBy(desc(mm.seq)).limit(1)
+  const executionBefore = (last?.payload as { execution?: string } | undefined)?.execution ?? null
+  // the offset in force at the snapshot, as the machine last said it: its latest applied offset,
+  // birth, or dress or wheel change that set one (a reading's offset is the one its part was ground
+  // with, a pipeline behind)
+  const said = await db.select({ payload: mm.payload }).from(mm)
+    .where(and(eq(mm.machineId, machineId), lt(mm.seq, snap.seq), or(inArray(mm.type, ['offset:applied', 'dress', 'wheel_change']), and(isNull(mm.type), eq(mm.kind, 'birth')))))
+    .orderBy(desc(mm.seq)).limit(20)
+  const inForce = said.map(x => (x.payload as { offsetUm?: unknown }).offsetUm).find((x): x is number => typeof x === 'number')
+  const initialOffsetUm = inForce ?? at?.offsetUm ?? readings[0]?.offsetUm ?? 0
+  return { state: restoreCompensationState(snap.state), snapshotSeq: snap.seq, initialOffsetUm, items: replayItemsOf(recordedMessages(readings, messages), { executionBefore, offsetUm: initialOffsetUm }) }
 }

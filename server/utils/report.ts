@@ -298,10 +298,10 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
   const [, jobs, readingLists, unloaded, marked, births, ackLists, ackOther, hourLists] = await db.batch([
     readPrelude(db),
     db.select().from(schema.jobs),
-    db.all<{ m: string; jobs: string; seqs: string; parts: string; offs: string; times: string; dia: string; st: string; lo: number; hi: number }>(sql`
+    db.all<{ m: string; jobs: string; seqs: string; parts: string; offs: string; times: string; dia: string; slopes: string; st: string; lo: number; hi: number }>(sql`
       select machine_id as m, group_concat(coalesce(job_part_number, ''), ${US}) as jobs,
         group_concat(seq, ',') as seqs, group_concat(part, ',') as parts, group_concat(offset_um, ',') as offs,
-        group_concat(time, ',') as times, group_concat(coalesce(diameter_um, ''), ',') as dia,
+        group_concat(time, ',') as times, group_concat(coalesce(diameter_um, ''), ',') as dia, group_concat(coalesce(slope_pm, ''), ',') as slopes,
         group_concat(case status when 'ok' then 'o' when 'fault' then 'f' else 'r' end, '') as st,
         min(received_at) as lo, max(received_at) as hi
       from readings indexed by readings_machine_time
@@ -335,8 +335,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
   ])
   // Columns, not one object per reading: a week is 300,000 readings, and objects cost more
   // (allocation and garbage collection) than everything computed from them.
-  const readingsByMachine = new Map(readingLists.map((g) => [g.m, readingColumns(g.st.length, g.seqs, g.parts, g.offs, g.times, g.dia, g.st, g.jobs, US)]))
-  const readingSeqText = new Map(readingLists.map((g) => [g.m, g.seqs]))
+  const readingsByMachine = new Map(readingLists.map((g) => [g.m, readingColumns(g.st.length, g.seqs, g.parts, g.offs, g.times, g.dia, g.slopes, g.st, g.jobs, US)]))
   const readingCount = readingLists.reduce((a, g) => a + g.st.length, 0)
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
   const acksByMachine = new Map(ackLists.map((g) => {
@@ -362,33 +361,19 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
     ? await Promise.all([reportContactEvents(db, ids, from, measuredTo, known), reportGapEvents(db, ids, from, measuredTo)])
     : [new Map<string, KpiMachineEvent[]>(), new Map<string, KpiMachineEvent[]>()]
 
-  // The engine's decisions on the window's readings (found by server time around them), in one
-  // pass: the held readings with their reasons, and the engine's slope estimate (predicted wear) —
-  // from its own column, or from the inputs' JSON for decisions stored before migration 0011.
+  // The engine's holds on the window's readings (found by server time around them), with their
+  // reasons. Its slope estimate (predicted wear) is on each reading (slope_pm, since migration 0019).
   const rcv = received[0]
   const decided = rcv?.lo != null && rcv.hi != null
-    ? (await db.batch([readPrelude(db), db.all<{ m: string; seqs: string; slopes: string; heldSeqs: string | null; heldReasons: string | null }>(sql`
-      select machine_id as m, group_concat(seq, ',') as seqs,
-        group_concat(coalesce(slope_um_per_part, json_extract(inputs, '$.slopeUmPerPart'), ''), ',') as slopes,
-        group_concat(case when action = 'hold' then seq end, ',') as heldSeqs,
-        group_concat(case when action = 'hold' then reason end, ${US}) as heldReasons
-      from decisions where machine_id in ${idList} and at >= ${Number(rcv.lo)} and at < ${Number(rcv.hi) + 1} group by machine_id`)]))[1]
+    ? (await db.batch([readPrelude(db), db.all<{ m: string; heldSeqs: string | null; heldReasons: string | null }>(sql`
+      select machine_id as m, group_concat(seq, ',') as heldSeqs, group_concat(reason, ${US}) as heldReasons
+      from decisions where machine_id in ${idList} and at >= ${Number(rcv.lo)} and at < ${Number(rcv.hi) + 1} and action = 'hold' group by machine_id`)]))[1]
     : []
   const heldByMachine = new Map<string, Map<number, string>>()
-  const slopesByMachine = new Map<string, Float64Array>()
   for (const d of decided) {
     if (d.heldSeqs && d.heldReasons) {
       const seqs = d.heldSeqs.split(','), reasons = d.heldReasons.split(US)
       heldByMachine.set(d.m, new Map(seqs.map((q, i) => [Number(q), reasons[i]!])))
-    }
-    const mr = readingsByMachine.get(d.m)
-    if (!mr) continue
-    // Usually one decision per reading, in the same order: then the two seq texts are equal and
-    // the slopes line up with the readings without parsing and matching the seqs.
-    if (mr.n && !mr.reordered && d.seqs === readingSeqText.get(d.m)) slopesByMachine.set(d.m, reportParseNumberList(d.slopes, mr.n))
-    else {
-      const n = countFields(d.seqs)
-      slopesByMachine.set(d.m, slopeAtReadings(mr, reportParseNumberList(d.seqs, n), reportParseNumberList(d.slopes, n)))
     }
   }
   const tunings = await activeTunings(db, ids)
@@ -469,7 +454,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
     const lastJob = (mr.n ? mr.jobs[mr.job[mr.n - 1]!] : null) ?? birth?.job?.partNumber ?? ''
     const gain = gainOf(tunings, m.id, jobByPart.get(lastJob)?.id ?? null)
     const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? NO_ACKS, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 },
-      slopesByMachine.get(m.id) ?? null, gain)
+      gain)
     const tol = jobInfo(lastJob) ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
     const chart: ReportChart = {
       points: thinnedSizes(mr),
@@ -671,6 +656,8 @@ export interface ReadingColumns {
   time: Float64Array
   /** diameter deviation (µm); NaN where the gauge gave none */
   dia: Float64Array
+  /** the engine's wear slope estimate after each part (µm per part, from readings.slope_pm); NaN where it had none */
+  slopeUmPerPart: Float64Array
   /** gauge status, one character per reading: o ok, f fault, r over range */
   status: string
   /** per reading, an index into `jobs` (part number, or null before the first birth) */
@@ -680,14 +667,16 @@ export interface ReadingColumns {
   reordered?: boolean
 }
 
-const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), offsetUm: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
+const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), offsetUm: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), slopeUmPerPart: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
 const NO_ACKS = { n: 0, time: new Float64Array(0), offsetUm: new Float64Array(0) }
 
 /** Columns from the concatenated texts of one machine's readings (see the query in reportBuild). */
-function readingColumns(n: number, seqs: string, parts: string, offs: string, times: string, dia: string, status: string, jobText: string, sep: string): ReadingColumns {
+function readingColumns(n: number, seqs: string, parts: string, offs: string, times: string, dia: string, slopes: string, status: string, jobText: string, sep: string): ReadingColumns {
+  const slopeUmPerPart = reportParseNumberList(slopes, n)
+  for (let i = 0; i < n; i++) slopeUmPerPart[i] = slopeUmPerPart[i]! / 1e6 // stored in pm per part
   const c: ReadingColumns = {
     n, seq: reportParseNumberList(seqs, n), part: reportParseNumberList(parts, n), offsetUm: reportParseNumberList(offs, n), time: reportParseNumberList(times, n), dia: reportParseNumberList(dia, n),
-    status, job: new Uint16Array(n), jobs: [],
+    slopeUmPerPart, status, job: new Uint16Array(n), jobs: [],
   }
   parseJobs(jobText, sep, n, c)
   // the index walk gives time order; same-millisecond readings must be in seq order
@@ -696,7 +685,7 @@ function readingColumns(n: number, seqs: string, parts: string, offs: string, ti
   if (sorted) return c
   const order = Array.from({ length: n }, (_, i) => i).sort((a, b) => c.time[a]! - c.time[b]! || c.seq[a]! - c.seq[b]!)
   const pick = (col: Float64Array) => Float64Array.from(order, (i) => col[i]!)
-  return { n, seq: pick(c.seq), part: pick(c.part), offsetUm: pick(c.offsetUm), time: pick(c.time), dia: pick(c.dia), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs, reordered: true }
+  return { n, seq: pick(c.seq), part: pick(c.part), offsetUm: pick(c.offsetUm), time: pick(c.time), dia: pick(c.dia), slopeUmPerPart: pick(c.slopeUmPerPart), status: order.map((i) => c.status[i]).join(''), job: Uint16Array.from(order, (i) => c.job[i]!), jobs: c.jobs, reordered: true }
 }
 
 /** Fills c.job and c.jobs from the separator-joined part numbers ('' = none). */
@@ -820,7 +809,7 @@ function foldedOf(h: { m: string; job: string; hours: number; n: number; faults:
 
 type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
 
-function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }, slopes: Float64Array | null, gain: { gain: number; source: string }) {
+function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }, gain: { gain: number; source: string }) {
   let offset = offsetBefore
   if (offset === null) {
     // no offset known before the window: the first birth in it says what was in force
@@ -891,7 +880,7 @@ function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64
     dressIntervalMinutes: stats(minutesBetween),
     wheelChanges, masterings,
     wheelWear: {
-      ...wearCompare({ n: mr.n, time: mr.time, offsetUm: mr.offsetUm, slopeUmPerPart: slopes ?? new Float64Array(mr.n).fill(Number.NaN) },
+      ...wearCompare({ n: mr.n, time: mr.time, offsetUm: mr.offsetUm, slopeUmPerPart: mr.slopeUmPerPart },
         mk.filter((e) => e.type === 'dress' || e.type === 'wheel_change').map((e) => ({ at: e.time, kind: e.type as WearBoundaryKind })), gain.gain),
       gainSource: gain.source,
     },
@@ -902,31 +891,6 @@ function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64
 }
 
 /** The engine's slope estimate after each reading (NaN where no decision was found), matched by seq. */
-function slopeAtReadings(mr: ReadingColumns, seqs: Float64Array, slopes: Float64Array): Float64Array {
-  const out = new Float64Array(mr.n).fill(Number.NaN)
-  let ascending = true
-  for (let i = 1; i < mr.n && ascending; i++) ascending = mr.seq[i - 1]! < mr.seq[i]!
-  const indexOf = ascending ? null : new Map(Array.from(mr.seq, (q, i) => [q, i]))
-  for (let k = 0; k < seqs.length; k++) {
-    const q = seqs[k]!
-    let i: number
-    if (indexOf) i = indexOf.get(q) ?? -1
-    else {
-      // readings are in seq order: binary search
-      let lo = 0, hi = mr.n - 1
-      i = -1
-      while (lo <= hi) {
-        const mid = (lo + hi) >> 1
-        const v = mr.seq[mid]!
-        if (v === q) { i = mid; break }
-        if (v < q) lo = mid + 1
-        else hi = mid - 1
-      }
-    }
-    if (i >= 0) out[i] = slopes[k]!
-  }
-  return out
-}
 
 type Tuning = { jobId: number; machineId: string | null; settings: Record<string, unknown> }
 

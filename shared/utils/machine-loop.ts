@@ -121,13 +121,17 @@ export type MachineLoopMessage<J extends MachineJobRecord = MachineJobRecord> = 
 
 export type ReadingRow = {
   machineId: string, seq: number, part: number, time: number, receivedAt: number, status: string,
-  diameterUm: number | null, roundnessUm: number | null, lengthUm: number | null, offsetUm: number, jobPartNumber: string | null
+  diameterUm: number | null, roundnessUm: number | null, lengthUm: number | null, offsetUm: number, jobPartNumber: string | null,
+  /** the engine's figures for the part (engineFigures): expected size nm, slope pm per part */
+  expectedNm: number | null, slopePm: number | null
 }
 export type MessageRow = { machineId: string, seq: number, kind: string, type: string | null, time: number, receivedAt: number, payload: unknown }
 export type DecisionRow = {
   machineId: string, seq: number, at: number, action: string, correctionUm: number | null, offsetUm: number, commandId: string | null,
   reason: string, inputs: unknown, alerts: unknown, slopeUmPerPart: number | null
 }
+/** The engine's whole state after a reading (ENGINE_SNAPSHOT_EVERY_PARTS). */
+export type SnapshotRow = { machineId: string, seq: number, at: number, time: number, state: CompensationState }
 export type CommandRow = {
   id: string, machineId: string, type: string, origin: 'engine' | 'allowance', payload: CommandMessage, issuedAt: number, expiresAt: number, status: 'sent', requestedOffsetUm: number | null
 }
@@ -144,6 +148,7 @@ export interface MachineLoopRows {
   presence: PresenceRow[]
   gaps: GapRow[]
   answers: CommandAnswer[]
+  snapshots: SnapshotRow[]
 }
 
 /** Appends one message's rows to a batch's. */
@@ -155,9 +160,10 @@ export function appendLoopRows(into: MachineLoopRows, from: MachineLoopRows) {
   for (const r of from.presence) into.presence.push(r)
   for (const r of from.gaps) into.gaps.push(r)
   for (const r of from.answers) into.answers.push(r)
+  for (const r of from.snapshots) into.snapshots.push(r)
 }
 
-export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], answers: [] })
+export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], answers: [], snapshots: [] })
 
 export interface AlarmCondition {
   machineId: string | null
@@ -205,6 +211,33 @@ const commandLifeMs = (cycleTimeS: number) => Math.max(60, 3 * cycleTimeS) * 100
 export function decisionSlopeUmPerPart(d: CompensationDecision): number | null {
   const x = d.inputs.slopeUmPerPart
   return typeof x === 'number' && Number.isFinite(x) ? x + 0 : null // + 0: no −0, as in the JSON
+}
+
+/**
+ * Whether a decision is stored as a row: it commanded, held, stopped, asked for a dress or raised
+ * an alert. One that changed nothing leaves its figures on the reading (engineFigures), and a
+ * replay from the engine snapshot before it gives it back whole (docs/storage.md#decisions).
+ */
+export function decisionKept(d: CompensationDecision): boolean {
+  return decisionAction(d) !== 'none' || d.alerts.length > 0
+}
+
+/** How often the engine's whole state is stored: every this many readings of a machine (about 2–3 hours at 20 s a part). */
+export const ENGINE_SNAPSHOT_EVERY_PARTS = 500
+
+/**
+ * What a reading's decision leaves on the reading: the size the engine expected for the part (its
+ * level estimate plus gain × the offset the part was ground with), nm, and its wear slope after
+ * the part, pm per part; null where it has none (learning, an unusable reading).
+ */
+export function engineFigures(d: CompensationDecision | null): { expectedNm: number | null, slopePm: number | null } {
+  const i = d?.inputs
+  const num = (x: unknown) => (typeof x === 'number' && Number.isFinite(x) ? x : null)
+  const predicted = num(i?.predictedUm), offset = num(i?.offsetForPartUm), slope = d ? decisionSlopeUmPerPart(d) : null
+  return {
+    expectedNm: predicted !== null && offset !== null ? Math.round((predicted + (num(i?.gain) ?? 1) * offset) * 1000) + 0 : null, // + 0: no −0
+    slopePm: slope === null ? null : Math.round(slope * 1e6) + 0,
+  }
 }
 
 export function decisionAction(d: CompensationDecision): DecisionAction {
@@ -367,11 +400,13 @@ class Step<J extends MachineJobRecord> {
     const wanted = decisionCommands(decision, m.id, seq, this.clock.doubt ? now : this.time ?? now, cycleTimeS)
     const cmds = this.catchingUp ? [] : gateCommands(wanted, this.outstanding, now, expiresAt)
     const reason = this.catchingUp && wanted.length ? `from a message that came late, nothing sent: ${decision.reason}` : decision.reason
-    this.rows.decisions.push({
-      machineId: m.id, seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null,
-      offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason, inputs: decision.inputs,
-      alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: decisionSlopeUmPerPart(decision),
-    })
+    if (decisionKept(decision)) {
+      this.rows.decisions.push({
+        machineId: m.id, seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null,
+        offsetUm: decision.offsetUm, commandId: cmds[0]?.id ?? null, reason, inputs: null,
+        alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: decisionSlopeUmPerPart(decision),
+      })
+    }
     for (const c of cmds) {
       this.rows.commands.push({ id: c.id, machineId: m.id, type: c.type, origin: 'engine', payload: c, issuedAt: now, expiresAt, status: 'sent', requestedOffsetUm: c.type === 'offset' ? c.offsetUm : null })
       this.commands.push(c)
@@ -554,11 +589,12 @@ function onDeath<J extends MachineJobRecord>(s: Step<J>, message: DeathMessage):
 function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessage) {
   const st = s.status
   const time = s.time!
-  s.rows.readings.push({
+  const row: ReadingRow = {
     machineId: s.m.id, seq: message.seq, part: message.part, time, receivedAt: s.now, status: message.status,
     diameterUm: message.diameterUm, roundnessUm: message.roundnessUm ?? null, lengthUm: message.lengthUm ?? null,
-    offsetUm: message.offsetUm, jobPartNumber: st.jobPartNumber,
-  })
+    offsetUm: message.offsetUm, jobPartNumber: st.jobPartNumber, expectedNm: null, slopePm: null,
+  }
+  s.rows.readings.push(row)
   st.lastReadingAt = time
   st.lastDiameterUm = message.diameterUm
   s.notePart('lastPartGauged', message.part)
@@ -570,6 +606,9 @@ function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessa
     roundnessUm: message.roundnessUm ?? undefined, lengthUm: message.lengthUm ?? undefined, offsetInForceUm: message.offsetUm,
   })
   s.record(decision, message.seq)
+  Object.assign(row, engineFigures(decision))
+  const engine = s.engine
+  if (decision?.kind === 'reading' && engine && engine.readings % ENGINE_SNAPSHOT_EVERY_PARTS === 0) s.rows.snapshots.push({ machineId: s.m.id, seq: message.seq, at: s.now, time, state: engine })
   s.live.push({ type: 'reading', machineId: s.m.id, seq: message.seq, time, part: message.part, status: message.status, diameterUm: message.diameterUm, offsetUm: message.offsetUm })
 }
 

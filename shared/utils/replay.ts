@@ -36,18 +36,19 @@ export function replayWheelEvent(seq: number, type: 'dress' | 'wheel-change', ev
  * replay items: what the engine was told, read through the machine loop's own mapping
  * (engineInputsOf), so a replay hears the restarts, applied offsets and wheel events ingest fed.
  */
-export function replayItemsOf(recorded: readonly { message: SequencedMessage, time: number }[]): ReplayItem[] {
+export function replayItemsOf(recorded: readonly { message: SequencedMessage, time: number }[], running?: { executionBefore: string | null, offsetUm: number }): ReplayItem[] {
   const items: ReplayItem[] = []
-  let execution: string | null = null
-  let offsetUm: number | null = null // the offset last known in force (a birth that differs from it is applied)
+  let execution: string | null = running?.executionBefore ?? null
+  let offsetUm: number | null = running?.offsetUm ?? null // the offset last known in force (a birth that differs from it is applied)
   for (const { message: m, time } of recorded) {
     if (m.kind === 'reading') {
       items.push({ kind: 'reading', seq: m.seq, time, deviationUm: m.diameterUm, status: m.status, roundnessUm: m.roundnessUm ?? null, offsetUm: m.offsetUm })
       offsetUm ??= m.offsetUm
       continue
     }
-    // A birth before the first reading is where the replay's engine starts, as ingest's engine starts at it.
-    const inputs: CompensationInput[] = m.kind === 'birth' && !items.some(i => i.kind === 'reading') ? [] : engineInputsOf(m, time, execution, offsetUm)
+    // A birth before the first reading is where the replay's engine starts, as ingest's engine starts
+    // at it; from an engine already running (`running`: a snapshot) it is a restart like any other.
+    const inputs: CompensationInput[] = m.kind === 'birth' && !running && !items.some(i => i.kind === 'reading') ? [] : engineInputsOf(m, time, execution, offsetUm)
     for (const input of inputs) {
       if (input.type === 'offset-applied') { items.push({ kind: 'offset-applied', seq: m.seq, time, offsetUm: input.offsetUm }); offsetUm = input.offsetUm }
       else if (input.type === 'dress' || input.type === 'wheel-change') items.push(replayWheelEvent(m.seq, input.type, input, time))
@@ -68,6 +69,12 @@ export interface ReplayOptions {
   commandsOnEvents?: boolean
   /** keep every decision (tests); off by default to save memory */
   keepDecisions?: boolean
+  /**
+   * start from this engine state (an engine snapshot, machine-loop.ts) instead of a fresh engine:
+   * the engine then runs on the settings inside it, numbers readings on from its count, and an
+   * offset it had commanded and not yet seen applied is taken as on its way to the machine
+   */
+  initialState?: CompensationState
 }
 
 export interface ReplaySide {
@@ -137,7 +144,8 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
   const gain = settings.gain
   const commandsOnEvents = options.commandsOnEvents ?? true
 
-  let state = createCompensationState(settings, { offsetUm: initial })
+  let state = options.initialState ?? createCompensationState(settings, { offsetUm: initial })
+  const readingBase = options.initialState?.lastSeq ?? 0
   const decisions: CompensationDecision[] | undefined = options.keepDecisions ? [] : undefined
 
   const seqs: number[] = []
@@ -149,7 +157,8 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
   const afterC: number[] = []
   let a = initial
   let c = initial
-  let pendingAck: number | null = null // candidate offset the machine would acknowledge next
+  // candidate offset the machine would acknowledge next
+  let pendingAck: number | null = options.initialState && Math.abs(options.initialState.offsetUm - initial) > 1e-9 ? round3(options.initialState.offsetUm) : null
   let dressAsked = false
   let stopAsked = false
   let actualStop = false
@@ -211,7 +220,7 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     feed({
       // The engine numbers readings, not messages: the message sequence also counts events, and
       // each gap in it would read as parts ground but never gauged.
-      type: 'reading', seq: readingIndex + 1, time: it.time, deviationUm: y, status: it.status,
+      type: 'reading', seq: readingBase + readingIndex + 1, time: it.time, deviationUm: y, status: it.status,
       ...(it.roundnessUm != null ? { roundnessUm: it.roundnessUm } : {}),
       offsetInForceUm: u,
     }, false)

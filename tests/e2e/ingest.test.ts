@@ -32,15 +32,18 @@ describe('ingest', async () => {
     await publishAcked(c, topicFor('cg-01', reading(5, 0.1)), payloadOf(reading(5, 0.1)))
     expect(await count('select count(*) from readings where machine_id = ? and seq = 5', 'cg-01')).toBe(1)
     expect(await count('select count(*) from readings where machine_id = ?', 'cg-01')).toBe(20)
-    // Every reading got a stored decision with a reason.
-    expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 21 and length(reason) > 0`)).toBeGreaterThanOrEqual(20)
-    // The drift strategy's wear slope is kept in its own column, equal to the one in the inputs (read by the report).
-    expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 21 and slope_um_per_part = json_extract(inputs, '$.slopeUmPerPart')`)).toBeGreaterThanOrEqual(20)
+    // The engine answered every reading: the drift strategy's wear slope and the size it expected are on
+    // each reading (read by the report and the chart); a decision is a row, with its reason, only when it acted.
+    expect(await count(`select count(*) from readings where machine_id = 'cg-01' and seq between 2 and 21 and slope_pm is not null`)).toBe(20)
+    // (the first readings teach the engine the level: it expects no size for them yet)
+    expect(await count(`select count(*) from readings where machine_id = 'cg-01' and seq between 2 and 21 and expected_nm is not null`)).toBeGreaterThanOrEqual(10)
+    expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and seq between 2 and 21`)).toBeGreaterThanOrEqual(1)
+    expect(await count(`select count(*) from decisions where machine_id = 'cg-01' and (length(reason) = 0 or (action = 'none' and alerts is null))`)).toBe(0)
     // The decision log carries the machine's time of the part each decision answered (the chart's clock).
     const cookie = await sessionCookie('bram@larkspur.example')
     const log = await (await fetch(url('/api/machines/cg-01/decisions?all=1&limit=500'), { headers: { cookie } })).json() as { seq: number, machineTime: number | null }[]
-    const d21 = log.find(d => d.seq === 21)!
-    expect(d21.machineTime).toBe(Date.parse(reading(21, 0.1).time))
+    expect(log.length).toBeGreaterThan(0)
+    for (const d of log.filter(x => x.seq >= 2 && x.seq <= 21)) expect(d.machineTime).toBe(Date.parse(reading(d.seq, 0.1).time))
     await c.endAsync()
   })
 
@@ -153,7 +156,7 @@ describe('ingest', async () => {
     const cmd = commands.find(x => x.type === 'offset')!
     expect(cmd, 'an offset command arrived').toBeTruthy()
     expect(cmd.offsetUm as number).toBeLessThan(0) // parts too big → wheel in
-    const decision = (await db.execute({ sql: `select reason, inputs from decisions where machine_id = 'cg-04' and command_id = ?`, args: [cmd.id as string] })).rows[0]!
+    const decision = (await db.execute({ sql: `select reason from decisions where machine_id = 'cg-04' and command_id = ?`, args: [cmd.id as string] })).rows[0]!
     expect(String(decision.reason).length).toBeGreaterThan(10)
     // The machine applies it and says so.
     const ack = { kind: 'ack', seq: seq + 1, time: at(seq * 20 + 5), commandId: cmd.id, command: 'offset', result: 'applied', offsetUm: cmd.offsetUm, requestedOffsetUm: cmd.offsetUm }

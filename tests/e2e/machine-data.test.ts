@@ -58,7 +58,7 @@ describe('machine data outside the contract', async () => {
     const b = { ...birth(7, 0, jobB), session: 2 } as MachineMessage
     await publishAcked(again, topicFor('cg-02', b), payloadOf(b))
     expect(await spec()).toMatchObject({ part: 'LTP-1250-Q', upper: 9, lower: -9 })
-    expect(await count(`select count(*) from decisions where machine_id = 'cg-02' and seq = 7 and inputs like '%job-change%'`)).toBeGreaterThanOrEqual(1)
+    expect(await count(`select count(*) from decisions where machine_id = 'cg-02' and seq = 7 and reason like 'job change recorded%'`)).toBeGreaterThanOrEqual(1)
     await again.endAsync()
   })
 

@@ -1,8 +1,8 @@
-// The engine's slope estimates reach the readings by two paths (server/utils/report.ts): when the
-// decisions' seq list is the same text as the readings' (one decision per reading, same order) the
-// slopes are taken in order; otherwise each decision is matched to its reading by seq. A reading
-// stored late (higher id, earlier machine time) puts its decision out of order and takes the second
-// path. Both must give the same report. Expected figures are computed by hand below (worked example).
+// The engine's slope estimate after each part is stored on the part's reading (slope_pm, pm per part,
+// since migration 0019) and read with the readings (server/utils/report.ts). The readings come out
+// of SQLite in time order, or, when a part was stored late (higher id, earlier machine time) in
+// another order and are sorted: the slopes must move with their parts either way. Expected figures
+// are computed by hand below (worked example).
 import { describe, it, expect } from 'vitest'
 import { fileURLToPath } from 'node:url'
 import { openReportFixture, seedCell } from '../../scripts/report-fixture'
@@ -28,20 +28,15 @@ const parts = [1, 2, 3, 4, 5].map((seq) => ({ seq, time: start + H + seq * MIN, 
 const outside = { seq: 0, time: from - MIN, slope: 64, offsetUm: 0 }
 const dressAt = start + H + 3.5 * MIN
 
-/**
- * `slopeColumn`: the decision carries its slope in the column ingest fills since migration 0011 (else only in its
- * inputs' JSON, as before). The JSON then says 999, so a report that read it instead would differ.
- */
-async function reportWithStoreOrder(order: (typeof parts[number])[], slopeColumn = false): Promise<Report> {
+async function reportWithStoreOrder(order: (typeof parts[number])[]): Promise<Report> {
   const fx = await openReportFixture()
   try {
     await seedCell(fx, scenario, 1, 'Europe/Berlin')
-    // stored (and received) in the given order, one second apart: a late part gets a higher id and a later decision
+    // stored (and received) in the given order, one second apart: a late part gets a higher id
     let received = start + H + 10 * MIN
     for (const p of order) {
       received += 1000
-      await fx.db.insert(schema.readings).values({ machineId: 'cg-01', seq: p.seq + 10, part: p.seq + 10, time: p.time, receivedAt: received, status: 'ok', diameterUm: p.seq / 10, offsetUm: p.offsetUm, jobPartNumber: null })
-      await fx.db.insert(schema.decisions).values({ machineId: 'cg-01', seq: p.seq + 10, at: received, action: 'none', offsetUm: p.offsetUm, reason: 'no change', inputs: { levelUm: 0, slopeUmPerPart: slopeColumn ? 999 : p.slope }, slopeUmPerPart: slopeColumn ? p.slope : null })
+      await fx.db.insert(schema.readings).values({ machineId: 'cg-01', seq: p.seq + 10, part: p.seq + 10, time: p.time, receivedAt: received, status: 'ok', diameterUm: p.seq / 10, offsetUm: p.offsetUm, jobPartNumber: null, slopePm: p.slope * 1e6 })
     }
     await fx.db.insert(schema.machineMessages).values({ machineId: 'cg-01', seq: 100, kind: 'event', type: 'dress', time: dressAt, receivedAt: dressAt, payload: { kind: 'event', type: 'dress', trigger: 'interval', partsSinceDress: 3 } })
     return await reportBuild(fx.db, { cellId: 'cell-a', from, to })
@@ -50,10 +45,10 @@ async function reportWithStoreOrder(order: (typeof parts[number])[], slopeColumn
 }
 
 describe('slopes reach the right parts whatever order the readings were stored in', () => {
-  it('in order (slopes taken in order) and with late parts inside and just outside the range (matched by seq) give the same report', async () => {
-    // the part before the range stored first: its decision is older than the range's readings and is not read
+  it('in order and with late parts inside and just outside the range (sorted with their slopes) give the same report', async () => {
+    // the part before the range stored first: it is outside the window and not read
     const inOrder = await reportWithStoreOrder([outside, ...parts])
-    // part 3 stored after 4 and 5, the part before the range between parts 1 and 2: both decisions out of order
+    // part 3 stored after 4 and 5, the part before the range between parts 1 and 2: read out of time order
     const late = await reportWithStoreOrder([parts[0]!, outside, parts[1]!, parts[3]!, parts[4]!, parts[2]!])
     for (const r of [inOrder, late]) {
       const w = r.machines[0]!.compensation.wheelWear
@@ -64,13 +59,5 @@ describe('slopes reach the right parts whatever order the readings were stored i
     }
     const same = (r: Report) => JSON.stringify({ ...r, scope: { ...r.scope, generatedAt: 0 } })
     expect(same(late)).toBe(same(inOrder))
-  })
-
-  it('reads the slope from its column (decisions stored since migration 0011) with the same result as from the JSON', async () => {
-    const fromJson = await reportWithStoreOrder([outside, ...parts])
-    const fromColumn = await reportWithStoreOrder([outside, ...parts], true)
-    const same = (r: Report) => JSON.stringify({ ...r, scope: { ...r.scope, generatedAt: 0 } })
-    expect(fromColumn.machines[0]!.compensation.wheelWear.intervals[1]!.predictedUmPerPart).toBeCloseTo(1.5, 12)
-    expect(same(fromColumn)).toBe(same(fromJson))
   })
 })

@@ -123,8 +123,9 @@ describe('overnight report from a simulated night', () => {
     // Independent path: the stored rows read with plain SQL and JSON.parse, cut at the dresses here.
     for (const id of ['cg-01', 'cg-02']) {
       const wear = report.machines.find((m) => m.id === id)!.compensation.wheelWear
-      const reads = (await fx.client.execute({ sql: `select seq, time, offset_um from readings where machine_id = ? order by time, seq`, args: [id] })).rows
-      const dec = new Map((await fx.client.execute({ sql: `select seq, inputs from decisions where machine_id = ?`, args: [id] })).rows.map((r) => [Number(r.seq), JSON.parse(String(r.inputs)).slopeUmPerPart as number]))
+      // the engine's slope after each part is on its reading, pm per part (since migration 0019)
+      const reads = (await fx.client.execute({ sql: `select seq, time, offset_um, slope_pm from readings where machine_id = ? order by time, seq`, args: [id] })).rows
+      const dec = new Map(reads.filter((r) => r.slope_pm !== null).map((r) => [Number(r.seq), Number(r.slope_pm) / 1e6]))
       const cuts = (await fx.client.execute({ sql: `select time from machine_messages where machine_id = ? and type in ('dress', 'wheel_change') order by time`, args: [id] })).rows.map((r) => Number(r.time))
       expect(wear.gain).toBe(1.1) // no tuning stored: the engine default (compensation-settings.ts)
       expect(wear.intervals.length).toBeGreaterThan(0)

@@ -16,29 +16,17 @@ export default defineEventHandler(async (event) => {
   const { range } = readValidQuery(event, rangeQuery)
   const { from, to } = await machineWindow(ctx, range)
   const db = useDb()
-  const rows = await db.select({ t: schema.readings.time, v: schema.readings.diameterUm, o: schema.readings.offsetUm, seq: schema.readings.seq, status: schema.readings.status })
+  const rows = await db.select({ t: schema.readings.time, v: schema.readings.diameterUm, o: schema.readings.offsetUm, status: schema.readings.status, e: schema.readings.expectedNm })
     .from(schema.readings).where(and(eq(schema.readings.machineId, ctx.id), between(schema.readings.time, from, to))).orderBy(asc(schema.readings.time))
-  const sizes = rows.filter(r => r.v !== null).map(r => ({ t: r.t, v: r.v as number, seq: r.seq }))
+  const sizes = rows.filter(r => r.v !== null).map(r => ({ t: r.t, v: r.v as number }))
   const gaugeFaults = rows.filter(r => r.v === null).map(r => ({ t: r.t, status: r.status }))
   // Offset steps: only the points where the offset in force changed (plus the ends).
   const offsets: { t: number, v: number }[] = []
   for (const r of rows) if (!offsets.length || offsets[offsets.length - 1]!.v !== r.o) offsets.push({ t: r.t, v: r.o })
   if (rows.length) offsets.push({ t: rows[rows.length - 1]!.t, v: rows[rows.length - 1]!.o })
 
-  // Level estimate: the engine's prediction for each part, in size terms (disturbance + gain × offset).
-  const seqRange = sizes.length ? [sizes[0]!.seq, sizes[sizes.length - 1]!.seq] as const : null
-  const timeOfSeq = new Map(sizes.map(s => [s.seq, s.t]))
-  const level: { t: number, v: number }[] = []
-  if (seqRange) {
-    const ds = await db.select({ seq: schema.decisions.seq, inputs: schema.decisions.inputs }).from(schema.decisions)
-      .where(and(eq(schema.decisions.machineId, ctx.id), between(schema.decisions.seq, seqRange[0], seqRange[1]))).orderBy(asc(schema.decisions.seq))
-    for (const d of ds) {
-      const i = d.inputs as Record<string, number | null>
-      const t = timeOfSeq.get(d.seq)
-      if (t !== undefined && typeof i.predictedUm === 'number' && typeof i.offsetForPartUm === 'number')
-        level.push({ t, v: i.predictedUm + (typeof i.gain === 'number' ? i.gain : 1) * i.offsetForPartUm })
-    }
-  }
+  // Level estimate: the size the engine expected for each part (disturbance + gain × offset), kept on the reading.
+  const level = rows.filter(r => r.v !== null && r.e !== null).map(r => ({ t: r.t, v: (r.e as number) / 1000 }))
 
   const eventKinds = ['dress', 'wheel_change', 'mastering', 'job_change', 'fault_raised'] as const
   const events = await db.select({ t: schema.machineMessages.time, type: schema.machineMessages.type }).from(schema.machineMessages)
