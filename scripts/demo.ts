@@ -9,6 +9,7 @@ import { startSimulator, type RunningSimulator } from '../simulator/live'
 import { loadScenarioFile } from '../simulator/scenario'
 import { startMailCatcher } from './mail-catcher'
 import { startTwilioFake } from './lib/twilio-fake'
+import { startHeartbeatFake } from './lib/heartbeat-fake'
 import { SERVER_NODE_ARGS, SERVER_ENTRY } from './lib/server-start'
 
 const dataDir = resolve(process.env.OWLSHIFT_DATA_DIR ?? 'data')
@@ -42,8 +43,13 @@ const mail = process.env.SMTP_URL ? null : await startMailCatcher({ smtpPort: Nu
 const phoneSid = `AC${randomBytes(16).toString('hex')}`
 const phoneToken = randomBytes(16).toString('hex')
 const phone = process.env.TWILIO_ACCOUNT_SID ? null : await startTwilioFake({ accountSid: phoneSid, authToken: phoneToken, port: Number(process.env.OWLSHIFT_DEMO_PHONE_PORT ?? 1090), number: '+447700900100', inboundSmsUrl: `http://localhost:${port}/api/phone/sms` })
+// A local stand-in for the hosted heartbeat monitor (the dead-man's switch): Owlshift pings it every
+// 30 s; stop the server with kill -9 and its page turns late, then down (docs/operations.md).
+const monitor = process.env.OWLSHIFT_HEARTBEAT_URL ? null : await startHeartbeatFake({ port: Number(process.env.OWLSHIFT_DEMO_HEARTBEAT_PORT ?? 1095) })
+const monitorCheck = monitor?.addCheck({ name: 'Owlshift demo', timeoutS: 30, graceS: 60 })
 const env = {
   ...process.env,
+  ...(monitor && monitorCheck ? { OWLSHIFT_HEARTBEAT_URL: monitor.pingUrl(monitorCheck.uuid), OWLSHIFT_HEARTBEAT_API_URL: monitor.apiUrl, OWLSHIFT_HEARTBEAT_API_KEY: monitor.apiKey, OWLSHIFT_HEARTBEAT_EVERY_S: '30', OWLSHIFT_HEARTBEAT_GRACE_S: '60' } : {}),
   ...(phone ? { TWILIO_ACCOUNT_SID: phoneSid, TWILIO_AUTH_TOKEN: phoneToken, OWLSHIFT_PHONE_FROM: '+447700900100', OWLSHIFT_PHONE_API_URL: phone.url } : {}),
   PORT: port,
   OWLSHIFT_DATA_DIR: dataDir,
@@ -79,6 +85,7 @@ async function startDemoCell() {
   console.log(`\n  The simulator runs ${demoShop.machines.length} machines at ${speed}× real time against the broker on port ${mqttPort}.`)
   if (mail) console.log(`  Alert e-mails are caught locally; read them at ${mail.inboxUrl}`)
   if (phone) console.log(`  Alert SMS and calls go to a local phone fake; see them at ${phone.url}`)
+  if (monitor) console.log(`  Owlshift pings a local heartbeat monitor; see it at ${monitor.url}`)
   console.log('  Ctrl+C stops it. Data lives in', dataDir, '\n')
 }
 async function listening() {
@@ -87,11 +94,19 @@ async function listening() {
 }
 startDemoCell().catch((err) => { console.error('[demo] the simulator could not start:', err); server.kill('SIGTERM') })
 
+let stopping = false
 async function shutdown() {
+  stopping = true
   await sim?.stop({ graceful: true }).catch(() => {})
   server.kill('SIGTERM')
   await mail?.close().catch(() => {})
   await phone?.close().catch(() => {})
+  await monitor?.close().catch(() => {})
 }
-for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => { void shutdown() })
-server.on('exit', code => process.exit(code ?? 0))
+for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => { void shutdown().then(() => { if (server.exitCode !== null || server.signalCode !== null) process.exit(0) }) })
+server.on('exit', (code, signal) => {
+  // Owlshift gone on its own (killed, crashed): the heartbeat monitor's page goes on showing it
+  // late, then down — what would wake the lead. Ctrl+C ends the demo.
+  if (!stopping && monitor) { console.log(`\n[demo] Owlshift stopped (${signal ?? `exit ${code}`}); watch the heartbeat monitor turn late, then down: ${monitor.url}. Ctrl+C ends the demo.`); return }
+  process.exit(code ?? 0)
+})

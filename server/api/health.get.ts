@@ -4,6 +4,12 @@
 // while every commit fails (a full disk) is down for Owlshift (docs/operations.md#health-and-metrics).
 import { ingestProblem, ingestSecondsSinceCommit, ingestSettle } from '#shared/utils/ingest-health'
 
+/** Without the fail ping's reason, which names machines (the admin page reads it from /api/heartbeat). */
+function publicHeartbeat() {
+  const h = heartbeatStatus()
+  return { ...h, lastPing: h.lastPing && { ...h.lastPing, reason: undefined } }
+}
+
 export default defineEventHandler(async (event) => {
   allowAnyone(event)
   const db = await databaseHealth()
@@ -47,5 +53,7 @@ export default defineEventHandler(async (event) => {
       },
     },
     machines,
+    /** the dead-man's switch: whether it pings a hosted monitor, and its last ping with the monitor's answer */
+    heartbeat: publicHeartbeat(),
   }
 })

@@ -481,3 +481,19 @@ export const shiftSummarySends = sqliteTable('shift_summary_sends', {
   failed: integer('failed').notNull().default(0),
   detail: text('detail'),
 }, t => [uniqueIndex('shift_summary_sends_shift').on(t.cellId, t.shiftId, t.shiftDate)])
+
+// ── Owlshift's own runs: when it started, when it was last known alive, how it stopped ───────────
+
+/**
+ * One row per server run. `aliveAt` is written every few seconds (server/utils/heartbeat.ts): a run
+ * that ends without `stoppedAt` was killed or lost its box, and the next run's start closes the gap —
+ * the morning report shows it as an outage (docs/operations.md#when-owlshift-itself-goes-quiet).
+ */
+export const serverRuns = sqliteTable('server_runs', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  startedAt: integer('started_at').notNull(),
+  aliveAt: integer('alive_at').notNull(),
+  /** a stop on purpose (SIGTERM): when, and null while running or after a crash */
+  stoppedAt: integer('stopped_at'),
+  stopReason: text('stop_reason'),
+}, t => [index('server_runs_started').on(t.startedAt)])

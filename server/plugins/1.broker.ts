@@ -107,6 +107,13 @@ async function startEmbedded(host: string, port: number): Promise<BrokerHandle> 
   return {
     kind: 'embedded',
     port: boundPort,
+    // A connection to our own port, as a machine's would be (the listening address may be 0.0.0.0).
+    probe: () => new Promise<void>((resolve, reject) => {
+      const s = net.connect({ port: boundPort, host: ['0.0.0.0', '::'].includes(host) ? '127.0.0.1' : host, timeout: 5000 })
+      s.once('connect', () => { s.destroy(); resolve() })
+      s.once('timeout', () => { s.destroy(); reject(new Error(`port ${boundPort} did not answer within 5 s`)) })
+      s.once('error', err => reject(err))
+    }),
     refusedConnections: refused,
     connectedMachines: () => broker.connectedClients,
     close: async () => {
@@ -157,6 +164,7 @@ async function startExternal(url: string, cfg: OwlshiftConfig['mqtt']): Promise<
   return {
     kind: 'external',
     connectedMachines: () => allMachineContexts().filter(m => m.status.online).length,
+    probe: async () => { if (!client.connected) throw new Error(`not connected to ${url}`) },
     close: async () => { setCommandPublisher(null); setServerPresencePublisher(null); await client.endAsync() },
   }
 }

@@ -6,6 +6,8 @@ export interface BrokerHandle {
   /** embedded broker: connections it refused, by CONNACK reason */
   refusedConnections?: { credentials: number, clientId: number }
   close: () => Promise<void>
+  /** resolves when the broker accepts a connection now (the dead-man's switch asks), rejects saying why */
+  probe?: () => Promise<void>
 }
 
 let handle: BrokerHandle | null = null

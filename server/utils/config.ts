@@ -24,6 +24,11 @@ const envSchema = z.object({
   OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
   OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
   OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
+  OWLSHIFT_HEARTBEAT_URL: z.url({ protocol: /^https?$/, error: 'must be the http(s) ping address of the check, e.g. https://hc-ping.com/<uuid>' }).optional(),
+  OWLSHIFT_HEARTBEAT_EVERY_S: z.coerce.number().min(1).max(86_400).default(60),
+  OWLSHIFT_HEARTBEAT_GRACE_S: z.coerce.number().min(1).max(86_400).default(300),
+  OWLSHIFT_HEARTBEAT_API_KEY: z.string().min(1).optional(),
+  OWLSHIFT_HEARTBEAT_API_URL: z.url({ protocol: /^https?$/, error: 'must be an http(s) address, e.g. https://healthchecks.io/api/v3' }).default('https://healthchecks.io/api/v3'),
   OWLSHIFT_ALLOWANCE_MAX_MIN: z.coerce.number().min(0).max(24 * 60).default(30),
   OWLSHIFT_ALLOWANCE_GUARD: z.coerce.number().min(0).max(1).default(0.25),
   OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: z.coerce.number().min(0).max(86_400).refine(v => v === 0 || v >= 5, 'must be 0 (off) or at least 5 seconds').default(300),
@@ -67,6 +72,8 @@ export interface OwlshiftConfig {
     /** every catalogue on/off delay × this (a demo at 4× real time: 0.25; 0: no delays) */
     delayScale: number
   }
+  /** the dead-man's switch: pings to a hosted heartbeat monitor (server/utils/heartbeat.ts); url null: off */
+  heartbeat: { url: string | null, everyS: number, graceS: number, apiKey: string | null, apiUrl: string }
 }
 
 export class ConfigError extends Error {}
@@ -111,6 +118,10 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       retentionDays: e.OWLSHIFT_RETENTION_DAYS,
     },
     alarms: { delayScale: e.OWLSHIFT_ALARM_DELAY_SCALE },
+    heartbeat: {
+      url: e.OWLSHIFT_HEARTBEAT_URL ?? null, everyS: e.OWLSHIFT_HEARTBEAT_EVERY_S, graceS: e.OWLSHIFT_HEARTBEAT_GRACE_S,
+      apiKey: e.OWLSHIFT_HEARTBEAT_API_KEY ?? null, apiUrl: e.OWLSHIFT_HEARTBEAT_API_URL.replace(/\/+$/, ''),
+    },
   }
 }
 

@@ -179,7 +179,7 @@ export interface OutageResumeInputs {
   engine: CompensationState | null
   lastDiameterUm: number | null
   /** the machine's open alarms (and the cell's that stop machines): one active, or a latched stop standing, keeps it held */
-  alarms: readonly { title: string, active: boolean, latching: boolean, closedAt: number | null }[]
+  alarms: readonly { condition: string, title: string, active: boolean, latching: boolean, closedAt: number | null }[]
 }
 
 /**
@@ -196,7 +196,8 @@ export function outageResumeRefusal(x: OutageResumeInputs): string | null {
   if (x.personResumes) return `${x.name}'s setting says a person resumes it after an outage`
   const latched = x.alarms.filter(a => a.latching && a.closedAt === null)
   if (latched.length) return `a latched stop stands (${latched.map(a => a.title).join(', ')}): it is reset at the machine`
-  const active = x.alarms.filter(a => a.active)
+  // "Machine stopped" raised by this very hold (machine-loop.ts) is what a resume ends, not a reason to stay.
+  const active = x.alarms.filter(a => a.active && a.condition !== 'machine:stopped')
   if (active.length) return `an alarm is active (${active.map(a => a.title).join(', ')})`
   const st = x.engine
   if (!st || st.level === null) return `the engine has no size of ${x.name} to go by`

@@ -30,6 +30,7 @@ export const routeAccess: Record<string, RouteRule> = {
   'dead-letters.get.ts': { access: ['admin', 'engineer'] },
   // Operations
   'health.get.ts': { access: 'public' },
+  'heartbeat.get.ts': { access: ['admin'] },
   'metrics.get.ts': { access: 'public' },
   'backups/index.get.ts': { access: ['admin'] },
   'backups/index.post.ts': { access: ['admin'] },
@@ -42,6 +43,8 @@ export const routeAccess: Record<string, RouteRule> = {
   'machines/[id]/decisions.get.ts': { access: 'signed-in', params: { id: 'cg-01' } },
   'machines/[id]/events.get.ts': { access: 'signed-in', params: { id: 'cg-01' } },
   'machines/[id]/commands.post.ts': { access: ['lead', 'engineer'], params: { id: 'cg-01' } },
+  // A bad value: an allowed role gets 400, and nothing changes.
+  'machines/[id]/index.patch.ts': { access: ['admin', 'engineer'], params: { id: 'cg-01' }, body: { resumeAfterOutage: 'probe' } },
   'alarms/index.get.ts': { access: 'signed-in' },
   'alarms/history.get.ts': { access: 'signed-in' },
   'alarms/metrics.get.ts': { access: 'signed-in' },

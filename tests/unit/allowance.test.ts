@@ -131,9 +131,11 @@ describe('resuming after an outage (the rule; through ingest: outage-catch-up.te
     expect(outageResumeRefusal({ ...base, holdCauses: null })).toMatch(/alone/)
     expect(outageResumeRefusal({ ...base, execution: 'STOPPED' })).toMatch(/alone/)
     expect(outageResumeRefusal({ ...base, personResumes: true })).toMatch(/a person resumes/)
-    expect(outageResumeRefusal({ ...base, alarms: [{ title: 'Fire alarm', active: false, latching: true, closedAt: null }] })).toMatch(/latched stop stands \(Fire alarm\)/)
-    expect(outageResumeRefusal({ ...base, alarms: [{ title: 'Loader jam', active: true, latching: false, closedAt: null }] })).toMatch(/alarm is active \(Loader jam\)/)
-    expect(outageResumeRefusal({ ...base, alarms: [{ title: 'Loader jam', active: false, latching: false, closedAt: null }] })).toBeNull()
+    expect(outageResumeRefusal({ ...base, alarms: [{ condition: 'fault:fire_alarm', title: 'Fire alarm', active: false, latching: true, closedAt: null }] })).toMatch(/latched stop stands \(Fire alarm\)/)
+    expect(outageResumeRefusal({ ...base, alarms: [{ condition: 'fault:gauge_fault', title: 'Gauge fault', active: true, latching: false, closedAt: null }] })).toMatch(/alarm is active \(Gauge fault\)/)
+    expect(outageResumeRefusal({ ...base, alarms: [{ condition: 'fault:gauge_fault', title: 'Gauge fault', active: false, latching: false, closedAt: null }] })).toBeNull()
+    // the "Machine stopped" this very hold raised is what the resume ends
+    expect(outageResumeRefusal({ ...base, alarms: [{ condition: 'machine:stopped', title: 'Machine stopped', active: true, latching: false, closedAt: null }] })).toBeNull()
   })
   it('not when the last part or the next one predicted is outside the tolerance', () => {
     expect(outageResumeRefusal({ ...base, lastDiameterUm: 4.1 })).toMatch(/last part gauged \(4.10 µm\) is not inside/)

@@ -1,0 +1,165 @@
+// When Owlshift itself goes quiet (docs/operations.md#when-owlshift-itself-goes-quiet), with real
+// processes: the built server (a child we kill), simulated machines over MQTT at 240× real time,
+// and the local stand-in for the hosted heartbeat monitor (scripts/lib/heartbeat-fake.ts).
+// - kill -9 with the embedded broker: the monitor turns late, then down within its grace; each
+//   machine grinds no more than its allowance, none of those parts out of tolerance, and holds;
+//   after the restart every message is stored exactly once, nothing is commanded from the
+//   backlog, the machines are resumed and the report shows the outage;
+// - the same through an external Mosquitto (machines keep their connection: the broker tells them
+//   Owlshift is offline by its will);
+// - a planned stop: the monitor shows paused, nobody is woken, the machines resume on start.
+import { describe, it, expect, afterEach } from 'vitest'
+import { mkdtempSync } from 'node:fs'
+import { tmpdir } from 'node:os'
+import { join } from 'node:path'
+import { freePort, demoCredentials, openTestDb } from './harness'
+import { startServer, killServer, type ServerProcess } from './server-process'
+import { startSimulator, type RunningSimulator } from '../../simulator/live'
+import { loadScenarioFile, machinesFor } from '../../simulator/scenario'
+import { startHeartbeatFake, type HeartbeatFake, type FakeCheckStatus } from '../../scripts/lib/heartbeat-fake'
+
+const SPEED = 240
+const MAX_MIN = 10 // the allowance cap (OWLSHIFT_ALLOWANCE_MAX_MIN), short so the machines hold within the outage
+const scenario = loadScenarioFile('simulator/scenarios/quiet-night.json')
+
+const wait = (ms: number) => new Promise(r => setTimeout(r, ms))
+async function until<T>(fn: () => T | Promise<T>, what: string, timeoutMs = 30_000): Promise<NonNullable<T>> {
+  const end = Date.now() + timeoutMs
+  for (;;) {
+    const v = await fn()
+    if (v) return v as NonNullable<T>
+    if (Date.now() > end) throw new Error(`timed out: ${what}`)
+    await wait(50)
+  }
+}
+
+interface Plant { dataDir: string, port: number, env: Record<string, string>, fake: HeartbeatFake, check: string, server: ServerProcess, sim: RunningSimulator }
+const open: { fake?: HeartbeatFake, server?: ServerProcess, sim?: RunningSimulator }[] = []
+afterEach(async () => {
+  for (const o of open.splice(0)) { await o.sim?.stop({ graceful: false }).catch(() => {}); if (o.server) await killServer(o.server, 'SIGKILL'); await o.fake?.close() }
+})
+
+async function plant(extraEnv: Record<string, string> = {}, brokerUrl?: (mqttPort: number) => string): Promise<Plant> {
+  const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-outage-'))
+  const [port, mqttPort] = [await freePort(), await freePort()]
+  const fake = await startHeartbeatFake()
+  const check = fake.addCheck({ name: 'owlshift', timeoutS: 60, graceS: 300 }).uuid
+  const env = {
+    MQTT_PORT: String(mqttPort), OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: '0', OWLSHIFT_ALLOWANCE_MAX_MIN: String(MAX_MIN),
+    OWLSHIFT_HEARTBEAT_URL: fake.pingUrl(check), OWLSHIFT_HEARTBEAT_API_URL: fake.apiUrl, OWLSHIFT_HEARTBEAT_API_KEY: fake.apiKey,
+    OWLSHIFT_HEARTBEAT_EVERY_S: '1', OWLSHIFT_HEARTBEAT_GRACE_S: '2',
+    ...extraEnv,
+  }
+  const server = await startServer({ dataDir, port, env })
+  const creds = demoCredentials(dataDir)
+  const sim = await startSimulator({
+    scenario, seed: 11, machines: 4, speed: SPEED, hours: 3, brokerUrl: brokerUrl?.(mqttPort) ?? `mqtt://127.0.0.1:${mqttPort}`, stateDir: join(dataDir, 'sim'),
+    credentials: id => ({ username: id, password: creds[id]!.password }), reconnectMs: 200, drainTimeoutMs: 30_000, tickMs: 25,
+  })
+  const p = { dataDir, port, env, fake, check, server, sim }
+  open.push(p)
+  return p
+}
+
+const executions = (sim: RunningSimulator) => sim.cell.summary().machines.map(m => m.execution)
+const health = async (p: Plant) => (await fetch(`http://127.0.0.1:${p.port}/api/health`)).json() as Promise<{ heartbeat: { enabled: boolean, lastPing: { kind: string, answer: string, ok: boolean } | null } }>
+
+/** The monitor's status changes as it showed them, polled every 50 ms until `last`. */
+async function watchMonitor(p: Plant, last: FakeCheckStatus, timeoutMs: number) {
+  const seen: { status: FakeCheckStatus, afterMs: number }[] = []
+  const t0 = Date.now()
+  await until(() => {
+    const s = p.fake.status(p.check)
+    if (seen.at(-1)?.status !== s) seen.push({ status: s, afterMs: Date.now() - t0 })
+    return s === last
+  }, `the monitor to show ${last}`, timeoutMs)
+  return seen
+}
+
+/** Warm up until every machine's engine vouches for some parts, then kill -9; returns what the machines did while Owlshift was away. */
+async function killAndWatch(p: Plant) {
+  await until(() => p.fake.status(p.check) === 'up', 'the first success ping')
+  expect(p.fake.check(p.check)).toMatchObject({ timeoutS: 1, graceS: 2 }) // set by Owlshift through the management API
+  await until(async () => (await health(p)).heartbeat.lastPing?.kind === 'success', 'health to show the success ping')
+  expect((await health(p)).heartbeat.lastPing).toMatchObject({ kind: 'success', answer: '200 OK', ok: true })
+  await wait(10_000) // 40 simulated minutes: engines learnt, allowances granted
+  expect(executions(p.sim).every(e => e === 'ACTIVE'), JSON.stringify(p.sim.cell.summary().machines.map(m => [m.id, m.execution, m.activeFaults, m.allowanceHolds]))).toBe(true)
+  const alertsBefore = p.fake.check(p.check)!.alerts.length
+  await killServer(p.server, 'SIGKILL')
+  const monitor = await watchMonitor(p, 'down', 10_000)
+  // every machine stands within its allowance: the part in the wheel, then a hold
+  await until(() => executions(p.sim).every(e => e === 'FEED_HOLD'), 'every machine to hold on its allowance', 20_000)
+  const away = p.sim.cell.summary().machines
+  return { monitor, away, alertsBefore }
+}
+
+function expectHeldWithinAllowance(away: ReturnType<RunningSimulator['cell']['summary']>['machines']) {
+  const cycle = new Map(machinesFor(scenario, 4).map(m => [m.id, m.cycleTimeS]))
+  for (const m of away) {
+    expect(m.sinceLastWord.parts, m.id).toBeLessThanOrEqual(Math.floor((1.1 * MAX_MIN * 60) / cycle.get(m.id)!) + 1)
+    expect(m.sinceLastWord.trulyOut, `${m.id}: parts out of tolerance ground on its allowance`).toBe(0)
+    expect(m.allowanceHolds, m.id).toBeGreaterThanOrEqual(1)
+  }
+}
+
+async function restartAndCatchUp(p: Plant) {
+  expect(p.sim.progress().pendingAcks).toBeGreaterThan(0) // journalled while Owlshift was away
+  p.server = await startServer({ dataDir: p.dataDir, port: p.port, env: p.env })
+  open[open.length - 1]!.server = p.server
+  await until(() => executions(p.sim).every(e => e === 'ACTIVE'), 'every machine resumed', 30_000).catch((err) => {
+    console.log(p.server.log().split('\n').filter(l => /stays held|resumed|allowance/.test(l)).slice(-20).join('\n'), JSON.stringify(p.sim.cell.summary().machines.map(m => [m.id, m.execution, m.activeFaults, m.allowanceHolds])))
+    throw err
+  })
+  await until(() => p.fake.status(p.check) === 'up', 'the monitor up again')
+  await until(() => p.sim.progress().pendingAcks === 0, 'every journalled message acknowledged', 30_000)
+  await p.sim.stop({ graceful: true })
+  const db = openTestDb(p.dataDir)
+  try {
+    for (const [machineId, link] of p.sim.links) {
+      const rows = await db.execute({ sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 order by seq`, args: [machineId] })
+      const seqs = rows.rows.map(r => Number(r.seq))
+      expect(seqs.length, machineId).toBe(link.lastSeq) // every message, exactly once
+      expect(new Set(seqs).size, machineId).toBe(seqs.length)
+    }
+    // nothing commanded from the backlog; resumed by Owlshift, held for the allowance alone
+    const late = await db.execute(`select count(*) n, sum(command_id is not null) sent from decisions where reason like 'from a message that came late%'`)
+    expect(Number(late.rows[0]!.sent ?? 0)).toBe(0)
+    const resumes = await db.execute(`select machine_id, status from commands where origin = 'owlshift:outage' and type = 'resume'`)
+    expect(new Set(resumes.rows.map(r => String(r.machine_id))).size).toBe(4)
+    expect(resumes.rows.every(r => r.status === 'applied')).toBe(true)
+    return { backlogDecisions: Number(late.rows[0]!.n) }
+  }
+  finally { db.close() }
+}
+
+describe('when Owlshift itself goes quiet', () => {
+  it('kill -9, embedded broker: monitor late then down; machines hold within their allowance; back: stored once, resumed', async () => {
+    const p = await plant()
+    const { monitor, away, alertsBefore } = await killAndWatch(p)
+    expect(monitor.map(m => m.status)).toEqual(['up', 'grace', 'down'])
+    expect(monitor.at(-1)!.afterMs).toBeLessThan((1 + 2 + 2) * 1000) // period + grace, and the fake's 100 ms watch, within 2 s
+    expect(p.fake.check(p.check)!.alerts.slice(alertsBefore)).toEqual([expect.objectContaining({ status: 'down', why: 'no ping within its period and grace' })])
+    expect(p.sim.progress().compensatorAway).toBe(4) // the embedded broker died with it: their connections dropped
+    expectHeldWithinAllowance(away)
+    const { backlogDecisions } = await restartAndCatchUp(p)
+    expect(backlogDecisions).toBeGreaterThan(0)
+  }, 150_000)
+
+  it('a planned stop: the monitor shows paused and nobody is woken; the machines resume on start', async () => {
+    const p = await plant()
+    await until(() => p.fake.status(p.check) === 'up', 'the first success ping')
+    await wait(6_000)
+    const alertsBefore = p.fake.check(p.check)!.alerts.length
+    await killServer(p.server, 'SIGTERM')
+    expect(p.fake.status(p.check)).toBe('paused')
+    await until(() => p.sim.links.get('cg-01')!.compensator.status !== 'online', 'the machines to hear of it')
+    await until(() => executions(p.sim).every(e => e === 'FEED_HOLD'), 'every machine to hold on its allowance', 20_000)
+    await wait(3_500) // longer than period + grace
+    expect(p.fake.status(p.check)).toBe('paused')
+    expect(p.fake.check(p.check)!.alerts.length).toBe(alertsBefore) // nobody woken
+    const db = openTestDb(p.dataDir)
+    expect((await db.execute(`select stop_reason from server_runs order by id`)).rows.map(r => r.stop_reason)).toEqual([expect.stringMatching(/on purpose/)])
+    db.close()
+    await restartAndCatchUp(p)
+  }, 150_000)
+})
