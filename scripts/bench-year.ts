@@ -44,7 +44,7 @@ function growth(before: Map<string, number>, after: Map<string, number>, tables:
 const sum = (s: Split[]) => s.reduce((a, x) => a + x.bytes, 0)
 
 async function counts(p: PlantDb) {
-  const q = `select (select count(*) from readings) as readings, (select count(*) from machine_messages) as messages,
+  const q = `select (select count(*) from readings) as readings, (select count(*) from machine_messages) + (select count(*) from cycle_events) as messages,
     (select count(*) from decisions) as decisions, (select count(*) from commands) as commands`
   const r = (await p.client.execute(q)).rows[0]!
   return { readings: Number(r.readings), messages: Number(r.messages), decisions: Number(r.decisions), commands: Number(r.commands) }

@@ -1,6 +1,6 @@
 // A report database without the server: a temporary SQLite file with the real migrations, filled
 // with the messages of headless simulator runs stored the way ingest stores them (readings in
-// `readings`, every other numbered message in `machine_messages`, and a decision row for each reading
+// `readings`, the per-part messages in `cycle_events`, every other numbered message in `machine_messages`, and a decision row for each reading
 // the engine acted on, as ingest writes them). Used by the report tests and `npm run bench:report`.
 //
 // The engine's figures are rebuilt from its state after each reading (the headless controller
@@ -18,6 +18,7 @@ import { migrate } from 'drizzle-orm/libsql/migrator'
 import * as schema from '../server/database/schema'
 import type { ReportDb } from '../server/utils/report'
 import type { SequencedMessage } from '../shared/utils/contract'
+import { cycleEventRow, isCycleMessage } from '../shared/utils/cycle-events'
 import type { CompensationState } from '../shared/utils/compensation'
 import { runHeadless, type HeadlessResult } from '../simulator/headless'
 import { createEngineController } from '../simulator/engine-controller'
@@ -56,6 +57,7 @@ export async function seedCell(fx: ReportFixture, scenario: Scenario, machines: 
 export class MessageRows {
   readings: unknown[][] = []
   messages: unknown[][] = []
+  cycle: unknown[][] = []
   decisions: unknown[][] = []
   private job = new Map<string, string | null>()
   constructor(private readonly seqOffset: Record<string, number> = {}) {}
@@ -66,6 +68,11 @@ export class MessageRows {
     if (m.kind === 'event' && m.type === 'job_change') this.job.set(machineId, m.job.partNumber)
     if (m.kind === 'reading') {
       this.readings.push([machineId, seq, m.part, time, time, m.status, m.diameterUm, m.roundnessUm ?? null, m.lengthUm ?? null, m.offsetUm, this.job.get(machineId) ?? null, null])
+      return
+    }
+    if (isCycleMessage(m)) {
+      const r = cycleEventRow(machineId, { ...m, seq }, time)
+      this.cycle.push([r.time, r.machineId, r.seq, r.code, r.part, r.n, r.a, r.b, r.text])
       return
     }
     const type = m.kind === 'event' ? m.type : m.kind === 'ack' ? `${m.command}:${m.result}` : m.kind === 'state' ? m.execution : null
@@ -96,6 +103,10 @@ export class MessageRows {
       const rows = this.messages.slice(i, i + chunk)
       stmts.push({ sql: `insert into machine_messages (machine_id, seq, kind, type, time, received_at, payload) values ${rows.map(() => '(?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
     }
+    for (let i = 0; i < this.cycle.length; i += chunk) {
+      const rows = this.cycle.slice(i, i + chunk)
+      stmts.push({ sql: `insert into cycle_events (time, machine_id, seq, code, part, n, a, b, text) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
+    }
     for (let i = 0; i < this.decisions.length; i += chunk) {
       const rows = this.decisions.slice(i, i + chunk)
       stmts.push({ sql: `insert into decisions (machine_id, seq, at, action, correction_um, offset_um, command_id, reason, inputs, alerts, slope_um_per_part) values ${rows.map(() => '(?,?,?,?,?,?,?,?,?,?,?)').join(',')}`, args: rows.flat() as never })
@@ -103,6 +114,7 @@ export class MessageRows {
     for (let i = 0; i < stmts.length; i += 500) await client.batch(stmts.slice(i, i + 500), 'write')
     this.readings = []
     this.messages = []
+    this.cycle = []
     this.decisions = []
   }
 }

@@ -72,7 +72,7 @@ async function main() {
     samples.push({ s: wallS, rss: rssMiB(server.pid!), db: dbBytes(dataDir) })
     const sent = [...sim.links.values()].reduce((a, l) => a + l.lastSeq, 0)
     const db = createClient({ url: `file:${join(dataDir, 'owlshift.db')}` })
-    const stored = Number((await db.execute('select (select count(*) from readings) + (select count(*) from machine_messages)')).rows[0]![0])
+    const stored = Number((await db.execute('select (select count(*) from readings) + (select count(*) from machine_messages) + (select count(*) from cycle_events)')).rows[0]![0])
     const readings = Number((await db.execute('select count(*) from readings')).rows[0]![0])
     const gaps = Number((await db.execute('select count(*) from sequence_gaps')).rows[0]![0])
     await db.execute('pragma wal_checkpoint(TRUNCATE)')

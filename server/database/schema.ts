@@ -1,5 +1,5 @@
 // The database schema. One table per concern; times are epoch milliseconds (UTC).
-import { sqliteTable, integer, text, real, index, uniqueIndex } from 'drizzle-orm/sqlite-core'
+import { sqliteTable, integer, text, real, index, uniqueIndex, primaryKey } from 'drizzle-orm/sqlite-core'
 import { sql } from 'drizzle-orm'
 import type { MachinePrediction } from '../../shared/utils/machine-loop'
 import type { AllowanceState } from '../../shared/utils/allowance'
@@ -158,7 +158,7 @@ export const readings = sqliteTable('readings', {
   slopePm: integer('slope_pm'),
 }, t => [uniqueIndex('readings_machine_seq').on(t.machineId, t.seq), index('readings_machine_time').on(t.machineId, t.time)])
 
-/** Every other numbered machine message (birth, state, event, ack), stored once. */
+/** Every other numbered machine message (birth, state, event, ack), stored once; the per-part ones are cycle_events. */
 export const machineMessages = sqliteTable('machine_messages', {
   id: integer('id').primaryKey({ autoIncrement: true }),
   machineId: text('machine_id').notNull(),
@@ -172,10 +172,30 @@ export const machineMessages = sqliteTable('machine_messages', {
   uniqueIndex('messages_machine_seq').on(t.machineId, t.seq), index('messages_machine_time').on(t.machineId, t.time),
   // the report reads one kind of message at a time (part_unloaded, faults, dresses, offset acks, states)
   index('messages_machine_type_time').on(t.machineId, t.type, t.time),
-  // partial indexes: the report reads only rejected parts and applied offsets, not every message
-  index('messages_rejects').on(t.machineId, t.time).where(sql`${t.type} = 'part_unloaded' and json_extract(${t.payload}, '$.disposition') = 'reject'`),
+  // partial index: the report reads applied offsets (those with a reason of their own; the others are cycle_events)
   index('messages_offset_applied').on(t.machineId, t.time).where(sql`${t.type} = 'offset:applied'`),
 ])
+
+/**
+ * The messages a machine sends for every part (part loaded, ground, gauged, unloaded) and its
+ * "offset applied" answers, one row of numbers each (shared/utils/cycle-events.ts gives the message
+ * back from it). Keyed by machine time first: the report reads a time window of every machine,
+ * and rows arrive nearly in that order (docs/storage.md#cycle-events). A table without rowid
+ * (migration 0021): the key is the table.
+ */
+export const cycleEvents = sqliteTable('cycle_events', {
+  /** the machine's clock, ms */
+  time: integer('time').notNull(),
+  machineId: text('machine_id').notNull(),
+  seq: integer('seq').notNull(),
+  /** CYCLE_CODES */
+  code: integer('code').notNull(),
+  part: integer('part'),
+  n: integer('n'),
+  a: real('a'),
+  b: real('b'),
+  text: text('text'),
+}, t => [primaryKey({ columns: [t.time, t.machineId, t.seq] })])
 
 /** Presence changes (birth and death); death is the MQTT will and carries no seq. */
 export const presenceLog = sqliteTable('presence_log', {

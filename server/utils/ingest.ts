@@ -5,8 +5,9 @@
 // what is stored already → fold each machine's messages with applyMachineMessage → write the
 // batch in one transaction → hand commands, live events and alarm conditions on. Job changes
 // decided on the web enter the same queue (assignJob), so ingest is the only writer of engine state.
-import { and, eq, inArray } from 'drizzle-orm'
+import { and, eq, inArray, or } from 'drizzle-orm'
 import type { InStatement } from '@libsql/client'
+import { isCycleMessage } from '#shared/utils/cycle-events'
 import { claimedSeq, decodeMachineMessage, deliveryBreach, parseMqttTopic, type CommandMessage } from '#shared/utils/contract'
 import type { CompensationDecision } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
@@ -235,7 +236,7 @@ export class IngestPipeline {
       effects.live.push({ type: 'status', machineId: ctx.id, status: liveStatusView(ctx) })
     }
     for (const d of dead) if (d.machineId) effects.conditions.push({ machineId: d.machineId, condition: 'link:bad-data', active: true, message: `bad data from ${d.machineId}: ${d.reason}`, at: now })
-    this.stats.stored += rows.readings.length + rows.messages.length
+    this.stats.stored += rows.readings.length + rows.messages.length + rows.cycleEvents.length
     this.stats.duplicates += messages.length - fresh.length
     this.stats.deadLetters += dead.length
     this.stats.commits++
@@ -279,9 +280,13 @@ function decodeAll(items: QueueItem[], now: number, dead: DeadLetterRow[]): ForM
 async function leaveOutStored(messages: ForMachine[]): Promise<ForMachine[]> {
   const seqOf = (m: MachineLoopMessage<JobRow>) => (m.kind === 'death' || m.kind === 'job-assigned' ? null : m.seq)
   const byMachine = new Map<string, number[]>()
+  // cycle events are keyed by machine time: a redelivered one is found by its own time and number
+  const cycleProbes: { machineId: string, time: number, seq: number }[] = []
   for (const d of messages) {
     const seq = seqOf(d.message)
-    if (seq !== null && seq <= d.ctx.status.lastSeq) byMachine.set(d.ctx.id, [...(byMachine.get(d.ctx.id) ?? []), seq])
+    if (seq === null || seq > d.ctx.status.lastSeq) continue
+    byMachine.set(d.ctx.id, [...(byMachine.get(d.ctx.id) ?? []), seq])
+    if (d.message.kind !== 'job-assigned' && d.message.kind !== 'death' && isCycleMessage(d.message)) cycleProbes.push({ machineId: d.ctx.id, time: Date.parse(d.message.time), seq })
   }
   const seen = new Set<string>()
   const db = useDb()
@@ -289,6 +294,12 @@ async function leaveOutStored(messages: ForMachine[]): Promise<ForMachine[]> {
     const r1 = await db.select({ seq: schema.readings.seq }).from(schema.readings).where(and(eq(schema.readings.machineId, machineId), inArray(schema.readings.seq, seqs)))
     const r2 = await db.select({ seq: schema.machineMessages.seq }).from(schema.machineMessages).where(and(eq(schema.machineMessages.machineId, machineId), inArray(schema.machineMessages.seq, seqs)))
     for (const r of [...r1, ...r2]) seen.add(`${machineId}/${r.seq}`)
+  }
+  const ce = schema.cycleEvents
+  for (let i = 0; i < cycleProbes.length; i += 100) {
+    const rows = await db.select({ machineId: ce.machineId, seq: ce.seq }).from(ce)
+      .where(or(...cycleProbes.slice(i, i + 100).map(p => and(eq(ce.time, p.time), eq(ce.machineId, p.machineId), eq(ce.seq, p.seq)))))
+    for (const r of rows) seen.add(`${r.machineId}/${r.seq}`)
   }
   return messages.filter((d) => {
     const seq = seqOf(d.message)
@@ -334,6 +345,7 @@ function statementsOf({ rows, machines }: Fold, dead: DeadLetterRow[], now: numb
   const statements: InStatement[] = [
     ...insertStatements(schema.readings, rows.readings, { onConflict: 'nothing' }),
     ...insertStatements(schema.machineMessages, rows.messages, { onConflict: 'nothing' }),
+    ...insertStatements(schema.cycleEvents, rows.cycleEvents, { onConflict: 'nothing' }),
     ...insertStatements(schema.decisions, rows.decisions),
     ...insertStatements(schema.commands, rows.commands, { onConflict: 'nothing' }),
     ...insertStatements(schema.deadLetters, dead),

@@ -2,7 +2,8 @@
 // with the offsets in force and what the engine was told between them (replayItemsOf, the machine
 // loop's own mapping), plus the settings that ran, built as ingest built them
 // (compensationSettingsFor: what the machine announced, our job record, the active version).
-import { and, asc, between, desc, eq, gt, inArray, isNotNull, isNull, lt, lte, or } from 'drizzle-orm'
+import { and, asc, between, desc, eq, gt, gte, inArray, isNotNull, isNull, lt, lte, or } from 'drizzle-orm'
+import { CYCLE_CODES, cycleEventMessage } from '#shared/utils/cycle-events'
 import type { BirthMessage, JobInfo, SequencedMessage } from '#shared/utils/contract'
 import { restoreCompensationState, type CompensationSettingsInput, type CompensationState } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
@@ -24,8 +25,10 @@ export async function recordedRun(machineId: string, from: number, to: number) {
   if (!readings.length) throw createError({ statusCode: 404, message: 'No readings in that window.' })
   const mm = schema.machineMessages
   const firstSeq = readings[0]!.seq
-  const messages = await db.select().from(mm).where(and(eq(mm.machineId, machineId), between(mm.seq, firstSeq, readings[readings.length - 1]!.seq), inArray(mm.kind, ['event', 'ack', 'birth', 'state']))).orderBy(asc(mm.seq))
-  const items: ReplayItem[] = replayItemsOf(recordedMessages(readings, messages))
+  const lastSeq = readings[readings.length - 1]!.seq
+  const messages = await db.select().from(mm).where(and(eq(mm.machineId, machineId), between(mm.seq, firstSeq, lastSeq), inArray(mm.kind, ['event', 'ack', 'birth', 'state']))).orderBy(asc(mm.seq))
+  const applied = await appliedOffsets(machineId, { fromSeq: firstSeq, toSeq: lastSeq, fromTime: Math.min(...readings.map(x => x.time)), toTime: Math.max(...readings.map(x => x.time)) })
+  const items: ReplayItem[] = replayItemsOf(recordedMessages(readings, messages, applied))
 
   // The job ground in the window (its part number on the readings), else the machine's current job.
   const partNumber = readings.find(x => x.jobPartNumber)?.jobPartNumber ?? null
@@ -60,13 +63,25 @@ async function versionInForce(jobId: number, machineId: string, at: number) {
 
 type ReadingRecord = typeof schema.readings.$inferSelect
 type MessageRecord = typeof schema.machineMessages.$inferSelect
+type CycleEventRecord = typeof schema.cycleEvents.$inferSelect
 
 /** Stored readings and messages back as the machine sent them, in message order. */
-function recordedMessages(readings: ReadingRecord[], messages: MessageRecord[]): { message: SequencedMessage, time: number }[] {
+function recordedMessages(readings: ReadingRecord[], messages: MessageRecord[], cycle: CycleEventRecord[]): { message: SequencedMessage, time: number }[] {
   return [
     ...readings.map(x => ({ time: x.time, message: { kind: 'reading', seq: x.seq, time: new Date(x.time).toISOString(), part: x.part, status: x.status, diameterUm: x.diameterUm, roundnessUm: x.roundnessUm, lengthUm: x.lengthUm, offsetUm: x.offsetUm } as SequencedMessage })),
     ...messages.map(m => ({ time: m.time, message: m.payload as SequencedMessage })), // stored as decoded (contract.ts)
+    ...cycle.map(c => ({ time: c.time, message: cycleEventMessage(c) })),
   ].sort((a, b) => a.message.seq - b.message.seq)
+}
+
+/**
+ * The machine's "offset applied" answers kept as cycle events (the only cycle events the engine
+ * hears), numbered within [fromSeq, toSeq]: looked for by machine time, from `fromTime` to an hour
+ * past `toTime` (an answer may follow the last reading).
+ */
+async function appliedOffsets(machineId: string, w: { fromSeq: number, toSeq: number, fromTime: number, toTime: number }): Promise<CycleEventRecord[]> {
+  const ce = schema.cycleEvents
+  return useDb().select().from(ce).where(and(gte(ce.time, w.fromTime - 3_600_000), lte(ce.time, w.toTime + 3_600_000), eq(ce.machineId, machineId), eq(ce.code, CYCLE_CODES.offset_applied), between(ce.seq, w.fromSeq, w.toSeq)))
 }
 
 /**
@@ -86,16 +101,22 @@ export async function recordedSinceSnapshot(machineId: string, snapshotSeq: numb
   const readings = await db.select().from(r).where(and(eq(r.machineId, machineId), gt(r.seq, snap.seq), lte(r.seq, toSeq))).orderBy(asc(r.seq)).limit(MAX_READINGS + 1)
   if (readings.length > MAX_READINGS) throw createError({ statusCode: 413, message: `More than ${MAX_READINGS.toLocaleString('en')} readings follow that snapshot; pick a shorter stretch.` })
   const messages = await db.select().from(mm).where(and(eq(mm.machineId, machineId), gt(mm.seq, snap.seq), lte(mm.seq, toSeq), inArray(mm.kind, ['event', 'ack', 'birth', 'state']))).orderBy(asc(mm.seq))
+  const applied = await appliedOffsets(machineId, { fromSeq: snap.seq + 1, toSeq, fromTime: snap.time, toTime: Math.max(snap.time, ...readings.map(x => x.time)) })
   // the machine's execution state at the snapshot: its last state or birth before it
   const [last] = await db.select({ payload: mm.payload }).from(mm).where(and(eq(mm.machineId, machineId), lt(mm.seq, snap.seq), inArray(mm.kind, ['state', 'birth']), isNotNull(mm.payload))).orderBy(desc(mm.seq)).limit(1)
   const executionBefore = (last?.payload as { execution?: string } | undefined)?.execution ?? null
   // the offset in force at the snapshot, as the machine last said it: its latest applied offset,
   // birth, or dress or wheel change that set one (a reading's offset is the one its part was ground
   // with, a pipeline behind)
-  const said = await db.select({ payload: mm.payload }).from(mm)
+  const said = await db.select({ seq: mm.seq, payload: mm.payload }).from(mm)
     .where(and(eq(mm.machineId, machineId), lt(mm.seq, snap.seq), or(inArray(mm.type, ['offset:applied', 'dress', 'wheel_change']), and(isNull(mm.type), eq(mm.kind, 'birth')))))
     .orderBy(desc(mm.seq)).limit(20)
-  const inForce = said.map(x => (x.payload as { offsetUm?: unknown }).offsetUm).find((x): x is number => typeof x === 'number')
+  const ce = schema.cycleEvents
+  const [lastApplied] = await db.select({ seq: ce.seq, a: ce.a }).from(ce)
+    .where(and(lte(ce.time, snap.time), gte(ce.time, snap.time - 2 * 86_400_000), eq(ce.machineId, machineId), eq(ce.code, CYCLE_CODES.offset_applied), lt(ce.seq, snap.seq)))
+    .orderBy(desc(ce.time), desc(ce.seq)).limit(1)
+  const candidates = [...said.map(x => ({ seq: x.seq, offsetUm: (x.payload as { offsetUm?: unknown }).offsetUm })), ...(lastApplied ? [{ seq: lastApplied.seq, offsetUm: lastApplied.a }] : [])]
+  const inForce = candidates.sort((x, y) => y.seq - x.seq).map(x => x.offsetUm).find((x): x is number => typeof x === 'number')
   const initialOffsetUm = inForce ?? at?.offsetUm ?? readings[0]?.offsetUm ?? 0
-  return { state: restoreCompensationState(snap.state), snapshotSeq: snap.seq, initialOffsetUm, items: replayItemsOf(recordedMessages(readings, messages), { executionBefore, offsetUm: initialOffsetUm }) }
+  return { state: restoreCompensationState(snap.state), snapshotSeq: snap.seq, initialOffsetUm, items: replayItemsOf(recordedMessages(readings, messages, applied), { executionBefore, offsetUm: initialOffsetUm }) }
 }

@@ -17,6 +17,7 @@ export interface ReportKnownPresence {
 }
 
 type Presence = { at: number; kind: 'birth' | 'death' }
+const CYCLE_PROBE_MS = 7 * 86_400_000
 
 /**
  * Contact events per machine: each death (machine time; a will's arrival on the machine clock)
@@ -62,13 +63,16 @@ export async function reportContactEvents(db: ReportDb, ids: readonly string[], 
   const key = (a: { m: string; at: number; dir: string }) => `${a.m}/${a.dir}/${a.at}`
   for (let i = 0; i < asks.length; i += 200) {
     const part = asks.slice(i, i + 200)
-    // each lookup is one probe of a (machine, time) index
-    const rows = await db.all<{ k: number; r: number | null; mm: number | null }>(sql.join(part.map((a, k) => a.dir === 'after'
-      ? sql`select ${k} as k, (select min(time) from readings where machine_id = ${a.m} and time > ${a.at}) as r, (select min(time) from machine_messages where machine_id = ${a.m} and time > ${a.at}) as mm`
-      : sql`select ${k} as k, (select max(time) from readings where machine_id = ${a.m} and time < ${a.at}) as r, (select max(time) from machine_messages where machine_id = ${a.m} and time < ${a.at}) as mm`), sql` union all `))
+    // each lookup is one probe of a (machine, time) index; cycle events (keyed by time first) are
+    // looked for only between that answer and the moment asked about, at most a week away
+    const rows = await db.all<{ k: number; r: number | null; mm: number | null; ce: number | null }>(sql.join(part.map((a, k) => a.dir === 'after'
+      ? sql`select k, r, mm, (select min(time) from cycle_events where time > ${a.at} and time < min(coalesce(r, 9e15), coalesce(mm, 9e15), ${a.at + CYCLE_PROBE_MS}) and machine_id = ${a.m}) as ce from (
+          select ${k} as k, (select min(time) from readings where machine_id = ${a.m} and time > ${a.at}) as r, (select min(time) from machine_messages where machine_id = ${a.m} and time > ${a.at}) as mm)`
+      : sql`select k, r, mm, (select max(time) from cycle_events where time < ${a.at} and time > max(coalesce(r, -1), coalesce(mm, -1), ${a.at - CYCLE_PROBE_MS}) and machine_id = ${a.m}) as ce from (
+          select ${k} as k, (select max(time) from readings where machine_id = ${a.m} and time < ${a.at}) as r, (select max(time) from machine_messages where machine_id = ${a.m} and time < ${a.at}) as mm)`), sql` union all `))
     for (const row of rows) {
       const a = part[Number(row.k)]!
-      const ts = [row.r, row.mm].filter((x): x is number => x !== null).map(Number)
+      const ts = [row.r, row.mm, row.ce].filter((x): x is number => x !== null).map(Number)
       found.set(key(a), ts.length ? (a.dir === 'after' ? Math.min(...ts) : Math.max(...ts)) : null)
     }
   }
@@ -94,16 +98,28 @@ export async function reportContactEvents(db: ReportDb, ids: readonly string[], 
   return out
 }
 
+// Machine time of the stored readings and machine messages numbered just before and just after a
+// gap `g` (index probes by number; -1 and 9e15 when there are none). Cycle events are keyed by
+// machine time, not by number: the gap's are looked for between these two times.
+const gapBeforeTime = `max(coalesce((select time from readings where machine_id = g.machine_id and seq < g.from_seq order by seq desc limit 1), -1),
+           coalesce((select time from machine_messages where machine_id = g.machine_id and seq < g.from_seq order by seq desc limit 1), -1))`
+const gapAfterTime = `min(coalesce((select time from readings where machine_id = g.machine_id and seq > g.to_seq order by seq limit 1), 9e15),
+           coalesce((select time from machine_messages where machine_id = g.machine_id and seq > g.to_seq order by seq limit 1), 9e15))`
+const gapCycleSeqs = `select seq from cycle_events where time >= ${gapBeforeTime} and time <= ${gapAfterTime}
+           and machine_id = g.machine_id and seq between g.from_seq and g.to_seq`
+
 /**
  * How many numbers of a gap `g` (a sequence_gaps row aliased g) arrived after all: stored as
- * readings or machine messages, or refused with their number (dead letters). Counted when a report
- * is made, so numbers that came late fill their gap.
+ * readings, machine messages or cycle events, or refused with their number (dead letters). Counted
+ * when a report is made, so numbers that came late fill their gap.
  */
 export const gapArrivedSql = sql.raw(`((select count(*) from readings where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
         + (select count(*) from machine_messages where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
+        + (select count(*) from (${gapCycleSeqs}))
         + (select count(distinct seq) from dead_letters where machine_id = g.machine_id and seq between g.from_seq and g.to_seq
            and seq not in (select seq from readings where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
-           and seq not in (select seq from machine_messages where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)))`)
+           and seq not in (select seq from machine_messages where machine_id = g.machine_id and seq between g.from_seq and g.to_seq)
+           and seq not in (${gapCycleSeqs})))`)
 
 /**
  * Stretches of machine time whose messages never arrived, per machine: from the last stored message
@@ -115,13 +131,14 @@ export async function reportGapEvents(db: ReportDb, ids: readonly string[], from
   const out = new Map<string, KpiMachineEvent[]>(ids.map((id) => [id, []]))
   if (!ids.length) return out
   const idList = sql.join(ids.map((id) => sql`${id}`), sql`, `)
+  // the messages around the gap: readings and machine messages by number, then the cycle events
+  // between those two (by machine time) numbered before and after it
   const gaps = await db.all<{ m: string; a: number; b: number; arrived: number; before: number | null; after: number | null }>(sql`
-    select g.machine_id as m, g.from_seq as a, g.to_seq as b, ${gapArrivedSql} as arrived,
-      max(coalesce((select time from readings where machine_id = g.machine_id and seq = (select max(seq) from readings where machine_id = g.machine_id and seq < g.from_seq)), -1),
-          coalesce((select time from machine_messages where machine_id = g.machine_id and seq = (select max(seq) from machine_messages where machine_id = g.machine_id and seq < g.from_seq)), -1)) as before,
-      min(coalesce((select time from readings where machine_id = g.machine_id and seq = (select min(seq) from readings where machine_id = g.machine_id and seq > g.to_seq)), 9e15),
-          coalesce((select time from machine_messages where machine_id = g.machine_id and seq = (select min(seq) from machine_messages where machine_id = g.machine_id and seq > g.to_seq)), 9e15)) as after
-    from sequence_gaps g where g.machine_id in (${idList}) and g.detected_at >= ${from - 7 * 86_400_000}`)
+    select gm as m, gfrom as a, gto as b, arrived,
+      max(rb, coalesce((select max(time) from cycle_events where time >= rb and time <= ra and machine_id = gm and seq < gfrom), -1)) as before,
+      min(ra, coalesce((select min(time) from cycle_events where time >= rb and time <= ra and machine_id = gm and seq > gto), 9e15)) as after
+    from (select g.machine_id as gm, g.from_seq as gfrom, g.to_seq as gto, ${gapArrivedSql} as arrived, ${sql.raw(gapBeforeTime)} as rb, ${sql.raw(gapAfterTime)} as ra
+      from sequence_gaps g where g.machine_id in (${idList}) and g.detected_at >= ${from - 7 * 86_400_000})`)
   for (const g of gaps) {
     const before = Number(g.before), after = Number(g.after)
     if (Number(g.arrived) >= Number(g.b) - Number(g.a) + 1) continue // every number came in the end

@@ -26,6 +26,7 @@ import {
 import { executionStates } from '../../shared/utils/contract'
 import { parseCompensationSettings } from '../../shared/utils/compensation-settings'
 import { wearCompare, type WearBoundaryKind, type WearSummary } from '../../shared/utils/wheel-wear'
+import { CYCLE_CODES } from '../../shared/utils/cycle-events'
 import { wakeUpsByPerson, WAKE_ATTEMPT_STATUSES, type WakeUps } from '../../shared/utils/wake-ups'
 
 export type ReportDb = LibSQLDatabase<typeof schema>
@@ -36,6 +37,8 @@ export const REPORT_MAX_RANGE_MS = 31 * 86_400_000
 /** A size chart keeps at most this many points per machine (min and max of each bucket beyond). */
 export const REPORT_CHART_MAX_POINTS = 2400
 const FAULT_EVENT_TYPES = ['fault_raised', 'fault_cleared'] as const
+/** How far before a window an applied offset (a cycle event) is looked for: older, the offset in force comes from a birth or is not known */
+const ACK_LOOKBACK_MS = 2 * 86_400_000
 const MARK_EVENT_TYPES = ['dress', 'wheel_change', 'mastering', 'job_change', 'pallet_change'] as const
 // States are stored with their execution value as type, births with none: every query below
 // names its types so it runs on the (machine, type, time) index.
@@ -306,24 +309,25 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
         min(received_at) as lo, max(received_at) as hi
       from readings indexed by readings_machine_time
       where machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id`),
-    // parts unloaded: counted on the (machine, type, time) index; only rejects (partial index) are read
-    db.all<{ m: string; reason: string | null; n: number }>(sql`
-      select machine_id as m, '' as reason, count(*) as n from machine_messages
-      where machine_id in ${idList} and type = 'part_unloaded' and time >= ${from} and time < ${to} group by 1
-      union all
-      select machine_id as m, coalesce(json_extract(payload, '$.rejectReason'), 'unspecified') as reason, count(*) as n
-      from machine_messages indexed by messages_rejects
-      where machine_id in ${idList} and type = 'part_unloaded' and json_extract(payload, '$.disposition') = 'reject' and time >= ${from} and time < ${to} group by 1, 2`),
+    // parts unloaded (cycle events, one walk of the window): good ones counted, rejects by reason
+    db.all<{ m: string; code: number; reason: string | null; n: number }>(sql`
+      select machine_id as m, code, text as reason, count(*) as n from cycle_events
+      where time >= ${from} and time < ${to} and machine_id in ${idList} and code in (${CYCLE_CODES.part_unloaded_good}, ${CYCLE_CODES.part_unloaded_reject}) group by 1, 2, 3`),
     // states, faults and the events marked on the chart (a few per hour), whole payloads
     db.select({ machineId: mm.machineId, seq: mm.seq, kind: mm.kind, type: mm.type, time: mm.time, payload: mm.payload })
       .from(mm).where(and(inArray(mm.machineId, idList), inArray(mm.type, [...STATE_TYPES, ...FAULT_EVENT_TYPES, ...MARK_EVENT_TYPES]), inWindow(mm.time))),
     db.select({ machineId: mm.machineId, seq: mm.seq, kind: mm.kind, type: mm.type, time: mm.time, payload: mm.payload })
       .from(mm).where(and(inArray(mm.machineId, idList), isNull(mm.type), inWindow(mm.time))),
-    // applied offsets from the partial index messages_offset_applied; refused and late ones only counted
+    // applied offsets: cycle events, and the few answers with a reason of their own (partial index
+    // messages_offset_applied); refused and late ones only counted
     db.all<{ m: string; times: string; offs: string }>(sql`
-      select machine_id as m, group_concat(time, ',') as times, group_concat(json_extract(payload, '$.offsetUm'), ',') as offs
-      from machine_messages indexed by messages_offset_applied
-      where type = 'offset:applied' and machine_id in ${idList} and time >= ${from} and time < ${to} group by machine_id`),
+      select m, group_concat(t, ',') as times, group_concat(o, ',') as offs from (
+        select machine_id as m, time as t, a as o from cycle_events
+        where time >= ${from} and time < ${to} and machine_id in ${idList} and code = ${CYCLE_CODES.offset_applied}
+        union all
+        select machine_id as m, time as t, json_extract(payload, '$.offsetUm') as o from machine_messages indexed by messages_offset_applied
+        where type = 'offset:applied' and machine_id in ${idList} and time >= ${from} and time < ${to}
+        order by 1, 2) group by m`),
     db.all<{ m: string; type: string; n: number }>(sql`
       select machine_id as m, type, count(*) as n from machine_messages
       where machine_id in ${idList} and type in ('offset:rejected', 'offset:expired') and time >= ${from} and time < ${to} group by 1, 2`),
@@ -340,7 +344,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
   const received = readingLists.length ? [{ lo: Math.min(...readingLists.map((g) => Number(g.lo))), hi: Math.max(...readingLists.map((g) => Number(g.hi))) }] : [{ lo: null, hi: null }]
   const acksByMachine = new Map(ackLists.map((g) => {
     const n = countFields(g.times)
-    return [g.m, { n, time: reportParseNumberList(g.times, n), offsetUm: reportParseNumberList(g.offs, n) }] as const // time order: the index walk
+    return [g.m, timeOrdered({ n, time: reportParseNumberList(g.times, n), offsetUm: reportParseNumberList(g.offs, n) })] as const
   }))
   const refusedAcks = new Map(ackOther.map((a) => [`${a.m}/${a.type}`, Number(a.n)]))
   const byTime = (a: { time: number; seq: number }, b: { time: number; seq: number }) => a.time - b.time || a.seq - b.seq
@@ -393,8 +397,8 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
     let unloadedCount = 0
     const scrap = new Map<string, number>()
     for (const u of un) {
-      if (u.reason === '' || u.reason === null) unloadedCount += Number(u.n)
-      else scrap.set(u.reason, (scrap.get(u.reason) ?? 0) + Number(u.n))
+      unloadedCount += Number(u.n)
+      if (Number(u.code) === CYCLE_CODES.part_unloaded_reject) scrap.set(u.reason ?? 'unspecified', (scrap.get(u.reason ?? 'unspecified') ?? 0) + Number(u.n))
     }
     const scrapByReason = sortCounts(scrap)
     const scrapCount = scrapByReason.reduce((a, s) => a + s.count, 0)
@@ -530,19 +534,26 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
   const lookups = await db.all<{ id: string; stateT: number | null; ackT: number | null; birthBeforeT: number | null; birthT: number | null; jobT: number | null }>(sql`
     select ids.id as id,
       (select max(time) from machine_messages where machine_id = ids.id and type in ${STATE_TYPES} and time < ${from}) as stateT,
-      (select max(time) from machine_messages where machine_id = ids.id and type = 'offset:applied' and time < ${from}) as ackT,
+      max(coalesce((select max(time) from machine_messages where machine_id = ids.id and type = 'offset:applied' and time < ${from}), -1),
+          coalesce((select max(time) from cycle_events where time < ${from} and time >= ${from - ACK_LOOKBACK_MS} and machine_id = ids.id and code = ${CYCLE_CODES.offset_applied}), -1)) as ackT,
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${from}) as birthBeforeT,
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${to}) as birthT,
       (select max(time) from machine_messages where machine_id = ids.id and type = 'job_change' and time < ${from}) as jobT
     from (${idRows}) as ids`)
-  const wanted = [...new Map(lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT, l.jobT].filter((t): t is number => t !== null)
+  const wanted = [...new Map(lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT, l.jobT].filter((t): t is number => t !== null && Number(t) >= 0)
     .map((t) => [`${l.id}/${t}`, { id: l.id, t: Number(t) }] as const))).values()]
   // One probe of the (machine, time) index per wanted row: a row-value IN over a VALUES list is
   // not planned as index probes and scanned the whole table (330 ms on a week of 12 machines).
+  // (an applied offset may be a cycle event: probed there too, by its time)
   const rows = wanted.length
-    ? await db.all<{ machine_id: string; seq: number; type: string | null; time: number; payload: string }>(sql.join(wanted.map((w) => sql`
+    ? await db.all<{ machine_id: string; seq: number; type: string | null; time: number; payload: string }>(sql.join([
+      ...wanted.map((w) => sql`
       select machine_id, seq, type, time, payload from machine_messages indexed by messages_machine_time
-      where machine_id = ${w.id} and time = ${w.t} and (type in ${STATE_TYPES} or type in ('offset:applied', 'job_change') or type is null)`), sql` union all `))
+      where machine_id = ${w.id} and time = ${w.t} and (type in ${STATE_TYPES} or type in ('offset:applied', 'job_change') or type is null)`),
+      ...lookups.filter((l) => l.ackT !== null && Number(l.ackT) >= 0).map((l) => sql`
+      select machine_id, seq, 'offset:applied' as type, time, json_object('offsetUm', a) as payload from cycle_events
+      where time = ${Number(l.ackT)} and machine_id = ${l.id} and code = ${CYCLE_CODES.offset_applied}`),
+    ], sql` union all `))
     : []
   const earliestState = Math.min(...lookups.map((l) => (l.stateT === null ? Infinity : Number(l.stateT))))
   const faults = Number.isFinite(earliestState)
@@ -550,7 +561,7 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
       .where(and(inArray(mm.machineId, ids), inArray(mm.type, [...FAULT_EVENT_TYPES]), gte(mm.time, earliestState), lt(mm.time, from))).orderBy(asc(mm.time), asc(mm.seq))
     : []
   const pick = (id: string, t: number | null, isType: (type: string | null) => boolean) => {
-    if (t === null) return undefined
+    if (t === null || Number(t) < 0) return undefined
     const r = rows.filter((x) => x.machine_id === id && Number(x.time) === Number(t) && isType(x.type)).sort((a, b) => b.seq - a.seq)[0]
     return r ? { time: Number(r.time), payload: JSON.parse(r.payload) as Record<string, unknown> } : undefined
   }
@@ -620,8 +631,8 @@ async function jobRunsOf(db: ReportDb, machineId: string, w: { from: number; to:
   else {
     counts = runs.map(() => ({ produced: 0, scrap: new Map() }))
     const rows = await db.all<{ t: number; d: string | null; r: string | null }>(sql`
-      select time as t, json_extract(payload, '$.disposition') as d, json_extract(payload, '$.rejectReason') as r from machine_messages
-      where machine_id = ${machineId} and type = 'part_unloaded' and time >= ${w.from} and time < ${w.to}`)
+      select time as t, case code when ${CYCLE_CODES.part_unloaded_good} then 'good' else 'reject' end as d, text as r from cycle_events
+      where time >= ${w.from} and time < ${w.to} and machine_id = ${machineId} and code in (${CYCLE_CODES.part_unloaded_good}, ${CYCLE_CODES.part_unloaded_reject})`)
     for (const row of rows) {
       const k = runs.findIndex((r) => Number(row.t) < r.to)
       const c = counts[k < 0 ? runs.length - 1 : k]!
@@ -711,6 +722,15 @@ function parseJobs(text: string, sep: string, n: number, c: ReadingColumns): voi
 const POW10 = Array.from({ length: 23 }, (_, k) => 10 ** k)
 
 /** Number of comma-separated fields in a non-empty text. */
+/** Applied offsets in time order (two sources are merged; the SQL orders them, this makes sure). */
+function timeOrdered(a: { n: number; time: Float64Array; offsetUm: Float64Array }) {
+  let sorted = true
+  for (let i = 1; i < a.n && sorted; i++) sorted = a.time[i - 1]! <= a.time[i]!
+  if (sorted) return a
+  const order = Array.from({ length: a.n }, (_, i) => i).sort((x, y) => a.time[x]! - a.time[y]!)
+  return { n: a.n, time: Float64Array.from(order, (i) => a.time[i]!), offsetUm: Float64Array.from(order, (i) => a.offsetUm[i]!) }
+}
+
 function countFields(text: string): number {
   let n = 1
   for (let i = text.indexOf(','); i >= 0; i = text.indexOf(',', i + 1)) n++
@@ -1063,8 +1083,19 @@ export async function reportPartsCsv(db: ReportDb, scope: ReportScope): Promise<
   for (const id of ids) {
     const [readings, events, lastWheel] = await Promise.all([
       db.select().from(schema.readings).where(and(eq(schema.readings.machineId, id), gte(schema.readings.time, from), lt(schema.readings.time, to))).orderBy(asc(schema.readings.time), asc(schema.readings.seq)),
-      db.select({ type: mm.type, time: mm.time, part: sql<number | null>`json_extract(${mm.payload}, '$.part')`, a: sql<string | null>`json_extract(${mm.payload}, '$.disposition')`, b: sql<string | null>`json_extract(${mm.payload}, '$.rejectReason')`, wheel: sql<number | null>`json_extract(${mm.payload}, '$.wheelDiameterMm')`, wheelId: sql<string | null>`json_extract(${mm.payload}, '$.wheelId')` })
-        .from(mm).where(and(eq(mm.machineId, id), gte(mm.time, from - 3_600_000), lt(mm.time, to), inArray(mm.type, ['part_unloaded', 'part_ground', 'dress', 'wheel_change']))).orderBy(asc(mm.time), asc(mm.seq)),
+      // parts ground and unloaded (cycle events) with the dresses and wheel changes between them, in time order
+      db.all<{ type: string; time: number; part: number | null; a: string | null; b: string | null; wheel: number | null; wheelId: string | null }>(sql`
+        select type, time, part, a, b, wheel, wheelId from (
+          select case code when ${CYCLE_CODES.part_ground} then 'part_ground' else 'part_unloaded' end as type, time, seq, part,
+            case code when ${CYCLE_CODES.part_unloaded_good} then 'good' when ${CYCLE_CODES.part_unloaded_reject} then 'reject' end as a,
+            case when code = ${CYCLE_CODES.part_ground} then null else text end as b,
+            case code when ${CYCLE_CODES.part_ground} then b end as wheel, null as wheelId
+          from cycle_events where time >= ${from - 3_600_000} and time < ${to} and machine_id = ${id}
+            and code in (${CYCLE_CODES.part_ground}, ${CYCLE_CODES.part_unloaded_good}, ${CYCLE_CODES.part_unloaded_reject})
+          union all
+          select type, time, seq, null, null, null, json_extract(payload, '$.wheelDiameterMm'), json_extract(payload, '$.wheelId') from machine_messages
+          where machine_id = ${id} and time >= ${from - 3_600_000} and time < ${to} and type in ('dress', 'wheel_change'))
+        order by time, seq`),
       db.select({ wheelId: sql<string | null>`json_extract(${mm.payload}, '$.wheelId')` }).from(mm).where(and(eq(mm.machineId, id), lt(mm.time, from - 3_600_000), eq(mm.type, 'wheel_change'))).orderBy(desc(mm.time)).limit(1),
     ])
     // Walk events in time order: dress count and wheel id at the moment each part was ground.

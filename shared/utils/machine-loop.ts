@@ -15,6 +15,7 @@ import { createCompensationState, stepCompensation, type CompensationDecision, t
 import type { CompensationTuning } from './compensation-tuning'
 import { wheelEventInput } from './wheel-events'
 import { commandClockOffsetMs, judgeMachineClock, trustedClock, type MachineClock } from './machine-clock'
+import { cycleEventRow, isCycleMessage, type CycleEventRow } from './cycle-events'
 import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules } from './alert-routing'
 import { allowanceFor, allowanceRenewalDue, emptyAllowanceState, outageResumeRefusal, voidsAllowance, withAllowance, type AllowanceSettings, type AllowanceState } from './allowance'
 
@@ -149,6 +150,8 @@ export interface MachineLoopRows {
   gaps: GapRow[]
   answers: CommandAnswer[]
   snapshots: SnapshotRow[]
+  /** the per-part messages and offset answers, compact (cycle-events.ts) */
+  cycleEvents: CycleEventRow[]
 }
 
 /** Appends one message's rows to a batch's. */
@@ -161,9 +164,10 @@ export function appendLoopRows(into: MachineLoopRows, from: MachineLoopRows) {
   for (const r of from.gaps) into.gaps.push(r)
   for (const r of from.answers) into.answers.push(r)
   for (const r of from.snapshots) into.snapshots.push(r)
+  for (const r of from.cycleEvents) into.cycleEvents.push(r)
 }
 
-export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], answers: [], snapshots: [] })
+export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], answers: [], snapshots: [], cycleEvents: [] })
 
 export interface AlarmCondition {
   machineId: string | null
@@ -536,7 +540,8 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
   st.lastMessageAt = now
   if (message.kind === 'reading') onReading(s, message)
   else {
-    s.rows.messages.push({ machineId: machine.id, seq: message.seq, kind: message.kind, type: messageType(message), time, receivedAt: now, payload: message })
+    if (isCycleMessage(message)) s.rows.cycleEvents.push(cycleEventRow(machine.id, message, time))
+    else s.rows.messages.push({ machineId: machine.id, seq: message.seq, kind: message.kind, type: messageType(message), time, receivedAt: now, payload: message })
     s.live.push({ type: 'machine-event', machineId: machine.id, seq: message.seq, kind: message.kind, eventType: messageType(message), time })
     if (message.kind === 'birth') onBirth(s, message)
     else if (message.kind === 'state') onState(s, message)

@@ -38,7 +38,8 @@ describe('crash and restart under load', () => {
     let total = 0
     for (const [machineId, link] of sim.links) {
       const rows = await db.execute({
-        sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 order by seq`,
+        // readings, machine messages and the per-part cycle events (docs/storage.md)
+        sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq`,
         args: [machineId],
       })
       const seqs = rows.rows.map(r => Number(r.seq))

@@ -148,7 +148,7 @@ describe('ingest on a full disk', () => {
     // Everything the machines sent is stored once: numbers 1..last for each machine.
     const db = openTestDb(dataDir)
     for (const [machineId, link] of sim.links) {
-      const rows = await db.execute({ sql: 'select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 order by seq', args: [machineId] })
+      const rows = await db.execute({ sql: 'select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq', args: [machineId] })
       const seqs = rows.rows.map(r => Number(r.seq))
       expect(seqs.length, machineId).toBe(link.lastSeq)
       expect(new Set(seqs).size, machineId).toBe(seqs.length)

@@ -63,7 +63,7 @@ describe('overnight report', async () => {
     // every unload event the simulator sent has been stored
     const want = summary.totals.partsGauged
     for (let i = 0; i < 100; i++) {
-      const n = Number((await db.execute(`select count(*) n from machine_messages where type = 'part_unloaded'`)).rows[0]!.n)
+      const n = Number((await db.execute(`select count(*) n from cycle_events where code in (4, 5)`)).rows[0]!.n) // part_unloaded (shared/utils/cycle-events.ts)
       if (n >= want) break
       await new Promise(r => setTimeout(r, 200))
     }

@@ -5,7 +5,7 @@
 // Recorded in tests/unit/__golden__/ingest-golden-night.ndjson, one JSON line per item:
 //   counts       — rows per table, commands sent, live events by type, conditions, ingest counters
 //   table:<name> — every row of every table at the end of the night (setup rows included), in
-//                  rowid order, ids and server timestamps kept (the server clock is faked, so
+//                  rowid order (key order for a table without rowid), ids and server timestamps kept (the server clock is faked, so
 //                  they are deterministic); columns the schema declares JSON shown parsed
 //   sent         — each command sent to a machine: topic and payload, in sending order
 //   condition    — each condition ingest handed the alarm engine, in order
@@ -56,10 +56,12 @@ async function jsonColumns(): Promise<Set<string>> {
 async function tableRows(): Promise<[string, unknown][]> {
   const client = (globalThis as unknown as { useDbClient: () => import('@libsql/client').Client }).useDbClient()
   const json = await jsonColumns()
-  const tables = (await client.execute(`SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%' AND name NOT LIKE '%drizzle%' ORDER BY name`)).rows.map(r => String(r.name))
+  const tables = (await client.execute(`SELECT name, sql FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%' AND name NOT LIKE '%drizzle%' ORDER BY name`)).rows.map(r => ({ name: String(r.name), withoutRowid: /WITHOUT ROWID/i.test(String(r.sql)) }))
   const out: [string, unknown][] = []
-  for (const t of tables) {
-    const rs = await client.execute(`SELECT * FROM "${t}" ORDER BY rowid`)
+  for (const { name: t, withoutRowid } of tables) {
+    // a table without rowid is in the order of its key
+    const key = withoutRowid ? (await client.execute(`SELECT name FROM pragma_table_info('${t}') WHERE pk > 0 ORDER BY pk`)).rows.map(r => `"${String(r.name)}"`).join(', ') : 'rowid'
+    const rs = await client.execute(`SELECT * FROM "${t}" ORDER BY ${key}`)
     for (const row of rs.rows) out.push([`table:${t}`, Object.fromEntries(rs.columns.map((c, i) => [c, json.has(`${t}.${c}`) && typeof row[i] === 'string' ? JSON.parse(row[i] as string) : row[i]]))])
   }
   return out

@@ -1,4 +1,4 @@
-// The report's time model on rows written the way ingest writes them (machine_messages, readings,
+// The report's time model on rows written the way ingest writes them (machine_messages, cycle_events, readings,
 // presence_log, sequence_gaps, alarm_transitions), each case small enough to work out by hand.
 // Classes of time and formulas: docs/report-time-model.md (ISO 22400-2: A = APT/PBT,
 // E = PRU·PQ/APT, MTTR = Σ TTR / FE).
@@ -7,6 +7,8 @@ import { openReportFixture, type ReportFixture } from '../../scripts/report-fixt
 import { reportBuild, reportShiftScope, type Report } from '../../server/utils/report'
 import { KPI_CAUSE, KPI_NO_DATA } from '../../shared/utils/kpi'
 import * as schema from '../../server/database/schema'
+import { cycleEventRow, isCycleMessage } from '../../shared/utils/cycle-events'
+import type { SequencedMessage } from '../../shared/utils/contract'
 
 const H = 3_600_000
 const MIN = 60_000
@@ -34,7 +36,10 @@ async function msg(machine: string, time: number, kind: string, body: Record<str
   const seq = (seqs.get(machine) ?? 0) + 1
   seqs.set(machine, seq)
   const type = kind === 'event' ? String(body.type) : kind === 'state' ? String(body.execution) : null
-  await fx.db.insert(schema.machineMessages).values({ machineId: machine, seq, kind, type, time, receivedAt: time + late, payload: { kind, seq, time: new Date(time).toISOString(), ...body } })
+  const message = { kind, seq, time: new Date(time).toISOString(), ...body } as SequencedMessage
+  // the per-part messages are cycle events (shared/utils/cycle-events.ts), as ingest stores them
+  if (isCycleMessage(message)) await fx.db.insert(schema.cycleEvents).values(cycleEventRow(machine, message, time))
+  else await fx.db.insert(schema.machineMessages).values({ machineId: machine, seq, kind, type, time, receivedAt: time + late, payload: message })
   return seq
 }
 const birth = (m: string, time: number, job = JOB_A, cycleTimeS = 60, execution = 'ACTIVE') =>

@@ -161,7 +161,7 @@ describe('overnight report from a simulated night', () => {
     expect(scope.from).toBe(start) // 22:00 CET
     expect(scope.to).toBe(start + 8 * H)
     const night = await reportBuild(fx.db, scope)
-    const unloaded = await fx.client.execute({ sql: `select count(*) n from machine_messages where type = 'part_unloaded' and time >= ? and time < ?`, args: [scope.from, scope.to] })
+    const unloaded = await fx.client.execute({ sql: `select count(*) n from cycle_events where code in (4, 5) and time >= ? and time < ?`, args: [scope.from, scope.to] }) // part_unloaded (shared/utils/cycle-events.ts)
     expect(night.totals.produced).toBe(Number(unloaded.rows[0]!.n))
     expect(night.totals.produced).toBeLessThan(report.totals.produced)
   })

@@ -30,8 +30,11 @@ export default defineEventHandler(async (event) => {
       .where(and(eq(s.cellId, cell), gte(s.at, now - 8 * 86_400_000)))
     const machineIds = (await useDb().select({ id: schema.machines.id }).from(schema.machines).where(eq(schema.machines.cellId, cell))).map(m => m.id)
     const m = schema.machineMessages
-    const heard = async (from: number, to: number) => machineIds.length > 0 && (await useDb().select({ one: m.id }).from(m)
-      .where(and(inArray(m.machineId, machineIds), gte(m.time, from), lt(m.time, to))).limit(1)).length > 0
+    const r = schema.readings
+    // a part gauged (readings) or any other message (machine_messages) in the shift
+    const heard = async (from: number, to: number) => machineIds.length > 0 && ((await useDb().select({ one: r.id }).from(r)
+      .where(and(inArray(r.machineId, machineIds), gte(r.time, from), lt(r.time, to))).limit(1)).length > 0 || (await useDb().select({ one: m.id }).from(m)
+      .where(and(inArray(m.machineId, machineIds), gte(m.time, from), lt(m.time, to))).limit(1)).length > 0)
     const hasData = await Promise.all(shifts.map(w => heard(w.from, Math.min(w.to, now))))
     return {
       cells, cell, calendar, calendarProblems: [] as string[],
