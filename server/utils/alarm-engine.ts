@@ -275,11 +275,11 @@ async function raise(scope: Scope, c: AlarmCondition, at: number) {
   }
   const machines = scope.machineId ? undefined : [...new Set([...(row?.machines ?? []), ...(cellReporters.get(scope.key) ?? [])])]
   const message = scope.machineId ? c.message : cellMessage(kind, scope, machines!)
-  const cause = isConsequence(kind) ? causeFor(scope, c.condition) : undefined
+  const cause = isConsequence(kind) ? causeFor(scope, c.condition, conditionSince.get(scope.key) ?? at) : undefined
   const actions: AlarmAction[] = [{ kind: 'condition-active' }]
   if (cause) actions.push({ kind: 'suppress', by: `${cause.kind.title} (alarm ${cause.row.id})` })
   const r = await transition(row, { scope, condition: c.condition, actions, at, actor: SYSTEM, message, machineAt: c.machineAt, extra: { ...(machines ? { machines } : {}), ...(cause ? { causeAlarmId: cause.row.id } : {}) } })
-  if (cause && r.row) await listMachines(cause.scope, [scope.machineId!])
+  if (cause && r.row && kind.suppression === 'consequence') await listMachines(cause.scope, [scope.machineId!])
   // A cause that stands now takes the consequences already standing on its machines under it.
   if (kind.suppression === 'cause' && r.row && (r.row.record as AlarmRecord).active) await suppressConsequencesOf(scope, r.row)
 }
@@ -325,18 +325,27 @@ async function listMachines(scope: Scope, more: string[]) {
 /** Suppressed under a standing cause: a stop it explains, or a warning about a machine it has stopped (alarm-catalogue.ts). */
 const isConsequence = (k: AlarmKind) => k.suppression === 'consequence' || k.suppression === 'while-stopped'
 
-/** The standing alarm a consequence on this machine belongs under: active, stops machines, on the machine or its cell. */
-function causeFor(scope: Scope, condition: string): { row: AlarmRow, kind: AlarmKind, scope: Scope } | undefined {
-  let best: { row: AlarmRow, kind: AlarmKind, scope: Scope } | undefined
-  for (const row of open.values()) {
+/**
+ * The standing alarm a consequence on this machine belongs under: a cause that stands, on the
+ * machine or its cell. Of several, the one that came last before the consequence did (`since`, 5 s
+ * allowed): when the cell's fire stops Heron twelve minutes after Kite's mist collector faulted, the
+ * fire stopped Heron, and the mist alarm must not list it. A consequence older than every cause (a
+ * warning the stop came for) goes under the highest priority, then the earliest.
+ */
+function causeFor(scope: Scope, condition: string, since?: number): { row: AlarmRow, kind: AlarmKind, scope: Scope } | undefined {
+  const warning = alarmKindFor(condition).suppression === 'while-stopped'
+  const standing = [...open.values()].filter((row) => {
     const kind = alarmKindFor(row.condition)
-    if (row.condition === condition || kind.suppression !== 'cause' || !standsAsCause(row)) continue
-    const mine = row.machineId ? row.machineId === scope.machineId : row.cellId === scope.cellId
-    if (!mine) continue
-    if (!best || row.priority < best.row.priority || (row.priority === best.row.priority && row.raisedAt < best.row.raisedAt))
-      best = { row, kind, scope: { key: rowKey(row), machineId: row.machineId, cellId: row.cellId } }
-  }
-  return best
+    if (row.condition === condition || kind.suppression !== 'cause' || !standsAsCause(row)) return false
+    if (row.machineId) return row.machineId === scope.machineId
+    // A cell cause explains any stop in its cell, but a warning only on a machine it lists (one it stopped).
+    return row.cellId === scope.cellId && (!warning || (row.machines ?? []).includes(scope.machineId ?? ''))
+  })
+  const before = since === undefined ? [] : standing.filter(row => conditionStart(row) <= since + CAUSE_SLACK_MS)
+  const best = before.length
+    ? before.sort((x, y) => conditionStart(y) - conditionStart(x) || x.priority - y.priority)[0]
+    : standing.sort((x, y) => x.priority - y.priority || x.raisedAt - y.raisedAt)[0]
+  return best && { row: best, kind: alarmKindFor(best.condition), scope: { key: rowKey(best), machineId: best.machineId, cellId: best.cellId } }
 }
 
 async function suppressConsequencesOf(causeScope: Scope, cause: AlarmRow) {
@@ -348,10 +357,13 @@ async function suppressConsequencesOf(causeScope: Scope, cause: AlarmRow) {
     // its consequence. A warning about the parts or the trend goes under whichever came first: the
     // parts out of tolerance before a stop requested by compensation are what it is about.
     if (k.suppression === 'consequence' && conditionStart(row) < conditionStart(cause) - CAUSE_SLACK_MS) continue
-    const mine = cause.machineId ? row.machineId === cause.machineId : (!!row.machineId && machineContext(row.machineId)?.cellId === cause.cellId)
+    const listed = open.get(causeScope.key)?.machines ?? cause.machines ?? []
+    const mine = cause.machineId ? row.machineId === cause.machineId
+      : !!row.machineId && machineContext(row.machineId)?.cellId === cause.cellId && (k.suppression !== 'while-stopped' || listed.includes(row.machineId))
     if (!mine) continue
     await transition(row, { scope: { key: rowKey(row), machineId: row.machineId, cellId: row.cellId }, condition: row.condition, actions: [{ kind: 'suppress', by: `${kind.title} (alarm ${cause.id})` }], at: cause.lastChangeAt, actor: SYSTEM, extra: { causeAlarmId: cause.id } })
-    if (row.machineId) await listMachines(causeScope, [row.machineId])
+    // a cell alarm lists the machines it stopped: a stop under it, not a warning
+    if (row.machineId && k.suppression === 'consequence') await listMachines(causeScope, [row.machineId])
   }
 }
 
@@ -360,7 +372,7 @@ async function releaseConsequencesOf(causeId: number, at: number) {
   for (const row of [...open.values()]) {
     if (row.causeAlarmId !== causeId || row.state !== 'suppressed') continue
     const scope = { key: rowKey(row), machineId: row.machineId, cellId: row.cellId }
-    const other = causeFor(scope, row.condition)
+    const other = causeFor(scope, row.condition, conditionStart(row))
     if (other) {
       await transition(row, { scope, condition: row.condition, actions: [{ kind: 'unsuppress' }, { kind: 'suppress', by: `${other.kind.title} (alarm ${other.row.id})` }], at, actor: SYSTEM, extra: { causeAlarmId: other.row.id } })
       continue

@@ -18,7 +18,7 @@ const S = 1000
 const MIN = 60 * S
 
 beforeAll(async () => {
-  h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7', 'm8', 'm9'])
+  h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7', 'm8', 'm9', 'm10', 'm11'])
   engine = await import('../../server/utils/alarm-engine')
 })
 afterAll(() => h.close())
@@ -185,6 +185,29 @@ describe('consequences are suppressed under their cause while it stands (designe
     // Still out of tolerance after the reset: announced on its own; the trend that cleared closes quietly.
     expect((await alarmsOf('m9', 'engine:consecutive-rejects'))[0]).toMatchObject({ state: 'unacknowledged', active: true })
     expect((await alarmsOf('m9', 'trend:nears-tolerance'))[0]).toMatchObject({ state: 'normal', active: false })
+  })
+
+  it('a stop goes under the cause that came last before it: the fire that stopped m11, not the mist collector fault m10 reported twelve minutes earlier', async () => {
+    const t = Date.now()
+    await engine.applyAlarmConditions([cond('m10', 'fault:mist_collector_fault', true, t), cond('m10', 'machine:stopped', true, t)])
+    await engine.applyAlarmConditions([cond('m10', 'fault:fire_alarm', true, t + 12 * MIN), cond('m11', 'fault:fire_alarm', true, t + 12 * MIN), cond('m11', 'machine:stopped', true, t + 12 * MIN)])
+    await engine.alarmTick(t + 14 * MIN)
+    const [mist] = (await alarmsOf(null, 'fault:mist_collector_fault')).filter(a => a.closedAt === null)
+    const [fire] = (await alarmsOf(null, 'fault:fire_alarm')).filter(a => a.closedAt === null)
+    expect((await alarmsOf('m10', 'machine:stopped'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: mist!.id })
+    expect((await alarmsOf('m11', 'machine:stopped'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: fire!.id })
+    expect(mist!.machines).toContain('m10')
+    expect(mist!.machines).not.toContain('m11')
+    expect(fire!.machines).toEqual(expect.arrayContaining(['m10', 'm11']))
+    // m9's rejects (standing since the test before, its machine not stopped by either) stay where they are
+    expect(mist!.machines).not.toContain('m9')
+    expect(fire!.machines).not.toContain('m9')
+    // put the cell back to normal for the tests after
+    await engine.applyAlarmConditions(['m10', 'm11'].flatMap(m => [cond(m, 'fault:mist_collector_fault', false, t + 15 * MIN), cond(m, 'fault:fire_alarm', false, t + 15 * MIN), cond(m, 'machine:stopped', false, t + 15 * MIN)]))
+    for (const a of [mist!, fire!]) {
+      await engine.actOnAlarm(a.id, { kind: 'acknowledge' }, { userId: null, where: 'web test' })
+      await engine.actOnAlarm(a.id, { kind: 'reset' }, { userId: null, where: 'station:m10' })
+    }
   })
 
   it('people cannot suppress or unsuppress by hand', async () => {
