@@ -42,6 +42,9 @@ export interface SimulatorOptions {
   /** machines start parts only within the allowance the server grants (docs/mqtt.md); default true.
    *  false for a bare broker with no Owlshift behind it */
   obeyAllowance?: boolean
+  /** how long (simulated s) a machine waits for a renewal before it holds; default: 1.5 s of wall time (see below). A
+   *  simulator whose own clock is faked faster than the wall (faketime) says what that wall time is in its seconds */
+  allowanceWaitS?: number
   onLog?: (line: string) => void
   /** every message the cell emits, as it is handed to its link (what the machines really did) */
   onMessage?: (machineId: string, message: SequencedMessage) => void
@@ -105,7 +108,7 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
     // Fast-forwarded, a renewal's trip through a busy server takes many simulated seconds: a machine
     // waits at least 1.5 s of wall time (and four ticks) for one before it holds; a real machine
     // waits its cycle time. While it waits it starts no part, so the wait costs time, never size.
-    allowanceWaitS: Math.max(1.5, (4 * (options.tickMs ?? 50)) / 1000) * options.speed,
+    allowanceWaitS: options.allowanceWaitS ?? Math.max(1.5, (4 * (options.tickMs ?? 50)) / 1000) * options.speed,
     onMessage: (machineId, message) => { options.onMessage?.(machineId, message); links.get(machineId)!.publish(message) },
   })
   const theCell = cell

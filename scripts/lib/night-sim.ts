@@ -33,6 +33,8 @@ const sim = await startSimulator({
   scenario, seed: a.seed, machines: 4, speed: 1, hours: a.hours,
   brokerUrl: a.brokerUrl, credentials: id => creds[id], stateDir: a.stateDir, startMs: Date.now(), tickMs: 2000, drainTimeoutMs: 60_000,
   keepaliveS: Math.min(65_535, 30 * a.speed), connectTimeoutMs: 10_000 * a.speed,
+  // 1.5 s of wall time for an allowance renewal, as the simulator gives any fast-forwarded machine
+  allowanceWaitS: 1.5 * a.speed,
   onMessage: (machine, m) => {
     if (m.kind === 'state') appendFileSync(statesFile, `${JSON.stringify({ machine, at: Date.parse(m.time), execution: m.execution, reason: m.reason ?? null })}\n`)
   },

@@ -18,7 +18,7 @@ const S = 1000
 const MIN = 60 * S
 
 beforeAll(async () => {
-  h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7', 'm8', 'm9', 'm10', 'm11'])
+  h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7', 'm8', 'm9', 'm10', 'm11', 'm12'])
   engine = await import('../../server/utils/alarm-engine')
 })
 afterAll(() => h.close())
@@ -208,6 +208,20 @@ describe('consequences are suppressed under their cause while it stands (designe
       await engine.actOnAlarm(a.id, { kind: 'acknowledge' }, { userId: null, where: 'web test' })
       await engine.actOnAlarm(a.id, { kind: 'reset' }, { userId: null, where: 'station:m10' })
     }
+  })
+
+  it('a gauge fault is one wake-up: the hold for the allowance it voids and the engine\'s "gauge suspect" go under it', async () => {
+    const t = Date.now()
+    const seen = h.live.length
+    await engine.applyAlarmConditions([cond('m12', 'fault:gauge_fault', true, t)])
+    await engine.applyAlarmConditions([cond('m12', 'engine:gauge-suspect', true, t + 20 * S), cond('m12', 'machine:stopped', true, t + 30 * S)])
+    await engine.alarmTick(t + 3 * MIN)
+    const [gauge] = await alarmsOf('m12', 'fault:gauge_fault')
+    expect(gauge).toMatchObject({ state: 'unacknowledged', active: true })
+    expect((await alarmsOf('m12', 'engine:gauge-suspect'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: gauge!.id })
+    expect((await alarmsOf('m12', 'machine:stopped'))[0]).toMatchObject({ state: 'suppressed', causeAlarmId: gauge!.id })
+    // what the router is told to announce: the gauge fault alone
+    expect(published(seen).filter(e => e.alarm.state === 'unacknowledged').map(e => e.alarm.condition)).toEqual(['fault:gauge_fault'])
   })
 
   it('people cannot suppress or unsuppress by hand', async () => {
