@@ -481,6 +481,62 @@ export const readingHours = sqliteTable('reading_hours', {
   maxUm: real('max_um'),
 }, t => [uniqueIndex('reading_hours_key').on(t.machineId, t.hourStart, t.jobPartNumber)])
 
+/**
+ * What retention leaves of the raw rows it folds other than readings (server/utils/retention.ts,
+ * docs/storage.md#retention): counts per machine and hour. Cycle events and machine answers are
+ * placed by the machine's clock, decisions and commands by the server's. Additive: a pass that
+ * folds part of an hour adds to its row, so raw rows and summaries never count the same thing.
+ */
+export const activityHours = sqliteTable('activity_hours', {
+  machineId: text('machine_id').notNull(),
+  hourStart: integer('hour_start').notNull(),
+  partsLoaded: integer('parts_loaded').notNull().default(0),
+  partsGround: integer('parts_ground').notNull().default(0),
+  partsGauged: integer('parts_gauged').notNull().default(0),
+  /** parts unloaded good, and rejected by reason (none stated: unspecified) */
+  partsGood: integer('parts_good').notNull().default(0),
+  rejectsOversize: integer('rejects_oversize').notNull().default(0),
+  rejectsUndersize: integer('rejects_undersize').notNull().default(0),
+  rejectsRoundness: integer('rejects_roundness').notNull().default(0),
+  rejectsNotMeasured: integer('rejects_not_measured').notNull().default(0),
+  rejectsUnspecified: integer('rejects_unspecified').notNull().default(0),
+  /** offsets the machine applied: how many, Σ and largest |step| (µm), the last one and its machine time */
+  offsetsApplied: integer('offsets_applied').notNull().default(0),
+  offsetStepSumUm: real('offset_step_sum_um').notNull().default(0),
+  offsetStepMaxUm: real('offset_step_max_um').notNull().default(0),
+  offsetLastUm: real('offset_last_um'),
+  offsetLastTime: integer('offset_last_time'),
+  offsetsRejected: integer('offsets_rejected').notNull().default(0),
+  offsetsExpired: integer('offsets_expired').notNull().default(0),
+  /** the machine's other answers (dress, hold, resume, allowance) */
+  answers: integer('answers').notNull().default(0),
+  decisionsOffset: integer('decisions_offset').notNull().default(0),
+  decisionsHold: integer('decisions_hold').notNull().default(0),
+  decisionsStop: integer('decisions_stop').notNull().default(0),
+  decisionsDress: integer('decisions_dress').notNull().default(0),
+  /** decisions that changed nothing but raised an alert */
+  decisionsAlerted: integer('decisions_alerted').notNull().default(0),
+  commands: integer('commands').notNull().default(0),
+  commandsApplied: integer('commands_applied').notNull().default(0),
+  commandsRejected: integer('commands_rejected').notNull().default(0),
+  commandsExpired: integer('commands_expired').notNull().default(0),
+}, t => [primaryKey({ columns: [t.machineId, t.hourStart] })])
+
+/**
+ * A stretch an engineer keeps raw ("keep a night"): retention folds nothing of it, on one machine
+ * or (machine null) on every machine, until the pin is taken away (audited both ways).
+ */
+export const retentionPins = sqliteTable('retention_pins', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id'),
+  /** machine time, ms */
+  from: integer('from').notNull(),
+  to: integer('to').notNull(),
+  note: text('note').notNull(),
+  userId: integer('user_id').notNull(),
+  at: integer('at').notNull(),
+})
+
 // ── Shift-end summary e-mail: who asked for it, and each shift's sending (once per shift) ─────
 /** A user who wants the summary of each shift by e-mail when it ends. */
 export const shiftSummarySubscriptions = sqliteTable('shift_summary_subscriptions', {

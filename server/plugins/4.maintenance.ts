@@ -1,6 +1,7 @@
 // Scheduled upkeep: backups every OWLSHIFT_BACKUP_EVERY_H hours, and once an hour the retention
-// fold of old raw readings.
+// pass that folds old raw rows into hourly summaries (server/utils/retention.ts).
 import { databaseReady } from './0.database'
+import type { RetentionSettings } from '../utils/retention'
 
 export default defineNitroPlugin((nitroApp) => {
   const { maintenance, databaseUrl } = useOwlshiftConfig()
@@ -18,10 +19,20 @@ export default defineNitroPlugin((nitroApp) => {
       log.info(`[maintenance] backup ${f.name} (${(f.bytes / 1e6).toFixed(1)} MB)`)
     }, 'backup')
   }
-  if (maintenance.retentionDays > 0) {
+  const retention: RetentionSettings = {
+    readingsDays: maintenance.retentionDays, eventsDays: maintenance.retentionEventsDays,
+    decisionsDays: maintenance.retentionDecisionsDays, commandsDays: maintenance.retentionCommandsDays,
+  }
+  if (Object.values(retention).some(d => d > 0)) {
+    // passes follow one another while there is more to fold (after a long time without retention)
     const fold = async () => {
-      const { folded } = await foldOldReadings(maintenance.retentionDays)
-      if (folded) log.info(`[maintenance] folded ${folded} readings older than ${maintenance.retentionDays} days into hourly summaries`)
+      for (let pass = 0; pass < 1000; pass++) {
+        const r = await retentionPass(retention)
+        const folded = r.readings + r.cycleEvents + r.answers + r.decisions + r.snapshots + r.commands
+        if (folded) log.info(`[maintenance] retention folded ${r.readings} readings, ${r.cycleEvents} cycle events, ${r.answers} answers, ${r.decisions} decisions, ${r.snapshots} snapshots, ${r.commands} commands into hourly summaries (${Math.round(r.ms)} ms)`)
+        if (!r.more) return
+        await new Promise(resolve => setTimeout(resolve, 100))
+      }
     }
     databaseReady.then(fold).catch(err => log.error(`[maintenance] retention failed: ${(err as Error).message}`))
     every(3_600_000, fold, 'retention')

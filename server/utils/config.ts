@@ -23,6 +23,9 @@ const envSchema = z.object({
   OWLSHIFT_BACKUP_EVERY_H: z.coerce.number().min(0).default(24),
   OWLSHIFT_BACKUP_KEEP: z.coerce.number().int().min(1).default(7),
   OWLSHIFT_RETENTION_DAYS: z.coerce.number().min(0).default(180),
+  OWLSHIFT_RETENTION_EVENTS_DAYS: z.coerce.number().min(0).default(30),
+  OWLSHIFT_RETENTION_DECISIONS_DAYS: z.coerce.number().min(0).default(30),
+  OWLSHIFT_RETENTION_COMMANDS_DAYS: z.coerce.number().min(0).default(30),
   OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
   OWLSHIFT_HEARTBEAT_URL: z.url({ protocol: /^https?$/, error: 'must be the http(s) ping address of the check, e.g. https://hc-ping.com/<uuid>' }).optional(),
   OWLSHIFT_HEARTBEAT_EVERY_S: z.coerce.number().min(1).max(86_400).default(60),
@@ -67,6 +70,10 @@ export interface OwlshiftConfig {
     backupKeep: number
     /** raw readings older than this many days are summarised and removed; 0 = keep all */
     retentionDays: number
+    /** the same for the other raw rows (server/utils/retention.ts): cycle events and answers, decisions and snapshots, commands */
+    retentionEventsDays: number
+    retentionDecisionsDays: number
+    retentionCommandsDays: number
   }
   alarms: {
     /** every catalogue on/off delay × this (a demo at 4× real time: 0.25; 0: no delays) */
@@ -116,6 +123,9 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       backupEveryH: e.OWLSHIFT_BACKUP_EVERY_H,
       backupKeep: e.OWLSHIFT_BACKUP_KEEP,
       retentionDays: e.OWLSHIFT_RETENTION_DAYS,
+      retentionEventsDays: e.OWLSHIFT_RETENTION_EVENTS_DAYS,
+      retentionDecisionsDays: e.OWLSHIFT_RETENTION_DECISIONS_DAYS,
+      retentionCommandsDays: e.OWLSHIFT_RETENTION_COMMANDS_DAYS,
     },
     alarms: { delayScale: e.OWLSHIFT_ALARM_DELAY_SCALE },
     heartbeat: {

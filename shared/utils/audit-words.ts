@@ -17,6 +17,7 @@ const WORDS: Record<string, string> = {
   'alarm.acknowledge': 'acknowledged an alarm', 'alarm.shelve': 'shelved an alarm', 'alarm.unshelve': 'took an alarm off the shelf',
   'alarm.reset': 'reset an alarm at the machine', 'alarm.note': 'added a note to an alarm',
   'report.signoff': 'took a shift over', 'report.signoff-refused': 'was refused a second hand-over signature', 'report.note': 'wrote a shift note',
+  'retention.pin': 'kept a stretch raw (retention)', 'retention.unpin': 'stopped keeping a stretch raw',
   'report.calendar': 'changed the shift calendar', 'report.summary-subscription': 'changed the shift summary e-mail', 'report.email': 'e-mailed a report',
   'station.issue': 'issued a station code', 'station.redeem': 'registered a station', 'station.pin-set': 'set a station PIN', 'station.pin-failed': 'entered a wrong station PIN', 'station.sign-in': 'signed in at a station',
   'station.log.dress': 'logged a dress', 'station.log.wheel-change': 'logged a wheel change', 'station.log.mastering': 'logged gauge mastering',

@@ -48,6 +48,7 @@ describe('overnight report', async () => {
     return fetch(url(path), { method, headers: { 'content-type': 'application/json', cookie: cookies.get(role)! }, body: body === undefined ? undefined : JSON.stringify(body) })
   }
   const range = `/api/reports/range?cell=cell-a&from=${new Date(start).toISOString()}&to=${new Date(end).toISOString()}`
+  const reportShiftScopeOf = async (shift: string, date: string) => (await (await call('viewer', 'GET', `/api/reports/shift?cell=cell-a&shift=${shift}&date=${date}`)).json()).scope as { from: number, to: number }
 
   beforeAll(async () => {
     db = openTestDb(owl.dataDir)
@@ -155,6 +156,33 @@ describe('overnight report', async () => {
     expect(badRange.status).toBe(400)
     expect((await badRange.json()).message).toMatch(/from < to/)
     expect(Number((await db.execute(`select count(*) n from report_signoffs`)).rows[0]!.n)).toBe(2) // the night and one of the two taps; nothing else was stored
+  })
+
+  it('an engineer keeps a night raw from its report: saved, shown, audited, and let go again; others may not, bad input is refused', async () => {
+    const page = await signedInPage('engineer')
+    await page.goto(url('/report/cell-a/night/2026-03-02'), { waitUntil: 'networkidle' })
+    await page.getByLabel(/Keep this stretch raw/).fill('Kite out-of-round parts: audit by the customer')
+    await page.getByRole('button', { name: 'Keep raw' }).click()
+    const kept = page.locator('[data-test=kept]')
+    await kept.waitFor()
+    expect(await kept.textContent()).toContain(`by ${demoUser('engineer').name}: Kite out-of-round parts: audit by the customer`)
+    const night = await reportShiftScopeOf('night', '2026-03-02')
+    const pins = (await db.execute('select machine_id, "from", "to", note from retention_pins')).rows
+    expect(pins.map(r => [r.machine_id, Number(r.from), Number(r.to), r.note])).toEqual([[null, night.from, night.to, 'Kite out-of-round parts: audit by the customer']])
+    expect(Number((await db.execute(`select count(*) n from audit_log where action = 'retention.pin'`)).rows[0]!.n)).toBe(1)
+    // a viewer or a lead may not; a stretch of more than 7 days or backwards is refused with the reason
+    expect((await call('lead', 'POST', '/api/retention/pins', { from: night.from, to: night.to, note: 'x' })).status).toBe(403)
+    const long = await call('engineer', 'POST', '/api/retention/pins', { from: night.from, to: night.from + 8 * 24 * H, note: 'x' })
+    expect(long.status).toBe(400)
+    expect((await long.json()).message).toMatch(/at most 7 days/)
+    expect((await call('engineer', 'POST', '/api/retention/pins', { from: night.to, to: night.from, note: 'x' })).status).toBe(400)
+    expect((await call('engineer', 'POST', '/api/retention/pins', { machineId: 'cg-99', from: night.from, to: night.to, note: 'x' })).status).toBe(400)
+    // let go: the next retention pass folds it like the rest
+    await page.getByRole('button', { name: 'Stop keeping' }).click()
+    await kept.waitFor({ state: 'detached' })
+    expect(Number((await db.execute('select count(*) n from retention_pins')).rows[0]!.n)).toBe(0)
+    expect(Number((await db.execute(`select count(*) n from audit_log where action = 'retention.unpin'`)).rows[0]!.n)).toBe(1)
+    await page.close()
   })
 
   it('screens: the report on a phone and a desktop, dark and light, and printed to PDF', async () => {

@@ -89,6 +89,10 @@ export const routeAccess: Record<string, RouteRule> = {
   'reports/signoffs.post.ts': { access: ['lead'] },
   'reports/email.post.ts': { access: 'signed-in' },
   'reports/notes.post.ts': { access: ['lead', 'engineer', 'operator'] },
+  // Retention: keeping a stretch raw
+  'retention/pins/index.get.ts': { access: 'signed-in' },
+  'retention/pins/index.post.ts': { access: ['engineer', 'admin'], body: { from: 0, to: 1, note: '' } },
+  'retention/pins/[id].delete.ts': { access: ['engineer', 'admin'], params: { id: '999999' } },
   'reports/calendar.put.ts': { access: ['admin', 'engineer'] },
   // Jobs, compensation settings, replay
   'jobs/index.get.ts': { access: 'signed-in' },
