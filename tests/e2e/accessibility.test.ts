@@ -11,7 +11,8 @@ import { createRequire } from 'node:module'
 import { createPage, url } from '@nuxt/test-utils/e2e'
 import type { MqttClient } from 'mqtt'
 import type { Page } from 'playwright-core'
-import { setupOwlshift, demoCredentials, demoUser, signIn, sessionCookie } from './harness'
+import { join } from 'node:path'
+import { setupOwlshift, demoCredentials, demoUser, signIn, sessionCookie, artifactsDir, openTestDb } from './harness'
 import { payloadOf, topicFor, machineClient, publishAcked, CELL } from './mqtt-helpers'
 import type { MachineMessage } from '../../shared/utils/contract'
 import { shiftLastEnded, SHIFT_DEFAULT_PATTERN } from '../../shared/utils/shift-calendar'
@@ -42,7 +43,13 @@ class Machine {
   }
 
   private next(stepMs: number) { this.seq++; this.clock += stepMs; return { seq: this.seq, time: new Date(this.clock).toISOString() } }
-  send(m: MachineMessage) { return publishAcked(this.client, topicFor(this.id, m), payloadOf(m)) }
+  /** Publishes and waits for the broker's acknowledgement, failing clearly if none comes. */
+  send(m: MachineMessage) {
+    return Promise.race([
+      publishAcked(this.client, topicFor(this.id, m), payloadOf(m)),
+      new Promise((_, reject) => setTimeout(() => reject(new Error(`${this.id}: no acknowledgement for message ${m.seq} (connected: ${this.client.connected})`)), 10_000)),
+    ])
+  }
   birth() {
     return this.send({ ...this.next(0), kind: 'birth', session: 1, adapter: { name: 'test', version: '1' }, machine: { name: 'test', model: 'test' }, job: JOBS[this.id]!, execution: 'ACTIVE', offsetUm: 0, pipelineParts: 2, cycleTimeS: 18, wheelDiameterMm: 300 } as MachineMessage)
   }
@@ -95,13 +102,15 @@ async function setLook(page: Page, look: Look) {
 async function visit(page: Page, path: string) {
   const current = await page.evaluate(() => location.pathname + location.search).catch(() => '')
   if (current !== path) await page.evaluate(p => (window as any).useNuxtApp().$router.push(p), path)
-  await page.waitForFunction(p => location.pathname + location.search === p, path)
+  // Nuxt's own route moves on once the new page has rendered (the address changes before).
+  await page.waitForFunction(p => (window as any).useNuxtApp()._route.fullPath === p, path)
   await settle(page)
 }
 
 
 async function newPage(viewport = PHONE, theme: 'dark' | 'light' = 'dark') {
   const page = await createPage(undefined, { viewport })
+  page.setDefaultTimeout(20_000) // a step that cannot happen fails with its own words, not the test's time-out
   await page.addInitScript(countFetches)
   await page.context().addCookies([{ name: 'owlshift-theme', value: theme, url: url('/') }])
   return page
@@ -123,6 +132,44 @@ async function audit(page: Page, where: string): Promise<string[]> {
     return (r.violations as any[]).map(v => ({ id: v.id as string, help: v.help as string, nodes: (v.nodes as any[]).map(n => ({ target: (n.target as string[]).join(' '), summary: n.failureSummary as string })) }))
   }, { tags: WCAG_TAGS, rules: RULES_OFF })
   return violations.flatMap(v => v.nodes.map(n => `${v.id} · ${n.target} · ${where} — ${v.help}: ${n.summary.split('\n').slice(1, 2).join('').trim()}`))
+}
+
+/** Where the keyboard focus is, whether it shows a ring, and whether anything of the page covers it. */
+interface FocusStop { what: string, ring: string | null, seen: boolean, hit: boolean }
+
+/**
+ * Presses Tab (or Shift+Tab) until the focus is on an element matching `selector` (and `text`),
+ * recording every stop on the way: each must show a focus ring (WCAG 2.4.7: outline of 2 px or
+ * more, or a box shadow) and must not be hidden under the page's own sticky or fixed parts
+ * (WCAG 2.4.11: some of it can be hit at its own position).
+ */
+async function tabTo(page: Page, stops: FocusStop[], selector: string, opts: { text?: RegExp, back?: boolean, max?: number } = {}) {
+  for (let i = 0; i < (opts.max ?? 80); i++) {
+    await page.keyboard.press(opts.back ? 'Shift+Tab' : 'Tab')
+    const stop = await page.evaluate(({ selector, text }) => {
+      const focused = document.activeElement as HTMLElement | null
+      if (!focused || focused === document.body) return null
+      // A control hidden inside its label (a file input in a button-like label) shows its ring on the label.
+      const el = (focused.getBoundingClientRect().width <= 1 ? focused.closest('label') : null) ?? focused
+      const cs = getComputedStyle(el)
+      const ring = cs.outlineStyle !== 'none' && Number.parseFloat(cs.outlineWidth) >= 2 ? `outline ${cs.outlineWidth} ${cs.outlineColor}` : cs.boxShadow !== 'none' ? `shadow ${cs.boxShadow}` : null
+      const r = el.getBoundingClientRect()
+      const points = [[r.left + r.width / 2, r.top + r.height / 2], [r.left + 3, r.top + 3], [r.right - 3, r.top + 3], [r.left + 3, r.bottom - 3], [r.right - 3, r.bottom - 3]]
+      const seen = points.some(([x, y]) => {
+        if (x! < 0 || y! < 0 || x! >= innerWidth || y! >= innerHeight) return false
+        const top = document.elementFromPoint(x!, y!)
+        return !!top && (top === el || el.contains(top) || top.contains(el))
+      })
+      const name = (el.getAttribute('aria-label') ?? el.textContent ?? '').replace(/\s+/g, ' ').trim().slice(0, 50)
+      const hit = focused.matches(selector) && (!text || new RegExp(text).test(focused.textContent ?? ''))
+      return { what: `${el.tagName.toLowerCase()}${el.id ? `#${el.id}` : ''} "${name}" on ${location.pathname}`, ring, seen, hit }
+    }, { selector, text: opts.text?.source })
+    if (!stop) continue
+    stops.push(stop)
+    if (!stop.seen) await page.screenshot({ path: join(artifactsDir, `keyboard-hidden-${stops.length}.png`) })
+    if (stop.hit) return
+  }
+  throw new Error(`no ${selector}${opts.text ? ` ${opts.text}` : ''} reached by ${opts.back ? 'Shift+Tab' : 'Tab'}; last stops: ${stops.slice(-5).map(s => s.what).join(', ')}`)
 }
 
 describe('accessibility: WCAG 2.2 A/AA on every screen (axe-core)', async () => {
@@ -228,7 +275,7 @@ describe('accessibility: WCAG 2.2 A/AA on every screen (axe-core)', async () => 
     const out = await newPage()
     await out.goto(url('/sign-in'))
     await settle(out)
-    await auditIn(out, '/sign-in', ALL_LOOKS) // the first screen anyone sees
+    await auditIn(out, '/sign-in', CROSSED_OTHER)
     await out.fill('#email', demoUser('lead').email)
     await out.fill('#password', 'not the password')
     await out.click('button[type=submit]')
@@ -301,11 +348,105 @@ describe('accessibility: WCAG 2.2 A/AA on every screen (axe-core)', async () => 
     report(found)
     expect(found).toEqual([])
   })
-})
 
-function report(lines: string[], checks?: number) {
-  const byRule = new Map<string, number>()
-  for (const l of lines) { const id = l.split(' · ')[0]!; byRule.set(id, (byRule.get(id) ?? 0) + 1) }
-  if (lines.length) console.log(lines.join('\n'))
-  console.log(`[a11y] ${checks ? `${checks} page views checked; ` : ''}${lines.length} failing elements: ${[...byRule].map(([k, v]) => `${k} ×${v}`).join(', ')}`)
-}
+  it('the lead\'s night job by keyboard alone, with a focus ring on every stop: open the alert, acknowledge it, hold a machine through its cautions, sign the hand-over', async () => {
+    const page = await signedIn('lead')
+    await setLook(page, { size: 'desktop', theme: 'dark' })
+    const stops: FocusStop[] = []
+    const shot = (name: string) => page.screenshot({ path: join(artifactsDir, `keyboard-${name}.png`) })
+    // A new alarm while the lead has the cell open: Wren's loader jams.
+    await machines['cg-02']!.event('fault_raised', { fault: 'loader_jam' })
+    const alert = page.locator('[data-test=in-page-alert]', { hasText: 'Loader jam' })
+    await alert.waitFor()
+    await tabTo(page, stops, '[data-test=in-page-alert] a', { text: /Open/ })
+    await shot('1-alert-open')
+    await page.keyboard.press('Enter')
+    const detail = page.locator('[data-test=alarm-detail]', { hasText: 'Loader jam' })
+    await detail.waitFor()
+    await tabTo(page, stops, '[data-test=acknowledge]')
+    await shot('2-acknowledge')
+    await page.keyboard.press('Enter')
+    await expect.poll(() => detail.getAttribute('data-state')).toBe('acknowledged')
+
+    // To Kite through the main navigation and its card; hold it after its cycle.
+    await tabTo(page, stops, 'nav[aria-label=Main] a', { text: /^\s*Cell\s*$/, back: true })
+    await page.keyboard.press('Enter')
+    await page.waitForURL(u => u.pathname === '/')
+    await tabTo(page, stops, '[data-test=machine-card-cg-03] h2 a')
+    await page.keyboard.press('Enter')
+    await page.waitForURL(u => u.pathname === '/machines/cg-03')
+    await tabTo(page, stops, '[data-test=hold-open]')
+    await page.keyboard.press('Enter')
+    await page.locator('dialog[open]').waitFor()
+    await tabTo(page, stops, 'dialog[open] input:not([type=checkbox])')
+    await page.keyboard.type('coolant smell on Kite')
+    await tabTo(page, stops, 'dialog[open] [data-test=confirm-cautions]')
+    await page.keyboard.press('Space')
+    await tabTo(page, stops, 'dialog[open] [data-test=send-command]')
+    await shot('3-send-hold')
+    await page.keyboard.press('Enter')
+    await page.getByRole('status').filter({ hasText: 'Hold sent to Kite' }).waitFor()
+
+    // The report of the last shift: sign the hand-over.
+    await tabTo(page, stops, 'nav[aria-label=Main] a', { text: /Reports/, back: true })
+    await page.keyboard.press('Enter')
+    await page.waitForURL(u => u.pathname === '/report')
+    await tabTo(page, stops, `[data-test=shift-list] a[href="${shiftPath}"]`)
+    await page.keyboard.press('Enter')
+    await page.locator('[data-test=report]').waitFor()
+    await tabTo(page, stops, '#signoff-comment', { max: 120 })
+    await page.keyboard.type('Taken over. Heron stopped for its sizes, Kite held for a coolant smell.')
+    await tabTo(page, stops, '[data-test=signoff-form] button[type=submit]')
+    await shot('4-sign')
+    await page.keyboard.press('Enter')
+    await page.locator('[data-test=signed-by-me]').waitFor()
+
+    // An in-page alert sits over the page: Escape hides it and the focus stays where it was.
+    await page.keyboard.press('Shift+Tab')
+    const focusedBefore = await page.evaluate(() => document.activeElement?.outerHTML)
+    await machines['cg-02']!.event('fault_raised', { fault: 'wheel_contact_lost' })
+    await page.locator('[data-test=in-page-alert]', { hasText: 'Lost wheel contact' }).waitFor()
+    await page.keyboard.press('Escape')
+    await page.locator('[data-test=in-page-alert]').waitFor({ state: 'detached' })
+    expect(await page.evaluate(() => document.activeElement?.outerHTML)).toBe(focusedBefore)
+
+    // On a phone with a keyboard: every stop of the long report is clear of the top bar and the tab row.
+    await setLook(page, { size: 'phone', theme: 'dark' })
+    await page.reload()
+    await settle(page)
+    await tabTo(page, stops, '[data-test=email-report]', { max: 150 })
+    await page.close()
+
+    // What was done is saved: the acknowledgement, the hold with its reason, the signature.
+    const db = openTestDb(owl.dataDir)
+    try {
+      expect((await db.execute(`select state from alarms where machine_id = 'cg-02' and condition = 'fault:loader_jam'`)).rows.map(r => r[0])).toEqual(['acknowledged'])
+      const hold = (await db.execute(`select payload from commands where machine_id = 'cg-03' and type = 'hold'`)).rows.map(r => JSON.parse(String(r[0])) as { reason?: string })
+      expect(hold.map(h => h.reason)).toEqual(['coolant smell on Kite'])
+      expect(Number((await db.execute(`select count(*) from report_signoffs where comment like 'Taken over. Heron%'`)).rows[0]![0])).toBe(1)
+    }
+    finally { db.close() }
+    console.log(`[a11y] keyboard: ${stops.length} focus stops`)
+    expect(stops.filter(s => !s.ring).map(s => s.what), 'focused without a visible ring').toEqual([])
+    expect(stops.filter(s => !s.seen).map(s => s.what), 'focused but hidden under the page\'s own parts').toEqual([])
+  })
+
+  it('every control on every page shows its focus ring and is not hidden when the keyboard reaches it', async () => {
+    const page = await signedIn('admin')
+    await setLook(page, { size: 'desktop', theme: 'light' })
+    const stops: FocusStop[] = []
+    // The pages with forms (the cell, an alarm, the machine page and a shift's report are walked in the lead's job above).
+    for (const path of ['/report', '/jobs', `/jobs/${jobId}`, `/jobs/${jobId}/replay`, '/me', '/people', '/alerts']) {
+      await visit(page, path)
+      await page.reload() // the Tab order starts at the top
+      await settle(page)
+      // Every control of the page once (the count is a bound: some are hidden at this size).
+      const n = await page.locator(':is(a[href], button:not([disabled]), input:not([disabled]), select:not([disabled]), textarea:not([disabled]), summary, [tabindex="0"])').count()
+      await tabTo(page, stops, 'never-matches-anything', { max: Math.min(n, 150) }).catch(() => {})
+    }
+    await page.close()
+    console.log(`[a11y] focus rings: ${stops.length} stops`)
+    expect(stops.filter(s => !s.ring).map(s => s.what), 'focused without a visible ring').toEqual([])
+    expect(stops.filter(s => !s.seen).map(s => s.what), 'focused but hidden under the page\'s own parts').toEqual([])
+  })
+})
