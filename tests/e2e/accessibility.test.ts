@@ -449,4 +449,60 @@ describe('accessibility: WCAG 2.2 A/AA on every screen (axe-core)', async () => 
     expect(stops.filter(s => !s.ring).map(s => s.what), 'focused without a visible ring').toEqual([])
     expect(stops.filter(s => !s.seen).map(s => s.what), 'focused but hidden under the page\'s own parts').toEqual([])
   })
+
+  it('a new alarm is told to screen readers once, politely, assertively at top priority; the stream\'s updates are not', async () => {
+    const page = await signedIn('viewer')
+    await setLook(page, { size: 'desktop', theme: 'dark' })
+    await visit(page, '/')
+    // Every text a live region takes, in order (a region added with its text counts as saying it).
+    await page.evaluate(() => {
+      const w = window as unknown as { said: { level: string, text: string }[] }
+      w.said = []
+      const LIVE = '[aria-live], [role=status], [role=alert], [role=log]'
+      const last = new Map<Element, string>()
+      const textOf = (el: Element) => (el.textContent ?? '').replace(/\s+/g, ' ').trim()
+      const levelOf = (el: Element) => el.getAttribute('aria-live') ?? (el.getAttribute('role') === 'alert' ? 'assertive' : 'polite')
+      const note = (el: Element) => { const t = textOf(el); if (t && last.get(el) !== t) w.said.push({ level: levelOf(el), text: t }); last.set(el, t) }
+      for (const el of document.querySelectorAll(LIVE)) last.set(el, textOf(el))
+      new MutationObserver((changes) => {
+        for (const m of changes) {
+          const at = (m.target instanceof Element ? m.target : m.target.parentElement)?.closest(LIVE)
+          if (at) note(at)
+          for (const n of m.addedNodes) if (n instanceof Element) for (const el of [n, ...n.querySelectorAll(LIVE)]) if (el.matches(LIVE) && !at?.contains(el)) note(el)
+        }
+      }).observe(document.body, { subtree: true, childList: true, characterData: true })
+    })
+    const said = () => page.evaluate(() => (window as unknown as { said: { level: string, text: string }[] }).said)
+    const kite = page.locator('[data-test=machine-card-cg-03]')
+    // Stream updates alone: parts on Kite (its card changes), nothing is said.
+    const before = await kite.innerText()
+    for (let i = 0; i < 5; i++) await machines['cg-03']!.part(0.2 * i)
+    await expect.poll(() => kite.innerText()).not.toBe(before)
+    await page.waitForTimeout(1000)
+    expect(await said()).toEqual([])
+    // A high alarm, then more updates, and the same alarm clearing: said once, politely.
+    await machines['cg-01']!.event('fault_raised', { fault: 'coolant_fault' })
+    await expect.poll(said).toHaveLength(1)
+    for (let i = 0; i < 5; i++) await machines['cg-03']!.part(-0.2 * i)
+    await machines['cg-01']!.event('fault_cleared', { fault: 'coolant_fault' })
+    await page.waitForTimeout(1500)
+    expect(await said()).toEqual([{ level: 'polite', text: 'New high priority alarm: Heron: Coolant fault.' }])
+    // The top priority: said at once (assertive), once.
+    await machines['cg-03']!.event('fault_raised', { fault: 'fire_alarm' })
+    await expect.poll(said).toHaveLength(2)
+    for (let i = 0; i < 3; i++) await machines['cg-02']!.part(-4)
+    await page.waitForTimeout(1500)
+    const all = await said()
+    expect(all).toHaveLength(2)
+    expect(all[1]!.level).toBe('assertive')
+    expect(all[1]!.text).toMatch(/^New top priority alarm: .*Fire alarm\.$/)
+    await page.close()
+  })
 })
+
+function report(lines: string[], checks?: number) {
+  const byRule = new Map<string, number>()
+  for (const l of lines) { const id = l.split(' · ')[0]!; byRule.set(id, (byRule.get(id) ?? 0) + 1) }
+  if (lines.length) console.log(lines.join('\n'))
+  console.log(`[a11y] ${checks ? `${checks} page views checked; ` : ''}${lines.length} failing elements: ${[...byRule].map(([k, v]) => `${k} ×${v}`).join(', ')}`)
+}
