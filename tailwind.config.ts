@@ -42,6 +42,10 @@ export default {
       borderRadius: { card: '0.9rem' },
       maxWidth: { shell: '110rem' },
     },
+    // Breakpoints in em, which follow the text size a person sets in the browser: at 200 % text a
+    // desktop gets the layout of a screen half as wide instead of squeezed columns (WCAG 1.4.4).
+    // At the usual 16 px they are Tailwind's own 640 / 768 / 1024 / 1280 / 1536 px.
+    screens: { sm: '40em', md: '48em', lg: '64em', xl: '80em', '2xl': '96em' },
   },
   plugins: [],
 } satisfies Config

@@ -450,6 +450,89 @@ describe('accessibility: WCAG 2.2 A/AA on every screen (axe-core)', async () => 
     expect(stops.filter(s => !s.seen).map(s => s.what), 'focused but hidden under the page\'s own parts').toEqual([])
   })
 
+  it('reflows at 320 px and takes 200 % text without sideways scrolling or cut-off words; motion stops when the person asks for less', async () => {
+    const page = await signedIn('admin')
+    await page.emulateMedia({ reducedMotion: 'reduce' })
+    const paths = ['/', '/?wall=1', '/alarms', `/alarms?open=${alarmId}`, '/machines/cg-01', '/report', shiftPath, rangePath, '/jobs', `/jobs/${jobId}`, `/jobs/${jobId}/replay`, '/me', '/people', '/alerts', '/audit']
+    const problems: string[] = []
+    const check = async (where: string, width: number) => {
+      const r = await page.evaluate(() => {
+        const what = (el: Element) => `${el.tagName.toLowerCase()}${el.getAttribute('data-test') ? `[data-test=${el.getAttribute('data-test')}]` : ''} "${(el.textContent ?? '').replace(/\s+/g, ' ').trim().slice(0, 40)}"`
+        const all = [...document.querySelectorAll('body *')] as HTMLElement[]
+        // Text a box cuts off: it hides its overflow and its content is larger than it (sr-only text excepted).
+        const cut = all.filter((el) => {
+          if (el.classList.contains('sr-only') || !el.textContent?.trim() || !el.getClientRects().length) return false
+          const cs = getComputedStyle(el)
+          const x = ['hidden', 'clip'].includes(cs.overflowX) && el.scrollWidth > el.clientWidth + 1
+          const y = ['hidden', 'clip'].includes(cs.overflowY) && el.scrollHeight > el.clientHeight + 1
+          return x || y
+        }).map(what)
+        // Text squeezed into a column a few letters wide (its words broken letter by letter).
+        const squeezed = all.filter((el) => {
+          const own = [...el.childNodes].filter(n => n.nodeType === Node.TEXT_NODE).map(n => n.textContent ?? '').join('').trim()
+          if (own.length < 6 || el.classList.contains('sr-only') || !el.getClientRects().length) return false
+          return el.getBoundingClientRect().width < 2.5 * Number.parseFloat(getComputedStyle(el).fontSize)
+        }).map(what)
+        // Motion: any CSS animation or transition that lasts (the reduced-motion rule in main.css cuts them to 0.01 ms).
+        const ms = (t: string) => Math.max(...t.split(',').map(v => (v.trim().endsWith('ms') ? Number.parseFloat(v) : Number.parseFloat(v) * 1000)))
+        const moving = all.filter((el) => { const cs = getComputedStyle(el); return (cs.animationName !== 'none' && ms(cs.animationDuration) > 0.1) || ms(cs.transitionDuration) > 0.1 }).map(what)
+        // What sticks out on the right: the innermost boxes past the screen's edge.
+        const past = all.filter(el => el.getBoundingClientRect().right > innerWidth + 1 && ![...el.children].some(c => c.getBoundingClientRect().right > innerWidth + 1)).slice(0, 3).map(what)
+        return { width: document.documentElement.scrollWidth, cut, squeezed, moving, past }
+      })
+      if (r.width > width) problems.push(`${where}: ${r.width} px wide (past the edge: ${r.past.join(', ')})`)
+      problems.push(...r.cut.map(c => `${where}: cut off ${c}`), ...r.squeezed.map(c => `${where}: squeezed ${c}`), ...r.moving.map(m => `${where}: moves ${m}`))
+    }
+    // WCAG 1.4.10 Reflow: 320 CSS px wide (a 1280 px screen at 400 %).
+    await setLook(page, { size: 'phone', theme: 'dark' })
+    await page.setViewportSize({ width: 320, height: 640 })
+    for (const path of paths) { await visit(page, path); await check(`${path} at 320 px`, 320); if (process.env.A11Y_SHOTS) await page.screenshot({ path: join(artifactsDir, `r320-${path.replace(/\W+/g, '_').slice(0, 40)}.png`), fullPage: true }) }
+    await page.screenshot({ path: join(artifactsDir, 'reflow-320-alerts.png'), fullPage: true })
+    // WCAG 1.4.4 Resize text: the browser's text size at 200 % (its default font 16 → 32 px, as a
+    // person sets it; the layout's breakpoints are in em and follow it) on a desktop.
+    await setLook(page, { size: 'desktop', theme: 'light' })
+    const cdp = await page.context().newCDPSession(page)
+    await cdp.send('Page.setFontSizes', { fontSizes: { standard: 32, fixed: 26 } })
+    await page.reload() // the page takes the new size when it is laid out afresh
+    await settle(page)
+    expect(await page.evaluate(() => getComputedStyle(document.body).fontSize)).toBe('32px')
+    for (const path of paths) { await visit(page, path); await check(`${path} at 200 % text`, DESKTOP.width); if (process.env.A11Y_SHOTS) await page.screenshot({ path: join(artifactsDir, `t200-${path.replace(/\W+/g, '_').slice(0, 40)}.png`) }) }
+    await visit(page, '/')
+    await page.screenshot({ path: join(artifactsDir, 'text-200-cell.png') }) // not the full page: that resets the text size
+    await cdp.send('Page.setFontSizes', { fontSizes: { standard: 16, fixed: 13 } })
+    await page.reload()
+    await settle(page)
+
+    // The check sees motion: a box with a 1 s transition moves while motion is allowed, and not once less is asked for.
+    await page.evaluate(() => { const d = document.createElement('div'); d.id = 'motion-probe'; d.textContent = 'probe'; d.style.transition = 'opacity 1s'; document.body.append(d) })
+    const probe = () => page.evaluate(() => Number.parseFloat(getComputedStyle(document.getElementById('motion-probe')!).transitionDuration) * 1000)
+    expect(await probe()).toBeLessThan(0.1)
+    await page.emulateMedia({ reducedMotion: 'no-preference' })
+    expect(await probe()).toBe(1000)
+    await page.emulateMedia({ reducedMotion: 'reduce' })
+    await page.evaluate(() => document.getElementById('motion-probe')!.remove())
+    // The size chart draws a new part at once, without animating to it (its canvas changes once).
+    await visit(page, '/machines/cg-03')
+    const chart = page.locator('[data-test=size-chart]')
+    const points = Number(await chart.getAttribute('data-points'))
+    const frames = page.evaluate(() => new Promise<number>((resolve) => {
+      const seen = new Set<string>()
+      const until = performance.now() + 2500
+      const tick = () => {
+        const c = document.querySelector('[data-test=size-chart] canvas') as HTMLCanvasElement | null
+        if (c) seen.add(c.toDataURL())
+        if (performance.now() < until) requestAnimationFrame(tick); else resolve(seen.size)
+      }
+      tick()
+    }))
+    await machines['cg-03']!.part(0.6)
+    expect(await frames, 'distinct pictures of the chart while one part arrives').toBeLessThanOrEqual(2)
+    expect(Number(await chart.getAttribute('data-points'))).toBe(points + 1)
+    await page.close()
+    if (problems.length) console.log(problems.join('\n'))
+    expect(problems).toEqual([])
+  })
+
   it('a new alarm is told to screen readers once, politely, assertively at top priority; the stream\'s updates are not', async () => {
     const page = await signedIn('viewer')
     await setLook(page, { size: 'desktop', theme: 'dark' })
