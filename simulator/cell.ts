@@ -21,8 +21,8 @@
 //   plant's latency, acked then), dress (done before the next part, acked then), hold
 //   (FEED_HOLD at once), resume (refused while a fault is active); expired commands are
 //   acked "expired"; a repeated command id is acked again with the first result.
-//   Allowance (docs/mqtt.md#the-allowance; with `obeyAllowance`): every command received in
-//   time brings the allowance it carries; a part is started only within the allowance held, after
+//   Allowance (docs/mqtt.md#the-allowance; with `obeyAllowance`): every command received (even
+//   expired) brings the allowance it carries; a part is started only within the allowance held, after
 //   a dress, wheel change, mastering, job change, gauge fault or restart only with a grant based on
 //   it. Short of one, the machine finishes the part in the wheel, waits one cycle for a renewal,
 //   then holds (FEED_HOLD, holdCauses ["allowance"]) and keeps journaling; a resume ends the hold.
@@ -568,7 +568,8 @@ export function createCell(options: CellOptions): Cell {
       const previous = m.acks.get(command.id)
       if (previous === 'pending') return
       if (previous) { const { seq: _s, time: _t, ...again } = previous; emit<AckMessage>(m, again); return }
-      if (now * 1000 + startMs > Date.parse(command.expiresAt)) { ack(m, command, 'expired', `received at ${isoAt(now)}, after its expiry ${command.expiresAt}`); return }
+      // The allowance counts whenever it arrives (it names part serials, not a time): taken even
+      // from a command that came too late for the rest of it (docs/mqtt.md#the-allowance).
       if (options.obeyAllowance && command.allowance) {
         m.allowance = heldAllowanceAfter(m.allowance, command.allowance)
         if (!m.everGranted) { m.everGranted = true; updateExecution(m) }
@@ -578,6 +579,7 @@ export function createCell(options: CellOptions): Cell {
           agenda.push(now, m.index, { kind: 'load', token: m.token })
         }
       }
+      if (now * 1000 + startMs > Date.parse(command.expiresAt)) { ack(m, command, 'expired', `received at ${isoAt(now)}, after its expiry ${command.expiresAt}`); return }
       switch (command.type) {
         case 'allowance':
           ack(m, command, 'applied')

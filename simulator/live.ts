@@ -106,9 +106,9 @@ export async function startSimulator(options: SimulatorOptions): Promise<Running
   cell = createCell({
     scenario, seed: options.seed, machines: specs.length, startMs, lastSeq, obeyAllowance: options.obeyAllowance ?? true,
     // Fast-forwarded, a renewal's trip through a busy server takes many simulated seconds: a machine
-    // waits at least 1.5 s of wall time (and four ticks) for one before it holds; a real machine
+    // waits at least 3 s of wall time (and four ticks) for one before it holds; a real machine
     // waits its cycle time. While it waits it starts no part, so the wait costs time, never size.
-    allowanceWaitS: options.allowanceWaitS ?? Math.max(1.5, (4 * (options.tickMs ?? 50)) / 1000) * options.speed,
+    allowanceWaitS: options.allowanceWaitS ?? Math.max(3, (4 * (options.tickMs ?? 50)) / 1000) * options.speed,
     onMessage: (machineId, message) => { options.onMessage?.(machineId, message); links.get(machineId)!.publish(message) },
   })
   const theCell = cell

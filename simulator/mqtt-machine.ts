@@ -155,11 +155,14 @@ export class MachineLink {
       this.inFlight = 0
       this.options.onLog?.(`${machine}: connected (session ${session})`)
       this.presenceSeen = false
+      // Subscribed before it announces itself: the answer to its birth (its first allowance) must not
+      // pass by before the subscription stands.
       client.subscribe([mqttTopics.command(cell, machine), serverPresenceTopic], { qos: 1 }, (err) => {
         if (err) this.options.onLog?.(`${machine}: cannot subscribe to commands: ${err.message}`)
+        if (this.client !== client || !this.connected) return
+        this.options.onConnected(session)
+        this.pump()
       })
-      this.options.onConnected(session)
-      this.pump()
     })
     client.on('message', (topic, payload) => {
       if (topic === serverPresenceTopic) { this.onServerPresence(session, payload); return }

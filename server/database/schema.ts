@@ -223,6 +223,24 @@ export const sequenceGaps = sqliteTable('sequence_gaps', {
   detectedAt: integer('detected_at').notNull(),
 }, t => [index('gaps_machine').on(t.machineId)])
 
+/**
+ * A stretch of a machine's messages that came late: from the server's start (cause 'server-start')
+ * or the machine's will ('connection-lost') to its next birth, which is live (docs/mqtt.md#coming-back).
+ * The engine caught up on them without commanding; the report's outage entry counts them.
+ */
+export const lateSpans = sqliteTable('late_spans', {
+  id: integer('id').primaryKey({ autoIncrement: true }),
+  machineId: text('machine_id').notNull(),
+  cause: text('cause', { enum: ['server-start', 'connection-lost'] }).notNull(),
+  fromSeq: integer('from_seq').notNull(),
+  /** the last seq that came late (the birth's seq − 1) */
+  toSeq: integer('to_seq').notNull(),
+  /** server clock: when the birth ended it */
+  endedAt: integer('ended_at').notNull(),
+  /** machine clock: the birth's time */
+  liveAt: integer('live_at').notNull(),
+}, t => [index('late_spans_machine').on(t.machineId, t.endedAt)])
+
 /** Payloads that failed validation, kept with the reason. */
 export const deadLetters = sqliteTable('dead_letters', {
   id: integer('id').primaryKey({ autoIncrement: true }),

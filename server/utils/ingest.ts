@@ -233,6 +233,7 @@ export class IngestPipeline {
       ctx.tuning = loop.tuning
       ctx.trendRaised = loop.trendRaised
       ctx.catchingUp = loop.catchingUp
+      ctx.lateFrom = loop.lateFrom
       effects.live.push({ type: 'status', machineId: ctx.id, status: liveStatusView(ctx) })
     }
     for (const d of dead) if (d.machineId) effects.conditions.push({ machineId: d.machineId, condition: 'link:bad-data', active: true, message: `bad data from ${d.machineId}: ${d.reason}`, at: now })
@@ -351,6 +352,7 @@ function statementsOf({ rows, machines }: Fold, dead: DeadLetterRow[], now: numb
     ...insertStatements(schema.deadLetters, dead),
     ...insertStatements(schema.presenceLog, rows.presence),
     ...insertStatements(schema.sequenceGaps, rows.gaps),
+    ...insertStatements(schema.lateSpans, rows.lateSpans),
     ...insertStatements(schema.engineSnapshots, rows.snapshots),
   ]
   for (const u of rows.answers) {

@@ -46,6 +46,7 @@ export async function loadMachineRegistry(opts: { atStart?: boolean } = {}) {
       id: m.id, cellId: m.cellId, name: m.name, job: m.currentJobId ? jobs.get(m.currentJobId) ?? null : null, status, engine, tuning,
       outstanding: outstanding.get(m.id) ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock,
       trendRaised: trendRaised.has(m.id), catchingUp: opts.atStart ? true : prev?.catchingUp ?? false, personResumes: m.resumeAfterOutage === 'person',
+      lateFrom: opts.atStart ? { seq: status.lastSeq + 1, cause: 'server-start' } : prev?.lateFrom ?? null,
     })
   }
   // Swapped in at once: a machine connecting during the reload must not find itself missing.
@@ -97,7 +98,7 @@ export async function refreshMachineContext(id: string) {
   registry.set(id, {
     id, cellId: m.cellId, name: m.name, job: job ?? null, status: prev?.status ?? emptyMachineStatus(id), engine: prev?.engine ?? null, tuning,
     outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock, trendRaised: prev?.trendRaised ?? false,
-    catchingUp: prev?.catchingUp ?? false, personResumes: m.resumeAfterOutage === 'person',
+    catchingUp: prev?.catchingUp ?? false, lateFrom: prev?.lateFrom ?? null, personResumes: m.resumeAfterOutage === 'person',
   })
 }
 

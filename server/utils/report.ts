@@ -15,6 +15,7 @@ import {
   type KpiDowntime, type KpiIndices, type KpiInputs, type KpiMachineEvent, type KpiRepair, type KpiTimeModel,
 } from '../../shared/utils/kpi'
 import { gapArrivedSql, reportContactEvents, reportGapEvents, type ReportKnownPresence } from './report-time'
+import { outagesOf, type ReportOutage } from './report-outages'
 import {
   spcCapability, spcMean, spcOverallSigma, spcRunRules, spcWithinSigmaMovingRange, SPC_RUN_RULE_TEXT, SPC_WESTERN_ELECTRIC_RULES,
   type SpcRunRule,
@@ -228,6 +229,8 @@ export interface Report {
   machines: ReportMachine[]
   alarms: ReportAlarms
   completeness: ReportCompleteness
+  /** when Owlshift itself was away, and what each machine did meanwhile (report-outages.ts) */
+  outages: ReportOutage[]
   notes: { id: number; at: number; machineId: string | null; author: string; text: string }[]
   signoffs: { id: number; at: number; userId: number; name: string; comment: string }[]
 }
@@ -490,11 +493,12 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
   const scrapAll = new Map<string, number>()
   for (const m of machines) for (const s of m.scrapByReason) scrapAll.set(s.reason, (scrapAll.get(s.reason) ?? 0) + s.count)
 
-  const [alarms, completeness, notes, signoffs] = await Promise.all([
+  const [alarms, completeness, notes, signoffs, outages] = await Promise.all([
     alarmsOf(db, ids, from, to, measuredTo, !scope.machineId),
     completenessOf(db, ids, from, Math.max(measuredTo, from + 1), readingCount, hourLists.reduce((a, h) => a + Number(h.n) + Number(h.faults), 0)),
     notesOf(db, ids, from, to, !scope.machineId),
     scope.shift ? signoffsOf(db, scope.cellId, scope.shift) : Promise.resolve([]),
+    outagesOf(db, ids, from, to),
   ])
 
   return {
@@ -507,7 +511,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
       machinesWithoutData: machines.filter((m) => m.noDataMs > 0 && m.kpiInputs.pbt === 0).map((m) => m.id),
       mttrMs: repairedMttr(allRepairs), failures: allRepairs.filter((r) => r.repaired).length, openFailures: allRepairs.filter((r) => !r.repaired).length,
     },
-    machines, alarms, completeness, notes, signoffs,
+    machines, alarms, completeness, outages, notes, signoffs,
   }
 }
 
@@ -1173,6 +1177,7 @@ export async function buildShiftSummary(db: ReportDb, cellId: string, shift: Pic
     r.alarms.reached.length ? `Woken: ${r.alarms.reached.filter((p) => p.alarms).map((p) => `${p.name} for ${p.alarms} (${p.needed} needed)`).join(', ') || 'nobody'}.` : '',
     r.completeness.missingSequenceNumbers || r.completeness.deadLetters ? `Data: ${r.completeness.missingSequenceNumbers} messages missing, ${r.completeness.deadLetters} refused.` : 'Data: complete.',
     r.notes.length ? `${r.notes.length} note(s) left during the shift.` : '',
+    ...r.outages.map((o) => `Owlshift was away ${Math.max(1, Math.round((o.to - o.from) / 60_000))} min (${o.planned ? 'a planned stop' : 'stopped without a word'}): ${o.machines.reduce((a, m) => a + m.partsGroundOnAllowance, 0)} parts ground on their allowance, ${o.machines.reduce((a, m) => a + m.partsOutOfTolerance, 0)} out of tolerance.`),
     `Report: ${link}`,
   ].filter(Boolean)
   return { subject: `${r.scope.cellName}: ${scope.shift!.name} ${shift.date} — ${r.totals.good} good, ${r.totals.scrap} scrap`, text: lines.join('\n'), link }

@@ -145,7 +145,7 @@ export function allowanceRenewalDue(sent: AllowanceState['sent'], next: Allowanc
 
 // ── the machine's side (contract rule; the simulator's machines run it) ──────────────────────
 
-/** The grant a machine holds after a command with one arrived in time: the newest basis wins (a tie: the later arrival). */
+/** The grant a machine holds after a command with one arrived (in time or late): the newest basis wins (a tie: the later arrival). */
 export function heldAllowanceAfter(held: AllowanceGrant | null, incoming: AllowanceGrant | undefined): AllowanceGrant | null {
   if (!incoming) return held
   return !held || incoming.basedOnSeq >= held.basedOnSeq ? { throughPart: incoming.throughPart, basedOnSeq: incoming.basedOnSeq } : held

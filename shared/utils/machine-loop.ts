@@ -107,6 +107,8 @@ export interface MachineLoop<J extends MachineJobRecord = MachineJobRecord> {
    * but no command goes out on them, and no allowance beyond the part in the wheel.
    */
   catchingUp?: boolean
+  /** while catching up: the first seq that came late, and why (the server started, or the machine's will) */
+  lateFrom?: { seq: number, cause: LateSpanRow['cause'] } | null
   /** after a hold for its allowance a person resumes it, not Owlshift (the machine's setting) */
   personResumes?: boolean
 }
@@ -138,6 +140,8 @@ export type CommandRow = {
 }
 export type PresenceRow = { machineId: string, at: number, online: boolean, session: number | null, reason: string, machineTime: number | null }
 export type GapRow = { machineId: string, fromSeq: number, toSeq: number, detectedAt: number }
+/** Messages that came late, ended by a live birth (server clock `endedAt`, machine clock `liveAt`). */
+export type LateSpanRow = { machineId: string, cause: 'server-start' | 'connection-lost', fromSeq: number, toSeq: number, endedAt: number, liveAt: number }
 /** A machine answered a command: only the machine the command went to may change it. */
 export type CommandAnswer = { id: string, machineId: string, status: string, appliedOffsetUm: number, ackAt: number, ackReason: string | null }
 
@@ -148,6 +152,7 @@ export interface MachineLoopRows {
   commands: CommandRow[]
   presence: PresenceRow[]
   gaps: GapRow[]
+  lateSpans: LateSpanRow[]
   answers: CommandAnswer[]
   snapshots: SnapshotRow[]
   /** the per-part messages and offset answers, compact (cycle-events.ts) */
@@ -162,12 +167,13 @@ export function appendLoopRows(into: MachineLoopRows, from: MachineLoopRows) {
   for (const r of from.commands) into.commands.push(r)
   for (const r of from.presence) into.presence.push(r)
   for (const r of from.gaps) into.gaps.push(r)
+  for (const r of from.lateSpans) into.lateSpans.push(r)
   for (const r of from.answers) into.answers.push(r)
   for (const r of from.snapshots) into.snapshots.push(r)
   for (const r of from.cycleEvents) into.cycleEvents.push(r)
 }
 
-export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], answers: [], snapshots: [], cycleEvents: [] })
+export const emptyLoopRows = (): MachineLoopRows => ({ readings: [], messages: [], decisions: [], commands: [], presence: [], gaps: [], lateSpans: [], answers: [], snapshots: [], cycleEvents: [] })
 
 export interface AlarmCondition {
   machineId: string | null
@@ -343,6 +349,7 @@ class Step<J extends MachineJobRecord> {
   readonly live: MachineLoopLiveEvent[] = []
   jobDecision: CompensationDecision | null = null
   catchingUp: boolean
+  lateFrom: MachineLoop['lateFrom']
   resumeCandidate = false
   /** the machine's time of the message (null for a will or a change from the web) */
   time: number | null = null
@@ -357,6 +364,7 @@ class Step<J extends MachineJobRecord> {
     this.tuning = m.tuning
     this.trendRaised = m.trendRaised
     this.catchingUp = !!m.catchingUp
+    this.lateFrom = m.lateFrom ?? null
   }
 
   reportedGet(condition: string) { return (this.reported ?? this.m.reportedConditions).get(condition) }
@@ -504,6 +512,7 @@ class Step<J extends MachineJobRecord> {
       ...m, status: this.status, engine: this.engine, outstanding: this.outstanding, reportedConditions: this.reported ?? m.reportedConditions,
       clockOffsetMs: this.clockOffsetMs, clock: this.clock, job: this.job, tuning: this.tuning, trendRaised: this.trendRaised,
       ...(this.catchingUp !== !!m.catchingUp ? { catchingUp: this.catchingUp } : {}),
+      ...(this.lateFrom !== (m.lateFrom ?? null) ? { lateFrom: this.lateFrom } : {}),
     }
     return { machine, rows: this.rows, commands: this.commands, conditions: this.conditions, live: this.live, jobDecision: this.jobDecision, unchanged, resumeCandidate: this.resumeCandidate }
   }
@@ -587,6 +596,7 @@ function onDeath<J extends MachineJobRecord>(s: Step<J>, message: DeathMessage):
   const deathTime = message.time ? msOf(message.time) : s.clockOffsetMs === undefined ? null : s.now + s.clockOffsetMs
   s.rows.presence.push({ machineId: s.m.id, at: s.now, online: false, session: message.session, reason: message.reason, machineTime: deathTime })
   s.catchingUp = true // what it sends next is its backlog, until its birth
+  s.lateFrom ??= { seq: st.lastSeq + 1, cause: 'connection-lost' }
   s.condition('link:offline', true, `${s.m.name} went offline (${message.reason === 'shutdown' ? 'shut down' : 'connection lost'})`, deathTime)
   return true
 }
@@ -620,6 +630,10 @@ function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessa
 function onBirth<J extends MachineJobRecord>(s: Step<J>, message: BirthMessage) {
   const st = s.status
   s.catchingUp = false // sent live, after any backlog
+  if (s.lateFrom && message.seq > s.lateFrom.seq) {
+    s.rows.lateSpans.push({ machineId: s.m.id, cause: s.lateFrom.cause, fromSeq: s.lateFrom.seq, toSeq: message.seq - 1, endedAt: s.now, liveAt: s.time! })
+  }
+  s.lateFrom = null
   const wasRunning = st.online
   const executionBefore = st.execution
   // A birth naming another job than the one running means the job changed while the machine

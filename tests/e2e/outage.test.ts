@@ -1,5 +1,5 @@
 // When Owlshift itself goes quiet (docs/operations.md#when-owlshift-itself-goes-quiet), with real
-// processes: the built server (a child we kill), simulated machines over MQTT at 240× real time,
+// processes: the built server (a child we kill), simulated machines over MQTT at 60× real time,
 // and the local stand-in for the hosted heartbeat monitor (scripts/lib/heartbeat-fake.ts).
 // - kill -9 with the embedded broker: the monitor turns late, then down within its grace; each
 //   machine grinds no more than its allowance, none of those parts out of tolerance, and holds;
@@ -18,8 +18,10 @@ import { startSimulator, type RunningSimulator } from '../../simulator/live'
 import { loadScenarioFile, machinesFor } from '../../simulator/scenario'
 import { startHeartbeatFake, type HeartbeatFake, type FakeCheckStatus } from '../../scripts/lib/heartbeat-fake'
 
-const SPEED = 240
-const MAX_MIN = 10 // the allowance cap (OWLSHIFT_ALLOWANCE_MAX_MIN), short so the machines hold within the outage
+// 60×: a command's life on the machine's clock (a resume: 5 min) is still 5 s of wall time, enough
+// for a server taking in four backlogs at once.
+const SPEED = 60
+const MAX_MIN = 5 // the allowance cap (OWLSHIFT_ALLOWANCE_MAX_MIN), short so the machines hold within the outage
 const scenario = loadScenarioFile('simulator/scenarios/quiet-night.json')
 
 const wait = (ms: number) => new Promise(r => setTimeout(r, ms))
@@ -82,23 +84,25 @@ async function killAndWatch(p: Plant) {
   expect(p.fake.check(p.check)).toMatchObject({ timeoutS: 1, graceS: 2 }) // set by Owlshift through the management API
   await until(async () => (await health(p)).heartbeat.lastPing?.kind === 'success', 'health to show the success ping')
   expect((await health(p)).heartbeat.lastPing).toMatchObject({ kind: 'success', answer: '200 OK', ok: true })
-  await wait(10_000) // 40 simulated minutes: engines learnt, allowances granted
-  expect(executions(p.sim).every(e => e === 'ACTIVE'), JSON.stringify(p.sim.cell.summary().machines.map(m => [m.id, m.execution, m.activeFaults, m.allowanceHolds]))).toBe(true)
+  await wait(10_000) // 10 simulated minutes: engines learnt, allowances granted
+  await until(() => executions(p.sim).every(e => e === 'ACTIVE'), 'every machine grinding')
+  const holdsBefore = new Map(p.sim.cell.summary().machines.map(m => [m.id, m.allowanceHolds]))
   const alertsBefore = p.fake.check(p.check)!.alerts.length
+  const killedAt = Date.now()
   await killServer(p.server, 'SIGKILL')
   const monitor = await watchMonitor(p, 'down', 10_000)
   // every machine stands within its allowance: the part in the wheel, then a hold
   await until(() => executions(p.sim).every(e => e === 'FEED_HOLD'), 'every machine to hold on its allowance', 20_000)
-  const away = p.sim.cell.summary().machines
-  return { monitor, away, alertsBefore }
+  const away = p.sim.cell.summary().machines.map(m => ({ ...m, allowanceHolds: m.allowanceHolds - holdsBefore.get(m.id)! }))
+  return { monitor, away, alertsBefore, killedAt }
 }
 
-function expectHeldWithinAllowance(away: ReturnType<RunningSimulator['cell']['summary']>['machines']) {
+function expectHeldWithinAllowance(away: Awaited<ReturnType<typeof killAndWatch>>['away']) {
   const cycle = new Map(machinesFor(scenario, 4).map(m => [m.id, m.cycleTimeS]))
   for (const m of away) {
     expect(m.sinceLastWord.parts, m.id).toBeLessThanOrEqual(Math.floor((1.1 * MAX_MIN * 60) / cycle.get(m.id)!) + 1)
     expect(m.sinceLastWord.trulyOut, `${m.id}: parts out of tolerance ground on its allowance`).toBe(0)
-    expect(m.allowanceHolds, m.id).toBeGreaterThanOrEqual(1)
+    expect(m.allowanceHolds, `${m.id}: holds since the kill`).toBe(1)
   }
 }
 
@@ -132,17 +136,46 @@ async function restartAndCatchUp(p: Plant) {
   finally { db.close() }
 }
 
+/** The morning report over the simulated night, as the viewer reads it. */
+async function nightReport(p: Plant) {
+  const base = `http://127.0.0.1:${p.port}`
+  const signIn = await fetch(`${base}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: 'eli@larkspur.example', password: 'owlshift-demo' }) })
+  const cookie = signIn.headers.getSetCookie().map(c => c.split(';')[0]).join('; ')
+  const from = Date.parse(scenario.start)
+  const res = await fetch(`${base}/api/reports/range?cell=cell-a&from=${new Date(from).toISOString()}&to=${new Date(from + 3 * 3_600_000).toISOString()}`, { headers: { cookie } })
+  expect(res.status).toBe(200)
+  return await res.json() as { outages: { from: number, to: number, planned: boolean, machines: { machineId: string, partsGroundOnAllowance: number, partsOutOfTolerance: number, heldMs: number, heldTo: number | null, readingsLate: number }[] }[] }
+}
+
 describe('when Owlshift itself goes quiet', () => {
   it('kill -9, embedded broker: monitor late then down; machines hold within their allowance; back: stored once, resumed', async () => {
     const p = await plant()
-    const { monitor, away, alertsBefore } = await killAndWatch(p)
-    expect(monitor.map(m => m.status)).toEqual(['up', 'grace', 'down'])
+    const { monitor, away, alertsBefore, killedAt } = await killAndWatch(p)
+    // up (or, between two pings a second apart, already late for a moment), then late, then down
+    expect(monitor.map(m => m.status).filter(st => st !== 'up')).toEqual(['grace', 'down'])
     expect(monitor.at(-1)!.afterMs).toBeLessThan((1 + 2 + 2) * 1000) // period + grace, and the fake's 100 ms watch, within 2 s
     expect(p.fake.check(p.check)!.alerts.slice(alertsBefore)).toEqual([expect.objectContaining({ status: 'down', why: 'no ping within its period and grace' })])
     expect(p.sim.progress().compensatorAway).toBe(4) // the embedded broker died with it: their connections dropped
     expectHeldWithinAllowance(away)
     const { backlogDecisions } = await restartAndCatchUp(p)
     expect(backlogDecisions).toBeGreaterThan(0)
+    // the morning report's entry: from the last sign of life to the start, per machine what it did
+    const report = await nightReport(p)
+    expect(report.outages).toHaveLength(1)
+    const o = report.outages[0]!
+    expect(o.planned).toBe(false)
+    expect(killedAt - o.from).toBeGreaterThanOrEqual(0)
+    expect(killedAt - o.from).toBeLessThan(2_000) // alive written every second here (the ping period; 5 s at most)
+    expect(o.to).toBeGreaterThan(killedAt)
+    for (const m of o.machines) {
+      const sim = away.find(a => a.id === m.machineId)!
+      expect(m.partsGroundOnAllowance, m.machineId).toBeGreaterThanOrEqual(1)
+      expect(m.partsGroundOnAllowance, m.machineId).toBeLessThanOrEqual(sim.sinceLastWord.parts + 5) // and the few whose messages were on their way at the kill
+      expect(m.partsOutOfTolerance, m.machineId).toBe(0)
+      expect(m.heldMs, m.machineId).toBeGreaterThan(0)
+      expect(m.heldTo, m.machineId).not.toBeNull()
+      expect(m.readingsLate, m.machineId).toBeGreaterThan(0)
+    }
   }, 150_000)
 
   it('a planned stop: the monitor shows paused and nobody is woken; the machines resume on start', async () => {
@@ -161,5 +194,7 @@ describe('when Owlshift itself goes quiet', () => {
     expect((await db.execute(`select stop_reason from server_runs order by id`)).rows.map(r => r.stop_reason)).toEqual([expect.stringMatching(/on purpose/)])
     db.close()
     await restartAndCatchUp(p)
+    const report = await nightReport(p)
+    expect(report.outages.map(o => o.planned)).toEqual([true])
   }, 150_000)
 })

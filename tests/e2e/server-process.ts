@@ -31,7 +31,7 @@ export async function startServer(opts: { dataDir: string, port: number, env?: R
 }
 
 export async function killServer(s: ServerProcess, signal: NodeJS.Signals = 'SIGKILL') {
-  if (s.child.exitCode !== null) return
+  if (s.child.exitCode !== null || s.child.signalCode !== null) return // gone already (a killed child has a signal, no exit code)
   const exited = new Promise(r => s.child.once('exit', r))
   s.child.kill(signal)
   await exited

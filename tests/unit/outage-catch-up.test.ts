@@ -85,6 +85,31 @@ describe('coming back', () => {
     expect(row).toMatchObject({ type: 'resume', origin: 'owlshift:outage', status: 'sent' })
   })
 
+  it('the report\'s outage entry: from the last sign of life to the start; per machine the parts ground on its allowance, the time held, the readings that came late', async () => {
+    await nightThenOutage()
+    await pipeline.accept(arrival('m1', 'presence', birth()))
+    await pipeline.accept(arrival('m1', 'state', state('ACTIVE')))
+    await pipeline.drain()
+    const { outagesOf, serverOutages } = await import('../../server/utils/report-outages')
+    const [span] = await db().select().from(schema.lateSpans)
+    // before: birth, 60 parts, 58 readings (seq 1–119); late: 20 parts, 20 readings and the hold (120–160); then the birth
+    expect(span).toMatchObject({ machineId: 'm1', cause: 'server-start', fromSeq: 120, toSeq: 160 })
+    await db().insert(schema.serverRuns).values([
+      { startedAt: span!.endedAt - 3_600_000, aliveAt: span!.endedAt - 600_000, stoppedAt: null, stopReason: null },
+      { startedAt: span!.endedAt - 5_000, aliveAt: span!.endedAt },
+    ])
+    const [o] = await outagesOf(db() as never, ['m1'], 0, Date.now() + 86_400_000)
+    expect(o).toMatchObject({ from: span!.endedAt - 600_000, to: span!.endedAt - 5_000, planned: false })
+    // parts 61–80 ground while away (20), their readings and the 2 still in the pipeline before it
+    expect(o!.machines).toEqual([expect.objectContaining({ machineId: 'm1', partsGroundOnAllowance: 20, partsOutOfTolerance: 0, readingsLate: 20 })])
+    const m = o!.machines[0]!
+    expect(m.heldFrom).toBe(Date.parse(machineTime(160 * 20)))
+    expect(m.heldMs).toBe(Date.parse(machineTime(162 * 20)) - Date.parse(machineTime(160 * 20))) // until its ACTIVE after the resume
+    // a planned stop reads as one
+    expect(serverOutages([{ startedAt: 0, aliveAt: 50, stoppedAt: 60, stopReason: 'update' }, { startedAt: 100, aliveAt: 100, stoppedAt: null, stopReason: null }]))
+      .toEqual([{ from: 60, to: 100, planned: true, reason: 'update' }])
+  })
+
   it('does not resume a machine whose setting says a person does', async () => {
     await db().update(schema.machines).set({ resumeAfterOutage: 'person' }).where(eq(schema.machines.id, 'm1'))
     const { refreshMachineContext } = await import('../../server/utils/machine-registry')
