@@ -5,6 +5,7 @@
 // the readings that arrived late (late_spans: what each machine sent before its live birth).
 import { and, asc, eq, gte, sql } from 'drizzle-orm'
 import * as schema from '../database/schema'
+import { CYCLE_CODES } from '../../shared/utils/cycle-events'
 import type { ReportDb } from './report'
 
 export interface ReportOutageMachine {
@@ -71,8 +72,11 @@ async function machineDuring(db: ReportDb, id: string, span: typeof schema.lateS
   const { fromSeq, toSeq } = span
   const [late] = await db.all<{ n: number, first: number | null }>(sql`select count(*) as n, min(time) as first from readings where machine_id = ${id} and seq between ${fromSeq} and ${toSeq}`)
   const [msgFirst] = await db.all<{ first: number | null }>(sql`select min(time) as first from machine_messages where machine_id = ${id} and seq between ${fromSeq} and ${toSeq}`)
-  const ground = await db.all<{ part: number }>(sql`select json_extract(payload, '$.part') as part from machine_messages where machine_id = ${id} and seq between ${fromSeq} and ${toSeq} and type = 'part_ground'`)
-  const parts = ground.map(g => Number(g.part))
+  // Cycle events are keyed by the machine's time (docs/storage.md#cycle-events): read the span's time range.
+  const since = Math.min(...[late?.first, msgFirst?.first].filter((t): t is number => t !== null && t !== undefined).map(Number), span.liveAt - 86_400_000)
+  const cycles = await db.all<{ part: number, time: number }>(sql`
+    select part, time from cycle_events where time between ${since} and ${span.liveAt} and machine_id = ${id} and seq between ${fromSeq} and ${toSeq} and code = ${CYCLE_CODES.part_ground}`)
+  const parts = cycles.map(c => Number(c.part))
   let outOfTolerance = 0
   if (parts.length) {
     // their readings come later than the parts (the pipeline): any reading of those serials, against its job's tolerance
@@ -91,7 +95,7 @@ async function machineDuring(db: ReportDb, id: string, span: typeof schema.lateS
     const [next] = await db.all<{ time: number }>(sql`select time from machine_messages where machine_id = ${id} and seq > ${hold.seq} and kind = 'state' and type != 'FEED_HOLD' order by seq limit 1`)
     heldTo = next ? Number(next.time) : null
   }
-  const firsts = [late?.first, msgFirst?.first].filter((t): t is number => t !== null && t !== undefined).map(Number)
+  const firsts = [late?.first, msgFirst?.first, ...cycles.map(c => c.time)].filter((t): t is number => t !== null && t !== undefined).map(Number)
   return {
     machineId: id, awayFrom: firsts.length ? Math.min(...firsts) : null, backAt: span.liveAt,
     partsGroundOnAllowance: parts.length, partsOutOfTolerance: outOfTolerance,

@@ -120,7 +120,7 @@ async function restartAndCatchUp(p: Plant) {
   const db = openTestDb(p.dataDir)
   try {
     for (const [machineId, link] of p.sim.links) {
-      const rows = await db.execute({ sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 order by seq`, args: [machineId] })
+      const rows = await db.execute({ sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq`, args: [machineId] })
       const seqs = rows.rows.map(r => Number(r.seq))
       expect(seqs.length, machineId).toBe(link.lastSeq) // every message, exactly once
       expect(new Set(seqs).size, machineId).toBe(seqs.length)

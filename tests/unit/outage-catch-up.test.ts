@@ -53,7 +53,7 @@ async function restart() {
   await loadMachineRegistry({ atStart: true })
 }
 
-const birth = (execution = 'FEED_HOLD') => ({ ...birthOf(++seq), execution, lastPart: 0 })
+const birth = (execution = 'FEED_HOLD') => { ++seq; return { ...birthOf(seq), time: machineTime(seq * 20), execution, lastPart: 0 } }
 
 async function nightThenOutage(opts: { backlogSlope?: number } = {}) {
   seq = 0
