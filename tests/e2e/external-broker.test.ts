@@ -4,36 +4,21 @@
 // persistent-session subscriber (MQTT_URL). Messages published while Owlshift is down are kept
 // by the broker and stored after it comes back; one machine cannot take over another's session.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
-import { spawn, spawnSync, type ChildProcess } from 'node:child_process'
-import { mkdtempSync, mkdirSync, chmodSync, writeFileSync, readFileSync, existsSync } from 'node:fs'
+import { spawnSync, type ChildProcess } from 'node:child_process'
+import { mkdtempSync } from 'node:fs'
 import { randomBytes } from 'node:crypto'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import mqtt from 'mqtt'
 import Database from 'libsql'
-import { freePort, openTestDb, rootDir } from './harness'
+import { freePort, openTestDb } from './harness'
+import { startMosquitto } from './mosquitto'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { birth, reading, payloadOf, topicFor, CELL } from './mqtt-helpers'
 import { demoShop } from '../../shared/utils/demo-shop'
 import { mqttTopics, machineClientId, serverPresenceTopic } from '../../shared/utils/contract'
 
-const MOSQUITTO = ['/usr/sbin/mosquitto', '/usr/bin/mosquitto'].find(p => existsSync(p))
 const SERVER_USER = 'owlshift-server'
-
-/**
- * The documented broker configuration with this test's port and files and no disk persistence,
- * each line changed in its place (Mosquitto applies some options to the listener above them).
- */
-function mosquittoConf(dir: string, port: number): string {
-  writeFileSync(join(dir, 'owlshift.acl'), readFileSync(join(rootDir, 'docs/mosquitto/owlshift.acl')))
-  const ours: [RegExp, string][] = [
-    [/^listener /, `listener ${port} 127.0.0.1`], [/^password_file /, `password_file ${join(dir, 'owlshift.passwd')}`],
-    [/^acl_file /, `acl_file ${join(dir, 'owlshift.acl')}`], [/^persistence /, 'persistence false'], [/^persistence_location /, ''],
-  ]
-  const lines = readFileSync(join(rootDir, 'docs/mosquitto/owlshift.conf'), 'utf8').split('\n')
-  for (const [pattern] of ours) if (!lines.some(l => pattern.test(l))) throw new Error(`docs/mosquitto/owlshift.conf has no line ${pattern}`)
-  return lines.map(l => ours.find(([pattern]) => pattern.test(l))?.[1] ?? l).join('\n')
-}
 
 describe('external broker (Mosquitto)', () => {
   let mosq: ChildProcess
@@ -46,28 +31,11 @@ describe('external broker (Mosquitto)', () => {
   const env = () => ({ MQTT_URL: brokerUrl, MQTT_CLIENT_ID: 'owlshift-server-test', MQTT_USERNAME: SERVER_USER, MQTT_PASSWORD: passwords[SERVER_USER]! })
 
   beforeAll(async () => {
-    if (!MOSQUITTO) throw new Error('mosquitto is not installed: apt-get install -y mosquitto mosquitto-clients (.ci/run does this)')
     dataDir = mkdtempSync(join(tmpdir(), 'owlshift-ext-'))
-    brokerPort = await freePort()
-    brokerUrl = `mqtt://127.0.0.1:${brokerPort}`
-    // Mosquitto started as root reads its files as the "mosquitto" user: give it a readable folder.
-    const brokerDir = join(dataDir, 'mosquitto')
-    mkdirSync(brokerDir, { mode: 0o755 })
-    chmodSync(dataDir, 0o755)
-    const passwd = join(brokerDir, 'owlshift.passwd')
-    for (const [user, password] of Object.entries(passwords)) {
-      const r = spawnSync('mosquitto_passwd', [...(existsSync(passwd) ? [] : ['-c']), '-b', passwd, user, password], { encoding: 'utf8' })
-      if (r.status !== 0) throw new Error(`mosquitto_passwd: ${r.stderr}`)
-    }
-    chmodSync(passwd, 0o644)
-    const conf = join(brokerDir, 'mosquitto.conf')
-    writeFileSync(conf, mosquittoConf(brokerDir, brokerPort))
-    mosq = spawn(MOSQUITTO, ['-c', conf], { stdio: 'ignore' })
-    for (let i = 0; i < 50; i++) {
-      const ok = await mqtt.connectAsync(brokerUrl, { reconnectPeriod: 0, connectTimeout: 500, username: SERVER_USER, password: passwords[SERVER_USER] }).then(c => c.endAsync().then(() => true), () => false)
-      if (ok) break
-      await new Promise(r => setTimeout(r, 100))
-    }
+    const broker = await startMosquitto(dataDir, passwords, SERVER_USER)
+    mosq = broker.process
+    brokerPort = broker.port
+    brokerUrl = broker.url
     server = await startServer({ dataDir, port: await freePort(), env: env() })
   })
   afterAll(async () => { if (process.env.OWLSHIFT_TEST_DEBUG) console.log(server?.log()); if (server) await killServer(server, 'SIGTERM'); mosq?.kill('SIGTERM') })

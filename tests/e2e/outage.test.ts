@@ -17,6 +17,9 @@ import { startServer, killServer, type ServerProcess } from './server-process'
 import { startSimulator, type RunningSimulator } from '../../simulator/live'
 import { loadScenarioFile, machinesFor } from '../../simulator/scenario'
 import { startHeartbeatFake, type HeartbeatFake, type FakeCheckStatus } from '../../scripts/lib/heartbeat-fake'
+import { startMosquitto } from './mosquitto'
+import { randomBytes } from 'node:crypto'
+import type { ChildProcess } from 'node:child_process'
 
 // 60×: a command's life on the machine's clock (a resume: 5 min) is still 5 s of wall time, enough
 // for a server taking in four backlogs at once.
@@ -35,31 +38,35 @@ async function until<T>(fn: () => T | Promise<T>, what: string, timeoutMs = 30_0
   }
 }
 
-interface Plant { dataDir: string, port: number, env: Record<string, string>, fake: HeartbeatFake, check: string, server: ServerProcess, sim: RunningSimulator }
-const open: { fake?: HeartbeatFake, server?: ServerProcess, sim?: RunningSimulator }[] = []
+interface Plant { dataDir: string, port: number, env: Record<string, string>, fake: HeartbeatFake, check: string, server: ServerProcess, sim: RunningSimulator, external: boolean }
+const open: { fake?: HeartbeatFake, server?: ServerProcess, sim?: RunningSimulator, mosquitto?: ChildProcess }[] = []
 afterEach(async () => {
-  for (const o of open.splice(0)) { await o.sim?.stop({ graceful: false }).catch(() => {}); if (o.server) await killServer(o.server, 'SIGKILL'); await o.fake?.close() }
+  for (const o of open.splice(0)) { await o.sim?.stop({ graceful: false }).catch(() => {}); if (o.server) await killServer(o.server, 'SIGKILL'); await o.fake?.close(); o.mosquitto?.kill('SIGTERM') }
 })
 
-async function plant(extraEnv: Record<string, string> = {}, brokerUrl?: (mqttPort: number) => string): Promise<Plant> {
+/** Owlshift with its embedded broker, or (`external`) behind a Mosquitto set up as docs/mqtt.md says. */
+async function plant(opts: { external?: boolean } = {}): Promise<Plant> {
   const dataDir = mkdtempSync(join(tmpdir(), 'owlshift-outage-'))
   const [port, mqttPort] = [await freePort(), await freePort()]
+  const machineIds = machinesFor(scenario, 4).map(m => m.id)
+  const passwords: Record<string, string> = Object.fromEntries(['owlshift-server', ...machineIds].map(u => [u, randomBytes(12).toString('hex')]))
+  const broker = opts.external ? await startMosquitto(dataDir, passwords, 'owlshift-server') : null
   const fake = await startHeartbeatFake()
   const check = fake.addCheck({ name: 'owlshift', timeoutS: 60, graceS: 300 }).uuid
   const env = {
     MQTT_PORT: String(mqttPort), OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S: '0', OWLSHIFT_ALLOWANCE_MAX_MIN: String(MAX_MIN),
     OWLSHIFT_HEARTBEAT_URL: fake.pingUrl(check), OWLSHIFT_HEARTBEAT_API_URL: fake.apiUrl, OWLSHIFT_HEARTBEAT_API_KEY: fake.apiKey,
     OWLSHIFT_HEARTBEAT_EVERY_S: '1', OWLSHIFT_HEARTBEAT_GRACE_S: '2',
-    ...extraEnv,
+    ...(broker ? { MQTT_URL: broker.url, MQTT_CLIENT_ID: 'owlshift-server', MQTT_USERNAME: 'owlshift-server', MQTT_PASSWORD: passwords['owlshift-server']! } : {}),
   }
   const server = await startServer({ dataDir, port, env })
-  const creds = demoCredentials(dataDir)
+  const creds = broker ? Object.fromEntries(machineIds.map(id => [id, { password: passwords[id]! }])) : demoCredentials(dataDir)
   const sim = await startSimulator({
-    scenario, seed: 11, machines: 4, speed: SPEED, hours: 3, brokerUrl: brokerUrl?.(mqttPort) ?? `mqtt://127.0.0.1:${mqttPort}`, stateDir: join(dataDir, 'sim'),
+    scenario, seed: 11, machines: 4, speed: SPEED, hours: 3, brokerUrl: broker?.url ?? `mqtt://127.0.0.1:${mqttPort}`, stateDir: join(dataDir, 'sim'),
     credentials: id => ({ username: id, password: creds[id]!.password }), reconnectMs: 200, drainTimeoutMs: 30_000, tickMs: 25,
   })
-  const p = { dataDir, port, env, fake, check, server, sim }
-  open.push(p)
+  const p = { dataDir, port, env, fake, check, server, sim, external: !!broker }
+  open.push({ fake, server, sim, ...(broker ? { mosquitto: broker.process } : {}) })
   return p
 }
 
@@ -107,7 +114,8 @@ function expectHeldWithinAllowance(away: Awaited<ReturnType<typeof killAndWatch>
 }
 
 async function restartAndCatchUp(p: Plant) {
-  expect(p.sim.progress().pendingAcks).toBeGreaterThan(0) // journalled while Owlshift was away
+  // journalled while Owlshift was away (an external broker took them and keeps them for Owlshift)
+  if (!p.external) expect(p.sim.progress().pendingAcks).toBeGreaterThan(0)
   p.server = await startServer({ dataDir: p.dataDir, port: p.port, env: p.env })
   open[open.length - 1]!.server = p.server
   await until(() => executions(p.sim).every(e => e === 'ACTIVE'), 'every machine resumed', 30_000).catch((err) => {
@@ -150,12 +158,23 @@ async function nightReport(p: Plant) {
 describe('when Owlshift itself goes quiet', () => {
   it('kill -9, embedded broker: monitor late then down; machines hold within their allowance; back: stored once, resumed', async () => {
     const p = await plant()
+    await killedAndBack(p)
+  }, 150_000)
+
+  it('kill -9, external Mosquitto: the broker tells the machines Owlshift is offline at once; the same holds and catch-up', async () => {
+    const p = await plant({ external: true })
+    await killedAndBack(p)
+  }, 150_000)
+
+  async function killedAndBack(p: Plant) {
     const { monitor, away, alertsBefore, killedAt } = await killAndWatch(p)
     // up (or, between two pings a second apart, already late for a moment), then late, then down
     expect(monitor.map(m => m.status).filter(st => st !== 'up')).toEqual(['grace', 'down'])
     expect(monitor.at(-1)!.afterMs).toBeLessThan((1 + 2 + 2) * 1000) // period + grace, and the fake's 100 ms watch, within 2 s
     expect(p.fake.check(p.check)!.alerts.slice(alertsBefore)).toEqual([expect.objectContaining({ status: 'down', why: 'no ping within its period and grace' })])
-    expect(p.sim.progress().compensatorAway).toBe(4) // the embedded broker died with it: their connections dropped
+    // embedded: the broker died with it, their connections dropped; external: still connected, told by Owlshift's will
+    expect(p.sim.progress().compensatorAway).toBe(4)
+    expect(p.sim.progress().connected).toBe(p.external ? 4 : 0)
     expectHeldWithinAllowance(away)
     const { backlogDecisions } = await restartAndCatchUp(p)
     expect(backlogDecisions).toBeGreaterThan(0)
@@ -176,7 +195,7 @@ describe('when Owlshift itself goes quiet', () => {
       expect(m.heldTo, m.machineId).not.toBeNull()
       expect(m.readingsLate, m.machineId).toBeGreaterThan(0)
     }
-  }, 150_000)
+  }
 
   it('a planned stop: the monitor shows paused and nobody is woken; the machines resume on start', async () => {
     const p = await plant()
