@@ -273,8 +273,10 @@ async function raise(scope: Scope, c: AlarmCondition, at: number) {
     await transition(row, { scope, condition: c.condition, actions: [{ kind: 'condition-active' }], at, actor: SYSTEM, machineAt: c.machineAt })
     return
   }
-  const machines = scope.machineId ? undefined : [...new Set([...(row?.machines ?? []), ...(cellReporters.get(scope.key) ?? [])])]
-  const message = scope.machineId ? c.message : cellMessage(kind, scope, machines!)
+  // a machine's alarm and the server's own (no machine, no cell) say what their condition says
+  const own = !!scope.machineId || kind.scope === 'server'
+  const machines = own ? undefined : [...new Set([...(row?.machines ?? []), ...(cellReporters.get(scope.key) ?? [])])]
+  const message = own ? c.message : cellMessage(kind, scope, machines!)
   const cause = isConsequence(kind) ? causeFor(scope, c.condition, conditionSince.get(scope.key) ?? at) : undefined
   const actions: AlarmAction[] = [{ kind: 'condition-active' }]
   if (cause) actions.push({ kind: 'suppress', by: `${cause.kind.title} (alarm ${cause.row.id})` })

@@ -26,6 +26,10 @@ const envSchema = z.object({
   OWLSHIFT_RETENTION_EVENTS_DAYS: z.coerce.number().min(0).default(30),
   OWLSHIFT_RETENTION_DECISIONS_DAYS: z.coerce.number().min(0).default(30),
   OWLSHIFT_RETENTION_COMMANDS_DAYS: z.coerce.number().min(0).default(30),
+  OWLSHIFT_DISK_FLOOR_MB: z.coerce.number().min(0).default(500),
+  OWLSHIFT_DATABASE_MAX_MB: z.coerce.number().min(0).default(0),
+  OWLSHIFT_DISK_WARN_DAYS: z.coerce.number().min(0).default(14),
+  OWLSHIFT_DISK_CHECK_S: z.coerce.number().min(1).max(3600).default(30),
   OWLSHIFT_ALARM_DELAY_SCALE: z.coerce.number().min(0).max(100).default(1),
   OWLSHIFT_HEARTBEAT_URL: z.url({ protocol: /^https?$/, error: 'must be the http(s) ping address of the check, e.g. https://hc-ping.com/<uuid>' }).optional(),
   OWLSHIFT_HEARTBEAT_EVERY_S: z.coerce.number().min(1).max(86_400).default(60),
@@ -64,6 +68,8 @@ export interface OwlshiftConfig {
     /** the parts allowance: at most this many minutes of parts, and the guard band as a fraction of the half tolerance (shared/utils/allowance.ts) */
     allowance: { maxMinutes: number, guardFraction: number }
   }
+  /** the disk budget (server/utils/disk-budget.ts): free-space floor, the database's own limit (0: none), warning days ahead, how often to look */
+  disk: { floorMb: number, maxDatabaseMb: number, warnDays: number, checkS: number }
   maintenance: {
     /** hours between scheduled backups; 0 = none */
     backupEveryH: number
@@ -119,6 +125,7 @@ export function parseConfig(env: Record<string, string | undefined>): OwlshiftCo
       clockToleranceS: e.OWLSHIFT_MACHINE_CLOCK_TOLERANCE_S,
       allowance: { maxMinutes: e.OWLSHIFT_ALLOWANCE_MAX_MIN, guardFraction: e.OWLSHIFT_ALLOWANCE_GUARD },
     },
+    disk: { floorMb: e.OWLSHIFT_DISK_FLOOR_MB, maxDatabaseMb: e.OWLSHIFT_DATABASE_MAX_MB, warnDays: e.OWLSHIFT_DISK_WARN_DAYS, checkS: e.OWLSHIFT_DISK_CHECK_S },
     maintenance: {
       backupEveryH: e.OWLSHIFT_BACKUP_EVERY_H,
       backupKeep: e.OWLSHIFT_BACKUP_KEEP,

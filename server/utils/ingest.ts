@@ -66,6 +66,8 @@ interface Fold {
 
 export interface IngestStats {
   accepted: number, stored: number, readings: number, duplicates: number, deadLetters: number, commits: number, lastCommitMs: number
+  /** messages not taken while the disk budget refused them (not acknowledged: sent again) */
+  refused: number
   /** the last 1,000 commit durations (ms), for the metrics endpoint's quantiles */
   recentCommitMs: number[]
 }
@@ -100,7 +102,7 @@ export class IngestPipeline {
   private flushing: Promise<void> | null = null
   private afterCommit: Promise<void> = Promise.resolve()
   private settleTimer: NodeJS.Timeout | null = null
-  readonly stats: IngestStats = { accepted: 0, stored: 0, readings: 0, duplicates: 0, deadLetters: 0, commits: 0, lastCommitMs: 0, recentCommitMs: [] }
+  readonly stats: IngestStats = { accepted: 0, stored: 0, readings: 0, duplicates: 0, deadLetters: 0, commits: 0, lastCommitMs: 0, refused: 0, recentCommitMs: [] }
   /** whether commits succeed: for /api/health and /api/metrics (shared/utils/ingest-health.ts) */
   health: IngestHealth = ingestHealthAtStart(Date.now())
   /** called after each commit with what it caused (commands to send, live events, alarm conditions) */
@@ -112,8 +114,15 @@ export class IngestPipeline {
   /** how parts allowances are granted (shared/utils/allowance.ts; OWLSHIFT_ALLOWANCE_*) */
   allowance: AllowanceSettings | null = defaultAllowanceSettings
 
-  /** Resolves once the arrival is committed (or dead-lettered). Never rejects for bad input. */
+  /**
+   * Why machine messages are not taken now (the disk budget's floor: server/utils/disk-budget.ts);
+   * null: they are. A refused message is not acknowledged: the machine keeps it and sends it again.
+   */
+  refusal: string | null = null
+
+  /** Resolves once the arrival is committed (or dead-lettered). Never rejects for bad input; rejects, storing nothing, while refusing. */
   accept(arrival: Arrival): Promise<void> {
+    if (this.refusal) { this.stats.refused++; return Promise.reject(new Error(this.refusal)) }
     this.stats.accepted++
     return new Promise<CompensationDecision | null>((resolve, reject) => this.enqueue({ item: arrival, resolve, reject })).then(() => {})
   }
@@ -192,12 +201,16 @@ export class IngestPipeline {
       const { health, outage } = ingestSettle(this.health, now)
       this.health = health
       if (!outage) { this.settleLater(); return } // failed again since: wait from that failure
-      const condition: AlarmCondition = { machineId: null, condition: 'server:ingest-failed', active: true, message: ingestOutageWords(outage), at: now }
-      this.afterCommit = this.afterCommit
-        .then(() => this.onCommitted({ commands: [], resumes: [], live: [], conditions: [condition] }))
-        .catch((err) => { log.error({ err: err }, '[ingest] the alarm for data not stored could not be raised') })
+      this.tellAlarms([{ machineId: null, condition: 'server:ingest-failed', active: true, message: ingestOutageWords(outage), at: now }])
     }, Math.max(0, at - Date.now()))
     this.settleTimer.unref()
+  }
+
+  /** Hands conditions that no commit caused (the server's own: data not stored, disk) to the alarm engine, in order with the commits' work. */
+  tellAlarms(conditions: AlarmCondition[]) {
+    this.afterCommit = this.afterCommit
+      .then(() => this.onCommitted({ commands: [], resumes: [], live: [], conditions }))
+      .catch((err) => { log.error({ err: err }, '[ingest] a server alarm could not be raised') })
   }
 
   /** Waits until everything queued so far is committed. */

@@ -50,6 +50,15 @@ export async function prometheusText(): Promise<string> {
   metric('owlshift_ingest_failing', 'gauge', '1 from a failed ingest commit until commits have succeeded for 10 s with none failing.', [['', h.failing ? 1 : 0]])
   metric('owlshift_seconds_since_last_commit', 'gauge', 'Seconds since the last ingest commit that succeeded while commits were good (since start before the first): those a nearly full disk lets through between failing ones do not count. Grows while machines are idle too.', [['', Math.round(ingestSecondsSinceCommit(h, now) * 10) / 10]])
   metric('owlshift_ingest_lost_seconds_total', 'counter', 'Seconds since start during which ingest commits failed (the failure going on now included).', [['', Math.round(ingestLostMs(h, now) / 100) / 10]])
+  const disk = diskBudgetStatus()
+  if (disk) {
+    metric('owlshift_disk_free_bytes', 'gauge', 'Free space on the data folder\'s disk.', [['', disk.reading.freeBytes]])
+    metric('owlshift_database_bytes', 'gauge', 'The database file (without its write-ahead log).', [['', disk.reading.databaseBytes]])
+    if (Number.isFinite(disk.roomBytes)) metric('owlshift_disk_room_bytes', 'gauge', 'Bytes the database may still take before the free-space floor or its own limit (pages free inside the file count).', [['', Math.round(disk.roomBytes)]])
+    if (disk.daysLeft !== null) metric('owlshift_disk_days_left', 'gauge', 'Days until that room is used up at the growth of the last week.', [['', Math.round(disk.daysLeft * 10) / 10]])
+    metric('owlshift_ingest_refusing', 'gauge', '1 while machine messages are not acknowledged because the disk budget is used up.', [['', disk.refusing ? 1 : 0]])
+  }
+  metric('owlshift_ingest_refused_total', 'counter', 'Machine messages not taken (not acknowledged: sent again) while the disk budget was used up.', [['', s.refused]])
   metric('owlshift_ingest_queue_depth', 'gauge', 'Messages waiting for the next commit.', [['', ingest.queueDepth]])
   metric('owlshift_machines_connected', 'gauge', 'Machines connected to the broker.', [['', broker?.connectedMachines() ?? 0]])
   const refused = broker?.refusedConnections
