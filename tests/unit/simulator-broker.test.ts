@@ -88,6 +88,22 @@ async function until(check: () => boolean, timeoutMs: number, what: string) {
 const cleanups: (() => Promise<void> | void)[] = []
 afterEach(async () => { for (const c of cleanups.splice(0).reverse()) await c() })
 
+/** A broker on a free port that records what arrives, a state folder, and the options every
+ *  simulator here starts from (one machine, one hour); all torn down after the test. */
+async function brokerRig() {
+  const port = await freePort()
+  const stateDir = mkdtempSync(join(tmpdir(), 'owlshift-sim-'))
+  cleanups.push(() => rmSync(stateDir, { recursive: true, force: true }))
+  const arrivals: Arrival[] = [], wills: MachineMessage[] = []
+  const broker = await startBroker(port, arrivals, wills)
+  cleanups.push(() => broker.kill())
+  const simulator = {
+    scenario, machines: 1, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
+    credentials: (id: string) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20,
+  }
+  return { broker, stateDir, arrivals, wills, simulator }
+}
+
 describe('simulator against an MQTT broker', () => {
   it('keeps every message through a broker outage: all seqs, in order, none twice after de-dup', async () => {
     const port = await freePort()
@@ -163,15 +179,9 @@ describe('simulator against an MQTT broker', () => {
   }, 30_000)
 
   it('takes commands from the broker and acks them; refuses nothing silently', async () => {
-    const port = await freePort()
-    const stateDir = mkdtempSync(join(tmpdir(), 'owlshift-sim-'))
-    cleanups.push(() => rmSync(stateDir, { recursive: true, force: true }))
-    const arrivals: Arrival[] = [], wills: MachineMessage[] = []
-    const broker = await startBroker(port, arrivals, wills)
-    cleanups.push(() => broker.kill())
+    const { broker, arrivals, simulator } = await brokerRig()
     const sim = await startSimulator({
-      scenario, seed: 2, machines: 1, speed: 60, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
-      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, obeyAllowance: false,
+      ...simulator, seed: 2, speed: 60, obeyAllowance: false,
     })
     cleanups.push(() => sim.stop({ graceful: false }))
     await until(() => arrivals.some((a) => a.message.kind === 'birth'), 10_000, 'birth')
@@ -191,20 +201,14 @@ describe('simulator against an MQTT broker', () => {
   }, 30_000)
 
   it('reads the server\'s presence: says "compensator offline" at once, waits for its first allowance, and sends a fresh birth when a new server run comes online', async () => {
-    const port = await freePort()
-    const stateDir = mkdtempSync(join(tmpdir(), 'owlshift-sim-'))
-    cleanups.push(() => rmSync(stateDir, { recursive: true, force: true }))
-    const arrivals: Arrival[] = [], wills: MachineMessage[] = []
-    const broker = await startBroker(port, arrivals, wills)
-    cleanups.push(() => broker.kill())
+    const { broker, arrivals, simulator } = await brokerRig()
     const presence = (status: string, startedAt: string) => new Promise<void>((r) => broker.broker.publish({
       cmd: 'publish', topic: serverPresenceTopic, payload: Buffer.from(JSON.stringify({ kind: 'server', status, startedAt, reason: status === 'offline' ? 'gone' : undefined })), qos: 1, retain: true, dup: false,
     }, () => r()))
     await presence('online', '2026-12-01T20:00:00.000Z')
     const logs: string[] = []
     const sim = await startSimulator({
-      scenario, seed: 2, machines: 1, speed: 600, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir,
-      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, onLog: (l) => logs.push(l),
+      ...simulator, seed: 2, speed: 600, onLog: (l) => logs.push(l),
     })
     cleanups.push(() => sim.stop({ graceful: false }))
     const births = () => arrivals.filter((a) => a.message.kind === 'birth').length
@@ -224,17 +228,12 @@ describe('simulator against an MQTT broker', () => {
   }, 30_000)
 
   it('refuses wrong credentials at the broker and publishes the death will when a machine drops', async () => {
-    const port = await freePort()
-    const stateDir = mkdtempSync(join(tmpdir(), 'owlshift-sim-'))
-    cleanups.push(() => rmSync(stateDir, { recursive: true, force: true }))
-    const arrivals: Arrival[] = [], wills: MachineMessage[] = []
-    const broker = await startBroker(port, arrivals, wills)
-    cleanups.push(() => broker.kill())
+    const { stateDir, arrivals, wills, simulator } = await brokerRig()
     // a wrong password: the broker refuses, nothing arrives, everything stays journalled
     const logs: string[] = []
     const wrong = await startSimulator({
-      scenario, seed: 2, machines: 1, speed: 600, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir: join(stateDir, 'wrong'),
-      credentials: (id) => ({ username: id, password: 'nope' }), reconnectMs: 100, tickMs: 20, onLog: (l) => logs.push(l), obeyAllowance: false,
+      ...simulator, seed: 2, speed: 600, stateDir: join(stateDir, 'wrong'),
+      credentials: (id) => ({ username: id, password: 'nope' }), onLog: (l) => logs.push(l), obeyAllowance: false,
     })
     await wait(400)
     await wrong.stop({ graceful: false })
@@ -243,8 +242,7 @@ describe('simulator against an MQTT broker', () => {
     expect(wrong.links.get('cg-01')!.pending).toBeGreaterThan(0)
 
     const sim = await startSimulator({
-      scenario, seed: 2, machines: 1, speed: 600, hours: 1, brokerUrl: `mqtt://127.0.0.1:${port}`, stateDir: join(stateDir, 'right'),
-      credentials: (id) => ({ username: id, password: password(id) }), reconnectMs: 100, tickMs: 20, obeyAllowance: false,
+      ...simulator, seed: 2, speed: 600, stateDir: join(stateDir, 'right'), obeyAllowance: false,
     })
     await until(() => arrivals.some((a) => a.message.kind === 'birth'), 10_000, 'birth')
     const birth = arrivals.find((a) => a.message.kind === 'birth')!.message as { session: number }
