@@ -9,7 +9,7 @@ import { describe, it, expect, afterAll } from 'vitest'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
-import { freePort, demoCredentials, openTestDb } from './harness'
+import { freePort, demoCredentials, openTestDb, storedSeqs } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { startSimulator } from '../../simulator/live'
 import { loadScenarioFile } from '../../simulator/scenario'
@@ -86,8 +86,7 @@ describe('disk budget', () => {
     expect(await stored()).toBeGreaterThan(before)
     // Every message the machines sent is stored once: numbers 1..last for each machine.
     for (const [machineId, link] of sim.links) {
-      const rows = await db.execute({ sql: 'select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq', args: [machineId] })
-      const seqs = rows.rows.map(r => Number(r.seq))
+      const seqs = await storedSeqs(db, machineId)
       expect(seqs.length, machineId).toBe(link.lastSeq)
       expect(new Set(seqs).size, machineId).toBe(seqs.length)
     }

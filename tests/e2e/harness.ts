@@ -70,6 +70,13 @@ export function openTestDb(dataDir: string) {
   return createClient({ url: `file:${join(dataDir, 'owlshift.db')}` })
 }
 
+/** The numbers of a machine's messages as stored, in order: readings, other machine messages and
+ *  the per-part cycle events each keep theirs (docs/storage.md). */
+export async function storedSeqs(db: ReturnType<typeof openTestDb>, machineId: string): Promise<number[]> {
+  const rows = await db.execute({ sql: 'select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq', args: [machineId] })
+  return rows.rows.map(r => Number(r.seq))
+}
+
 export const demoUser = (role: string) => demoShop.users.find(u => u.role === role)!
 
 export async function signIn(page: Page, email: string, password: string = demoShop.password) {

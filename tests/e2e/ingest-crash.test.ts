@@ -5,7 +5,7 @@ import { describe, it, expect } from 'vitest'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
-import { freePort, demoCredentials, openTestDb } from './harness'
+import { freePort, demoCredentials, openTestDb, storedSeqs } from './harness'
 import { startServer, killServer } from './server-process'
 import { startSimulator } from '../../simulator/live'
 import { loadScenarioFile } from '../../simulator/scenario'
@@ -37,12 +37,7 @@ describe('crash and restart under load', () => {
     const db = openTestDb(dataDir)
     let total = 0
     for (const [machineId, link] of sim.links) {
-      const rows = await db.execute({
-        // readings, machine messages and the per-part cycle events (docs/storage.md)
-        sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq`,
-        args: [machineId],
-      })
-      const seqs = rows.rows.map(r => Number(r.seq))
+      const seqs = await storedSeqs(db, machineId)
       total += seqs.length
       // Exactly the numbers 1..last, each once.
       expect(seqs.length, machineId).toBe(link.lastSeq)

@@ -16,7 +16,7 @@ import { execFileSync } from 'node:child_process'
 import { mkdtempSync, readdirSync, readFileSync, rmSync, statfsSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
-import { freePort, demoCredentials, openTestDb, demoUser } from './harness'
+import { freePort, demoCredentials, openTestDb, storedSeqs, demoUser } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { startSimulator } from '../../simulator/live'
 import { loadScenarioFile } from '../../simulator/scenario'
@@ -150,8 +150,7 @@ describe('ingest on a full disk', () => {
     // Everything the machines sent is stored once: numbers 1..last for each machine.
     const db = openTestDb(dataDir)
     for (const [machineId, link] of sim.links) {
-      const rows = await db.execute({ sql: 'select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq', args: [machineId] })
-      const seqs = rows.rows.map(r => Number(r.seq))
+      const seqs = await storedSeqs(db, machineId)
       expect(seqs.length, machineId).toBe(link.lastSeq)
       expect(new Set(seqs).size, machineId).toBe(seqs.length)
     }

@@ -12,7 +12,7 @@ import { describe, it, expect, afterEach } from 'vitest'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
-import { freePort, demoCredentials, openTestDb } from './harness'
+import { freePort, demoCredentials, openTestDb, storedSeqs } from './harness'
 import { startServer, killServer, type ServerProcess } from './server-process'
 import { startSimulator, type RunningSimulator } from '../../simulator/live'
 import { loadScenarioFile, machinesFor } from '../../simulator/scenario'
@@ -128,8 +128,7 @@ async function restartAndCatchUp(p: Plant) {
   const db = openTestDb(p.dataDir)
   try {
     for (const [machineId, link] of p.sim.links) {
-      const rows = await db.execute({ sql: `select seq from readings where machine_id = ?1 union all select seq from machine_messages where machine_id = ?1 union all select seq from cycle_events where machine_id = ?1 order by seq`, args: [machineId] })
-      const seqs = rows.rows.map(r => Number(r.seq))
+      const seqs = await storedSeqs(db, machineId)
       expect(seqs.length, machineId).toBe(link.lastSeq) // every message, exactly once
       expect(new Set(seqs).size, machineId).toBe(seqs.length)
     }
