@@ -50,6 +50,9 @@ type QueueItem = Arrival | InternalMessage
 
 interface Pending { item: QueueItem, resolve: (jobDecision: CompensationDecision | null) => void, reject: (e: Error) => void }
 
+/** The server's alive record due in the next commit, and who waits for it. */
+interface AliveRecord { runId: number, at: number, waiting: { resolve: () => void, reject: (e: Error) => void }[] }
+
 /** A message for one of our machines, ready for its loop; `index` is its place in the batch. */
 interface ForMachine { ctx: MachineContext, message: MachineLoopMessage<JobRow>, index: number }
 
@@ -99,6 +102,7 @@ function topicMachine(topic: string): string | null {
 export class IngestPipeline {
   private queue: Pending[] = []
   private timer: NodeJS.Timeout | null = null
+  private alive: AliveRecord | null = null
   private flushing: Promise<void> | null = null
   private afterCommit: Promise<void> = Promise.resolve()
   private settleTimer: NodeJS.Timeout | null = null
@@ -146,6 +150,20 @@ export class IngestPipeline {
     else this.kick(FLUSH_DELAY_MS)
   }
 
+  /**
+   * The server's own record that it is alive (server_runs.alive_at, the dead-man's switch's write
+   * probe), written in the next group commit: ingest is the one writer, so the probe never adds a
+   * write of its own that waits on the database lock beside the machines' data. Resolves once
+   * committed; rejects with the commit's error.
+   */
+  recordAlive(runId: number, at: number): Promise<void> {
+    return new Promise((resolve, reject) => {
+      const waiting = [...(this.alive?.waiting ?? []), { resolve, reject }]
+      this.alive = { runId, at, waiting }
+      this.kick(FLUSH_DELAY_MS)
+    })
+  }
+
   private kick(delay: number) {
     if (this.flushing) return // the running flush picks up what is queued
     if (this.timer && delay > 0) return
@@ -156,11 +174,14 @@ export class IngestPipeline {
   private async flushLoop() {
     if (this.flushing) return
     this.flushing = (async () => {
-      while (this.queue.length) {
+      while (this.queue.length || this.alive) {
         const batch = this.queue.splice(0, MAX_BATCH)
+        const alive = this.alive
+        this.alive = null
         try {
-          const { effects, jobDecisions } = await this.commit(batch.map(p => p.item))
+          const { effects, jobDecisions } = await this.commit(batch.map(p => p.item), alive)
           batch.forEach((p, i) => p.resolve(jobDecisions.get(i) ?? null))
+          alive?.waiting.forEach(w => w.resolve())
           this.health = ingestCommitSucceeded(this.health, Date.now())
           this.settleLater()
           // Commands, live events and alarms run in commit order but off the commit path: with an
@@ -177,6 +198,7 @@ export class IngestPipeline {
           this.health = ingestCommitFailed(this.health, Date.now(), errorWords(err), batch.length)
           await loadMachineRegistry().catch(() => {})
           for (const p of batch) p.reject(err as Error)
+          alive?.waiting.forEach(w => w.reject(err as Error))
         }
       }
     })()
@@ -222,14 +244,16 @@ export class IngestPipeline {
     await this.afterCommit
   }
 
-  private async commit(items: QueueItem[]): Promise<{ effects: IngestEffects, jobDecisions: Map<number, CompensationDecision | null> }> {
+  private async commit(items: QueueItem[], alive: AliveRecord | null): Promise<{ effects: IngestEffects, jobDecisions: Map<number, CompensationDecision | null> }> {
     const t0 = performance.now()
     const now = Date.now()
     const dead: DeadLetterRow[] = []
     const messages = decodeAll(items, now, dead)
     const fresh = await leaveOutStored(messages)
     const fold = foldMachines(fresh, now, this.trendRules(), { clockToleranceMs: this.clockToleranceMs, allowance: this.allowance })
-    await writeBatch(statementsOf(fold, dead, now))
+    const statements = statementsOf(fold, dead, now)
+    if (alive) statements.push({ sql: 'update server_runs set alive_at = ?1 where id = ?2', args: [alive.at, alive.runId] })
+    await writeBatch(statements)
 
     // Committed: memory follows, counters move.
     const { effects, rows } = fold

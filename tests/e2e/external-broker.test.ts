@@ -82,8 +82,7 @@ describe('external broker (Mosquitto)', () => {
     expect(await count(`select count(*) from machine_messages where machine_id = 'cg-01' and kind = 'birth'`)).toBe(1)
   })
 
-  // Skipped 2026-12-05, open defect: since 0c7e79d the heartbeat's alive write (server/utils/heartbeat.ts) blocks on another process's write lock and ingest no longer reports the failed commit within 15 s; the tests after it then find no ingest. Found by bisect (passes at 64473a3). To fix before un-skipping.
-  it.skip('a message whose commit failed is delivered again and stored once the database writes again', async () => {
+  it('a message whose commit failed is delivered again and stored once the database writes again', async () => {
     pub('cg-02', birth(1))
     await until(async () => (await count(`select count(*) from machine_messages where machine_id = 'cg-02' and kind = 'birth'`)) === 1, 'the birth')
     // Another process (a backup tool, a shell) holds the write lock past the 5 s busy timeout:
@@ -99,8 +98,7 @@ describe('external broker (Mosquitto)', () => {
     await until(async () => (await count(`select count(*) from readings where machine_id = 'cg-02' and seq = 2`)) === 1, 'the reading after the lock is gone')
   })
 
-  // Skipped 2026-12-05, open defect: since 0c7e79d the heartbeat's alive write (server/utils/heartbeat.ts) blocks on another process's write lock and ingest no longer reports the failed commit within 15 s; the tests after it then find no ingest. Found by bisect (passes at 64473a3). To fix before un-skipping.
-  it.skip('with the documented ACL, another machine\'s account on a machine\'s client id gets neither its session nor its commands', async () => {
+  it('with the documented ACL, another machine\'s account on a machine\'s client id gets neither its session nor its commands', async () => {
     const A = 'cg-03'
     const B = 'cg-04'
     pub(A, birth(1))
@@ -122,8 +120,7 @@ describe('external broker (Mosquitto)', () => {
     expect(JSON.parse(back.out.slice(back.out.indexOf('{'))).type).toBe('hold')
   })
 
-  // Skipped 2026-12-05, open defect: since 0c7e79d the heartbeat's alive write (server/utils/heartbeat.ts) blocks on another process's write lock and ingest no longer reports the failed commit within 15 s; the tests after it then find no ingest. Found by bisect (passes at 64473a3). To fix before un-skipping.
-  it.skip('every machine account reads Owlshift\'s presence, only Owlshift writes it; the broker says "offline" when Owlshift is killed, "paused" when it is stopped', async () => {
+  it('every machine account reads Owlshift\'s presence, only Owlshift writes it; the broker says "offline" when Owlshift is killed, "paused" when it is stopped', async () => {
     const presence = (machine: string) => {
       const r = mosquittoSub(['-i', machineClientId(CELL, machine), ...account(machine), '-t', serverPresenceTopic, '-C', '1', '-W', '5'])
       expect(r.status, r.err).toBe(0)
