@@ -10,7 +10,12 @@ export async function startServer(opts: { dataDir: string, port: number, env?: R
   const child = spawn(process.execPath, [join(rootDir, '.output/server/index.mjs')], {
     env: {
       PATH: process.env.PATH!, PORT: String(opts.port), HOST: '127.0.0.1', OWLSHIFT_DATA_DIR: opts.dataDir, OWLSHIFT_SEED_DEMO: '1',
-      NUXT_SESSION_PASSWORD: 'crash-test-session-password-of-enough-length', NUXT_SESSION_COOKIE_SECURE: 'false', MQTT_HOST: '127.0.0.1', ...opts.env,
+      NUXT_SESSION_PASSWORD: 'crash-test-session-password-of-enough-length', NUXT_SESSION_COOKIE_SECURE: 'false', MQTT_HOST: '127.0.0.1',
+      // Retention off unless a test sets it: the simulator's scenarios are dated by machine time
+      // (quiet-night starts 2026-03-02), so with it on, what a test just stored is older than the
+      // retention windows on today's calendar and is folded into summaries before it is counted.
+      OWLSHIFT_RETENTION_DAYS: '0', OWLSHIFT_RETENTION_EVENTS_DAYS: '0', OWLSHIFT_RETENTION_DECISIONS_DAYS: '0', OWLSHIFT_RETENTION_COMMANDS_DAYS: '0',
+      ...opts.env,
     },
     stdio: ['ignore', 'pipe', 'pipe'],
   })
