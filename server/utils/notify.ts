@@ -185,10 +185,16 @@ export async function sweepAlerts() {
 
 // ---------------------------------------------------------------- delivery
 
-function messageBase(a: AlarmView, timeZone: string): Omit<AlertMessageInput, 'level' | 'why'> {
+async function cellNames(): Promise<Map<string, string>> {
+  const rows = await useDb().select({ id: schema.cells.id, name: schema.cells.name }).from(schema.cells)
+  return new Map(rows.map(r => [r.id, r.name]))
+}
+
+function messageBase(a: AlarmView, timeZone: string, cells: Map<string, string>): Omit<AlertMessageInput, 'level' | 'why'> {
   const machine = a.machineId ? machineContext(a.machineId) : undefined
+  const cell = !a.machineId && a.cellId ? { cellName: cells.get(a.cellId) ?? a.cellId, cellMachines: a.machines.map(id => machineContext(id)?.name ?? id) } : {}
   return {
-    alarmId: a.id, machineId: a.machineId, machineName: machine?.name ?? null, title: a.title, message: a.message,
+    alarmId: a.id, machineId: a.machineId, machineName: machine?.name ?? null, ...cell, title: a.title, message: a.message,
     priority: a.priority as AlarmPriority, steps: a.steps, raisedAt: a.raisedAt, timeZone,
     // A latching alarm owed after its condition cleared says so (and when).
     clearedAt: a.latching && !a.active ? a.lastChangeAt : null,
@@ -198,7 +204,7 @@ function messageBase(a: AlarmView, timeZone: string): Omit<AlertMessageInput, 'l
 async function deliver(a: AlarmView, sends: AlertSend[], ppl: Awaited<ReturnType<typeof people>>, timeZone: string, now: number) {
   const db = useDb()
   const keys = await useVapidKeys()
-  const msgBase = messageBase(a, timeZone)
+  const msgBase = messageBase(a, timeZone, await cellNames())
   const { publicUrl } = notifySettings()
   for (const s of sends) {
     const person = ppl.find(p => p.id === s.userId)
@@ -267,7 +273,8 @@ async function deliverReleases(items: { alarm: AlarmView, send: AlertSend }[]) {
     const person = ppl.find(p => p.id === userId)
     if (!person) continue
     if (mine.length === 1) { await deliver(mine[0]!.alarm, [{ ...mine[0]!.send, released: false }], ppl, calendar.timeZone, now); continue }
-    const msgs = mine.map(i => ({ ...messageBase(i.alarm, calendar.timeZone), level: 0, why: i.send.why }))
+    const cells = await cellNames()
+    const msgs = mine.map(i => ({ ...messageBase(i.alarm, calendar.timeZone, cells), level: 0, why: i.send.why }))
     const summary = alertReleaseSummary(msgs)
     const top = Math.min(...mine.map(i => i.alarm.priority)) as AlarmPriority
     if (mine.some(i => i.send.push)) {

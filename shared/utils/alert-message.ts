@@ -6,6 +6,9 @@ export interface AlertMessageInput {
   alarmId: number
   machineId: string | null
   machineName: string | null
+  /** a cell alarm (fire, mist; no machine): its cell's name, and the machines it stopped or that reported it */
+  cellName?: string | null
+  cellMachines?: readonly string[]
   title: string
   message: string
   priority: AlarmPriority
@@ -17,6 +20,18 @@ export interface AlertMessageInput {
   clearedAt?: number | null
   /** the cell's time zone, for the times in the words */
   timeZone?: string
+}
+
+/**
+ * Where the alarm is, as a person reads it first: its machine; else its cell with the machines it
+ * stopped ("Night cell A (Wren, Kite)"); else Owlshift itself — an alarm about the server
+ * (data not stored, disk filling up) belongs to no cell, and "Cell" sent the lead to the machines.
+ */
+export function alertPlace(m: Pick<AlertMessageInput, 'machineId' | 'machineName' | 'cellName' | 'cellMachines'>): string {
+  const machine = m.machineName ?? m.machineId
+  if (machine) return machine
+  if (m.cellName) return `${m.cellName}${m.cellMachines?.length ? ` (${m.cellMachines.join(', ')})` : ''}`
+  return 'Owlshift server'
 }
 
 const clock = (ms: number, timeZone = 'UTC') => new Intl.DateTimeFormat('en-GB', { timeZone, hour: '2-digit', minute: '2-digit', hourCycle: 'h23' }).format(new Date(ms))
@@ -43,7 +58,7 @@ export interface AlertPushPayload {
 export function alertLinkFor(alarmId: number): string { return `/alarms?open=${alarmId}` }
 
 export function alertPushPayload(m: AlertMessageInput, deliveryId: number | null): AlertPushPayload {
-  const where = m.machineName ?? m.machineId ?? 'Cell'
+  const where = alertPlace(m)
   const escalated = m.level > 0 ? ' (escalated)' : ''
   const cleared = alertClearedWords(m)
   const said = m.message && m.message !== m.title ? m.message : `${ALARM_PRIORITY_NAMES[m.priority]} priority alarm`
@@ -60,7 +75,7 @@ export function alertPushPayload(m: AlertMessageInput, deliveryId: number | null
 }
 
 export function alertEmail(m: AlertMessageInput, baseUrl: string, timeZone: string): { subject: string, text: string, html: string } {
-  const where = m.machineName ?? m.machineId ?? 'Cell'
+  const where = alertPlace(m)
   const link = `${baseUrl.replace(/\/$/, '')}${alertLinkFor(m.alarmId)}`
   const raised = new Intl.DateTimeFormat('en-GB', { timeZone, dateStyle: 'medium', timeStyle: 'short' }).format(new Date(m.raisedAt))
   const subject = `[Owlshift ${ALARM_PRIORITY_NAMES[m.priority]}]${m.level > 0 ? ' Escalated:' : ''} ${where} — ${m.title}`
@@ -86,7 +101,7 @@ export function alertEmail(m: AlertMessageInput, baseUrl: string, timeZone: stri
 
 /** An SMS: short (one or two segments), what and where, cleared or not, how to acknowledge. */
 export function alertSmsText(m: AlertMessageInput, baseUrl: string): string {
-  const where = m.machineName ?? m.machineId ?? 'Cell'
+  const where = alertPlace(m)
   const cleared = alertClearedWords(m)
   const detail = m.message && m.message !== m.title ? ` ${m.message.slice(0, 80)}` : ''
   return `Owlshift ${ALARM_PRIORITY_NAMES[m.priority]}: ${where} — ${m.title}.${detail}${cleared ? ` (${cleared})` : ''} Reply 1 to acknowledge. ${baseUrl.replace(/\/$/, '')}${alertLinkFor(m.alarmId)}`
@@ -94,7 +109,7 @@ export function alertSmsText(m: AlertMessageInput, baseUrl: string): string {
 
 /** What a voice call says (the call then asks for a key). */
 export function alertVoiceText(m: AlertMessageInput): string {
-  const where = m.machineName ?? m.machineId ?? 'the cell'
+  const where = alertPlace(m)
   const cleared = alertClearedWords(m)
   return `Owlshift, ${ALARM_PRIORITY_NAMES[m.priority]} priority alarm. ${where}: ${m.title}.${cleared ? ` It ${cleared}.` : ''}`
 }
@@ -104,7 +119,7 @@ export function alertVoiceText(m: AlertMessageInput): string {
  * Push title and body; `count` names how many.
  */
 export function alertReleaseSummary(list: readonly AlertMessageInput[]): { title: string, body: string, url: string } {
-  const lines = list.map(m => `${m.machineName ?? m.machineId ?? 'Cell'}: ${m.title}${m.clearedAt ? ` (${alertClearedWords(m)})` : ''}`)
+  const lines = list.map(m => `${alertPlace(m)}: ${m.title}${m.clearedAt ? ` (${alertClearedWords(m)})` : ''}`)
   return {
     title: `${list.length} alarm${list.length === 1 ? '' : 's'} held through quiet hours`,
     body: lines.join('\n'),
