@@ -64,6 +64,8 @@ export interface CellOptions {
   /** how long (simulated s) a machine short of an allowance waits for a renewal before it holds; default its cycle time */
   allowanceWaitS?: number
   onMessage: (machineId: string, message: SequencedMessage) => void
+  /** each part as ground, with its true size (hidden from the server): for benchmarks that judge by it */
+  onPartGround?: (machineId: string, part: { serial: number, trueUm: number, outOfTolerance: boolean, timeS: number }) => void
 }
 
 interface Stats {
@@ -373,7 +375,9 @@ export function createCell(options: CellOptions): Cell {
     m.partLoaded = false
     m.stats.partsGround++
     m.stats.sinceLastWord.parts++
-    if (ground.trueUm < m.job.lowerToleranceUm || ground.trueUm > m.job.upperToleranceUm) m.stats.sinceLastWord.trulyOut++
+    const outOfTolerance = ground.trueUm < m.job.lowerToleranceUm || ground.trueUm > m.job.upperToleranceUm
+    if (outOfTolerance) m.stats.sinceLastWord.trulyOut++
+    options.onPartGround?.(m.id, { serial: ground.serial, trueUm: ground.trueUm, outOfTolerance, timeS: now })
     event(m, { type: 'part_ground', part: ground.serial, offsetUm: round3(ground.offsetUm), wheelDiameterMm: round3(ground.wheelDiameterMm) })
     const gauged = plantGauge(m.plant, now)
     if (!gauged) return

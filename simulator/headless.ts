@@ -6,7 +6,7 @@
 //   const result = runHeadless({ scenario, seed: 7, hours: 10, machines: 12 })
 //   result.summary  // parts, rejects, dresses, commands, true vs measured size statistics
 import type { CommandMessage, SequencedMessage } from '../shared/utils/contract'
-import { createCell, type Cell } from './cell'
+import { createCell, type Cell, type CellOptions } from './cell'
 import type { Scenario } from './scenario'
 
 export interface HeadlessController {
@@ -25,6 +25,8 @@ export interface HeadlessOptions {
   obeyAllowance?: boolean
   onMessage?: (machineId: string, message: SequencedMessage) => void
   onCommand?: (machineId: string, command: CommandMessage) => void
+  /** each part as ground, with its true size (cell.ts) */
+  onPartGround?: CellOptions['onPartGround']
 }
 
 export interface HeadlessResult {
@@ -45,6 +47,7 @@ export function runHeadless(options: HeadlessOptions): HeadlessResult {
     seed: options.seed,
     machines: options.machines,
     obeyAllowance: options.obeyAllowance,
+    onPartGround: options.onPartGround,
     onMessage(machineId, message) {
       messages++
       options.onMessage?.(machineId, message)

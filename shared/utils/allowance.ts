@@ -7,7 +7,7 @@
 // The grant names a part serial, not a count: a grant that arrives late, twice or out of order
 // never lets a machine grind more than the server meant when it sent it, and the parts a machine
 // ground since the server last heard of it count against the grant whether the server saw them or not.
-import { compensationSigmaUm, type CompensationState } from './compensation'
+import { compensationHoltWeights, compensationSigmaUm, type CompensationState } from './compensation'
 import { restartFromStates, type AllowanceGrant, type CommandMessage, type MachineMessage } from './contract'
 
 export interface AllowanceSettings {
@@ -17,10 +17,15 @@ export interface AllowanceSettings {
   guardSigmas: number
   /** never more than this many minutes of parts at the engine's cycle time */
   maxMinutes: number
+  /** the drift with no further offset may be this fraction faster than the engine's slope (a gain mismatch, a slope still settling) */
+  driftMargin: number
 }
 
-/** Defaults (docs/mqtt.md#the-allowance): a quarter of the half tolerance or 3 σ, whichever is wider; at most 30 minutes. */
-export const defaultAllowanceSettings: AllowanceSettings = { guardFraction: 0.25, guardSigmas: 3, maxMinutes: 30 }
+/**
+ * Defaults (docs/mqtt.md#the-allowance): a quarter of the half tolerance or 3 σ, whichever is wider;
+ * the drift taken 50 % faster than learnt, plus 3 σ of the slope's own estimate; at most 30 minutes.
+ */
+export const defaultAllowanceSettings: AllowanceSettings = { guardFraction: 0.25, guardSigmas: 3, maxMinutes: 30, driftMargin: 0.5 }
 
 /** What the server keeps of a machine's allowance (machine_status.allowance). */
 export interface AllowanceState {
@@ -97,22 +102,57 @@ export function allowanceFor(x: AllowanceInputs): Allowance {
   if (!offsets.length) return zero('the offset in force is not known')
   const inWheel = base + 1
   const level = st.level!
-  const slope = st.slope
+  // The drift the coming parts may take, each way (docs/mqtt.md#the-allowance): the learnt slope,
+  // faster by the margin, plus 3 σ of the slope's estimate. The engine learnt its slope with its
+  // own offsets moving; with none coming, a machine whose true gain is ξ × the model's drifts ξ × as
+  // fast (ξ up to 1.5 is what the engine allows for), and the slope carries its own noise.
+  const slopeSd = compensationSigmaUm(st) * holtSlopeSdPerSigma(s.drift.levelWeight, s.drift.slopeWeight)
+  const grow = settings.guardSigmas * slopeSd
+  const up = Math.max(st.slope, 0) * (1 + settings.driftMargin) + grow
+  const down = Math.min(st.slope, 0) * (1 + settings.driftMargin) - grow
+  const ahead = inWheel - x.lastPartGauged
   let parts = Number.POSITIVE_INFINITY
   for (const u of offsets) {
-    const sizeInWheel = level + (inWheel - x.lastPartGauged) * slope + s.gain * u
-    if (sizeInWheel > hi || sizeInWheel < lo) return zero(`the part in the wheel is predicted at ${fmt(sizeInWheel)} µm, in the guard band`, guardUm)
-    if (Math.abs(slope) < 1e-12) continue
-    const room = slope > 0 ? (hi - sizeInWheel) / slope : (sizeInWheel - lo) / -slope
-    parts = Math.min(parts, Math.floor(room + 1e-9))
+    const sizeGauged = level + s.gain * u // the last gauged part's disturbance at this offset
+    const sizeInWheel = level + ahead * st.slope + s.gain * u
+    const worstInWheel = [sizeGauged + ahead * up, sizeGauged + ahead * down]
+    if (worstInWheel[0]! > hi || worstInWheel[1]! < lo) return zero(`the part in the wheel is predicted at ${fmt(sizeInWheel)} µm, too near the guard band to go on`, guardUm)
+    const roomUp = up > 1e-12 ? (hi - sizeGauged) / up : Number.POSITIVE_INFINITY
+    const roomDown = down < -1e-12 ? (sizeGauged - lo) / -down : Number.POSITIVE_INFINITY
+    parts = Math.min(parts, Math.floor(Math.min(roomUp, roomDown) + 1e-9) - ahead)
   }
   const cap = Math.max(0, Math.floor((settings.maxMinutes * 60) / st.cycleTimeS))
   const capped = parts >= cap
   const n = Math.max(0, Math.min(parts, cap))
   const reason = capped
     ? `${n} parts: the most allowed (${settings.maxMinutes} min at ${fmt(st.cycleTimeS, 1)} s a part)`
-    : `${n} parts until the predicted size reaches the guard band (${fmt(guardUm)} µm inside tolerance)`
+    : `${n} parts until the size, drifting at up to ${fmt(Math.max(up, -down), 4)} µm a part, may reach the guard band (${fmt(guardUm)} µm inside tolerance)`
   return { parts: n, throughPart: inWheel + n, reason, guardUm }
+}
+
+/**
+ * The spread of the Holt slope's estimate per σ of the readings, once settled, for a straight drift
+ * under white noise: the steady state of its error covariance P = F·P·Fᵀ + G·Gᵀ (the discrete
+ * Lyapunov equation of a fixed-gain filter). In the error-correction form the engine uses
+ * (docs/compensation.md, step 2) the level moves by α·e and the slope by γ·e = α·β·e, so the error
+ * (level, slope) goes to F = [[1−α, 1−α], [−γ, 1−γ]] times itself plus G = [α, γ] times the noise.
+ * Solved in closed form for its three unknowns; tests check it against a simulation.
+ */
+export function holtSlopeSdPerSigma(levelWeight: number, slopeWeight: number): number {
+  const { alpha, beta } = compensationHoltWeights(levelWeight, slopeWeight)
+  const a = 1 - alpha
+  const g = alpha * beta
+  // p = a²(p + 2q + r) + α²;  q = a(−g·p + (1−2g)·q + (1−g)·r) + α·g;  r = g²·p − 2g(1−g)·q + (1−g)²·r + g²
+  const m = [
+    [1 - a * a, -2 * a * a, -a * a],
+    [a * g, 1 - a * (1 - 2 * g), -a * (1 - g)],
+    [-g * g, 2 * g * (1 - g), 1 - (1 - g) * (1 - g)],
+  ]
+  const rhs = [alpha * alpha, alpha * g, g * g]
+  const det = (x: number[][]) => x[0]![0]! * (x[1]![1]! * x[2]![2]! - x[1]![2]! * x[2]![1]!) - x[0]![1]! * (x[1]![0]! * x[2]![2]! - x[1]![2]! * x[2]![0]!) + x[0]![2]! * (x[1]![0]! * x[2]![1]! - x[1]![1]! * x[2]![0]!)
+  const d = det(m)
+  const r = det(m.map((row, i) => [row[0]!, row[1]!, rhs[i]!])) // Cramer's rule for the third unknown
+  return d === 0 || !(r / d > 0) ? 0 : Math.sqrt(r / d)
 }
 
 /**
