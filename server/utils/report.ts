@@ -97,6 +97,21 @@ export interface ReportFolded {
   note: string
 }
 
+/**
+ * What is left of a machine's cycle events and answers older than their retention (activity_hours,
+ * server/utils/retention.ts): parts and offsets per hour. The report adds them to what it counts
+ * from the raw rows, so a range across the boundary counts every part once.
+ */
+export interface ReportFoldedActivity {
+  /** hours starting inside the range with parts or offsets folded */
+  hours: number
+  firstHour: number
+  lastHour: number
+  produced: number
+  good: number
+  offsetsApplied: number
+}
+
 export interface ReportCompensation {
   offsetsApplied: number
   offsetsRejected: number
@@ -166,6 +181,8 @@ export interface ReportMachine {
   capability: ReportCapability[]
   /** readings of the range already folded into hourly summaries by retention, per job */
   folded: ReportFolded[]
+  /** parts and offsets of the range counted from hourly summaries (their cycle events folded); null when none */
+  foldedActivity: ReportFoldedActivity | null
   compensation: ReportCompensation
   chart: ReportChart
 }
@@ -206,6 +223,10 @@ export interface ReportCompleteness {
   readings: number
   /** readings of the range folded into hourly summaries by retention (no longer stored one by one) */
   foldedReadings: number
+  /** parts of the range counted from hourly summaries, their cycle events folded by retention */
+  foldedParts: number
+  /** in words, what the figures were read from: raw rows, hourly summaries or both */
+  sources: string
   missingSequenceNumbers: number
   /** gaps some of whose numbers are still missing; `missing`: how many */
   gaps: { machineId: string; fromSeq: number; toSeq: number; detectedAt: number; missing: number }[]
@@ -301,7 +322,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
   // into an object, which costs more than the query itself when a night has 20,000 parts.
   const US = '\u001f' // unit separator: never inside a number or a stored JSON text
   // One batch: one connection, memory-mapped reads (see readPrelude), one snapshot of the data.
-  const [, jobs, readingLists, unloaded, marked, births, ackLists, ackOther, hourLists] = await db.batch([
+  const [, jobs, readingLists, unloaded, marked, births, ackLists, ackOther, hourLists, activityLists] = await db.batch([
     readPrelude(db),
     db.select().from(schema.jobs),
     db.all<{ m: string; jobs: string; seqs: string; parts: string; offs: string; times: string; dia: string; slopes: string; st: string; lo: number; hi: number }>(sql`
@@ -339,6 +360,15 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
       select machine_id as m, job_part_number as job, count(*) as hours, sum(n) as n, sum(faults) as faults, sum(sum_um) as s, sum(sum_sq_um) as ss,
         min(min_um) as lo, max(max_um) as hi, min(hour_start) as first, max(hour_start) as last
       from reading_hours where machine_id in ${idList} and hour_start >= ${from} and hour_start < ${to} group by 1, 2 order by 1, first`),
+    // hourly summaries of cycle events and answers older than their retention: parts and offsets
+    db.all<FoldedActivityRow>(sql`
+      select machine_id as m, hour_start as h, parts_good as good, rejects_oversize as oversize, rejects_undersize as undersize,
+        rejects_roundness as roundness, rejects_not_measured as notMeasured, rejects_unspecified as unspecified,
+        offsets_applied as applied, offset_step_sum_um as stepSum, offset_step_max_um as stepMax, offset_last_um as lastUm, offset_last_time as lastTime,
+        offsets_rejected as rejected, offsets_expired as expired
+      from activity_hours where machine_id in ${idList} and hour_start >= ${from} and hour_start < ${to}
+        and (parts_good + rejects_oversize + rejects_undersize + rejects_roundness + rejects_not_measured + rejects_unspecified + offsets_applied + offsets_rejected + offsets_expired) > 0
+      order by 1, 2`),
   ])
   // Columns, not one object per reading: a week is 300,000 readings, and objects cost more
   // (allocation and garbage collection) than everything computed from them.
@@ -396,9 +426,11 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
     const birth = b.birth
     const currentJob = m.currentJobId ? jobs.find((j) => j.id === m.currentJobId) : undefined
 
-    // Parts and scrap (part_unloaded events): all of them, and the rejects by reason
-    let unloadedCount = 0
-    const scrap = new Map<string, number>()
+    // Parts and scrap (part_unloaded events): all of them, and the rejects by reason; hours whose
+    // events retention folded are counted from their summaries
+    const fa = foldedActivityOf(activityLists.filter((h) => h.m === m.id))
+    let unloadedCount = fa.produced
+    const scrap = new Map<string, number>(fa.scrap)
     for (const u of un) {
       unloadedCount += Number(u.n)
       if (Number(u.code) === CYCLE_CODES.part_unloaded_reject) scrap.set(u.reason ?? 'unspecified', (scrap.get(u.reason ?? 'unspecified') ?? 0) + Number(u.n))
@@ -430,7 +462,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
       : emptyTimeModel(from)
 
     // The jobs run, split at each job change, each with its own tolerance and ideal cycle time
-    const jobRuns = await jobRunsOf(db, m.id, { from, to }, mk, b, jobByPart, currentJob ?? null, { produced, good, scrapByReason })
+    const jobRuns = await jobRunsOf(db, m.id, { from, to }, mk, b, jobByPart, currentJob ?? null, { produced, good, scrapByReason }, fa.hourly)
     const pruMissing = jobRuns.filter((j) => j.produced > 0 && j.cycleTimeS === null)
     const plannedRunMs = jobRuns.reduce((a, j) => a + (j.cycleTimeS ?? 0) * 1000 * j.produced, 0)
     const pruSource = pruMissing.length ? `no cycle time known for ${pruMissing.map((j) => j.partNumber ?? 'the job without a part number').join(', ')}`
@@ -460,8 +492,8 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
     // Compensation summary
     const lastJob = (mr.n ? mr.jobs[mr.job[mr.n - 1]!] : null) ?? birth?.job?.partNumber ?? ''
     const gain = gainOf(tunings, m.id, jobByPart.get(lastJob)?.id ?? null)
-    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? NO_ACKS, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: refusedAcks.get(`${m.id}/offset:rejected`) ?? 0, expired: refusedAcks.get(`${m.id}/offset:expired`) ?? 0 },
-      gain)
+    const compensation = compensationOf(mk, acksByMachine.get(m.id) ?? NO_ACKS, mr, b.offsetUm, heldByMachine.get(m.id) ?? new Map(), { rejected: (refusedAcks.get(`${m.id}/offset:rejected`) ?? 0) + fa.offsets.rejected, expired: (refusedAcks.get(`${m.id}/offset:expired`) ?? 0) + fa.offsets.expired },
+      gain, fa.offsets)
     const tol = jobInfo(lastJob) ?? (currentJob ? { lsl: currentJob.lowerTolNm / 1000, usl: currentJob.upperTolNm / 1000 } : null)
     const chart: ReportChart = {
       points: thinnedSizes(mr),
@@ -480,7 +512,7 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
       produced, good, scrap: scrapCount, scrapByReason, jobs: jobRuns,
       kpiInputs, kpi, downtime: tm.downtime, plannedStopMs: tm.plannedDowntimeMs, noData: tm.noData, noDataMs: tm.noDataMs,
       repairs: tm.repairs, openFailures: tm.repairs.filter((r) => !r.repaired), mttrMs: repairedMttr(tm.repairs),
-      capability, folded: hourLists.filter((h) => h.m === m.id).map((h) => foldedOf(h, jobInfo(h.job || (birth?.job?.partNumber ?? '')))), compensation: comp, chart,
+      capability, folded: hourLists.filter((h) => h.m === m.id).map((h) => foldedOf(h, jobInfo(h.job || (birth?.job?.partNumber ?? '')))), foldedActivity: fa.summary, compensation: comp, chart,
     }
   }))
 
@@ -495,7 +527,8 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
 
   const [alarms, completeness, notes, signoffs, outages] = await Promise.all([
     alarmsOf(db, ids, from, to, measuredTo, !scope.machineId),
-    completenessOf(db, ids, from, Math.max(measuredTo, from + 1), readingCount, hourLists.reduce((a, h) => a + Number(h.n) + Number(h.faults), 0)),
+    completenessOf(db, ids, from, Math.max(measuredTo, from + 1), readingCount, hourLists.reduce((a, h) => a + Number(h.n) + Number(h.faults), 0),
+      machines.reduce((a, m) => a + (m.foldedActivity?.produced ?? 0), 0), readingCount + unloaded.length + ackLists.length > 0),
     notesOf(db, ids, from, to, !scope.machineId),
     scope.shift ? signoffsOf(db, scope.cellId, scope.shift) : Promise.resolve([]),
     outagesOf(db, ids, from, to),
@@ -535,14 +568,17 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
   if (!ids.length) return []
   const mm = schema.machineMessages
   const idRows = sql.join(ids.map((id) => sql`select ${id} as id`), sql` union all `)
-  const lookups = await db.all<{ id: string; stateT: number | null; ackT: number | null; birthBeforeT: number | null; birthT: number | null; jobT: number | null }>(sql`
+  const lookups = await db.all<{ id: string; stateT: number | null; ackT: number | null; birthBeforeT: number | null; birthT: number | null; jobT: number | null; foldT: number | null; foldUm: number | null }>(sql`
     select ids.id as id,
       (select max(time) from machine_messages where machine_id = ids.id and type in ${STATE_TYPES} and time < ${from}) as stateT,
       max(coalesce((select max(time) from machine_messages where machine_id = ids.id and type = 'offset:applied' and time < ${from}), -1),
           coalesce((select max(time) from cycle_events where time < ${from} and time >= ${from - ACK_LOOKBACK_MS} and machine_id = ids.id and code = ${CYCLE_CODES.offset_applied}), -1)) as ackT,
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${from}) as birthBeforeT,
       (select max(time) from machine_messages where machine_id = ids.id and type is null and time < ${to}) as birthT,
-      (select max(time) from machine_messages where machine_id = ids.id and type = 'job_change' and time < ${from}) as jobT
+      (select max(time) from machine_messages where machine_id = ids.id and type = 'job_change' and time < ${from}) as jobT,
+      -- the last offset applied in an hour retention folded (its raw answer is gone)
+      (select offset_last_time from activity_hours where machine_id = ids.id and hour_start < ${from} and offset_last_time is not null order by hour_start desc limit 1) as foldT,
+      (select offset_last_um from activity_hours where machine_id = ids.id and hour_start < ${from} and offset_last_time is not null order by hour_start desc limit 1) as foldUm
     from (${idRows}) as ids`)
   const wanted = [...new Map(lookups.flatMap((l) => [l.stateT, l.ackT, l.birthBeforeT, l.birthT, l.jobT].filter((t): t is number => t !== null && Number(t) >= 0)
     .map((t) => [`${l.id}/${t}`, { id: l.id, t: Number(t) }] as const))).values()]
@@ -574,7 +610,8 @@ async function situationBefore(db: ReportDb, ids: string[], from: number, to: nu
     const state = pick(l.id, l.stateT, isState)
     const ack = pick(l.id, l.ackT, (t) => t === 'offset:applied')
     const lastBirth = pick(l.id, l.birthBeforeT, (t) => t === null)
-    const offsetRow = [ack, lastBirth].filter(Boolean).sort((a, b) => b!.time - a!.time)[0]
+    const folded = l.foldT !== null && l.foldUm !== null && Number(l.foldT) < from ? { time: Number(l.foldT), payload: { offsetUm: Number(l.foldUm) } as Record<string, unknown> } : undefined
+    const offsetRow = [ack, lastBirth, folded].filter(Boolean).sort((a, b) => b!.time - a!.time)[0]
     return {
       id: l.id, state, faults: state ? faults.filter((f) => f.machineId === l.id && f.time >= state.time) : [],
       offsetUm: (offsetRow?.payload as { offsetUm?: number } | undefined)?.offsetUm ?? null,
@@ -607,7 +644,8 @@ type Situation = Awaited<ReturnType<typeof situationBefore>>[number]
  * cycle time, and the birth's belongs to the job before it).
  */
 async function jobRunsOf(db: ReportDb, machineId: string, w: { from: number; to: number }, mk: readonly MarkRow[], b: Situation,
-  jobByPart: ReadonlyMap<string, JobRow>, currentJob: JobRow | null, totals: { produced: number; good: number; scrapByReason: { reason: string; count: number }[] }): Promise<ReportJobRun[]> {
+  jobByPart: ReadonlyMap<string, JobRow>, currentJob: JobRow | null, totals: { produced: number; good: number; scrapByReason: { reason: string; count: number }[] },
+  foldedHours: readonly FoldedHourParts[] = []): Promise<ReportJobRun[]> {
   type Start = { at: number; partNumber: string | null; info: BirthLike['job']; announcedCycleS: number | null }
   const fromBirth = (at: number, p: BirthLike): Start => ({ at, partNumber: p.job?.partNumber ?? null, info: p.job ?? null, announcedCycleS: p.cycleTimeS ?? null })
   const fromChange = (at: number, p: { job?: BirthLike['job'] }): Start => ({ at, partNumber: p.job?.partNumber ?? null, info: p.job ?? null, announcedCycleS: null })
@@ -642,6 +680,13 @@ async function jobRunsOf(db: ReportDb, machineId: string, w: { from: number; to:
       const c = counts[k < 0 ? runs.length - 1 : k]!
       c.produced++
       if (row.d === 'reject') c.scrap.set(row.r ?? 'unspecified', (c.scrap.get(row.r ?? 'unspecified') ?? 0) + 1)
+    }
+    // a folded hour goes to the job that ran when it began (an hour with a job change is not split)
+    for (const h of foldedHours) {
+      const k = runs.findIndex((r) => h.hour < r.to)
+      const c = counts[k < 0 ? runs.length - 1 : k]!
+      c.produced += h.produced
+      for (const [reason, n] of h.scrap) c.scrap.set(reason, (c.scrap.get(reason) ?? 0) + n)
     }
   }
   return runs.map((r, k) => {
@@ -684,6 +729,48 @@ export interface ReadingColumns {
 
 const NO_READINGS: ReadingColumns = { n: 0, seq: new Float64Array(0), part: new Float64Array(0), offsetUm: new Float64Array(0), time: new Float64Array(0), dia: new Float64Array(0), slopeUmPerPart: new Float64Array(0), status: '', job: new Uint16Array(0), jobs: [] }
 const NO_ACKS = { n: 0, time: new Float64Array(0), offsetUm: new Float64Array(0) }
+
+type FoldedActivityRow = {
+  m: string; h: number; good: number; oversize: number; undersize: number; roundness: number; notMeasured: number; unspecified: number
+  applied: number; stepSum: number; stepMax: number; lastUm: number | null; lastTime: number | null; rejected: number; expired: number
+}
+type FoldedHourParts = { hour: number; produced: number; scrap: [string, number][] }
+type FoldedOffsets = { applied: number; stepSum: number; stepMax: number; rejected: number; expired: number; last: number | null }
+const NO_FOLDED_OFFSETS: FoldedOffsets = { applied: 0, stepSum: 0, stepMax: 0, rejected: 0, expired: 0, last: null }
+
+/** One machine's folded hours of the range (activity_hours rows in hour order): parts, scrap by reason, offsets. */
+export function foldedActivityOf(rows: readonly FoldedActivityRow[]) {
+  const scrap = new Map<string, number>()
+  const hourly: FoldedHourParts[] = []
+  const offsets: FoldedOffsets = { ...NO_FOLDED_OFFSETS }
+  let produced = 0, good = 0, lastTime = -Infinity
+  for (const r of rows) {
+    const rejects: [string, number][] = ([['oversize', r.oversize], ['undersize', r.undersize], ['roundness', r.roundness], ['not_measured', r.notMeasured], ['unspecified', r.unspecified]] as [string, number][])
+      .map(([k, n]) => [k, Number(n)] as [string, number]).filter(([, n]) => n > 0)
+    const hourProduced = Number(r.good) + rejects.reduce((a, [, n]) => a + n, 0)
+    for (const [k, n] of rejects) scrap.set(k, (scrap.get(k) ?? 0) + n)
+    hourly.push({ hour: Number(r.h), produced: hourProduced, scrap: rejects })
+    produced += hourProduced
+    good += Number(r.good)
+    offsets.applied += Number(r.applied)
+    offsets.stepSum += Number(r.stepSum)
+    offsets.stepMax = Math.max(offsets.stepMax, Number(r.stepMax))
+    offsets.rejected += Number(r.rejected)
+    offsets.expired += Number(r.expired)
+    if (r.lastTime !== null && r.lastUm !== null && Number(r.lastTime) >= lastTime) { lastTime = Number(r.lastTime); offsets.last = Number(r.lastUm) }
+  }
+  const summary: ReportFoldedActivity | null = rows.length
+    ? { hours: rows.length, firstHour: Number(rows[0]!.h), lastHour: Number(rows[rows.length - 1]!.h), produced, good, offsetsApplied: offsets.applied }
+    : null
+  return { produced, scrap, hourly, offsets, summary }
+}
+
+/** What a report's figures were read from, in words (shown under "Data received"). */
+export function reportSources(raw: boolean, folded: boolean): string {
+  if (raw && folded) return 'raw rows for recent hours, hourly summaries for hours retention has folded'
+  if (folded) return 'hourly summaries: retention has folded this range (counts, mean and σ; no single parts, chart or run rules)'
+  return 'raw rows'
+}
 
 /** Columns from the concatenated texts of one machine's readings (see the query in reportBuild). */
 function readingColumns(n: number, seqs: string, parts: string, offs: string, times: string, dia: string, slopes: string, status: string, jobText: string, sep: string): ReadingColumns {
@@ -833,16 +920,20 @@ function foldedOf(h: { m: string; job: string; hours: number; n: number; faults:
 
 type MarkRow = { machineId: string; seq: number; kind: string; type: string | null; time: number; payload: unknown }
 
-function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }, gain: { gain: number; source: string }) {
+function compensationOf(mk: readonly MarkRow[], acks: { n: number; time: Float64Array; offsetUm: Float64Array }, mr: ReadingColumns, offsetBefore: number | null, held: Map<number, string>, refused: { rejected: number; expired: number }, gain: { gain: number; source: string },
+  folded: FoldedOffsets = NO_FOLDED_OFFSETS) {
   let offset = offsetBefore
   if (offset === null) {
     // no offset known before the window: the first birth in it says what was in force
     const birth = mk.find((e) => e.kind === 'birth')
     if (birth && (!acks.n || birth.time <= acks.time[0]!)) offset = Number((birth.payload as { offsetUm?: number }).offsetUm ?? 0)
   }
-  let applied = 0, total = 0, largest = 0
+  // offsets of folded hours (all before the raw ones: retention folds by time): their counts and
+  // steps as summed, and the raw offsets step on from the last of them
+  let applied = folded.applied, total = folded.stepSum, largest = folded.stepMax
   const { rejected, expired } = refused
   let first: number | null = offset
+  if (folded.last !== null) { first ??= folded.last; offset = folded.last }
   const steps = new Float64Array(acks.n)
   const dressEvents: { time: number; parts: number; trigger: string }[] = []
   let wheelChanges = 0, masterings = 0
@@ -1013,7 +1104,7 @@ async function reachedPeople(db: ReportDb, scopeCond: SQL | undefined, from: num
 
 const presencePlaced = sql<number>`coalesce(${schema.presenceLog.machineTime}, ${schema.presenceLog.at})`
 
-async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number, foldedReadings: number): Promise<ReportCompleteness> {
+async function completenessOf(db: ReportDb, ids: string[], from: number, to: number, readingCount: number, foldedReadings: number, foldedParts: number, anyRaw: boolean): Promise<ReportCompleteness> {
   const idList = ids.length ? ids : ['\u0000']
   const [gaps, presence, dead] = await Promise.all([
     // what is still missing now, not what was missing when the gap was seen (late numbers fill it)
@@ -1045,6 +1136,8 @@ async function completenessOf(db: ReportDb, ids: string[], from: number, to: num
   return {
     readings: readingCount,
     foldedReadings,
+    foldedParts,
+    sources: reportSources(anyRaw, foldedReadings + foldedParts > 0),
     missingSequenceNumbers: gaps.reduce((a, g) => a + Number(g.missing), 0),
     gaps: gaps.map((g) => ({ machineId: g.machineId, fromSeq: Number(g.fromSeq), toSeq: Number(g.toSeq), detectedAt: Number(g.detectedAt), missing: Number(g.missing) })),
     disconnections,

@@ -149,7 +149,9 @@ async function foldMachineMessages(cutoff: number, out: RetentionResult) {
     if (a.m !== prevMachine) {
       prevMachine = a.m
       const [p] = await db.all<{ o: number | null }>(sql`select offset_last_um as o from activity_hours where machine_id = ${a.m} and offset_last_time is not null order by hour_start desc limit 1`)
-      prev = p?.o ?? null
+      // none folded yet: the offset the machine announced at its birth before this one (as the report steps from it)
+      const [b] = p?.o == null ? await db.all<{ o: number | null }>(sql`select json_extract(payload, '$.offsetUm') as o from machine_messages where machine_id = ${a.m} and type is null and time <= ${a.t} order by time desc limit 1`) : []
+      prev = p?.o ?? b?.o ?? null
     }
     const o = Number(a.o), t = Number(a.t), hour = Math.floor(t / H) * H
     const step = prev === null ? 0 : Math.abs(o - prev)

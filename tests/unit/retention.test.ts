@@ -74,12 +74,15 @@ describe('retention folds every kind of raw row into hourly summaries that count
 
   it('applied offsets: how many, Σ and largest |step| and the last one of each hour', () => {
     expect(summed('offsets_applied')).toEqual(counted(raw.cycle_events!, 'time', r => Number(r.code) === CYCLE_CODES.offset_applied))
-    // steps from the offset applied before, in machine time order per machine
+    // steps from the offset applied before, in machine time order per machine; the first from the
+    // offset the machine announced at its birth (as the report of the raw rows steps from it)
     for (const m of p.machineIds) {
       const acks = raw.cycle_events!.filter(r => r.machine_id === m && Number(r.code) === CYCLE_CODES.offset_applied && !pinned(m, Number(r.time))).sort((a, b) => Number(a.time) - Number(b.time))
+      const birth = raw.machine_messages!.filter(r => r.machine_id === m && r.kind === 'birth').sort((a, b) => Number(a.time) - Number(b.time))[0]!
+      const birthOffset = Number(JSON.parse(String(birth.payload)).offsetUm)
       const byHour = new Map<number, { sum: number, max: number, last: number }>()
       acks.forEach((a, i) => {
-        const step = i ? Math.abs(Number(a.a) - Number(acks[i - 1]!.a)) : 0
+        const step = Math.abs(Number(a.a) - (i ? Number(acks[i - 1]!.a) : birthOffset))
         const h = byHour.get(hourOf(Number(a.time))) ?? { sum: 0, max: 0, last: 0 }
         byHour.set(hourOf(Number(a.time)), { sum: h.sum + step, max: Math.max(h.max, step), last: Number(a.a) })
       })
