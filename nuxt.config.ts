@@ -23,7 +23,7 @@ export default defineNuxtConfig({
     },
   },
   runtimeConfig: {
-    // Every value here can be overridden by NUXT_* variables; server/utils/config.ts
+    // Every value here can be overridden by NUXT_* variables; server/utils/platform/config.ts
     // reads the documented plain names (DATABASE_URL, …) and validates them at start.
     session: {
       name: 'owlshift-session',

@@ -5,7 +5,7 @@
 //   npx tsx scripts/bench-control.ts --no-write            print only, leave docs/benchmarks.md alone
 //   npx tsx scripts/bench-control.ts --compare=<git rev>   also run the engine of that commit ("before")
 //
-// The loop (simulator/control-loop.ts): the plant (shared/utils/plant.ts) grinds one part every
+// The loop (simulator/control-loop.ts): the plant (simulator/plant.ts) grinds one part every
 // cycle, its gauge reading goes to the engine, the engine's commands go back with the plant's
 // latency; the machine dresses on its own counter and when the engine asks; figures are pooled over
 // seeds. RMS/σ: RMS of measured deviation from target (outlier readings left out) ÷ the plant's
@@ -98,7 +98,7 @@ async function main(): Promise<void> {
     console.log(s)
   }
   const failures: string[] = []
-  out(`Plant: shared/utils/plant.ts defaults unless the scenario says otherwise; ${PARTS} parts × ${SEEDS.length} seeds per row, ${CYCLE_S} s/part, spec ±2 µm, pipeline 3 parts, model gain ${MODEL_GAIN}, max step 2 µm (axis).`)
+  out(`Plant: simulator/plant.ts defaults unless the scenario says otherwise; ${PARTS} parts × ${SEEDS.length} seeds per row, ${CYCLE_S} s/part, spec ±2 µm, pipeline 3 parts, model gain ${MODEL_GAIN}, max step 2 µm (axis).`)
   out('A dress takes the wear since the last dress off the wheel (docs/plant-model.md); the gauge is re-mastered every 720 parts (4 h).')
   out('Engine: default settings, apart from the machine-offset setting where a row names it. "stops": stop requests (a run counts once). Out of tolerance: true size outside ±2 µm.')
   const strategies: { label: string; strategy: LoopStrategy; engine: CompensationEngine | undefined }[] = [

@@ -13,7 +13,7 @@ import { dirname, resolve } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import * as current from '../shared/utils/compensation'
 import type { CompensationInput, CompensationState } from '../shared/utils/compensation'
-import { createSeededRandom } from '../shared/utils/random'
+import { createSeededRandom } from '../simulator/random'
 import { writeBenchmarkSection } from './lib/benchmarks-doc'
 import { compensationEngineAt, type CompensationEngine } from './lib/engine-at'
 

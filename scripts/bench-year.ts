@@ -59,7 +59,7 @@ async function counts(p: PlantDb) {
 
 /** One retention pass over every kind, each kept `days` days (the server's hourly upkeep), as of `now`. */
 async function retentionPass(now: number, days: number) {
-  const { retentionPass: pass } = await import('../server/utils/retention')
+  const { retentionPass: pass } = await import('../server/utils/storage/retention')
   plantClock.now = now
   const r = await pass({ readingsDays: days, eventsDays: days, decisionsDays: days, commandsDays: days }, now)
   return { ms: r.ms, folded: r.readings + r.cycleEvents + r.answers + r.decisions + r.snapshots + r.commands, more: r.more }
@@ -87,8 +87,8 @@ const summaryBytes = (s: Split[]) => sum(s.filter(x => SUMMARIES.includes(x.tabl
 
 /** The report of the whole cell over [from, to), timed: median of `runs` after one warm-up. */
 async function timeReport(from: number, to: number, now: number) {
-  const { reportBuild } = await import('../server/utils/report')
-  const db = (globalThis as unknown as { useDb: () => import('../server/utils/db').Db }).useDb()
+  const { reportBuild } = await import('../server/utils/reports/report')
+  const db = (globalThis as unknown as { useDb: () => import('../server/utils/platform/db').Db }).useDb()
   const build = () => reportBuild(db as never, { cellId: 'cell-a', from, to, machineId: null }, { now })
   let r = await build()
   const ms: number[] = []
@@ -206,7 +206,7 @@ Every row is written by ingest itself (scripts/lib/plant-ingest.ts: the core-loo
 the real migrations, the simulator's contract messages accepted as the broker hands them over); sizes are SQLite's
 own count of the pages each table and index holds (\`dbstat\`, after a checkpoint), growth over the empty database,
 divided by the parts gauged. "Folded": after retention passes with every kind kept one day
-(server/utils/retention.ts, \`retentionPass\`), run until nothing older is left. Targets (issue 22): ≤ 300 bytes
+(server/utils/storage/retention.ts, \`retentionPass\`), run until nothing older is left. Targets (issue 22): ≤ 300 bytes
 per part raw, ≤ 20 folded, each retention pass ≤ 2 s, every report over a past day, week, month or year ≤ 1 s,
 a year of 12 machines ≤ 4 GB with the default settings.
 

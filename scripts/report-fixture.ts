@@ -16,7 +16,7 @@ import { createClient, type Client, type InStatement } from '@libsql/client'
 import { drizzle } from 'drizzle-orm/libsql'
 import { migrate } from 'drizzle-orm/libsql/migrator'
 import * as schema from '../server/database/schema'
-import type { ReportDb } from '../server/utils/report'
+import type { ReportDb } from '../server/utils/reports/report'
 import type { SequencedMessage } from '../shared/utils/contract'
 import { cycleEventRow, isCycleMessage } from '../shared/utils/cycle-events'
 import type { CompensationState } from '../shared/utils/compensation'
@@ -53,7 +53,7 @@ export async function seedCell(fx: ReportFixture, scenario: Scenario, machines: 
   await fx.db.insert(schema.machines).values(specs.map((s, i) => ({ id: s.id, cellId: scenario.cell, name: s.name, model: s.model, sortOrder: i, createdAt: now }))).onConflictDoNothing()
 }
 
-/** Buffers simulator messages as database rows (the same mapping as server/utils/ingest.ts). */
+/** Buffers simulator messages as database rows (the same mapping as server/utils/ingest/ingest.ts). */
 export class MessageRows {
   readings: unknown[][] = []
   messages: unknown[][] = []

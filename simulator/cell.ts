@@ -30,8 +30,8 @@
 import {
   createPlant, plantChangeWheel, plantDress, plantGauge, plantGrind, plantMaster, plantOffsetInForce,
   plantRequestOffset, plantSetGaugeFault, plantSetUpOffset, plantSetParams, plantSetRunning, plantWheelWornOut, type Plant,
-} from '../shared/utils/plant'
-import { createSeededRandom, type SeededRandom } from '../shared/utils/random'
+} from './plant'
+import { createSeededRandom, type SeededRandom } from './random'
 import type {
   AckMessage, AllowanceGrant, BirthMessage, CommandMessage, EventMessage, ExecutionState, FaultCode, HoldCause, JobInfo, ReadingMessage, SequencedMessage, StateMessage,
 } from '../shared/utils/contract'

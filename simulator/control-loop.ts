@@ -1,5 +1,5 @@
 // One machine and Owlshift's compensation engine, part by part, without a broker or a cell: the
-// plant (shared/utils/plant.ts) grinds a part every cycle and its gauge reading goes to the engine;
+// plant (simulator/plant.ts) grinds a part every cycle and its gauge reading goes to the engine;
 // the engine's commands go back with the plant's latency; dresses come from the machine's own
 // counter and from the engine's advice; stops and wheel changes come from the scenario.
 // Used by `npm run bench:control` and by the engine's closed-loop tests. Seeded: the same
@@ -7,12 +7,12 @@
 import {
   createPlant, plantChangeWheel, plantCycle, plantDress, plantMaster, plantRequestOffset, plantSetRunning,
   plantSetParams, plantSetUpOffset, plantSizeAtZeroNoiseUm, defaultPlantParams, type PlantParams, type WheelEventResult,
-} from '../shared/utils/plant'
+} from './plant'
 import * as compensation from '../shared/utils/compensation'
 import type {
   CompensationDecision, CompensationInput, CompensationSettingsInput, CompensationState, CompensationStrategy,
 } from '../shared/utils/compensation'
-import { createSeededRandom } from '../shared/utils/random'
+import { createSeededRandom } from './random'
 
 export type LoopStrategy = CompensationStrategy | 'oracle'
 

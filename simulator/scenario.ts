@@ -4,7 +4,7 @@
 import { readFileSync } from 'node:fs'
 import { z } from 'zod'
 import { faultCodes, mqttIdSchema } from '../shared/utils/contract'
-import { DRESS_OFFSET_BEHAVIOURS, defaultPlantParams, type PlantParams } from '../shared/utils/plant'
+import { DRESS_OFFSET_BEHAVIOURS, defaultPlantParams, type PlantParams } from './plant'
 
 const plantKeys = Object.keys(defaultPlantParams) as (keyof PlantParams)[]
 const physicsSchema = z.strictObject({

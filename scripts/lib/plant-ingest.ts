@@ -24,7 +24,7 @@ const LAG_MS = 1_500
 export interface PlantDb {
   harness: ServerHarness
   client: Client
-  ingest: import('../../server/utils/ingest').IngestPipeline
+  ingest: import('../../server/utils/ingest/ingest').IngestPipeline
   machineIds: string[]
   /** last sequence number per machine, so the next run's numbering continues */
   lastSeq: Record<string, number>
@@ -38,7 +38,7 @@ export async function openPlantDb(scenario: Scenario, machines: number): Promise
   const ids = specs.map(s => s.id)
   plantClock.install()
   const harness = await openServerHarness(ids)
-  const g = globalThis as unknown as { useDb: () => import('../../server/utils/db').Db, useDbClient: () => Client }
+  const g = globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db, useDbClient: () => Client }
   const schema = await import('../../server/database/schema')
   const { eq } = await import('drizzle-orm')
   const db = g.useDb()
@@ -50,8 +50,8 @@ export async function openPlantDb(scenario: Scenario, machines: number): Promise
     const jobId = job?.id ?? (await db.select().from(schema.jobs).where(eq(schema.jobs.partNumber, s.job.partNumber)))[0]!.id
     await db.update(schema.machines).set({ currentJobId: jobId, name: s.name }).where(eq(schema.machines.id, s.id))
   }
-  await (await import('../../server/utils/machine-registry')).loadMachineRegistry()
-  const { useIngest } = await import('../../server/utils/ingest')
+  await (await import('../../server/utils/machines/machine-registry')).loadMachineRegistry()
+  const { useIngest } = await import('../../server/utils/ingest/ingest')
   return {
     harness, client: g.useDbClient(), ingest: useIngest(), machineIds: ids, lastSeq: {}, sessions: 0,
     async close() { plantClock.uninstall(); await harness.close() },

@@ -22,7 +22,7 @@ export const users = sqliteTable('users', {
   sessionGeneration: integer('session_generation').notNull().default(0),
 }, t => [uniqueIndex('users_email_unique').on(t.email)])
 
-/** Sessions signed out before their cookie expires: a saved copy of the cookie no longer works (server/utils/access.ts). */
+/** Sessions signed out before their cookie expires: a saved copy of the cookie no longer works (server/utils/accounts/access.ts). */
 export const endedSessions = sqliteTable('ended_sessions', {
   sid: text('sid').primaryKey(),
   userId: integer('user_id').notNull(),
@@ -500,7 +500,7 @@ export const readingHours = sqliteTable('reading_hours', {
 }, t => [uniqueIndex('reading_hours_key').on(t.machineId, t.hourStart, t.jobPartNumber)])
 
 /**
- * What retention leaves of the raw rows it folds other than readings (server/utils/retention.ts,
+ * What retention leaves of the raw rows it folds other than readings (server/utils/storage/retention.ts,
  * docs/storage.md#retention): counts per machine and hour. Cycle events and machine answers are
  * placed by the machine's clock, decisions and commands by the server's. Additive: a pass that
  * folds part of an hour adds to its row, so raw rows and summaries never count the same thing.
@@ -579,7 +579,7 @@ export const shiftSummarySends = sqliteTable('shift_summary_sends', {
 // ── Owlshift's own runs: when it started, when it was last known alive, how it stopped ───────────
 
 /**
- * One row per server run. `aliveAt` is written every few seconds (server/utils/heartbeat.ts): a run
+ * One row per server run. `aliveAt` is written every few seconds (server/utils/platform/heartbeat.ts): a run
  * that ends without `stoppedAt` was killed or lost its box, and the next run's start closes the gap —
  * the morning report shows it as an outage (docs/operations.md#when-owlshift-itself-goes-quiet).
  */

@@ -2,7 +2,7 @@
 // database has no users yet).
 import { count } from 'drizzle-orm'
 import { demoShop } from '../../shared/utils/demo-shop'
-import type { Db } from '../utils/db'
+import type { Db } from '../utils/platform/db'
 import * as schema from './schema'
 
 export async function seedDemoShop(db: Db, hash: (password: string) => Promise<string>): Promise<boolean> {

@@ -1,7 +1,7 @@
 // Security headers on every response, and a refusal of cookie-carrying writes that come from
 // another site. Built on h3's own utilities (no module): the checks are a few lines and we keep
 // full control over the stream and upload routes later issues add.
-import { isCrossSiteWrite } from '../utils/cross-site'
+import { isCrossSiteWrite } from '../utils/platform/cross-site'
 
 export default defineEventHandler((event) => {
   setResponseHeaders(event, {

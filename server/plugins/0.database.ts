@@ -1,8 +1,8 @@
 // Opens the database, applies migrations and (for the demo) seeds the shop before any request
 // is served: server/middleware/0.ready.ts waits on `databaseReady`.
-import { useOwlshiftConfig, ConfigError } from '../utils/config'
-import { openDatabase, useDbClient, closeDatabase, databaseFilePath } from '../utils/db'
-import { openNativeWriter } from '../utils/write-batch'
+import { useOwlshiftConfig, ConfigError } from '../utils/platform/config'
+import { openDatabase, useDbClient, closeDatabase, databaseFilePath } from '../utils/platform/db'
+import { openNativeWriter } from '../utils/storage/write-batch'
 import { applyMigrations, type MigrationFile } from '../database/migrate'
 import { seedDemoShop } from '../database/seed-demo'
 

@@ -1,7 +1,7 @@
 // Scheduled upkeep: backups every OWLSHIFT_BACKUP_EVERY_H hours, and once an hour the retention
-// pass that folds old raw rows into hourly summaries (server/utils/retention.ts).
+// pass that folds old raw rows into hourly summaries (server/utils/storage/retention.ts).
 import { databaseReady } from './0.database'
-import type { RetentionSettings } from '../utils/retention'
+import type { RetentionSettings } from '../utils/storage/retention'
 
 export default defineNitroPlugin((nitroApp) => {
   const { maintenance, databaseUrl } = useOwlshiftConfig()

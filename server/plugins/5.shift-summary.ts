@@ -1,6 +1,6 @@
 // Shift-end summary e-mail: every OWLSHIFT_SHIFT_SUMMARY_CHECK_S seconds (30 by default) look for
 // shifts of the plant's calendar that have ended and send their summary to the subscribed users,
-// once per cell and shift (server/utils/report-mail.ts). A wrong setting stops the start-up with a
+// once per cell and shift (server/utils/reports/report-mail.ts). A wrong setting stops the start-up with a
 // message naming the variable (README).
 import { databaseReady } from './0.database'
 

@@ -1,7 +1,7 @@
 // Sessions are sealed cookies, so the server remembers how they end: clearing a session (signing
 // out, nuxt-auth-utils' DELETE /api/_auth/session, a refused session) records its id as ended, and
 // the session the pages read (GET /api/_auth/session) is checked like every API call
-// (sessionEndReason in server/utils/sign-in.ts).
+// (sessionEndReason in server/utils/accounts/sign-in.ts).
 import type { SessionUser } from '#shared/types/auth'
 
 export default defineNitroPlugin(() => {

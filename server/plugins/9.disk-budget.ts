@@ -1,5 +1,5 @@
 // The disk budget: a look at the data folder's disk every OWLSHIFT_DISK_CHECK_S seconds and at
-// start (server/utils/disk-budget.ts, docs/storage.md#disk-budget).
+// start (server/utils/storage/disk-budget.ts, docs/storage.md#disk-budget).
 import { databaseReady } from './0.database'
 
 export default defineNitroPlugin((nitroApp) => {

@@ -1,4 +1,4 @@
-// The part of the `web-push` library (3.x) that server/utils/web-push-send.ts uses: the package
+// The part of the `web-push` library (3.x) that server/utils/alerts/web-push-send.ts uses: the package
 // ships no types. Names and options as in its README (sendNotification, generateVAPIDKeys).
 declare module 'web-push' {
   import type { Agent } from 'node:https'

@@ -1,4 +1,4 @@
-// What the live stream carries (server/utils/live-bus.ts → /api/stream → stores/live.ts), typed
+// What the live stream carries (server/utils/live/live-bus.ts → /api/stream → stores/live.ts), typed
 // once from the views that build it: a machine's status (liveStatusView) and an alarm (alarmView),
 // and the machine loop's own events (reading, decision, command, machine-event).
 import type { liveStatusView, MachineLoopLiveEvent, MachinePrediction } from '../utils/machine-loop'

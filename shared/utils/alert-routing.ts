@@ -1,5 +1,5 @@
 // Who gets woken, and when: pure rules over an alarm, the clock, the people and the routing table.
-// No I/O: server/utils/notify.ts feeds alarm events and timer ticks in and delivers what comes out.
+// No I/O: server/utils/alerts/notify.ts feeds alarm events and timer ticks in and delivers what comes out.
 // Exports are prefixed `alert`/`Alert` because Nuxt auto-imports shared/utils/* into one namespace.
 //
 // The model:

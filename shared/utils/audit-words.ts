@@ -1,4 +1,4 @@
-// The audit trail's action ids (server/utils/audit.ts callers) in plain words, for the audit page.
+// The audit trail's action ids (server/utils/accounts/audit.ts callers) in plain words, for the audit page.
 // Areas group them for the filter. An id not listed here is shown as it is. Pure.
 import { settingLabel } from './settings-labels'
 

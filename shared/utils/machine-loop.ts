@@ -2,7 +2,7 @@
 // (status, compensation engine, command gate, alarm conditions already reported) and what it
 // causes (rows to store, commands to send, alarm conditions, live events). No I/O and no clock:
 // `now` is the server's time, handed in. Ingest folds each commit's messages with it
-// (server/utils/ingest.ts); the replay route maps stored messages to engine inputs with
+// (server/utils/ingest/ingest.ts); the replay route maps stored messages to engine inputs with
 // engineInputsOf, and the simulator's headless controller runs the same fold
 // (simulator/engine-controller.ts), so a preview or a simulated night decides what ingest decides.
 // Over 400 lines on purpose: the loop's record types, its step and the handler of each message

@@ -74,7 +74,7 @@ describe('operations', () => {
     expect(text).toMatch(/^owlshift_commit_seconds\{quantile="0.99"\} [\d.e-]+$/m)
     expect(text).toMatch(/^owlshift_machines_connected \d+$/m)
     // 25 commits (one reading each, published one after another), each followed by a checkpoint
-    // on the checkpoint thread (server/utils/wal-checkpointer.ts).
+    // on the checkpoint thread (server/utils/storage/wal-checkpointer.ts).
     expect(Number(/^owlshift_wal_checkpoint_pages_total (\d+)$/m.exec(text)?.[1])).toBeGreaterThan(0)
     expect(text).toMatch(/^owlshift_wal_checkpoint_failures_total 0$/m)
   })

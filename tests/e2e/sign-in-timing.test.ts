@@ -1,6 +1,6 @@
 // An unknown e-mail's sign-in does the same work as a known one's with a wrong password: it
 // answered in ~3 ms against ~50 ms, which told anyone which addresses have accounts. The server
-// now checks a stand-in hash when there is no account (server/utils/sign-in.ts, passwordMatches).
+// now checks a stand-in hash when there is no account (server/utils/accounts/sign-in.ts, passwordMatches).
 // Measured as the CPU time the server process spends (user + system from /proc/<pid>/stat, every
 // thread: the hash runs on libuv's pool) over the same number of failed sign-ins of each kind — a
 // comparison of work done, not a speed target. Without the stand-in, the unknown ones cost a small

@@ -24,9 +24,9 @@
 // server's clock is set by the caller before each batch, noise comes from createSeededRandom and
 // only + − × / are applied to it (no transcendental functions, so every platform gets the same
 // bits).
-import { createSeededRandom, type SeededRandom } from '../../shared/utils/random'
+import { createSeededRandom, type SeededRandom } from '../../simulator/random'
 import type { CommandMessage, ExecutionState, JobInfo } from '../../shared/utils/contract'
-import type { Arrival } from '../../server/utils/ingest'
+import type { Arrival } from '../../server/utils/ingest/ingest'
 
 export const NIGHT_START_MS = Date.parse('2026-12-01T22:00:00.000Z')
 const NIGHT_SEED = 18

@@ -7,8 +7,8 @@ import { join } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import { migrate } from 'drizzle-orm/libsql/migrator'
 import * as schema from '../../server/database/schema'
-import { openDatabase, closeDatabase, useDb, useDbClient } from '../../server/utils/db'
-import type { LiveEvent } from '../../server/utils/live-bus'
+import { openDatabase, closeDatabase, useDb, useDbClient } from '../../server/utils/platform/db'
+import type { LiveEvent } from '../../server/utils/live/live-bus'
 
 const root = fileURLToPath(new URL('../..', import.meta.url))
 
@@ -29,12 +29,12 @@ export async function openServerHarness(machines = ['m1', 'm2']): Promise<Server
   Object.assign(globalThis, { schema, useDb, useDbClient, log: quiet, publishLive: (e: LiveEvent) => live.push(e) })
   await openDatabase({ dataDir: dir, databaseUrl: `file:${file}`, databaseAuthToken: undefined } as never)
   await migrate(useDb(), { migrationsFolder: join(root, 'server/database/migrations') })
-  const writer = await import('../../server/utils/write-batch')
+  const writer = await import('../../server/utils/storage/write-batch')
   writer.openNativeWriter(file)
   const modules = await Promise.all([
-    import('../../server/utils/raw-insert'), writer, import('../../server/utils/machine-registry'),
-    import('../../server/utils/compensation-versions'), import('../../server/utils/ingest'),
-    import('../../server/utils/alarm-engine'), import('../../shared/utils/alarm-catalogue'),
+    import('../../server/utils/storage/raw-insert'), writer, import('../../server/utils/machines/machine-registry'),
+    import('../../server/utils/machines/compensation-versions'), import('../../server/utils/ingest/ingest'),
+    import('../../server/utils/alarms/alarm-engine'), import('../../shared/utils/alarm-catalogue'),
   ])
   for (const m of modules) Object.assign(globalThis, m)
   const db = useDb()
@@ -44,7 +44,7 @@ export async function openServerHarness(machines = ['m1', 'm2']): Promise<Server
     upperTolNm: 4000, lowerTolNm: -4000, cycleTimeS: 20, roundnessLimitNm: 1000, createdAt: Date.now(),
   } as never).returning()
   await db.insert(schema.machines).values(machines.map((id, i) => ({ id, cellId: CELL, name: id.toUpperCase(), model: 't', sortOrder: i, currentJobId: job!.id, createdAt: Date.now() })))
-  const registry = modules[2] as typeof import('../../server/utils/machine-registry')
+  const registry = modules[2] as typeof import('../../server/utils/machines/machine-registry')
   await registry.loadMachineRegistry()
   return { dir, live, async close() { await closeDatabase(); rmSync(dir, { recursive: true, force: true }) } }
 }

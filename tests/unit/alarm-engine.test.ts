@@ -1,4 +1,4 @@
-// The alarm engine (server/utils/alarm-engine.ts) as ingest feeds it: conditions arrive in batches,
+// The alarm engine (server/utils/alarms/alarm-engine.ts) as ingest feeds it: conditions arrive in batches,
 // one batch per commit. States after ISA-18.2 (ANSI/ISA-18.2-2016, alarm state transition diagram):
 // an alarm that goes active and clears before anyone acknowledged it returns to normal
 // *unacknowledged* and stays shown until acknowledged.
@@ -6,16 +6,16 @@ import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { and, eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'
 import { openServerHarness, type ServerHarness } from '../support/server-harness'
-import type { AlarmCondition } from '../../server/utils/ingest'
+import type { AlarmCondition } from '../../server/utils/ingest/ingest'
 
 let h: ServerHarness
 let applyAlarmConditions: (c: AlarmCondition[]) => Promise<void>
 let alarmTick: (now?: number) => Promise<void>
-const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/db').Db }).useDb()
+const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db }).useDb()
 
 beforeAll(async () => {
   h = await openServerHarness()
-  ;({ applyAlarmConditions, alarmTick } = await import('../../server/utils/alarm-engine'))
+  ;({ applyAlarmConditions, alarmTick } = await import('../../server/utils/alarms/alarm-engine'))
 })
 afterAll(() => h.close())
 

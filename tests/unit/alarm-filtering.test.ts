@@ -1,4 +1,4 @@
-// How conditions become alarms (server/utils/alarm-engine.ts with the catalogue's settings,
+// How conditions become alarms (server/utils/alarms/alarm-engine.ts with the catalogue's settings,
 // shared/utils/alarm-catalogue.ts), on a real SQLite file through the unit harness. The practice
 // followed is ISA-18.2 / IEC 62682 alarm management, from memory: on-delays and off-delays filter
 // conditions that come and go, analogue alarms have a deadband, one event is one alarm, and
@@ -8,18 +8,18 @@ import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { and, eq, isNull } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'
 import { openServerHarness, type ServerHarness } from '../support/server-harness'
-import type { AlarmCondition } from '../../server/utils/ingest'
-import type { LiveEvent } from '../../server/utils/live-bus'
+import type { AlarmCondition } from '../../server/utils/ingest/ingest'
+import type { LiveEvent } from '../../server/utils/live/live-bus'
 
 let h: ServerHarness
-let engine: typeof import('../../server/utils/alarm-engine')
-const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/db').Db }).useDb()
+let engine: typeof import('../../server/utils/alarms/alarm-engine')
+const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db }).useDb()
 const S = 1000
 const MIN = 60 * S
 
 beforeAll(async () => {
   h = await openServerHarness(['m1', 'm2', 'm3', 'm4', 'm5', 'm6', 'm7', 'm8', 'm9', 'm10', 'm11', 'm12'])
-  engine = await import('../../server/utils/alarm-engine')
+  engine = await import('../../server/utils/alarms/alarm-engine')
 })
 afterAll(() => h.close())
 

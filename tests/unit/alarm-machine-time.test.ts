@@ -6,19 +6,19 @@ import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { asc, eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'
 import { openServerHarness, arrival, birthOf, machineTime, type ServerHarness } from '../support/server-harness'
-import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest'
+import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest/ingest'
 
 let h: ServerHarness
 let pipeline: IngestPipeline
-let applyAlarmConditions: typeof import('../../server/utils/alarm-engine').applyAlarmConditions
-const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/db').Db }).useDb()
+let applyAlarmConditions: typeof import('../../server/utils/alarms/alarm-engine').applyAlarmConditions
+const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db }).useDb()
 
 beforeAll(async () => {
   h = await openServerHarness()
-  ;({ applyAlarmConditions } = await import('../../server/utils/alarm-engine'))
-  const { IngestPipeline } = await import('../../server/utils/ingest')
+  ;({ applyAlarmConditions } = await import('../../server/utils/alarms/alarm-engine'))
+  const { IngestPipeline } = await import('../../server/utils/ingest/ingest')
   pipeline = new IngestPipeline()
-  // as the server does after each commit (server/utils/after-commit.ts), alarms only
+  // as the server does after each commit (server/utils/ingest/after-commit.ts), alarms only
   pipeline.onCommitted = async (e: IngestEffects) => { await applyAlarmConditions(e.conditions) }
 })
 afterAll(async () => { await pipeline.drain(); await h.close() })
@@ -48,7 +48,7 @@ describe('alarm transitions carry the machine time of the message that caused th
   })
 
   it('a person\'s acknowledgement has no machine time (it happened on the server\'s clock only)', async () => {
-    const { actOnAlarm } = await import('../../server/utils/alarm-engine')
+    const { actOnAlarm } = await import('../../server/utils/alarms/alarm-engine')
     const [jam] = await db().select().from(schema.alarms).where(eq(schema.alarms.condition, 'fault:loader_jam'))
     const r = await actOnAlarm(jam!.id, { kind: 'acknowledge' }, { userId: null, where: 'web test' })
     expect(r.refused).toBeUndefined()

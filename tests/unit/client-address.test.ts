@@ -2,8 +2,8 @@
 // Address and prefix syntax: RFC 4632 (IPv4 CIDR) and RFC 4291 §2.3 (IPv6 prefixes), checked with
 // Node's own net.BlockList.
 import { describe, it, expect } from 'vitest'
-import { clientAddress, parseProxyEntry, proxyList } from '../../server/utils/client-address'
-import { parseConfig, ConfigError } from '../../server/utils/config'
+import { clientAddress, parseProxyEntry, proxyList } from '../../server/utils/platform/client-address'
+import { parseConfig, ConfigError } from '../../server/utils/platform/config'
 
 describe('client address', () => {
   const none = proxyList([])

@@ -1,4 +1,4 @@
-// A due dress or hold is asked for once, not once per part (ingest, server/utils/ingest.ts).
+// A due dress or hold is asked for once, not once per part (ingest, server/utils/ingest/ingest.ts).
 // The rule is ours: a machine that is told to dress on every part while it finishes the parts
 // already in its pipeline would queue a dress per part.
 import { describe, it, expect } from 'vitest'

@@ -1,4 +1,4 @@
-// A write refused with SQLITE_BUSY must not make later writes vanish (server/utils/db.ts,
+// A write refused with SQLITE_BUSY must not make later writes vanish (server/utils/platform/db.ts,
 // reconnectAfterBusy). Found with @libsql/client 0.18 on a local file: after a BUSY refusal the
 // connection's next write reported success but was rolled back by the batch after it.
 import { describe, it, expect } from 'vitest'
@@ -7,7 +7,7 @@ import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { createClient } from '@libsql/client'
 import Database from 'libsql'
-import { reconnectAfterBusy } from '../../server/utils/db'
+import { reconnectAfterBusy } from '../../server/utils/platform/db'
 
 async function scenario(guard: boolean): Promise<{ seen: number[], batchError: string | null }> {
   const file = join(mkdtempSync(join(tmpdir(), 'owl-busy-')), 't.db')

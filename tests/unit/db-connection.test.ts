@@ -1,13 +1,13 @@
 // Every call on a local database file runs with the connection settings Owlshift sets
-// (server/utils/db.ts). @libsql/client opens an extra pooled connection for each overlapping call,
+// (server/utils/platform/db.ts). @libsql/client opens an extra pooled connection for each overlapping call,
 // and SQLite pragmas hold per connection, so before this an overlapping call ran with SQLite's
 // defaults (busy timeout 0, foreign keys off) — seen with the report's parallel reads.
 import { describe, it, expect, afterAll } from 'vitest'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
-import { parseConfig } from '../../server/utils/config'
-import { openDatabase, useDbClient, closeDatabase } from '../../server/utils/db'
+import { parseConfig } from '../../server/utils/platform/config'
+import { openDatabase, useDbClient, closeDatabase } from '../../server/utils/platform/db'
 
 describe('database connection settings (local file)', () => {
   afterAll(() => closeDatabase())

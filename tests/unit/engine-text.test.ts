@@ -4,7 +4,7 @@
 // each figure is its µm value ÷ 2.54 (1 tenth = 0.0001 in = 2.54 µm; 1 in = 25.4 mm exactly, 1959).
 import { describe, it, expect } from 'vitest'
 import { createCompensationState, stepCompensation, type CompensationInput, type CompensationSettingsInput } from '../../shared/utils/compensation'
-import { createSeededRandom } from '../../shared/utils/random'
+import { createSeededRandom } from '../../simulator/random'
 import { engineTextParts, engineTextRender, engineTextIn } from '../../shared/utils/engine-text'
 
 /** Engine texts (reasons and alert messages) from a seeded night with wear, dresses, noise and bad readings. */

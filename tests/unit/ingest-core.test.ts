@@ -5,16 +5,16 @@ import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'
 import { openServerHarness, arrival, birthOf, readingOf, machineTime, JOB, type ServerHarness } from '../support/server-harness'
-import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest'
+import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest/ingest'
 
 let h: ServerHarness
 let effects: IngestEffects[]
 let pipeline: IngestPipeline
-const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/db').Db }).useDb()
+const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db }).useDb()
 
 beforeEach(async () => {
   h = await openServerHarness()
-  const { IngestPipeline } = await import('../../server/utils/ingest')
+  const { IngestPipeline } = await import('../../server/utils/ingest/ingest')
   pipeline = new IngestPipeline()
   effects = []
   pipeline.onCommitted = (e) => { effects.push(e) }
@@ -76,7 +76,7 @@ describe('memory follows the database after a failed commit', () => {
     await pipeline.drain()
     expect(dresses()).toHaveLength(1)
     // One commit fails (the database refuses the write); nothing of it is acknowledged.
-    const writer = await import('../../server/utils/write-batch')
+    const writer = await import('../../server/utils/storage/write-batch')
     const real = (globalThis as Record<string, unknown>).writeBatch
     ;(globalThis as Record<string, unknown>).writeBatch = async () => { throw new Error('database is locked') }
     await expect(pipeline.accept(arrival('m1', 'reading', readingOf(seq, 0.1, 2)))).rejects.toThrow(/locked/)
@@ -93,7 +93,7 @@ describe('a job change the engine refuses', () => {
     await pipeline.accept(arrival('m1', 'presence', birthOf(1)))
     // A job's active tuning that does not fit the settings the machine announces (here: a minimum
     // step above the maximum) makes the engine refuse the job change and keep the old settings.
-    const { machineContext } = await import('../../server/utils/machine-registry')
+    const { machineContext } = await import('../../server/utils/machines/machine-registry')
     machineContext('m1')!.tuning = { minStepUm: 50 } as never
     await pipeline.accept(arrival('m1', 'event', { kind: 'event', seq: 2, time: machineTime(2), type: 'job_change', job: { ...JOB, jobId: 'j2' } }))
     await pipeline.drain()

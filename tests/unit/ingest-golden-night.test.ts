@@ -29,7 +29,7 @@ import { getTableConfig, SQLiteTable } from 'drizzle-orm/sqlite-core'
 import { openServerHarness, type ServerHarness } from '../support/server-harness'
 import { runGoldenNight, NIGHT_START_MS } from '../support/golden-night'
 import type { CommandMessage } from '../../shared/utils/contract'
-import type { AlarmCondition, IngestEffects } from '../../server/utils/ingest'
+import type { AlarmCondition, IngestEffects } from '../../server/utils/ingest/ingest'
 
 const GOLDEN = fileURLToPath(new URL('./__golden__/ingest-golden-night.ndjson', import.meta.url))
 const RULE = 'Re-record only for a documented change of behaviour, named in the commit message: UPDATE_GOLDEN=1 npx vitest run --project unit tests/unit/ingest-golden-night.test.ts'
@@ -75,15 +75,15 @@ it('a scripted night through ingest writes, sends, raises and publishes exactly 
   vi.useFakeTimers({ toFake: ['Date'], now: NIGHT_START_MS - 3_600_000 })
   h = await openServerHarness(['m1', 'm2'])
   const g = globalThis as Record<string, unknown>
-  Object.assign(g, await import('../../server/utils/command-link'), await import('../../server/utils/after-commit'))
-  const { setCommandPublisher } = await import('../../server/utils/command-link')
-  const { handleCommitted } = await import('../../server/utils/after-commit')
-  const { useIngest } = await import('../../server/utils/ingest')
-  const { setMachineJob } = await import('../../server/utils/machine-registry')
-  const { activeTuningFor } = await import('../../server/utils/compensation-versions')
+  Object.assign(g, await import('../../server/utils/ingest/command-link'), await import('../../server/utils/ingest/after-commit'))
+  const { setCommandPublisher } = await import('../../server/utils/ingest/command-link')
+  const { handleCommitted } = await import('../../server/utils/ingest/after-commit')
+  const { useIngest } = await import('../../server/utils/ingest/ingest')
+  const { setMachineJob } = await import('../../server/utils/machines/machine-registry')
+  const { activeTuningFor } = await import('../../server/utils/machines/compensation-versions')
   const schema = await import('../../server/database/schema')
   const { eq } = await import('drizzle-orm')
-  const db = (g.useDb as () => import('../../server/utils/db').Db)()
+  const db = (g.useDb as () => import('../../server/utils/platform/db').Db)()
 
   const sent: { topic: string, payload: CommandMessage }[] = []
   let undelivered: { machineId: string, command: CommandMessage }[] = []

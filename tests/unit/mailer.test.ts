@@ -1,10 +1,10 @@
-// A real SMTP exchange: nodemailer (server/utils/mailer.ts) talks to a local catcher built from
+// A real SMTP exchange: nodemailer (server/utils/alerts/mailer.ts) talks to a local catcher built from
 // smtp-server; mailparser reads the delivered message back. Bad settings give a clear error.
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { SMTPServer } from 'smtp-server'
 import { simpleParser, type ParsedMail } from 'mailparser'
 import type { AddressInfo } from 'node:net'
-import { sendMail, resetMailer, mailSettings } from '../../server/utils/mailer'
+import { sendMail, resetMailer, mailSettings } from '../../server/utils/alerts/mailer'
 import { alertEmail } from '../../shared/utils/alert-message'
 
 describe('e-mail over SMTP to a local catcher', () => {

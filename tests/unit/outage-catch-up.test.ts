@@ -7,7 +7,7 @@ import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { eq } from 'drizzle-orm'
 import * as schema from '../../server/database/schema'
 import { openServerHarness, arrival, birthOf, readingOf, machineTime, type ServerHarness } from '../support/server-harness'
-import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest'
+import type { IngestEffects, IngestPipeline } from '../../server/utils/ingest/ingest'
 import type { CommandMessage } from '../../shared/utils/contract'
 
 let h: ServerHarness
@@ -15,18 +15,18 @@ let pipeline: IngestPipeline
 let sent: CommandMessage[]
 let effects: IngestEffects[]
 const g = globalThis as Record<string, unknown>
-const db = () => (g.useDb as () => import('../../server/utils/db').Db)()
+const db = () => (g.useDb as () => import('../../server/utils/platform/db').Db)()
 
 beforeEach(async () => {
   h = await openServerHarness(['m1'])
   Object.assign(g, await import('../../shared/utils/live-view'))
-  Object.assign(g, await import('../../server/utils/command-link'), await import('../../server/utils/live-cell'), await import('../../server/utils/after-commit'))
-  const { setCommandPublisher } = await import('../../server/utils/command-link')
-  const { handleCommitted } = await import('../../server/utils/after-commit')
+  Object.assign(g, await import('../../server/utils/ingest/command-link'), await import('../../server/utils/live/live-cell'), await import('../../server/utils/ingest/after-commit'))
+  const { setCommandPublisher } = await import('../../server/utils/ingest/command-link')
+  const { handleCommitted } = await import('../../server/utils/ingest/after-commit')
   sent = []
   effects = []
   setCommandPublisher(async (_topic, payload) => { sent.push(JSON.parse(payload)) })
-  const { IngestPipeline } = await import('../../server/utils/ingest')
+  const { IngestPipeline } = await import('../../server/utils/ingest/ingest')
   pipeline = new IngestPipeline()
   pipeline.onCommitted = async (e) => { effects.push(e); await handleCommitted(e) }
 })
@@ -49,7 +49,7 @@ async function grind(parts: number, start: number, slope: number, from = 1) {
 /** Owlshift started again: the registry as at start; what comes before the birth came late. */
 async function restart() {
   await pipeline.drain()
-  const { loadMachineRegistry } = await import('../../server/utils/machine-registry')
+  const { loadMachineRegistry } = await import('../../server/utils/machines/machine-registry')
   await loadMachineRegistry({ atStart: true })
 }
 
@@ -90,7 +90,7 @@ describe('coming back', () => {
     await pipeline.accept(arrival('m1', 'presence', birth()))
     await pipeline.accept(arrival('m1', 'state', state('ACTIVE')))
     await pipeline.drain()
-    const { outagesOf, serverOutages } = await import('../../server/utils/report-outages')
+    const { outagesOf, serverOutages } = await import('../../server/utils/reports/report-outages')
     const [span] = await db().select().from(schema.lateSpans)
     // before: birth, 60 parts, 58 readings (seq 1–119); late: 20 parts, 20 readings and the hold (120–160); then the birth
     expect(span).toMatchObject({ machineId: 'm1', cause: 'server-start', fromSeq: 120, toSeq: 160 })
@@ -112,7 +112,7 @@ describe('coming back', () => {
 
   it('does not resume a machine whose setting says a person does', async () => {
     await db().update(schema.machines).set({ resumeAfterOutage: 'person' }).where(eq(schema.machines.id, 'm1'))
-    const { refreshMachineContext } = await import('../../server/utils/machine-registry')
+    const { refreshMachineContext } = await import('../../server/utils/machines/machine-registry')
     await refreshMachineContext('m1')
     await nightThenOutage()
     await pipeline.accept(arrival('m1', 'presence', birth()))
@@ -129,7 +129,7 @@ describe('coming back', () => {
     await pipeline.accept(arrival('m1', 'presence', birth()))
     await pipeline.drain()
     expect(sent.map(c => c.type)).toEqual(['allowance'])
-    const { resumeAfterOutage } = await import('../../server/utils/after-commit')
+    const { resumeAfterOutage } = await import('../../server/utils/ingest/after-commit')
     expect(await resumeAfterOutage('m1', seq)).toMatch(/latched stop stands \(Fire alarm\)/)
   })
 
@@ -141,7 +141,7 @@ describe('coming back', () => {
     await pipeline.accept(arrival('m1', 'presence', birth()))
     await pipeline.drain()
     expect(sent.map(c => c.type)).toEqual(['allowance'])
-    const { resumeAfterOutage } = await import('../../server/utils/after-commit')
+    const { resumeAfterOutage } = await import('../../server/utils/ingest/after-commit')
     expect(await resumeAfterOutage('m1', seq)).toMatch(/alarm is active \(Gauge fault\)/)
     await applyAlarmConditions([{ machineId: 'm1', condition: 'fault:gauge_fault', active: false, message: '', at: Date.now() }])
     expect(await resumeAfterOutage('m1', seq)).toBe('sent')
@@ -153,7 +153,7 @@ describe('coming back', () => {
     await pipeline.accept(arrival('m1', 'presence', birth()))
     await pipeline.drain()
     expect(sent.map(c => c.type)).toEqual(['allowance'])
-    const { resumeAfterOutage } = await import('../../server/utils/after-commit')
+    const { resumeAfterOutage } = await import('../../server/utils/ingest/after-commit')
     // three parts out in a row: the engine's stop latches too (the size rule alone: allowance.test.ts)
     expect(await resumeAfterOutage('m1', seq)).toMatch(/Stop requested|tolerance/)
     await pipeline.accept(arrival('m1', 'state', state('FEED_HOLD', ['command', 'allowance'])))

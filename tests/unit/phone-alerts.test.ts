@@ -8,7 +8,7 @@ import { createServer, type Server } from 'node:http'
 import type { AddressInfo } from 'node:net'
 import twilio from 'twilio'
 import { startTwilioFake, twilioSignature, type TwilioFake } from '../../scripts/lib/twilio-fake'
-import { phoneSettings, placeAlertCall, sendAlertSms, validatePhoneWebhook, resetPhoneClient, type PhoneSettings } from '../../server/utils/phone-alerts'
+import { phoneSettings, placeAlertCall, sendAlertSms, validatePhoneWebhook, resetPhoneClient, type PhoneSettings } from '../../server/utils/alerts/phone-alerts'
 
 const SID = `AC${'0'.repeat(31)}1`
 const TOKEN = 'test-auth-token-0123456789abcdef'

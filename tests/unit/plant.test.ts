@@ -6,12 +6,12 @@ import { describe, it, expect, vi } from 'vitest'
 // whole simulated nights run here; on a busy 2-core machine they need more than the default 5 s
 vi.setConfig({ testTimeout: 30_000 })
 import { mean, standardDeviation, sampleCorrelation } from 'simple-statistics'
-import { createSeededRandom } from '../../shared/utils/random'
+import { createSeededRandom } from '../../simulator/random'
 import {
   createPlant, plantCycle, plantDress, plantGauge, plantGrind, plantMaster, plantRequestOffset,
   plantOffsetInForce, plantSetRunning, plantThermalUm, plantGaugeBiasUm, plantChangeWheel,
   plantSetGaugeFault, plantSetUpOffset, thermalGrowthUm, coolingUm, type PlantParams,
-} from '../../shared/utils/plant'
+} from '../../simulator/plant'
 
 // Everything random switched off, so single effects can be checked exactly.
 const quiet: Partial<PlantParams> = {

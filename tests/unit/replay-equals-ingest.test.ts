@@ -1,7 +1,7 @@
 // A replay of a recorded night, with the settings that ran, decides part for part what ingest
 // decided live. The night comes from the cell simulator through the real ingest pipeline (real
 // SQLite file, group commit, the machine loop, commands back to the simulated machine); the
-// replay reads it back through the replay route's own reader (server/utils/replay-recorded.ts,
+// replay reads it back through the replay route's own reader (server/utils/machines/replay-recorded.ts,
 // all of GET /api/replay/readings but the sign-in check) and runs shared/utils/replay.ts over it.
 // Our own invariant, no outside reference: a preview must not decide otherwise than the server.
 // Ingest stores only the decisions that acted (or alerted) and leaves the engine's figures for each
@@ -24,8 +24,8 @@ describe('replay of a recorded night', () => {
   it('gives, part for part, the decisions ingest stored for it', async () => {
     h = await openServerHarness(['cg-01'])
     Object.assign(globalThis, { createError: (e: { message: string }) => new Error(e.message) })
-    const { useIngest } = await import('../../server/utils/ingest')
-    const { recordedRun, recordedSinceSnapshot } = await import('../../server/utils/replay-recorded')
+    const { useIngest } = await import('../../server/utils/ingest/ingest')
+    const { recordedRun, recordedSinceSnapshot } = await import('../../server/utils/machines/replay-recorded')
     const ingest = useIngest()
     // A quiet night with loader jams every hour or so: each stop and start is a restart for the engine.
     const quiet = loadScenarioFile('simulator/scenarios/quiet-night.json')
@@ -46,7 +46,7 @@ describe('replay of a recorded night', () => {
       for (const c of commands.splice(0)) cell.deliverCommand('cg-01', c)
     }
 
-    const db = (globalThis as unknown as { useDb: () => import('../../server/utils/db').Db }).useDb()
+    const db = (globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db }).useDb()
     const schema = await import('../../server/database/schema')
     const { eq, asc } = await import('drizzle-orm')
     const run = await recordedRun('cg-01', 0, Date.parse('2100-01-01'))

@@ -1,4 +1,4 @@
-// The shift-end summary e-mail (server/utils/report-mail.ts) on a fixture database: which shifts are
+// The shift-end summary e-mail (server/utils/reports/report-mail.ts) on a fixture database: which shifts are
 // due (plant time zone, the daylight-saving night included), once per shift, stale claims taken
 // over, nobody subscribed, failures recorded and audited. The sender here records what it is given;
 // the real SMTP path is tested end to end in tests/e2e/report.test.ts.
@@ -6,8 +6,8 @@ import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { fileURLToPath } from 'node:url'
 import { openReportFixture, seedCell, type ReportFixture } from '../../scripts/report-fixture'
 import { loadScenarioFile } from '../../simulator/scenario'
-import { reportMailDueShifts, reportMailSettings, REPORT_MAIL_LOOKBACK_MS } from '../../server/utils/report-mail'
-import type { MailMessage, MailOutcome } from '../../server/utils/mailer'
+import { reportMailDueShifts, reportMailSettings, REPORT_MAIL_LOOKBACK_MS } from '../../server/utils/reports/report-mail'
+import type { MailMessage, MailOutcome } from '../../server/utils/alerts/mailer'
 import * as schema from '../../server/database/schema'
 
 const root = fileURLToPath(new URL('../..', import.meta.url))

@@ -4,7 +4,7 @@
 // E = PRU·PQ/APT, MTTR = Σ TTR / FE).
 import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { openReportFixture, type ReportFixture } from '../../scripts/report-fixture'
-import { reportBuild, reportShiftScope, type Report } from '../../server/utils/report'
+import { reportBuild, reportShiftScope, type Report } from '../../server/utils/reports/report'
 import { KPI_CAUSE, KPI_NO_DATA } from '../../shared/utils/kpi'
 import * as schema from '../../server/database/schema'
 import { cycleEventRow, isCycleMessage } from '../../shared/utils/cycle-events'

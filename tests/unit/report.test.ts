@@ -7,7 +7,7 @@ import { fileURLToPath } from 'node:url'
 import { mean as ssMean, sampleStandardDeviation } from 'simple-statistics'
 import { openReportFixture, seedCell, simulateInto, type ReportFixture } from '../../scripts/report-fixture'
 import { loadScenarioFile } from '../../simulator/scenario'
-import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, reportParseNumberList, reportWearCsv, ReportInputError, type Report } from '../../server/utils/report'
+import { reportBuild, reportPartsCsv, reportShiftScope, buildShiftSummary, holdCategory, csvField, reportParseNumberList, reportWearCsv, ReportInputError, type Report } from '../../server/utils/reports/report'
 import fc from 'fast-check'
 import * as schema from '../../server/database/schema'
 
@@ -227,7 +227,7 @@ describe('reading columns are parsed without a string per number', () => {
 })
 
 describe('a range older than the retention: the report reads the hourly summaries', () => {
-  // The real fold (server/utils/retention.ts) runs on the fixture; it reaches the database through
+  // The real fold (server/utils/storage/retention.ts) runs on the fixture; it reaches the database through
   // Nitro's auto-imported useDb()/schema, given here as globals.
   let fx: ReportFixture
   let raw: Report
@@ -249,7 +249,7 @@ describe('a range older than the retention: the report reads the hourly summarie
       else values.set(k, [...(values.get(k) ?? []), r.diameterUm])
     }
     Object.assign(globalThis, { useDb: () => fx.db, schema })
-    const { foldOldReadings } = await import('../../server/utils/retention')
+    const { foldOldReadings } = await import('../../server/utils/storage/retention')
     const { folded } = await foldOldReadings(1, Date.now() + 400 * 86_400_000)
     expect(folded).toBe(total)
   }, 60_000)

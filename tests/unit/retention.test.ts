@@ -1,4 +1,4 @@
-// Retention of everything (server/utils/retention.ts): a simulated plant night written by ingest
+// Retention of everything (server/utils/storage/retention.ts): a simulated plant night written by ingest
 // itself (scripts/lib/plant-ingest.ts), then one pass long after it. What the summaries say must
 // equal what the raw rows they replace said, counted here independently from the raw rows before
 // the pass; the count, mean and σ of a folded hour of readings are checked against simple-statistics
@@ -9,7 +9,7 @@ import { mean, sampleStandardDeviation } from 'simple-statistics'
 import { loadScenarioFile } from '../../simulator/scenario'
 import { openPlantDb, runBatched, plantClock, type PlantDb } from '../../scripts/lib/plant-ingest'
 import { CYCLE_CODES } from '../../shared/utils/cycle-events'
-import type { RetentionResult } from '../../server/utils/retention'
+import type { RetentionResult } from '../../server/utils/storage/retention'
 
 const H = 3_600_000
 const DAY = 86_400_000
@@ -31,7 +31,7 @@ beforeAll(async () => {
   await runBatched(p, base, { seed: 3, hours: 4, startMs: start })
   for (const t of ['readings', 'cycle_events', 'machine_messages', 'decisions', 'commands', 'engine_snapshots']) raw[t] = await q(`select * from ${t}`)
   await p.client.execute({ sql: `insert into retention_pins (machine_id, "from", "to", note, user_id, at) values (?, ?, ?, 'keep for the audit', 1, 0)`, args: [pin.machineId, pin.from, pin.to] })
-  const { retentionPass } = await import('../../server/utils/retention')
+  const { retentionPass } = await import('../../server/utils/storage/retention')
   const now = start + 400 * DAY
   plantClock.now = now
   pass = await retentionPass({ readingsDays: 30, eventsDays: 30, decisionsDays: 30, commandsDays: 30 }, now)
@@ -122,7 +122,7 @@ describe('retention folds every kind of raw row into hourly summaries that count
     }
     expect(Number((await q(`select count(*) as n from cycle_events`))[0]!.n)).toBeGreaterThan(100)
     // a second pass finds nothing more to fold: the summaries stay as they are
-    const { retentionPass } = await import('../../server/utils/retention')
+    const { retentionPass } = await import('../../server/utils/storage/retention')
     const again = await retentionPass({ readingsDays: 30, eventsDays: 30, decisionsDays: 30, commandsDays: 30 }, plantClock.now)
     expect(again.readings + again.cycleEvents + again.answers + again.decisions + again.commands).toBe(0)
     expect(await q('select * from activity_hours')).toEqual(summaries)

@@ -1,6 +1,6 @@
 import { describe, it, expect } from 'vitest'
-import { parseConfig, ConfigError } from '../../server/utils/config'
-import { isCrossSiteWrite } from '../../server/utils/cross-site'
+import { parseConfig, ConfigError } from '../../server/utils/platform/config'
+import { isCrossSiteWrite } from '../../server/utils/platform/cross-site'
 
 describe('configuration', () => {
   it('defaults to a SQLite file under data/', () => {
@@ -33,7 +33,7 @@ describe('cross-site write check', () => {
   })
 })
 
-import { throttleVerdict } from '../../server/utils/sign-in'
+import { throttleVerdict } from '../../server/utils/accounts/sign-in'
 describe('sign-in throttling rule', () => {
   const window = 15 * 60_000
   it('blocks at the limit and says how long to wait', () => {

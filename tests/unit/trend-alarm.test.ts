@@ -2,7 +2,7 @@
 // pipeline (real SQLite file, the compensation engine, the size-risk rule) fed by the cell
 // simulator: every offset the engine sends is first on its way (applied ≠ requested), then
 // acknowledged. The alarm is raised and cleared by the routing rules' hysteresis (alertTrendStep)
-// exactly as server/utils/notify.ts does from each machine status. Our own rule, no outside
+// exactly as server/utils/alerts/notify.ts does from each machine status. Our own rule, no outside
 // reference: an alarm that rises at every command and clears at every answer is chattering
 // (ISA-18.2 calls such alarms nuisance alarms — from memory).
 import { describe, it, expect, afterAll } from 'vitest'
@@ -18,7 +18,7 @@ afterAll(async () => { await h?.close() })
 describe('trend alarm over the acknowledged-offset sequence', () => {
   it('does not rise when an offset is sent and clear when the machine acknowledges it', async () => {
     h = await openServerHarness(['cg-01'])
-    const { useIngest } = await import('../../server/utils/ingest')
+    const { useIngest } = await import('../../server/utils/ingest/ingest')
     const ingest = useIngest()
     // Heron on the fast-wear wheel: the engine sends an offset every few parts.
     const scenario = loadScenarioFile('simulator/scenarios/fast-wheel-wear.json')

@@ -1,4 +1,4 @@
-// The checkpoint thread (server/utils/wal-checkpointer.ts) copies the write-ahead log into the
+// The checkpoint thread (server/utils/storage/wal-checkpointer.ts) copies the write-ahead log into the
 // database file while the writer goes on, so the log starts over instead of growing.
 // SQLite's WAL rules used here (https://sqlite.org/wal.html, "Checkpointing" and "Avoiding
 // excessively large WAL files"): a passive checkpoint never blocks writers, and once every frame
@@ -8,7 +8,7 @@ import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import Database from 'libsql'
-import { startWalCheckpointer } from '../../server/utils/wal-checkpointer'
+import { startWalCheckpointer } from '../../server/utils/storage/wal-checkpointer'
 
 describe('WAL checkpoint thread', () => {
   it('copies committed pages back after a commit, and the log then starts over', async () => {

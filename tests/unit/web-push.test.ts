@@ -5,7 +5,7 @@ import { Agent } from 'node:https'
 import { createECDH } from 'node:crypto'
 import webpush from 'web-push'
 import { startFakePushService, checkVapid, decryptPush, type FakePushService } from '../helpers/fake-push-service'
-import { sendWebPush, newVapidKeys } from '../../server/utils/web-push-send'
+import { sendWebPush, newVapidKeys } from '../../server/utils/alerts/web-push-send'
 
 // docs/notifications.md#tests
 describe('RFC 8291 §5 worked example', () => {

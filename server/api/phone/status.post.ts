@@ -1,6 +1,6 @@
 // The phone service reports what became of an SMS or a call (delivered, failed; answered, no
 // answer): logged beside the attempt (query d = its delivery id), so the alarm history and the
-// report show every attempt and its outcome. Signed by the phone service (server/utils/phone-alerts.ts).
+// report show every attempt and its outcome. Signed by the phone service (server/utils/alerts/phone-alerts.ts).
 import { eq } from 'drizzle-orm'
 
 const OUTCOMES: Record<string, string> = {

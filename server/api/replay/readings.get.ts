@@ -1,5 +1,5 @@
 // A recorded run for replay: the machine's readings in a time window with what the engine was told
-// between them, and the settings that ran (server/utils/replay-recorded.ts).
+// between them, and the settings that ran (server/utils/machines/replay-recorded.ts).
 import { z } from 'zod'
 
 const query = z.object({

@@ -12,7 +12,7 @@ const mb = (n: number) => `${(n / 1024 / 1024).toFixed(n < 1024 * 1024 ? 2 : 0)}
 export default defineEventHandler(async (event) => {
   const user = await requireRole(event, 'admin', 'engineer', 'lead', 'operator')
   const { id } = readValidParams(event, params)
-  // The whole request is held to the photo limit before it is read: server/utils/body-limit.ts.
+  // The whole request is held to the photo limit before it is read: server/utils/platform/body-limit.ts.
   const [alarm] = await useDb().select({ id: schema.alarms.id }).from(schema.alarms).where(eq(schema.alarms.id, id))
   if (!alarm) throw createError({ statusCode: 404, message: `There is no alarm ${id}.` })
   const parts = (getRequestHeader(event, 'content-type') ?? '').startsWith('multipart/form-data') ? await readMultipartFormData(event) : undefined

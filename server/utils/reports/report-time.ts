@@ -3,7 +3,7 @@
 // which stretches have messages that never arrived. Read from the database, in machine time; the
 // classes of time themselves are decided in shared/utils/kpi.ts.
 import { sql } from 'drizzle-orm'
-import { KPI_KEEP_ALIVE_MS, type KpiMachineEvent } from '../../shared/utils/kpi'
+import { KPI_KEEP_ALIVE_MS, type KpiMachineEvent } from '../../../shared/utils/kpi'
 import type { ReportDb } from './report'
 
 /** What the report already knows of a machine around the window. */

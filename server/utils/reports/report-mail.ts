@@ -9,10 +9,10 @@
 // later) takes such rows over, so a summary may then reach someone twice but is never lost.
 import { and, eq, lt } from 'drizzle-orm'
 import { z } from 'zod'
-import * as schema from '../database/schema'
+import * as schema from '../../database/schema'
 import { buildShiftSummary, reportCalendar, type ReportDb } from './report'
-import { shiftsBetween } from '../../shared/utils/shift-calendar'
-import type { MailMessage, MailOutcome } from './mailer'
+import { shiftsBetween } from '../../../shared/utils/shift-calendar'
+import type { MailMessage, MailOutcome } from '../alerts/mailer'
 
 /** A summary is sent only for shifts that ended at most this long ago (a longer outage skips older ones). */
 export const REPORT_MAIL_LOOKBACK_MS = 12 * 3_600_000

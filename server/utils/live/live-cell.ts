@@ -2,7 +2,7 @@
 import { z } from 'zod'
 import type { H3Event } from 'h3'
 import { and, desc, eq, isNull, isNotNull, or } from 'drizzle-orm'
-import type { MachineContext } from './machine-registry'
+import type { MachineContext } from '../machines/machine-registry'
 
 /** Tolerance, target and compensation limits in µm from nominal: the engine's, else the job's. */
 export function machineLimits(ctx: MachineContext) {

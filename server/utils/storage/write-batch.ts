@@ -9,7 +9,7 @@
 import Database from 'libsql'
 import type { InStatement, InValue } from '@libsql/client'
 import { startWalCheckpointer, WRITER_AUTOCHECKPOINT_PAGES, type WalCheckpointer } from './wal-checkpointer'
-import { useDbClient } from './db'
+import { useDbClient } from '../platform/db'
 
 type NativeDb = InstanceType<typeof Database>
 // prepare()'s generic default does not come through ReturnType<>: name the statement type itself.

@@ -119,7 +119,7 @@ export class IngestPipeline {
   allowance: AllowanceSettings | null = defaultAllowanceSettings
 
   /**
-   * Why machine messages are not taken now (the disk budget's floor: server/utils/disk-budget.ts);
+   * Why machine messages are not taken now (the disk budget's floor: server/utils/storage/disk-budget.ts);
    * null: they are. A refused message is not acknowledged: the machine keeps it and sends it again.
    */
   refusal: string | null = null

@@ -68,7 +68,7 @@ export interface OwlshiftConfig {
     /** the parts allowance: at most this many minutes of parts, and the guard band as a fraction of the half tolerance (shared/utils/allowance.ts) */
     allowance: { maxMinutes: number, guardFraction: number }
   }
-  /** the disk budget (server/utils/disk-budget.ts): free-space floor, the database's own limit (0: none), warning days ahead, how often to look */
+  /** the disk budget (server/utils/storage/disk-budget.ts): free-space floor, the database's own limit (0: none), warning days ahead, how often to look */
   disk: { floorMb: number, maxDatabaseMb: number, warnDays: number, checkS: number }
   maintenance: {
     /** hours between scheduled backups; 0 = none */
@@ -76,7 +76,7 @@ export interface OwlshiftConfig {
     backupKeep: number
     /** raw readings older than this many days are summarised and removed; 0 = keep all */
     retentionDays: number
-    /** the same for the other raw rows (server/utils/retention.ts): cycle events and answers, decisions and snapshots, commands */
+    /** the same for the other raw rows (server/utils/storage/retention.ts): cycle events and answers, decisions and snapshots, commands */
     retentionEventsDays: number
     retentionDecisionsDays: number
     retentionCommandsDays: number
@@ -85,7 +85,7 @@ export interface OwlshiftConfig {
     /** every catalogue on/off delay × this (a demo at 4× real time: 0.25; 0: no delays) */
     delayScale: number
   }
-  /** the dead-man's switch: pings to a hosted heartbeat monitor (server/utils/heartbeat.ts); url null: off */
+  /** the dead-man's switch: pings to a hosted heartbeat monitor (server/utils/platform/heartbeat.ts); url null: off */
   heartbeat: { url: string | null, everyS: number, graceS: number, apiKey: string | null, apiUrl: string }
 }
 

@@ -4,8 +4,8 @@
 // ground on its allowance, the truly measured out-of-tolerance among them, how long it held, and
 // the readings that arrived late (late_spans: what each machine sent before its live birth).
 import { and, asc, eq, gte, sql } from 'drizzle-orm'
-import * as schema from '../database/schema'
-import { CYCLE_CODES } from '../../shared/utils/cycle-events'
+import * as schema from '../../database/schema'
+import { CYCLE_CODES } from '../../../shared/utils/cycle-events'
 import type { ReportDb } from './report'
 
 export interface ReportOutageMachine {

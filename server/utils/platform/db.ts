@@ -4,9 +4,9 @@ import { drizzle, type LibSQLDatabase } from 'drizzle-orm/libsql'
 import { mkdirSync, accessSync, constants, readdirSync } from 'node:fs'
 import { dirname, join } from 'node:path'
 import { fileURLToPath } from 'node:url'
-import * as schema from '../database/schema'
+import * as schema from '../../database/schema'
 import { ConfigError, type OwlshiftConfig } from './config'
-import { closeNativeWriter } from './write-batch'
+import { closeNativeWriter } from '../storage/write-batch'
 
 export type Db = LibSQLDatabase<typeof schema>
 export { schema }

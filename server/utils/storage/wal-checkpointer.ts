@@ -7,7 +7,7 @@
 // small. The writer keeps a far larger automatic threshold only as a safety net.
 import { Worker } from 'node:worker_threads'
 import { createRequire } from 'node:module'
-import { log } from './log'
+import { log } from '../platform/log'
 
 /** Log pages after which the writer checkpoints by itself (SQLite's default is 1,000). */
 export const WRITER_AUTOCHECKPOINT_PAGES = 20_000

@@ -9,26 +9,26 @@
 // in docs/report-time-model.md.
 import { and, asc, desc, eq, gte, inArray, isNull, lt, or, sql, type SQL } from 'drizzle-orm'
 import type { LibSQLDatabase } from 'drizzle-orm/libsql'
-import * as schema from '../database/schema'
+import * as schema from '../../database/schema'
 import {
   kpiCombine, kpiIndices, kpiMergeDowntime, kpiMttr, kpiTimeModel,
   type KpiDowntime, type KpiIndices, type KpiInputs, type KpiMachineEvent, type KpiRepair, type KpiTimeModel,
-} from '../../shared/utils/kpi'
+} from '../../../shared/utils/kpi'
 import { gapArrivedSql, reportContactEvents, reportGapEvents, type ReportKnownPresence } from './report-time'
 import { outagesOf, type ReportOutage } from './report-outages'
 import {
   spcCapability, spcMean, spcOverallSigma, spcRunRules, spcWithinSigmaMovingRange, SPC_RUN_RULE_TEXT, SPC_WESTERN_ELECTRIC_RULES,
   type SpcRunRule,
-} from '../../shared/utils/spc'
-import { alarmRateMetrics, ALARM_PRIORITY_NAMES, type AlarmPriority, type AlarmRateMetrics } from '../../shared/utils/alarm-model'
+} from '../../../shared/utils/spc'
+import { alarmRateMetrics, ALARM_PRIORITY_NAMES, type AlarmPriority, type AlarmRateMetrics } from '../../../shared/utils/alarm-model'
 import {
   SHIFT_DEFAULT_PATTERN, shiftCalendarProblems, shiftWindow, type ShiftCalendar, type ShiftDefinition, type ShiftWindow,
-} from '../../shared/utils/shift-calendar'
-import { executionStates } from '../../shared/utils/contract'
-import { parseCompensationSettings } from '../../shared/utils/compensation-settings'
-import { wearCompare, type WearBoundaryKind, type WearSummary } from '../../shared/utils/wheel-wear'
-import { CYCLE_CODES } from '../../shared/utils/cycle-events'
-import { wakeUpsByPerson, WAKE_ATTEMPT_STATUSES, type WakeUps } from '../../shared/utils/wake-ups'
+} from '../../../shared/utils/shift-calendar'
+import { executionStates } from '../../../shared/utils/contract'
+import { parseCompensationSettings } from '../../../shared/utils/compensation-settings'
+import { wearCompare, type WearBoundaryKind, type WearSummary } from '../../../shared/utils/wheel-wear'
+import { CYCLE_CODES } from '../../../shared/utils/cycle-events'
+import { wakeUpsByPerson, WAKE_ATTEMPT_STATUSES, type WakeUps } from '../../../shared/utils/wake-ups'
 
 export type ReportDb = LibSQLDatabase<typeof schema>
 
@@ -71,7 +71,7 @@ export interface ReportCapability {
 }
 
 /**
- * What is left of readings older than the retention (server/utils/retention.ts): hourly count, sum,
+ * What is left of readings older than the retention (server/utils/storage/retention.ts): hourly count, sum,
  * sum of squares, min and max per machine and job. Enough for the count, mean and overall σ (hence
  * Pp, Ppk); σ within (Cp, Cpk), run rules and the size chart need the parts in order and are gone.
  */

@@ -1,6 +1,6 @@
 // Notifications: listens to alarm transitions and machine status on the live bus, asks the
 // routing rules (shared/utils/alert-routing.ts) who to wake, delivers by Web Push, e-mail, SMS and
-// voice call (server/utils/phone-alerts.ts), and writes every attempt and outcome to the delivery
+// voice call (server/utils/alerts/phone-alerts.ts), and writes every attempt and outcome to the delivery
 // log. Alarms released together when quiet hours end go out as one message per person. While it
 // runs, ingest judges "size will meet tolerance soon" with the routing rules' trend thresholds
 // (the machine loop raises it with the engine's other conditions: shared/utils/machine-loop.ts).
@@ -13,7 +13,7 @@ import {
   type AlertAlarm, type AlertRoutingRules, type AlertSend, type AlertTrack,
 } from '#shared/utils/alert-routing'
 import type { ShiftCalendar } from '#shared/utils/shift-calendar'
-import { plantAlertCalendar } from './report'
+import { plantAlertCalendar } from '../reports/report'
 import { alertEmail, alertPushPayload, alertReleaseSummary, alertSmsText, alertVoiceText, type AlertMessageInput } from '#shared/utils/alert-message'
 import { placeAlertCall, phoneSettings, sendAlertSms } from './phone-alerts'
 import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'
