@@ -8,7 +8,7 @@
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { loadScenarioFile } from '../../simulator/scenario'
 import { openPlantDb, runBatched, plantClock, type PlantDb } from '../../scripts/lib/plant-ingest'
-import { reportBuild, type Report } from '../../server/utils/report'
+import { reportBuild, type Report } from '../../server/utils/reports/report'
 
 const H = 3_600_000
 const DAY = 86_400_000
@@ -26,10 +26,10 @@ const raw: Report[] = []
 const boundary: Report[] = []
 const folded: Report[] = []
 
-const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/db').Db }).useDb()
+const db = () => (globalThis as unknown as { useDb: () => import('../../server/utils/platform/db').Db }).useDb()
 const report = (from: number, to: number) => reportBuild(db() as never, { cellId: 'cell-a', from, to, machineId: null }, { now: later })
 async function fold(cutoff: number) {
-  const { retentionPass } = await import('../../server/utils/retention')
+  const { retentionPass } = await import('../../server/utils/storage/retention')
   plantClock.now = cutoff + 30 * DAY
   for (let r = await retentionPass({ readingsDays: 30, eventsDays: 30, decisionsDays: 30, commandsDays: 30 }, plantClock.now); r.more;)
     r = await retentionPass({ readingsDays: 30, eventsDays: 30, decisionsDays: 30, commandsDays: 30 }, plantClock.now)

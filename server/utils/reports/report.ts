@@ -99,7 +99,7 @@ export interface ReportFolded {
 
 /**
  * What is left of a machine's cycle events and answers older than their retention (activity_hours,
- * server/utils/retention.ts): parts and offsets per hour. The report adds them to what it counts
+ * server/utils/storage/retention.ts): parts and offsets per hour. The report adds them to what it counts
  * from the raw rows, so a range across the boundary counts every part once.
  */
 export interface ReportFoldedActivity {
