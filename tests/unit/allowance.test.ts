@@ -3,7 +3,7 @@
 import { describe, expect, it } from 'vitest'
 import fc from 'fast-check'
 import { compensationHoltWeights, createCompensationState, stepCompensation, type CompensationInput, type CompensationState } from '../../shared/utils/compensation'
-import { createSeededRandom } from '../../shared/utils/random'
+import { createSeededRandom } from '../../simulator/random'
 import {
   allowanceFor, allowanceRenewalDue, defaultAllowanceSettings, engineUnsure, heldAllowanceAfter, holtSlopeSdPerSigma, mayStartPart, outageResumeRefusal, voidsAllowance, type Allowance,
 } from '../../shared/utils/allowance'
