@@ -9,7 +9,8 @@ import { cpus, loadavg } from 'node:os'
 import { fileURLToPath } from 'node:url'
 import { loadScenarioFile } from '../simulator/scenario'
 import { openReportFixture, seedCell, simulateInto } from './report-fixture'
-import { reportBuild, reportPartsCsv } from '../server/utils/reports/report'
+import { reportBuild } from '../server/utils/reports/report-build'
+import { reportPartsCsv } from '../server/utils/reports/report-export'
 
 const root = fileURLToPath(new URL('..', import.meta.url))
 const machines = 12
@@ -81,7 +82,7 @@ const target = (name: string, ms: number) => name.startsWith('night, whole') ? (
   : name.includes('-day') ? (ms <= 2000 ? 'met (≤ 2 s)' : 'MISSED (≤ 2 s)') : '—'
 const section = `## Report (npm run bench:report)
 
-The pure report function (\`server/utils/reports/report.ts\`, \`reportBuild\`) on a temporary SQLite file (real migrations,
+The pure report function (\`server/utils/reports/report-build.ts\`, \`reportBuild\`) on a temporary SQLite file (real migrations,
 WAL) holding ${days} simulated 24-hour days of \`quiet-night.json\` with every cycle at 20 s, ${machines} machines, compensation
 engine in the loop: ${stored.readings.toLocaleString('en-US')} readings, ${stored.messages.toLocaleString('en-US')} other machine messages and ${stored.decisions.toLocaleString('en-US')} engine decisions
 (${parts.toLocaleString('en-US')} parts; filling took ${fillS.toFixed(0)} s). ${runs} timed runs after one warm-up (wall-clock ms).
@@ -120,7 +121,7 @@ then capability and run rules, chart thinning, compensation and wear. When the d
 text as the readings' (one decision per reading, in the same order) the slopes are taken in order instead of being
 parsed and matched by seq.
 The report's bulk reads run as one batch on one connection with \`PRAGMA mmap_size\` at SQLite's cap of 2 GiB
-(server/utils/reports/report.ts, readPrelude): SQLite then reads pages straight from the operating system's file cache (a
+(server/utils/reports/report-read.ts, readPrelude): SQLite then reads pages straight from the operating system's file cache (a
 file beyond 2 GiB is mapped from its start; the rest, where the newest rows are, is read as before). Without it, each machine's
 index walk copied every table page it touched into a 2 MB page cache that a week overflows, and the pages of
 interleaved machines were copied in again for each machine: on a copy of the week's file the week took 2.9–3.5 s

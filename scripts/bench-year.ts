@@ -87,7 +87,7 @@ const summaryBytes = (s: Split[]) => sum(s.filter(x => SUMMARIES.includes(x.tabl
 
 /** The report of the whole cell over [from, to), timed: median of `runs` after one warm-up. */
 async function timeReport(from: number, to: number, now: number) {
-  const { reportBuild } = await import('../server/utils/reports/report')
+  const { reportBuild } = await import('../server/utils/reports/report-build')
   const db = (globalThis as unknown as { useDb: () => import('../server/utils/platform/db').Db }).useDb()
   const build = () => reportBuild(db as never, { cellId: 'cell-a', from, to, machineId: null }, { now })
   let r = await build()

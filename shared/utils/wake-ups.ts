@@ -2,7 +2,7 @@
 // call), how many of those were needed and how many were not, and the messages by channel. The
 // ISA-18.2 load figures (alarm-model.ts, alarmRateMetrics) count alarms raised; this counts what
 // people were actually sent, which is what decides whether they sleep through the night or learn to
-// ignore their phone. Pure: the report (server/utils/reports/report.ts) and the whole-night runs
+// ignore their phone. Pure: the report (server/utils/reports/report-read.ts) and the whole-night runs
 // (scripts/lib/night-run.ts) read the same rows and judge them here.
 //
 // Needed (our rule, docs/notifications.md "What reached people"): the alarm is top priority; or its

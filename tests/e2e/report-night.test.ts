@@ -25,7 +25,7 @@ import { setupOwlshift, demoCredentials, openTestDb, sessionCookie, demoUser, si
 import { machineClient, publishAcked, payloadOf, topicFor } from './mqtt-helpers'
 import { shiftsBetween, SHIFT_DEFAULT_PATTERN } from '../../shared/utils/shift-calendar'
 import type { MachineMessage } from '../../shared/utils/contract'
-import type { Report, ReportMachine } from '../../server/utils/reports/report'
+import type { Report, ReportMachine } from '../../server/utils/reports/report-shapes'
 
 const MIN = 60_000
 const H = 60 * MIN

@@ -8,7 +8,8 @@
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import { loadScenarioFile } from '../../simulator/scenario'
 import { openPlantDb, runBatched, plantClock, type PlantDb } from '../../scripts/lib/plant-ingest'
-import { reportBuild, type Report } from '../../server/utils/reports/report'
+import { reportBuild } from '../../server/utils/reports/report-build'
+import type { Report } from '../../server/utils/reports/report-shapes'
 
 const H = 3_600_000
 const DAY = 86_400_000

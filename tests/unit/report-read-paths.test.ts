@@ -1,5 +1,5 @@
 // The engine's slope estimate after each part is stored on the part's reading (slope_pm, pm per part,
-// since migration 0019) and read with the readings (server/utils/reports/report.ts). The readings come out
+// since migration 0019) and read with the readings (server/utils/reports/report-read.ts). The readings come out
 // of SQLite in time order, or, when a part was stored late (higher id, earlier machine time) in
 // another order and are sorted: the slopes must move with their parts either way. Expected figures
 // are computed by hand below (worked example).
@@ -7,7 +7,8 @@ import { describe, it, expect } from 'vitest'
 import { fileURLToPath } from 'node:url'
 import { openReportFixture, seedCell } from '../../scripts/report-fixture'
 import { loadScenarioFile } from '../../simulator/scenario'
-import { reportBuild, type Report } from '../../server/utils/reports/report'
+import { reportBuild } from '../../server/utils/reports/report-build'
+import type { Report } from '../../server/utils/reports/report-shapes'
 import * as schema from '../../server/database/schema'
 
 const root = fileURLToPath(new URL('../..', import.meta.url))

@@ -8,7 +8,9 @@
 import { describe, it, expect, beforeAll, afterAll } from 'vitest'
 import fc from 'fast-check'
 import { openReportFixture, type ReportFixture } from '../../scripts/report-fixture'
-import { reportBuild, reportShiftScope, type ReportMachine } from '../../server/utils/reports/report'
+import { reportBuild } from '../../server/utils/reports/report-build'
+import { reportShiftScope } from '../../server/utils/reports/report-read'
+import type { ReportMachine } from '../../server/utils/reports/report-shapes'
 import * as schema from '../../server/database/schema'
 
 const H = 3_600_000

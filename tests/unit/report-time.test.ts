@@ -4,7 +4,9 @@
 // E = PRU·PQ/APT, MTTR = Σ TTR / FE).
 import { describe, it, expect, beforeEach, afterEach } from 'vitest'
 import { openReportFixture, type ReportFixture } from '../../scripts/report-fixture'
-import { reportBuild, reportShiftScope, type Report } from '../../server/utils/reports/report'
+import { reportBuild } from '../../server/utils/reports/report-build'
+import { reportShiftScope } from '../../server/utils/reports/report-read'
+import type { Report } from '../../server/utils/reports/report-shapes'
 import { KPI_CAUSE, KPI_NO_DATA } from '../../shared/utils/kpi'
 import * as schema from '../../server/database/schema'
 import { cycleEventRow, isCycleMessage } from '../../shared/utils/cycle-events'

@@ -1,5 +1,5 @@
 // Predicted against actual wheel wear of a shift or range as CSV: per machine the range, then each
-// dress interval (server/utils/reports/report.ts reportWearCsv says what each column means).
+// dress interval (server/utils/reports/report-export.ts reportWearCsv says what each column means).
 export default defineEventHandler(async (event) => {
   await requireUser(event)
   const q = readValidQuery(event, reportAnyQuery)

@@ -13,7 +13,7 @@ import {
   type AlertAlarm, type AlertRoutingRules, type AlertSend, type AlertTrack,
 } from '#shared/utils/alert-routing'
 import type { ShiftCalendar } from '#shared/utils/shift-calendar'
-import { plantAlertCalendar } from '../reports/report'
+import { plantAlertCalendar } from '../calendar/plant-calendar'
 import { alertEmail, alertPushPayload, alertReleaseSummary, alertSmsText, alertVoiceText, type AlertMessageInput } from '#shared/utils/alert-message'
 import { placeAlertCall, phoneSettings, sendAlertSms } from './phone-alerts'
 import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'

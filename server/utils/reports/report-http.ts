@@ -1,6 +1,7 @@
 // HTTP side of the report: query shapes and the one mapping from report input errors to 400.
 import { z } from 'zod'
-import { ReportInputError, reportShiftScope, type ReportScope } from './report'
+import { ReportInputError, type ReportScope } from './report-shapes'
+import { reportShiftScope } from './report-read'
 
 const id = z.string().regex(/^[a-z0-9][a-z0-9_-]{0,39}$/, 'must be an id like cell-a or cg-01')
 /** An instant as epoch ms or ISO-8601 text. */

@@ -10,7 +10,8 @@
 import { and, eq, lt } from 'drizzle-orm'
 import { z } from 'zod'
 import * as schema from '../../database/schema'
-import { buildShiftSummary, reportCalendar, type ReportDb } from './report'
+import { reportCalendar, type ReportDb } from './report-read'
+import { buildShiftSummary } from './report-export'
 import { shiftsBetween } from '../../../shared/utils/shift-calendar'
 import type { MailMessage, MailOutcome } from '../alerts/mailer'
 

@@ -6,7 +6,7 @@
 import { and, asc, eq, gte, sql } from 'drizzle-orm'
 import * as schema from '../../database/schema'
 import { CYCLE_CODES } from '../../../shared/utils/cycle-events'
-import type { ReportDb } from './report'
+import type { Db as ReportDb } from '../platform/db'
 
 export interface ReportOutageMachine {
   machineId: string

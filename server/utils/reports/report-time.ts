@@ -4,7 +4,7 @@
 // classes of time themselves are decided in shared/utils/kpi.ts.
 import { sql } from 'drizzle-orm'
 import { KPI_KEEP_ALIVE_MS, type KpiMachineEvent } from '../../../shared/utils/kpi'
-import type { ReportDb } from './report'
+import type { Db as ReportDb } from '../platform/db'
 
 /** What the report already knows of a machine around the window. */
 export interface ReportKnownPresence {
