@@ -300,6 +300,7 @@ export const commands = sqliteTable('commands', {
   machineId: text('machine_id').notNull(),
   type: text('type').notNull(), // offset | dress | hold | resume
   origin: text('origin').notNull(), // engine | user:<id>
+  /** the message sent, in compact form since migration 0024 (commandStored / commandFromRow, shared/utils/command-rows.ts) */
   payload: text('payload', { mode: 'json' }).notNull(),
   issuedAt: integer('issued_at').notNull(),
   expiresAt: integer('expires_at').notNull(),

@@ -15,6 +15,7 @@ import { join } from 'node:path'
 import { setupOwlshift, demoCredentials, demoUser, signIn, sessionCookie, artifactsDir, openTestDb } from './harness'
 import { payloadOf, topicFor, machineClient, publishAcked, CELL } from './mqtt-helpers'
 import type { MachineMessage } from '../../shared/utils/contract'
+import { commandFromRow } from '../../shared/utils/command-rows'
 import { shiftLastEnded, SHIFT_DEFAULT_PATTERN } from '../../shared/utils/shift-calendar'
 
 const AXE_SOURCE = readFileSync(createRequire(import.meta.url).resolve('axe-core/axe.min.js'), 'utf8')
@@ -421,7 +422,8 @@ describe('accessibility: WCAG 2.2 A/AA on every screen (axe-core)', async () => 
     const db = openTestDb(owl.dataDir)
     try {
       expect((await db.execute(`select state from alarms where machine_id = 'cg-02' and condition = 'fault:loader_jam'`)).rows.map(r => r[0])).toEqual(['acknowledged'])
-      const hold = (await db.execute(`select payload from commands where machine_id = 'cg-03' and type = 'hold'`)).rows.map(r => JSON.parse(String(r[0])) as { reason?: string })
+      const hold = (await db.execute(`select id, type, issued_at, payload from commands where machine_id = 'cg-03' and type = 'hold'`)).rows
+        .map(r => commandFromRow({ id: String(r.id), type: String(r.type), issuedAt: Number(r.issued_at), payload: String(r.payload) }))
       expect(hold.map(h => h.reason)).toEqual(['coolant smell on Kite'])
       expect(Number((await db.execute(`select count(*) from report_signoffs where comment like 'Taken over. Heron%'`)).rows[0]![0])).toBe(1)
     }

@@ -9,6 +9,7 @@ import { url } from '@nuxt/test-utils/e2e'
 import { setupOwlshift, demoCredentials, openTestDb, sessionCookie } from './harness'
 import { birth, reading, payloadOf, topicFor, machineClient, publishAcked, CELL } from './mqtt-helpers'
 import { machineClientId, type MachineMessage } from '../../shared/utils/contract'
+import { commandFromRow } from '../../shared/utils/command-rows'
 
 describe('machine data outside the contract', async () => {
   // machine clocks are judged here (5 min, the default); the harness turns the check off elsewhere
@@ -115,7 +116,8 @@ describe('machine data outside the contract', async () => {
     const sent = await fetch(url('/api/machines/cg-04/commands'), { method: 'POST', headers: { 'content-type': 'application/json', cookie }, body: JSON.stringify({ type: 'hold', confirmed: true }) })
     expect(sent.status).toBe(200)
     const { id } = await sent.json() as { id: string }
-    const payload = JSON.parse(String((await db.execute({ sql: 'select payload from commands where id = ?', args: [id] })).rows[0]!.payload)) as { issuedAt: string, expiresAt: string }
+    const row = (await db.execute({ sql: 'select id, type, issued_at, payload from commands where id = ?', args: [id] })).rows[0]!
+    const payload = commandFromRow({ id: String(row.id), type: String(row.type), issuedAt: Number(row.issued_at), payload: String(row.payload) })
     expect(Math.abs(Date.parse(payload.issuedAt) - Date.now())).toBeLessThan(60_000)
     expect(Date.parse(payload.expiresAt)).toBeGreaterThan(Date.now())
     // and an alarm says what is wrong

@@ -5,6 +5,8 @@
 // column or the JSON), and only the decisions that acted or alerted stay.
 // 0021: the per-part messages and the plain "offset applied" answers move from machine_messages to
 // cycle_events with every field, the rest stay.
+// 0024: a command row's message is kept in compact form (shared/utils/command-rows.ts); what the
+// compact form cannot give back field for field stays as it was.
 import { describe, it, expect, afterAll } from 'vitest'
 import { cpSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs'
 import { tmpdir } from 'node:os'
@@ -14,7 +16,8 @@ import { createClient } from '@libsql/client'
 import { drizzle } from 'drizzle-orm/libsql'
 import { migrate } from 'drizzle-orm/libsql/migrator'
 import { cycleEventMessage } from '../../shared/utils/cycle-events'
-import type { SequencedMessage } from '../../shared/utils/contract'
+import { commandFromRow } from '../../shared/utils/command-rows'
+import type { CommandMessage, SequencedMessage } from '../../shared/utils/contract'
 
 const migrations = fileURLToPath(new URL('../../server/database/migrations', import.meta.url))
 const dir = mkdtempSync(join(tmpdir(), 'owlshift-migration-'))
@@ -94,6 +97,42 @@ describe('migration 0019: decisions that changed nothing leave their figures on 
     expect(moved.map(r => cycleEventMessage({ time: Number(r.time), seq: Number(r.seq), code: Number(r.code), part: r.part === null ? null : Number(r.part), n: r.n === null ? null : Number(r.n), a: r.a === null ? null : Number(r.a), b: r.b === null ? null : Number(r.b), text: r.text === null ? null : String(r.text) })))
       .toEqual(messages.slice(0, 7))
     expect((await client.execute('select seq from machine_messages order by seq')).rows.map(r => Number(r.seq))).toEqual([8, 9, 10])
+    client.close()
+  })
+})
+
+describe('migration 0024: a command row keeps its message in compact form', () => {
+  it('compacts every row it can give back field for field, and leaves the others as they were', async () => {
+    const client = createClient({ url: `file:${join(dir, 'commands.db')}` })
+    const db = drizzle(client)
+    await migrate(db, { migrationsFolder: migrationsBefore('0024_compact_commands') })
+    const t = Date.parse('2026-03-02T21:00:44.922Z')
+    const iso = (ms: number) => new Date(ms).toISOString()
+    // [message, the row's issued_at (server clock)]
+    const rows: [CommandMessage, number][] = [
+      // the engine's offset with the allowance; the machine's clock 6.578 s behind the server's
+      [{ kind: 'command', type: 'offset', id: 'cg-03.13.offset', issuedAt: iso(t), expiresAt: iso(t + 60_000), offsetUm: -0.062, reason: 'drift: level +0.07 µm → offset -0.06 µm (Δ -0.06)', allowance: { throughPart: 4, basedOnSeq: 13 } }, t + 6578],
+      // an offset of many digits, a dress without reason nor allowance, a renewal
+      [{ kind: 'command', type: 'offset', id: 'cg-03.14.offset', issuedAt: iso(t + 20_000), expiresAt: iso(t + 80_000), offsetUm: 0.30000000000000004 }, t + 20_000],
+      [{ kind: 'command', type: 'dress', id: 'cg-03.15.dress', issuedAt: iso(t + 40_000), expiresAt: iso(t + 100_000) }, t + 41_000],
+      [{ kind: 'command', type: 'allowance', id: 'cg-03.16.allowance', issuedAt: iso(t + 60_000), expiresAt: iso(t + 120_000), allowance: { throughPart: 9, basedOnSeq: 30 } }, t + 59_000],
+      // a person's hold dated with another form of ISO 8601: its times stay text
+      [{ kind: 'command', type: 'hold', id: 'cg-03.u2.99.hold', issuedAt: '2026-03-02T21:02:00Z', expiresAt: '2026-03-02T21:03:00.000Z', reason: 'hold by Bram' }, t + 75_000],
+    ]
+    for (const [c, at] of rows) await client.execute({ sql: `insert into commands (id, machine_id, type, origin, payload, issued_at, expires_at, status) values (?, 'cg-03', ?, 'engine', ?, ?, ?, 'applied')`, args: [c.id, c.type, JSON.stringify(c), at, at + 60_000] })
+    // kept whole: a field the compact form does not know, and a payload whose id is not the row's
+    const odd = { kind: 'command', type: 'resume', id: 'cg-03.17.resume', issuedAt: iso(t), expiresAt: iso(t + 1000), note: 'x' }
+    await client.execute({ sql: `insert into commands (id, machine_id, type, origin, payload, issued_at, expires_at, status) values ('cg-03.17.resume', 'cg-03', 'resume', 'engine', ?, 1, 2, 'sent'), ('cg-03.18.hold', 'cg-03', 'hold', 'engine', ?, 1, 2, 'sent')`, args: [JSON.stringify(odd), JSON.stringify({ ...rows[4]![0], type: 'hold' })] })
+
+    await migrate(db, { migrationsFolder: migrations })
+    const after = (await client.execute('select id, type, issued_at, payload from commands order by rowid')).rows.map(r => ({ id: String(r.id), type: String(r.type), issuedAt: Number(r.issued_at), payload: String(r.payload) }))
+    expect(after.slice(0, rows.length).map(r => commandFromRow(r))).toEqual(rows.map(([c]) => c))
+    // compact: the first row by hand (−6578 ms from the server's clock, a life of 60 s)
+    expect(JSON.parse(after[0]!.payload)).toEqual({ i: -6578, e: 60000, o: -0.062, r: 'drift: level +0.07 µm → offset -0.06 µm (Δ -0.06)', a: [4, 13] })
+    expect(JSON.parse(after[4]!.payload)).toEqual({ i: '2026-03-02T21:02:00Z', e: '2026-03-02T21:03:00.000Z', r: 'hold by Bram' })
+    expect(after.slice(0, rows.length).every(r => !r.payload.includes('"kind"'))).toBe(true)
+    expect(JSON.parse(after[5]!.payload)).toEqual(odd)
+    expect(JSON.parse(after[6]!.payload)).toEqual({ ...rows[4]![0], type: 'hold' })
     client.close()
   })
 })

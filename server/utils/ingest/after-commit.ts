@@ -3,6 +3,7 @@
 // when that is Owlshift's to do.
 import { outageResumeRefusal, withAllowance } from '#shared/utils/allowance'
 import type { CommandMessage } from '#shared/utils/contract'
+import { commandStored } from '#shared/utils/command-rows'
 
 export async function handleCommitted(effects: IngestEffects) {
   for (const c of effects.commands) {
@@ -45,7 +46,7 @@ export async function resumeAfterOutage(machineId: string, seq: number): Promise
     kind: 'command', type: 'resume', id, issuedAt: new Date(machineNow).toISOString(), expiresAt: new Date(machineNow + RESUME_LIFE_MS).toISOString(),
     reason: 'Owlshift is back: held only for its parts allowance, size inside the limits, no alarm standing',
   }, ctx.status.allowance?.sent)
-  await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type: 'resume', origin: 'owlshift:outage', payload: command, issuedAt: now, expiresAt: now + RESUME_LIFE_MS, status: 'sent' }).onConflictDoNothing()
+  await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type: 'resume', origin: 'owlshift:outage', payload: commandStored(command, now), issuedAt: now, expiresAt: now + RESUME_LIFE_MS, status: 'sent' }).onConflictDoNothing()
   if (!(await sendCommand(ctx.cellId, ctx.id, command))) return 'no broker runs'
   log.info(`[owlshift] ${ctx.name} resumed: it held only for its parts allowance`)
   publishLive({ type: 'command', machineId: ctx.id, id, command: 'resume', status: 'sent' })

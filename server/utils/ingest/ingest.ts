@@ -8,6 +8,7 @@
 import { and, eq, inArray, or } from 'drizzle-orm'
 import type { InStatement } from '@libsql/client'
 import { isCycleMessage } from '#shared/utils/cycle-events'
+import { commandStored } from '#shared/utils/command-rows'
 import { claimedSeq, decodeMachineMessage, deliveryBreach, parseMqttTopic, type CommandMessage } from '#shared/utils/contract'
 import type { CompensationDecision } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
@@ -385,7 +386,7 @@ function statementsOf({ rows, machines }: Fold, dead: DeadLetterRow[], now: numb
     ...insertStatements(schema.machineMessages, rows.messages, { onConflict: 'nothing' }),
     ...insertStatements(schema.cycleEvents, rows.cycleEvents, { onConflict: 'nothing' }),
     ...insertStatements(schema.decisions, rows.decisions),
-    ...insertStatements(schema.commands, rows.commands, { onConflict: 'nothing' }),
+    ...insertStatements(schema.commands, rows.commands.map(c => ({ ...c, payload: commandStored(c.payload, c.issuedAt) })), { onConflict: 'nothing' }),
     ...insertStatements(schema.deadLetters, dead),
     ...insertStatements(schema.presenceLog, rows.presence),
     ...insertStatements(schema.sequenceGaps, rows.gaps),

@@ -3,6 +3,7 @@
 import { z } from 'zod'
 import { eq } from 'drizzle-orm'
 import { withAllowance } from '#shared/utils/allowance'
+import { commandStored } from '#shared/utils/command-rows'
 
 const body = z.object({
   type: z.enum(['hold', 'resume'], 'Choose hold or resume.'),
@@ -31,7 +32,7 @@ export default defineEventHandler(async (event) => {
   const machineNow = now + (ctx.clockOffsetMs ?? 0)
   // Every command carries the machine's allowance as last granted (docs/mqtt.md#the-allowance).
   const command = withAllowance({ kind: 'command' as const, type, id, issuedAt: new Date(machineNow).toISOString(), expiresAt: new Date(machineNow + EXPIRES_MS).toISOString(), reason: (reason || `${type} by ${user.name}`).slice(0, 200) }, ctx.status.allowance?.sent)
-  await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type, origin: `user:${user.id}`, payload: command, issuedAt: now, expiresAt: now + EXPIRES_MS, status: 'sent' })
+  await useDb().insert(schema.commands).values({ id, machineId: ctx.id, type, origin: `user:${user.id}`, payload: commandStored(command, now), issuedAt: now, expiresAt: now + EXPIRES_MS, status: 'sent' })
   const sent = await sendCommand(ctx.cellId, ctx.id, command)
   if (!sent) {
     await useDb().update(schema.commands).set({ status: 'not-sent' }).where(eq(schema.commands.id, id))

@@ -3,6 +3,7 @@
 // placed by the machine time it was dated with, not by the server clock it was sent on.
 import { and, desc, eq, gte, isNull, notInArray, or } from 'drizzle-orm'
 import { LIVE_EVENT_LOG_QUIET_TYPES, liveEventWords } from '#shared/utils/live-view'
+import { commandFromRow } from '#shared/utils/command-rows'
 
 export default defineEventHandler(async (event) => {
   await requireUser(event)
@@ -21,13 +22,13 @@ export default defineEventHandler(async (event) => {
   const list = [
     ...msgs.map(x => ({ t: x.t, clock: 'machine', what: liveEventWords(x.kind, x.type), who: null as string | null, note: null as string | null, valueUm: null as number | null })),
     ...logs.map(l => ({ t: l.machineTime ?? l.at, clock: 'station', what: liveEventWords('station', l.kind), who: users.get(l.userId) ?? null, note: l.note, valueUm: l.valueUm })),
-    ...cmds.filter(c => c.origin !== 'engine').map(c => ({ t: machineTimeOf(c), clock: 'machine', what: `${c.type} command: ${c.status}`, who: c.origin.startsWith('user:') ? users.get(Number(c.origin.slice(5))) ?? null : null, note: (c.payload as { reason?: string }).reason ?? null, valueUm: null })),
+    ...cmds.filter(c => c.origin !== 'engine').map(c => ({ t: machineTimeOf(c), clock: 'machine', what: `${c.type} command: ${c.status}`, who: c.origin.startsWith('user:') ? users.get(Number(c.origin.slice(5))) ?? null : null, note: commandFromRow(c)?.reason ?? null, valueUm: null })),
   ].sort((a, b) => b.t - a.t)
   return { from, to, events: list.slice(0, 300) }
 })
 
-/** When a command was issued on the machine's clock (its payload is dated so); older rows: the server's. */
-function machineTimeOf(c: { issuedAt: number, payload: unknown }): number {
-  const t = Date.parse(String((c.payload as { issuedAt?: string } | null)?.issuedAt ?? ''))
+/** When a command was issued on the machine's clock (its message is dated so); older rows: the server's. */
+function machineTimeOf(c: { id: string, type: string, issuedAt: number, payload: unknown }): number {
+  const t = Date.parse(String(commandFromRow(c)?.issuedAt ?? ''))
   return Number.isFinite(t) ? t : c.issuedAt
 }
