@@ -6,6 +6,8 @@
 //   i  issuedAt: ms after the row's issued_at, or the text when it is not in the canonical form
 //   e  expiresAt: ms after issuedAt, or the text when either time is not in the canonical form
 //   o  offsetUm     r  reason     a  allowance as [throughPart, basedOnSeq]
+//   d  1: the reason is its decision's (decisions.reason of the decision whose command_id is this
+//      row's id), not written twice; retention keeps that decision while the command is kept
 // A message with anything else (or whose id or type differs from the row's) is kept whole, and so
 // are rows stored before migration 0024 that it could not compact: `commandFromRow` reads both.
 import type { CommandMessage } from './contract'
@@ -16,6 +18,7 @@ export interface StoredCommand {
   o?: number
   r?: string
   a?: [number, number]
+  d?: 1
 }
 
 const KNOWN = new Set(['kind', 'type', 'id', 'issuedAt', 'expiresAt', 'offsetUm', 'reason', 'allowance'])
@@ -25,8 +28,11 @@ function canonicalMs(iso: string): number | null {
   return Number.isFinite(t) && new Date(t).toISOString() === iso ? t : null
 }
 
-/** The payload stored for `c` on a row whose issued_at (server clock) is `rowIssuedAt`. */
-export function commandStored(c: CommandMessage, rowIssuedAt: number): StoredCommand | CommandMessage {
+/**
+ * The payload stored for `c` on a row whose issued_at (server clock) is `rowIssuedAt`; when the
+ * decision that sent it is stored with the same reason, `decisionReason`, the reason is left to it.
+ */
+export function commandStored(c: CommandMessage, rowIssuedAt: number, decisionReason?: string | null): StoredCommand | CommandMessage {
   const a = c.allowance
   if (Object.keys(c).some(k => !KNOWN.has(k)) || (a && Object.keys(a).some(k => k !== 'throughPart' && k !== 'basedOnSeq'))) return c
   const issued = canonicalMs(c.issuedAt), expires = canonicalMs(c.expiresAt)
@@ -35,13 +41,24 @@ export function commandStored(c: CommandMessage, rowIssuedAt: number): StoredCom
     e: issued === null || expires === null ? c.expiresAt : expires - issued,
   }
   if ('offsetUm' in c) out.o = c.offsetUm
-  if (c.reason !== undefined) out.r = c.reason
+  if (c.reason !== undefined && c.reason === decisionReason) out.d = 1
+  else if (c.reason !== undefined) out.r = c.reason
   if (a) out.a = [a.throughPart, a.basedOnSeq]
   return out
 }
 
-/** The message a command row sent, field for field, from its columns and payload (either form). */
-export function commandFromRow(row: { id: string, type: string, issuedAt: number, payload: unknown }): CommandMessage {
+/** Whether the row's reason is its decision's (commandFromRow then needs that decision's reason). */
+export function commandReasonInDecision(payload: unknown): boolean {
+  const p = (typeof payload === 'string' ? JSON.parse(payload) : payload) as { d?: unknown } | null
+  return p?.d === 1
+}
+
+/**
+ * The message a command row sent, field for field, from its columns and payload (either form);
+ * `decisionReason`: the reason of the decision whose command_id is the row's id, for a row that
+ * left its reason to it (commandReasonInDecision).
+ */
+export function commandFromRow(row: { id: string, type: string, issuedAt: number, payload: unknown }, decisionReason?: string | null): CommandMessage {
   const p = (typeof row.payload === 'string' ? JSON.parse(row.payload) : row.payload) as Partial<StoredCommand> & { kind?: string } | null
   if (!p || p.kind === 'command' || p.i === undefined || p.e === undefined) return p as CommandMessage
   const issuedAt = typeof p.i === 'number' ? new Date(row.issuedAt + p.i).toISOString() : p.i
@@ -49,6 +66,7 @@ export function commandFromRow(row: { id: string, type: string, issuedAt: number
   const c: Record<string, unknown> = { kind: 'command', type: row.type, id: row.id, issuedAt, expiresAt }
   if (p.o !== undefined) c.offsetUm = p.o
   if (p.r !== undefined) c.reason = p.r
+  else if (p.d === 1 && decisionReason != null) c.reason = decisionReason
   if (p.a) c.allowance = { throughPart: p.a[0], basedOnSeq: p.a[1] }
   return c as CommandMessage
 }

@@ -3,7 +3,7 @@
 // what cannot be given back so is kept whole. Our own storage rule; no outside reference.
 import { describe, it, expect } from 'vitest'
 import fc from 'fast-check'
-import { commandFromRow, commandStored } from '../../shared/utils/command-rows'
+import { commandFromRow, commandReasonInDecision, commandStored } from '../../shared/utils/command-rows'
 import type { CommandMessage } from '../../shared/utils/contract'
 
 const ms = fc.integer({ min: Date.parse('2020-01-01T00:00:00Z'), max: Date.parse('2040-01-01T00:00:00Z') })
@@ -46,5 +46,18 @@ describe('a command row gives back the message it sent', () => {
     expect(commandStored(c, 0)).toBe(c)
     expect(roundTrip(c, 0)).toEqual(c)
     expect(commandFromRow({ id: 'other', type: 'dress', issuedAt: 0, payload: JSON.stringify(c) })).toEqual(c)
+  })
+
+  it('an engine command whose reason is its decision\'s leaves the text to the decision, and comes back whole with it', () => {
+    fc.assert(fc.property(command, fc.integer({ min: -86_400_000, max: 86_400_000 }), fc.boolean(), (c, skew, same) => {
+      const at = Date.parse(c.issuedAt) + skew
+      const decisionReason = same ? c.reason : 'another reason'
+      const payload = JSON.stringify(commandStored(c, at, decisionReason))
+      const row = { id: c.id, type: c.type, issuedAt: at, payload }
+      const leftToDecision = same && c.reason !== undefined
+      expect(commandReasonInDecision(payload)).toBe(leftToDecision)
+      if (leftToDecision) expect(JSON.parse(payload).r).toBeUndefined()
+      expect(commandFromRow(row, decisionReason)).toEqual(c)
+    }), { numRuns: 1000 })
   })
 })

@@ -7,6 +7,7 @@
 // cycle_events with every field, the rest stay.
 // 0024: a command row's message is kept in compact form (shared/utils/command-rows.ts); what the
 // compact form cannot give back field for field stays as it was.
+// 0025: a compact command row whose reason is its decision's keeps a mark instead of the text.
 import { describe, it, expect, afterAll } from 'vitest'
 import { cpSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs'
 import { tmpdir } from 'node:os'
@@ -16,7 +17,7 @@ import { createClient } from '@libsql/client'
 import { drizzle } from 'drizzle-orm/libsql'
 import { migrate } from 'drizzle-orm/libsql/migrator'
 import { cycleEventMessage } from '../../shared/utils/cycle-events'
-import { commandFromRow } from '../../shared/utils/command-rows'
+import { commandFromRow, commandReasonInDecision } from '../../shared/utils/command-rows'
 import type { CommandMessage, SequencedMessage } from '../../shared/utils/contract'
 
 const migrations = fileURLToPath(new URL('../../server/database/migrations', import.meta.url))
@@ -133,6 +134,37 @@ describe('migration 0024: a command row keeps its message in compact form', () =
     expect(after.slice(0, rows.length).every(r => !r.payload.includes('"kind"'))).toBe(true)
     expect(JSON.parse(after[5]!.payload)).toEqual(odd)
     expect(JSON.parse(after[6]!.payload)).toEqual({ ...rows[4]![0], type: 'hold' })
+    client.close()
+  })
+})
+
+describe('migration 0025: an engine command leaves its reason to its decision', () => {
+  it('marks the compact rows whose reason is their decision\'s, and leaves the rest', async () => {
+    const client = createClient({ url: `file:${join(dir, 'reasons.db')}` })
+    const db = drizzle(client)
+    await migrate(db, { migrationsFolder: migrationsBefore('0025_command_reason_once') })
+    const why = 'drift: level +0.07 µm → offset -0.06 µm (Δ -0.06)'
+    const command = (id: string, payload: object) => client.execute({ sql: `insert into commands (id, machine_id, type, origin, payload, issued_at, expires_at, status) values (?, 'cg-03', 'offset', 'engine', ?, 1000, 61000, 'applied')`, args: [id, JSON.stringify(payload)] })
+    const decision = (commandId: string | null, reason: string) => client.execute({ sql: `insert into decisions (machine_id, seq, at, action, offset_um, command_id, reason) values ('cg-03', 13, 1000, 'offset', -0.06, ?, ?)`, args: [commandId, reason] })
+    // the same reason as its decision: marked
+    await command('cg-03.13.offset', { i: -6578, e: 60000, o: -0.062, r: why, a: [4, 13] })
+    await decision('cg-03.13.offset', why)
+    // another reason (a decision's reason longer than a command takes), no decision, a whole message: left
+    await command('cg-03.14.offset', { i: 0, e: 60000, o: 0.1, r: 'short' })
+    await decision('cg-03.14.offset', 'short, and more')
+    await command('cg-03.15.offset', { i: 0, e: 60000, o: 0.2, r: why })
+    const whole = { kind: 'command', type: 'offset', id: 'cg-03.16.offset', issuedAt: '2026-03-02T21:00:00.000Z', expiresAt: '2026-03-02T21:01:00.000Z', offsetUm: 0.3, reason: why }
+    await command('cg-03.16.offset', whole)
+    await decision('cg-03.16.offset', why)
+
+    await migrate(db, { migrationsFolder: migrations })
+    const rows = (await client.execute('select id, type, issued_at, payload from commands order by rowid')).rows.map(r => ({ id: String(r.id), type: String(r.type), issuedAt: Number(r.issued_at), payload: String(r.payload) }))
+    expect(rows.map(r => commandReasonInDecision(r.payload))).toEqual([true, false, false, false])
+    expect(JSON.parse(rows[0]!.payload)).toEqual({ i: -6578, e: 60000, o: -0.062, a: [4, 13], d: 1 })
+    expect(commandFromRow(rows[0]!, why)).toEqual({ kind: 'command', type: 'offset', id: 'cg-03.13.offset', issuedAt: new Date(1000 - 6578).toISOString(), expiresAt: new Date(1000 - 6578 + 60000).toISOString(), offsetUm: -0.062, reason: why, allowance: { throughPart: 4, basedOnSeq: 13 } })
+    expect(JSON.parse(rows[1]!.payload).r).toBe('short')
+    expect(JSON.parse(rows[2]!.payload).r).toBe(why)
+    expect(JSON.parse(rows[3]!.payload)).toEqual(whole)
     client.close()
   })
 })

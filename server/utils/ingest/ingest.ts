@@ -381,12 +381,14 @@ function foldMachines(messages: ForMachine[], now: number, trendRules: AlertRout
 
 /** One transaction for everything (raw multi-row statements: see raw-insert.ts). */
 function statementsOf({ rows, machines }: Fold, dead: DeadLetterRow[], now: number): InStatement[] {
+  const decisionReasons = new Map(rows.decisions.filter(d => d.commandId).map(d => [d.commandId!, d.reason]))
   const statements: InStatement[] = [
     ...insertStatements(schema.readings, rows.readings, { onConflict: 'nothing' }),
     ...insertStatements(schema.machineMessages, rows.messages, { onConflict: 'nothing' }),
     ...insertStatements(schema.cycleEvents, rows.cycleEvents, { onConflict: 'nothing' }),
     ...insertStatements(schema.decisions, rows.decisions),
-    ...insertStatements(schema.commands, rows.commands.map(c => ({ ...c, payload: commandStored(c.payload, c.issuedAt) })), { onConflict: 'nothing' }),
+    // an engine command's reason is its decision's, stored once (docs/storage.md#commands)
+    ...insertStatements(schema.commands, rows.commands.map(c => ({ ...c, payload: commandStored(c.payload, c.issuedAt, decisionReasons.get(c.id)) })), { onConflict: 'nothing' }),
     ...insertStatements(schema.deadLetters, dead),
     ...insertStatements(schema.presenceLog, rows.presence),
     ...insertStatements(schema.sequenceGaps, rows.gaps),

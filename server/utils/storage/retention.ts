@@ -4,7 +4,8 @@
 //   readings        → reading_hours (count, faults, Σ, Σ², min, max per machine, hour, job)
 //   cycle events and the machine's answers to commands → activity_hours (parts by disposition and
 //                     reject reason, applied offsets with Σ and largest |step|, refused offsets, answers)
-//   decisions, engine snapshots → activity_hours (decisions by action); snapshots are only removed
+//   decisions, engine snapshots → activity_hours (decisions by action); snapshots are only removed;
+//                     a command still kept gets back the reason it had left to its decision
 //   commands        → activity_hours (commands by outcome)
 // Readings, decisions, snapshots and commands go by the server's clock (when received or decided:
 // a machine with a wrong clock must not get fresh data folded away), the machine's messages by
@@ -55,8 +56,9 @@ export async function retentionPass(settings: RetentionSettings, now = Date.now(
   const out: RetentionResult = { readings: 0, cycleEvents: 0, answers: 0, decisions: 0, snapshots: 0, commands: 0, more: false, ms: 0 }
   if (settings.readingsDays > 0) await foldReadings(now - settings.readingsDays * DAY, out)
   if (settings.eventsDays > 0) await foldMachineMessages(now - settings.eventsDays * DAY, out)
-  if (settings.decisionsDays > 0) await foldDecisions(now - settings.decisionsDays * DAY, out)
+  // commands before decisions: a command still kept then needs no reason back from its decision
   if (settings.commandsDays > 0) await foldCommands(now - settings.commandsDays * DAY, out)
+  if (settings.decisionsDays > 0) await foldDecisions(now - settings.decisionsDays * DAY, out)
   out.ms = performance.now() - t0
   return out
 }
@@ -198,6 +200,10 @@ async function foldDecisions(cutoff: number, out: RetentionResult) {
         db.run(addCounts(['decisions_offset', 'decisions_hold', 'decisions_stop', 'decisions_dress', 'decisions_alerted'], sql`
           select machine_id, ${hourOf('at')}, sum(action = 'offset'), sum(action = 'hold'), sum(action = 'stop'), sum(action = 'dress'), sum(action = 'none')
           from decisions where ${where} group by 1, 2`)),
+        // a command still kept whose reason was its decision's (docs/storage.md#commands) gets it back
+        db.run(sql`update commands set payload = json_set(json_remove(commands.payload, '$.d'), '$.r', x.reason)
+          from (select command_id, reason from decisions where ${where} and command_id is not null) as x
+          where commands.id = x.command_id and json_extract(commands.payload, '$.d') = 1`),
         db.run(sql`delete from decisions where ${where}`),
       ])
       out.decisions = Number(n)
