@@ -580,7 +580,7 @@ export const shiftSummarySends = sqliteTable('shift_summary_sends', {
 // ── Owlshift's own runs: when it started, when it was last known alive, how it stopped ───────────
 
 /**
- * One row per server run. `aliveAt` is written every few seconds (server/utils/platform/heartbeat.ts): a run
+ * One row per server run. `aliveAt` is written every few seconds (server/utils/health/heartbeat.ts): a run
  * that ends without `stoppedAt` was killed or lost its box, and the next run's start closes the gap —
  * the morning report shows it as an outage (docs/operations.md#when-owlshift-itself-goes-quiet).
  */

@@ -1,4 +1,4 @@
-// The dead-man's switch (server/utils/platform/heartbeat.ts): this run's record of being alive, and the
+// The dead-man's switch (server/utils/health/heartbeat.ts): this run's record of being alive, and the
 // pings to the hosted heartbeat monitor when OWLSHIFT_HEARTBEAT_URL is set. A planned stop
 // (SIGTERM) pauses the monitor, so nobody is woken for an update; the next start un-pauses it.
 import { databaseReady } from './0.database'

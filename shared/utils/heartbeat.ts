@@ -1,6 +1,6 @@
 // Owlshift's own checks behind its dead-man's switch (docs/operations.md#when-owlshift-itself-goes-quiet):
 // a success ping to the hosted heartbeat monitor goes out only while every one holds; otherwise
-// its fail ping says which failed. Pure: the server gathers the facts (server/utils/platform/heartbeat.ts).
+// its fail ping says which failed. Pure: the server gathers the facts (server/utils/health/heartbeat.ts).
 
 export interface HeartbeatFacts {
   /** the database took a write just now (its error otherwise) */

@@ -79,7 +79,7 @@ it('a scripted night through ingest writes, sends, raises and publishes exactly 
   const { setCommandPublisher } = await import('../../server/utils/ingest/command-link')
   const { handleCommitted } = await import('../../server/utils/ingest/after-commit')
   const { useIngest } = await import('../../server/utils/ingest/ingest')
-  const { setMachineJob } = await import('../../server/utils/machines/machine-registry')
+  const { setMachineJob } = await import('../../server/utils/ingest/ingest')
   const { activeTuningFor } = await import('../../server/utils/machines/compensation-versions')
   const schema = await import('../../server/database/schema')
   const { eq } = await import('drizzle-orm')

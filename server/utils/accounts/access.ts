@@ -4,6 +4,7 @@
 import type { H3Event } from 'h3'
 import { eq } from 'drizzle-orm'
 import type { Role, SessionUser } from '#shared/types/auth'
+import { sessionEndReason, toSessionUser } from './sign-in'
 
 /** The signed-in account as stored now, and why its session no longer counts (null while it does). */
 export async function sessionAccount(event: H3Event) {

@@ -1,6 +1,7 @@
 // Writes the audit trail: who, when, from where, what.
 import type { H3Event } from 'h3'
 import type { SessionUser } from '#shared/types/auth'
+import { requestAddress } from '../platform/request-address'
 
 /** The client's address (forwarded headers only from trusted proxies: client-address.ts). */
 export function requestOrigin(event: H3Event): string {

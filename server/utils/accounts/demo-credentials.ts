@@ -3,6 +3,8 @@
 import { existsSync, readFileSync, writeFileSync } from 'node:fs'
 import { join } from 'node:path'
 import { isNull } from 'drizzle-orm'
+import { useOwlshiftConfig } from '../platform/config'
+import { setMachinePassword } from './machine-credentials'
 
 export function demoCredentialsFile() { return join(useOwlshiftConfig().dataDir, 'machine-credentials.json') }
 

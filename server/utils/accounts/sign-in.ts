@@ -4,6 +4,7 @@ import { randomUUID } from 'node:crypto'
 import { and, eq, gt, count, min, sql } from 'drizzle-orm'
 import type { H3Event } from 'h3'
 import type { SessionUser } from '#shared/types/auth'
+import { useOwlshiftConfig } from '../platform/config'
 
 export interface ThrottleVerdict { blocked: boolean, retryAfterS: number, scope?: 'account' | 'address' }
 

@@ -3,6 +3,7 @@
 import { createHash, randomBytes, randomInt } from 'node:crypto'
 import type { H3Event } from 'h3'
 import { and, eq, isNull } from 'drizzle-orm'
+import { requestOrigin } from './audit'
 
 export const STATION_COOKIE = 'owlshift-station'
 export const STATION_CODE_TTL_MS = 30 * 60_000

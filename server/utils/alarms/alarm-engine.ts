@@ -13,6 +13,7 @@
 import { eq, isNull } from 'drizzle-orm'
 import { applyAlarmAction, alarmCreateRecord, isAlarmChattering, type AlarmAction, type AlarmRecord } from '#shared/utils/alarm-model'
 import { alarmKindFor, alarmView, type AlarmKind } from '#shared/utils/alarm-catalogue'
+import { machineContext, allMachineContexts } from '../machines/machine-registry'
 
 type AlarmRow = typeof schema.alarms.$inferSelect
 export const MAX_SHELVE_MS = 12 * 60 * 60 * 1000 // a night shift; common practice (docs/alarms.md#the-practice-in-short-from-memory)

@@ -5,7 +5,6 @@
 // runs, ingest judges "size will meet tolerance soon" with the routing rules' trend thresholds
 // (the machine loop raises it with the engine's other conditions: shared/utils/machine-loop.ts).
 import { and, desc, eq, gte, inArray } from 'drizzle-orm'
-import { z } from 'zod'
 import type { Agent } from 'node:https'
 import type { AlarmPriority } from '#shared/utils/alarm-model'
 import {
@@ -18,21 +17,16 @@ import { alertEmail, alertPushPayload, alertReleaseSummary, alertSmsText, alertV
 import { placeAlertCall, phoneSettings, sendAlertSms } from './phone-alerts'
 import { newVapidKeys, sendWebPush, type VapidKeys } from './web-push-send'
 import { sendMail } from './mailer'
+import { notifySettings } from './alert-settings'
+import { machineContext } from '../machines/machine-registry'
+import { useIngest } from '../ingest/ingest'
+import { onLive } from '../live/live-bus'
+import { alarmView } from '#shared/utils/alarm-catalogue'
 
 const RULES_KEY = 'alert-routing'
 const SWEEP_MS = 30_000
 /** Alarms released within this long of each other (quiet hours ended) share one message per person. */
 const RELEASE_GATHER_MS = 2_000
-
-const envSchema = z.object({
-  OWLSHIFT_PUBLIC_URL: z.string().url('must be the address people open, e.g. https://owlshift.plant.example').default('http://localhost:3000'),
-  OWLSHIFT_PUSH_CONTACT: z.string().regex(/^(mailto:|https:)/, 'must start with mailto: or https: (RFC 8292)').default('mailto:owlshift@localhost'),
-})
-export function notifySettings(env: Record<string, string | undefined> = process.env) {
-  const parsed = envSchema.safeParse(Object.fromEntries(Object.entries(env).filter(([k, v]) => k.startsWith('OWLSHIFT_P') && v !== '')))
-  if (!parsed.success) throw new Error(`Owlshift notifications: ${parsed.error.issues.map(i => `${i.path.join('.')} ${i.message}`).join('; ')}`)
-  return { publicUrl: parsed.data.OWLSHIFT_PUBLIC_URL, pushContact: parsed.data.OWLSHIFT_PUSH_CONTACT }
-}
 
 type AlarmView = ReturnType<typeof alarmView>
 type DeliveryRow = typeof schema.notificationDeliveries.$inferInsert

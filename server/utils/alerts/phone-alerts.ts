@@ -11,6 +11,9 @@ import twilio from 'twilio'
 import type RequestClient from 'twilio/lib/base/RequestClient'
 import { z } from 'zod'
 import { eq } from 'drizzle-orm'
+import { notifySettings } from './alert-settings'
+import { actOnAlarm } from '../alarms/alarm-engine'
+import { audit } from '../accounts/audit'
 
 const envSchema = z.object({
   TWILIO_ACCOUNT_SID: z.string().regex(/^AC[0-9a-f]{32}$/, 'must be an account SID: AC followed by 32 hex digits').optional(),

@@ -4,6 +4,10 @@
 import { outageResumeRefusal, withAllowance } from '#shared/utils/allowance'
 import type { CommandMessage } from '#shared/utils/contract'
 import { commandStored } from '#shared/utils/command-rows'
+import { sendCommand } from './command-link'
+import { applyAlarmConditions } from '../alarms/alarm-engine'
+import { machineContext } from '../machines/machine-registry'
+import { openAlarmViews } from '../live/live-cell'
 
 export async function handleCommitted(effects: IngestEffects) {
   for (const c of effects.commands) {

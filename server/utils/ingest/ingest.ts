@@ -16,6 +16,8 @@ import { applyMachineMessage, appendLoopRows, emptyLoopRows, liveStatusView, typ
 import type { AlertRoutingRules } from '#shared/utils/alert-routing'
 import { ingestCommitFailed, ingestCommitSucceeded, ingestHealthAtStart, ingestOutageWords, ingestSettle, ingestSettlesAt, type IngestHealth } from '#shared/utils/ingest-health'
 import { defaultAllowanceSettings, type AllowanceSettings } from '#shared/utils/allowance'
+import { machineContext, loadMachineRegistry } from '../machines/machine-registry'
+import { insertStatements } from '../storage/raw-insert'
 
 export type { AlarmCondition } from '#shared/utils/machine-loop'
 
@@ -408,4 +410,14 @@ let pipeline: IngestPipeline | null = null
 export function useIngest(): IngestPipeline {
   pipeline ??= new IngestPipeline()
   return pipeline
+}
+
+/**
+ * A changeover or new tuning decided here (jobs page, settings activation): queued through ingest
+ * like a machine message (ingest.assignJob), so the engine state it changes is written in a
+ * commit with the rest. Returns the engine's answer (null when no engine runs yet: the next birth
+ * starts it).
+ */
+export function setMachineJob(machineId: string, job: JobRow | null, tuning: CompensationTuning | null): Promise<CompensationDecision | null> {
+  return useIngest().assignJob(machineId, job, tuning)
 }

@@ -2,7 +2,14 @@
 import { z } from 'zod'
 import type { H3Event } from 'h3'
 import { and, desc, eq, isNull, isNotNull, or } from 'drizzle-orm'
-import type { MachineContext } from '../machines/machine-registry'
+import { liveStreamCursor } from './live-stream'
+import { allMachineContexts, machineContext, type MachineContext } from '../machines/machine-registry'
+import { readValidParams } from '../platform/validate'
+import { useOwlshiftConfig } from '../platform/config'
+import { plantShifts } from '../calendar/plant-calendar'
+import { alarmView } from '../../../shared/utils/alarm-catalogue'
+import { liveAlarmsOfMachine, LIVE_CPK_WINDOW, LIVE_RANGES, liveRangeWindow } from '../../../shared/utils/live-view'
+import { liveStatusView } from '../../../shared/utils/machine-loop'
 
 /** Tolerance, target and compensation limits in µm from nominal: the engine's, else the job's. */
 export function machineLimits(ctx: MachineContext) {

@@ -3,6 +3,7 @@
 // server restart (other boot) or a gap longer than the ring, the browser is told to resync
 // from the snapshot instead — never left with a silent hole.
 import { randomBytes } from 'node:crypto'
+import { onLive } from './live-bus'
 
 export interface StreamEntry { id: string, n: number, type: string, data: string }
 

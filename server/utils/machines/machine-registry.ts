@@ -1,12 +1,14 @@
 // In-memory view of the machines this server serves: identity, job and the latest status with
 // the compensation engine's state. Loaded from the database at start; the ingest pipeline is
-// its only writer (job changes from the web included: assignJob) and persists every change in
-// the same commit as the messages behind it.
+// its only writer (job changes from the web included: setMachineJob in ingest.ts) and persists
+// every change in the same commit as the messages behind it. Reads only: it imports nothing of
+// ingest, so ingest can import it.
 import { and, eq } from 'drizzle-orm'
 import { restoreCompensationState, type CompensationDecision, type CompensationState } from '#shared/utils/compensation'
 import type { CompensationTuning } from '#shared/utils/compensation-tuning'
 import type { OutstandingCommands } from '#shared/utils/command-gate'
 import { TREND_CONDITION, emptyMachineStatus, type MachineLoop } from '#shared/utils/machine-loop'
+import { activeTuningFor } from './compensation-versions'
 
 export type JobRow = typeof schema.jobs.$inferSelect
 export type StatusRow = typeof schema.machineStatus.$inferSelect
@@ -100,14 +102,4 @@ export async function refreshMachineContext(id: string) {
     outstanding: prev?.outstanding ?? {}, reportedConditions: prev?.reportedConditions ?? new Map(), clockOffsetMs: prev?.clockOffsetMs, clock: prev?.clock, trendRaised: prev?.trendRaised ?? false,
     catchingUp: prev?.catchingUp ?? false, lateFrom: prev?.lateFrom ?? null, personResumes: m.resumeAfterOutage === 'person',
   })
-}
-
-/**
- * A changeover or new tuning decided here (jobs page, settings activation): queued through ingest
- * like a machine message (ingest.assignJob), so the engine state it changes is written in a
- * commit with the rest. Returns the engine's answer (null when no engine runs yet: the next birth
- * starts it).
- */
-export function setMachineJob(machineId: string, job: JobRow | null, tuning: CompensationTuning | null): Promise<CompensationDecision | null> {
-  return useIngest().assignJob(machineId, job, tuning)
 }

@@ -2,6 +2,7 @@
 // (server/middleware/0.body-limit.ts). JSON forms are small; the two routes that carry files get
 // room for them. docs/operations.md#request-size.
 import type { H3Event } from 'h3'
+import { LIVE_PHOTO_MAX_BYTES } from '../../../shared/utils/live-view'
 
 const KB = 1024
 /** Every JSON form and action: a sign-in is under 1 KB, the largest settings a few KB. */

@@ -1,9 +1,9 @@
 // Who sent a request: the address of the connection, unless that connection comes from a reverse
 // proxy named in OWLSHIFT_TRUSTED_PROXIES — only then are X-Forwarded-For and X-Forwarded-Host
 // believed. Anyone can send those headers, so trusting them from everyone let a throttled address
-// sign in again under a made-up one and write that into the audit log.
+// sign in again under a made-up one and write that into the audit log. The rules, pure; a
+// request's address and host under the configured proxies: request-address.ts.
 import { BlockList, isIP } from 'node:net'
-import type { H3Event } from 'h3'
 
 /** "10.0.0.0/8", "127.0.0.1", "::1", "fd00::/8" → what BlockList needs; null when not an address. */
 export function parseProxyEntry(entry: string): { address: string, prefix?: number, family: 'ipv4' | 'ipv6' } | null {
@@ -49,21 +49,4 @@ export function clientAddress(peer: string | undefined, forwardedFor: string | u
     if (!isTrusted(chain[i])) return isIP(chain[i]!) ? chain[i]! : own
   }
   return chain[0] ?? own
-}
-
-let trusted: ((a: string | undefined) => boolean) | undefined
-
-function isTrustedProxy(address: string | undefined) {
-  trusted ??= proxyList(useOwlshiftConfig().trustedProxies)
-  return trusted(address)
-}
-
-export function requestAddress(event: H3Event): string {
-  return clientAddress(event.node.req.socket?.remoteAddress, getRequestHeader(event, 'x-forwarded-for'), isTrustedProxy)
-}
-
-/** The host the browser asked for: X-Forwarded-Host only from a trusted proxy. */
-export function requestHost(event: H3Event): string | undefined {
-  const forwarded = isTrustedProxy(event.node.req.socket?.remoteAddress) ? getRequestHeader(event, 'x-forwarded-host') : undefined
-  return forwarded?.split(',')[0]?.trim() || getRequestHeader(event, 'host')
 }

@@ -85,7 +85,7 @@ export interface OwlshiftConfig {
     /** every catalogue on/off delay × this (a demo at 4× real time: 0.25; 0: no delays) */
     delayScale: number
   }
-  /** the dead-man's switch: pings to a hosted heartbeat monitor (server/utils/platform/heartbeat.ts); url null: off */
+  /** the dead-man's switch: pings to a hosted heartbeat monitor (server/utils/health/heartbeat.ts); url null: off */
   heartbeat: { url: string | null, everyS: number, graceS: number, apiKey: string | null, apiUrl: string }
 }
 

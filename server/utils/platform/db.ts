@@ -6,7 +6,6 @@ import { dirname, join } from 'node:path'
 import { fileURLToPath } from 'node:url'
 import * as schema from '../../database/schema'
 import { ConfigError, type OwlshiftConfig } from './config'
-import { closeNativeWriter } from '../storage/write-batch'
 
 export type Db = LibSQLDatabase<typeof schema>
 export { schema }
@@ -125,8 +124,15 @@ export function useDbClient(): Client {
   return client
 }
 
+/**
+ * What closes with the database: the native writer registers its own closing here when it opens
+ * (storage/write-batch.ts), so this file needs nothing of it.
+ */
+const closers = new Set<() => Promise<void>>()
+export function onDatabaseClose(close: () => Promise<void>) { closers.add(close) }
+
 export async function closeDatabase() {
-  await closeNativeWriter()
+  for (const close of closers) await close()
   client?.close()
   client = undefined
   db = undefined

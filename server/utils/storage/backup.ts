@@ -3,6 +3,8 @@
 // <data>/backups/, newest `keep` retained.
 import { mkdirSync, readdirSync, rmSync, statSync } from 'node:fs'
 import { join } from 'node:path'
+import { useOwlshiftConfig } from '../platform/config'
+import { databaseFilePath } from '../platform/db'
 
 export function backupDir() { return join(useOwlshiftConfig().dataDir, 'backups') }
 

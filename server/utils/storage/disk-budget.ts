@@ -6,6 +6,9 @@
 import { statfsSync, statSync } from 'node:fs'
 import { dirname } from 'node:path'
 import { judgeDisk, DISK_GROWTH_MAX_SPAN_MS, type DiskBudgetSettings, type DiskJudgement, type DiskReading } from '#shared/utils/disk-budget'
+import { useOwlshiftConfig } from '../platform/config'
+import { databaseFilePath } from '../platform/db'
+import { useIngest } from '../ingest/ingest'
 
 /** Readings kept for the growth: one every 10 minutes over the last week, and the newest. */
 const KEEP_EVERY_MS = 600_000

@@ -9,7 +9,7 @@
 import Database from 'libsql'
 import type { InStatement, InValue } from '@libsql/client'
 import { startWalCheckpointer, WRITER_AUTOCHECKPOINT_PAGES, type WalCheckpointer } from './wal-checkpointer'
-import { useDbClient } from '../platform/db'
+import { onDatabaseClose, useDbClient } from '../platform/db'
 
 type NativeDb = InstanceType<typeof Database>
 // prepare()'s generic default does not come through ReturnType<>: name the statement type itself.
@@ -27,6 +27,7 @@ export function openNativeWriter(file: string) {
   db.pragma('foreign_keys = ON')
   db.pragma(`wal_autocheckpoint = ${WRITER_AUTOCHECKPOINT_PAGES}`)
   native = { db, prepared: new Map(), begin: db.prepare('BEGIN IMMEDIATE'), commit: db.prepare('COMMIT'), rollback: db.prepare('ROLLBACK'), checkpointer: startWalCheckpointer(file) }
+  onDatabaseClose(closeNativeWriter)
 }
 
 export async function closeNativeWriter() {

@@ -13,6 +13,10 @@
 import { and, eq, gte, inArray } from 'drizzle-orm'
 import { ingestProblem, ingestSettle } from '#shared/utils/ingest-health'
 import { heartbeatVerdict, type HeartbeatFacts } from '#shared/utils/heartbeat'
+import { useOwlshiftConfig } from '../platform/config'
+import { brokerHandle } from '../ingest/broker-state'
+import { useIngest } from '../ingest/ingest'
+import { allMachineContexts } from '../machines/machine-registry'
 
 export interface HeartbeatPing {
   at: number

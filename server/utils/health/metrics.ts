@@ -1,6 +1,11 @@
 // Health and metrics figures, gathered in one place for /api/health and /api/metrics.
 import { sql } from 'drizzle-orm'
 import { ingestLostMs, ingestSecondsSinceCommit, ingestSettle } from '#shared/utils/ingest-health'
+import { useIngest } from '../ingest/ingest'
+import { brokerHandle } from '../ingest/broker-state'
+import { allMachineContexts } from '../machines/machine-registry'
+import { diskBudgetStatus } from '../storage/disk-budget'
+import { walCheckpointStats } from '../storage/write-batch'
 
 function quantile(sorted: number[], q: number): number {
   if (!sorted.length) return 0
