@@ -7,7 +7,8 @@
 //   backlog, the machines are resumed and the report shows the outage;
 // - the same through an external Mosquitto (machines keep their connection: the broker tells them
 //   Owlshift is offline by its will);
-// - a planned stop: the monitor shows paused, nobody is woken, the machines resume on start.
+// - a planned stop, with either broker: the monitor shows paused, nobody is woken, the machines
+//   resume on start; through an external broker they stay connected and read "paused" meanwhile.
 import { describe, it, expect, afterEach } from 'vitest'
 import { mkdtempSync } from 'node:fs'
 import { tmpdir } from 'node:os'
@@ -104,9 +105,15 @@ async function killAndWatch(p: Plant) {
   return { monitor, away, alertsBefore, killedAt }
 }
 
-function expectHeldWithinAllowance(away: Awaited<ReturnType<typeof killAndWatch>>['away']) {
+async function expectHeldWithinAllowance(p: Plant, away: Awaited<ReturnType<typeof killAndWatch>>['away'], killedAt: number) {
   const cycle = new Map(machinesFor(scenario, 4).map(m => [m.id, m.cycleTimeS]))
+  // what Owlshift granted before it died, as it recorded each command it sent (the allowance rides on every one)
+  const db = openTestDb(p.dataDir)
+  const granted = new Map((await db.execute({ sql: `select machine_id, max(json_extract(payload, '$.allowance.throughPart')) through from commands where issued_at <= ? group by machine_id`, args: [killedAt] })).rows.map(r => [String(r.machine_id), Number(r.through)]))
+  db.close()
   for (const m of away) {
+    // the machine's plant started this night at serial 0: parts ground = the last serial it started (it finished the part in the wheel, then held)
+    expect(m.partsGround, `${m.id}: the last part it started, against the furthest part Owlshift granted`).toBeLessThanOrEqual(granted.get(m.id)!)
     expect(m.sinceLastWord.parts, m.id).toBeLessThanOrEqual(Math.floor((1.1 * MAX_MIN * 60) / cycle.get(m.id)!) + 1)
     expect(m.sinceLastWord.trulyOut, `${m.id}: parts out of tolerance ground on its allowance`).toBe(0)
     expect(m.allowanceHolds, `${m.id}: holds since the kill`).toBe(1)
@@ -174,7 +181,7 @@ describe('when Owlshift itself goes quiet', () => {
     // embedded: the broker died with it, their connections dropped; external: still connected, told by Owlshift's will
     expect(p.sim.progress().compensatorAway).toBe(4)
     expect(p.sim.progress().connected).toBe(p.external ? 4 : 0)
-    expectHeldWithinAllowance(away)
+    await expectHeldWithinAllowance(p, away, killedAt)
     const { backlogDecisions } = await restartAndCatchUp(p)
     expect(backlogDecisions).toBeGreaterThan(0)
     // the morning report's entry: from the last sign of life to the start, per machine what it did
@@ -196,8 +203,11 @@ describe('when Owlshift itself goes quiet', () => {
     }
   }
 
-  it('a planned stop: the monitor shows paused and nobody is woken; the machines resume on start', async () => {
-    const p = await plant()
+  it.each([
+    { broker: 'embedded', external: false },
+    { broker: 'external Mosquitto', external: true },
+  ])('a planned stop, $broker broker: the monitor shows paused and nobody is woken; the machines resume on start', async ({ external }) => {
+    const p = await plant({ external })
     await until(() => p.fake.status(p.check) === 'up', 'the first success ping')
     await wait(6_000)
     const alertsBefore = p.fake.check(p.check)!.alerts.length
@@ -205,6 +215,11 @@ describe('when Owlshift itself goes quiet', () => {
     expect(p.fake.status(p.check)).toBe('paused')
     await until(() => p.sim.links.get('cg-01')!.compensator.status !== 'online', 'the machines to hear of it')
     await until(() => executions(p.sim).every(e => e === 'FEED_HOLD'), 'every machine to hold on its allowance', 20_000)
+    if (external) {
+      // still connected to the broker, each machine reads Owlshift's presence: paused on purpose (its retained word), not gone
+      for (const [id, link] of p.sim.links) expect(link.compensator, id).toMatchObject({ status: 'paused', reason: expect.stringMatching(/on purpose/) })
+      expect(p.sim.progress().connected).toBe(4)
+    }
     await wait(3_500) // longer than period + grace
     expect(p.fake.status(p.check)).toBe('paused')
     expect(p.fake.check(p.check)!.alerts.length).toBe(alertsBefore) // nobody woken
