@@ -1,4 +1,6 @@
 // The database schema. One table per concern; times are epoch milliseconds (UTC).
+// Over 400 lines on purpose: drizzle-kit reads the schema from this one file (drizzle.config.ts)
+// to generate the migrations, and the tables' foreign keys point at one another across concerns.
 import { sqliteTable, integer, text, real, index, uniqueIndex, primaryKey } from 'drizzle-orm/sqlite-core'
 import { sql } from 'drizzle-orm'
 import type { MachinePrediction } from '../../shared/utils/machine-loop'

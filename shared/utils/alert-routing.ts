@@ -17,6 +17,11 @@
 //     `rateLimit.max` times within `rateLimit.windowMin` (a chattering condition cannot page all night);
 //   - "trend nears tolerance" is raised from the compensation engine's prediction below a per-job
 //     threshold of minutes and cleared only above threshold × clearFactor (hysteresis).
+//
+// Over 400 lines on purpose: the rules' shape, the plant clock and on-call lookup, the recipients
+// and the per-alarm step (announce, repeat, escalate, release after quiet hours) are one decision
+// that tests/unit/alert-routing.test.ts checks end to end; the trend threshold at the end is the
+// routing table's other use. The messages sent are apart (alert-message.ts).
 import { z } from 'zod'
 import type { AlarmPriority } from './alarm-model'
 import { ROLE_NAMES, type Role } from '../types/auth'

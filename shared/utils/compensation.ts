@@ -14,6 +14,13 @@
 // Strategies: step (average of N, correct a fraction outside the compensation limits, then skip
 // the pipeline), ewma (Ingolfsson & Sachs 1993), drift (level + slope, Holt-type double EWMA,
 // Butler & Stefani 1994; aims at the part d + 1 ahead, so a linear drift leaves no bias).
+//
+// Over 400 lines on purpose: the engine's state, its step for a reading and for each event, the
+// learning of level, slope, dress step and warm-up, and the prediction are one model
+// (docs/compensation.md): every function keeps the same state's invariants (the offsets in the
+// pipeline, the grace window after a step event) and they are read together against the
+// document. Split, each part would be read only beside the others; its settings, their parsing
+// and the state's checks are apart already (compensation-settings.ts, compensation-tuning.ts).
 import { parseCompensationSettings, type CompensationSettings, type CompensationSettingsInput } from './compensation-settings'
 
 // Values stay exported from compensation-settings.ts only (Nuxt auto-imports each top-level name once).

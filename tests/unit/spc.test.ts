@@ -2,10 +2,10 @@ import { describe, it, expect } from 'vitest'
 import * as ss from 'simple-statistics'
 import {
   spcMean, spcSampleStdDev, spcOverallSigma, spcAverageMovingRange, spcWithinSigmaMovingRange,
-  spcWithinSigmaRange, spcWithinSigmaStdDev, spcCapability, spcNormalCdf, spcNormalQuantile, spcErfc,
-  spcLogGamma, spcC4, spcD2, spcD3, spcChartConstants, spcXbarRLimits, spcXbarSLimits,
+  spcWithinSigmaRange, spcWithinSigmaStdDev, spcCapability, spcXbarRLimits, spcXbarSLimits,
   spcIndividualsLimits, spcEwmaChart, spcCusumChart, spcRunRules, SPC_NELSON_RULES,
 } from '../../shared/utils/spc'
+import { spcNormalCdf, spcNormalQuantile, spcErfc, spcLogGamma, spcC4, spcD2, spcD3, spcChartConstants } from '../../shared/utils/spc-constants'
 
 // Seeded generator for the simulation checks (mulberry32 + Box–Muller); test-local on purpose.
 function normalStream(seed: number) {

@@ -10,6 +10,12 @@
 //   - consequences: a stop another standing alarm explains (the fire stopped the machine) is
 //     suppressed under that alarm while its cause is active, and stands on its own if it outlasts it;
 //     so is a warning about the parts or trend of a machine such a cause has stopped.
+//
+// Over 400 lines on purpose: the filters above (on-delay, off-delay, cell scope, consequences)
+// share the engine's in-memory state (open alarms, pending conditions, the cause each stop stands
+// under) and its one serial queue of database writes; split, that state would be shared between
+// files. The state model itself and the catalogue are pure and apart (shared/utils/alarm-model.ts,
+// alarm-catalogue.ts).
 import { eq, isNull } from 'drizzle-orm'
 import { applyAlarmAction, alarmCreateRecord, isAlarmChattering, type AlarmAction, type AlarmRecord } from '#shared/utils/alarm-model'
 import { alarmKindFor, alarmView, type AlarmKind } from '#shared/utils/alarm-catalogue'
