@@ -107,9 +107,12 @@ async function killAndWatch(p: Plant) {
 
 async function expectHeldWithinAllowance(p: Plant, away: Awaited<ReturnType<typeof killAndWatch>>['away'], killedAt: number) {
   const cycle = new Map(machinesFor(scenario, 4).map(m => [m.id, m.cycleTimeS]))
-  // what Owlshift granted before it died, as it recorded each command it sent (the allowance rides on every one)
+  // what Owlshift granted before it died, as it recorded each command it sent (the allowance rides on
+  // every one; stored compact as a = [throughPart, basedOnSeq], or the whole message: docs/storage.md)
   const db = openTestDb(p.dataDir)
-  const granted = new Map((await db.execute({ sql: `select machine_id, max(json_extract(payload, '$.allowance.throughPart')) through from commands where issued_at <= ? group by machine_id`, args: [killedAt] })).rows.map(r => [String(r.machine_id), Number(r.through)]))
+  const through = `coalesce(json_extract(payload, '$.a[0]'), json_extract(payload, '$.allowance.throughPart'))`
+  const granted = new Map((await db.execute({ sql: `select machine_id, max(${through}) through from commands where issued_at <= ? group by machine_id`, args: [killedAt] })).rows.map(r => [String(r.machine_id), Number(r.through)]))
+  expect(granted.size, 'grants recorded for every machine').toBe(4)
   db.close()
   for (const m of away) {
     // the machine's plant started this night at serial 0: parts ground = the last serial it started (it finished the part in the wheel, then held)
