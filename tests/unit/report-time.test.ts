@@ -206,6 +206,18 @@ describe('a running shift', () => {
     expect(early.totals.kpiInputs.pbt).toBe(0)
     expect(early.totals.kpi.oee).toBeNull()
   })
+
+  it('counts parts up to the same moment as time: a machine whose clock runs ahead does not push performance past 100 %', async () => {
+    await seed(['m1'])
+    await birth('m1', at(0))
+    // its clock is 21 minutes ahead of the server's: it has dated parts up to 01:30 at 01:09
+    await parts('m1', at(0) + MIN, 90, MIN)
+    const r = await night(at(1.15))
+    expect(machine(r, 'm1').produced).toBe(69)
+    expect(r.totals.kpi.effectiveness).toBe(1) // was 90/69 = 1.30 with every stored part counted
+    // once the server's clock has passed them they count (the shift's end: all 90)
+    expect(machine(r, 'm1').produced + 21).toBe((await night(at(8))).machines[0]!.produced)
+  })
 })
 
 describe('messages that never arrived', () => {

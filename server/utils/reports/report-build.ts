@@ -30,7 +30,11 @@ export async function reportBuild(db: ReportDb, scope: ReportScope, opts: { now?
   const ids = chosen.map((m) => m.id)
 
   // One batch: one connection, memory-mapped reads, one snapshot of the data (report-read.ts).
-  const { jobs, readingsByMachine, readingCount, received, acksByMachine, refusedAcks, marks, births, unloaded, ackLists, hourLists, activityLists } = await readReportWindow(db, ids, from, to)
+  // Parts are counted over the stretch whose time is measured: up to now (inclusive) while the range runs.
+  // A machine whose clock runs ahead of the server's (within the clock tolerance, or the demo's
+  // accelerated machines) has stored parts dated after now; counted against time that ends now,
+  // they made effectiveness and OEE exceed 100 % (docs/report-time-model.md#the-running-shift).
+  const { jobs, readingsByMachine, readingCount, received, acksByMachine, refusedAcks, marks, births, unloaded, ackLists, hourLists, activityLists } = await readReportWindow(db, ids, from, measuredTo < to ? measuredTo + 1 : to)
   const jobByPart = new Map(jobs.map((j) => [j.partNumber, j]))
 
   // The situation of each machine at `from`: its last state (and faults since), its offset in force
