@@ -97,7 +97,7 @@ function flush() {
     if (decision.command) {
       commandId = `${machine}.${m.seq}.offset`
       const command: CommandMessage = { kind: 'command', type: 'offset', id: commandId, issuedAt: new Date(time).toISOString(), expiresAt: new Date(time + 60_000).toISOString(), offsetUm: Math.round(decision.command.newOffsetUm * 1000) / 1000, reason: decision.reason.slice(0, 200) }
-      commands.push({ id: commandId, machineId: machine, type: 'offset', origin: 'engine', payload: commandStored(command, now), issuedAt: now, expiresAt: now + 60_000, status: 'sent', requestedOffsetUm: command.offsetUm })
+      commands.push({ id: commandId, machineId: machine, type: 'offset', origin: 'engine', payload: commandStored(command, now, decision.reason), issuedAt: now, expiresAt: now + 60_000, status: 'sent', requestedOffsetUm: command.offsetUm })
       outgoing.push({ topic: mqttTopics.command(cell, machine), command })
     }
     if (decisionKept(decision)) decisions.push({ machineId: machine, seq: m.seq, at: now, action: decisionAction(decision), correctionUm: decision.command?.correctionUm ?? null, offsetUm: decision.offsetUm, commandId, reason: decision.reason, inputs: null, alerts: decision.alerts.length ? decision.alerts : null, slopeUmPerPart: decisionSlopeUmPerPart(decision) })
