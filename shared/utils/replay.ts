@@ -157,8 +157,8 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
   const afterC: number[] = []
   let a = initial
   let c = initial
-  // candidate offset the machine would acknowledge next
-  let pendingAck: number | null = options.initialState && Math.abs(options.initialState.offsetUm - initial) > 1e-9 ? round3(options.initialState.offsetUm) : null
+  // candidate offsets sent and not yet acknowledged, oldest first
+  let pending: number[] = options.initialState && Math.abs(options.initialState.offsetUm - initial) > 1e-9 ? [round3(options.initialState.offsetUm)] : []
   let dressAsked = false
   let stopAsked = false
   let actualStop = false
@@ -173,17 +173,25 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     if (d.kind === 'ignored') return
     if (d.command && (!fromEvent || commandsOnEvents)) {
       const value = round3(d.command.newOffsetUm)
-      candidate.commands.push({ seq: eventSeq ?? seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pendingAck ?? c) }) // the message number it answered
-      pendingAck = value
+      candidate.commands.push({ seq: eventSeq ?? seqs[seqs.length - 1] ?? 0, offsetUm: value, stepUm: value - (pending[pending.length - 1] ?? c) }) // the message number it answered
+      pending.push(value)
     }
     if (d.dress.now && !dressAsked) { dressAsked = true; candidate.dresses++ }
     if (d.stop && !stopAsked) { stopAsked = true; candidate.stops++ }
     if (!d.stop) stopAsked = false
   }
-  const deliverAck = () => {
-    if (pendingAck === null) return
-    c = pendingAck
-    pendingAck = null
+  /**
+   * The candidate's acknowledgement: of its latest command, the older ones taken as superseded —
+   * unless the recorded acknowledgement (`recorded`) is of an older one it also sent: a machine that
+   * applies two commands one after the other acknowledges both, and the candidate's then come in
+   * the same order (so a candidate that commands what ran decides what ran).
+   */
+  const deliverAck = (recorded?: number) => {
+    if (!pending.length) return
+    const same = recorded === undefined ? -1 : pending.findIndex(v => Math.abs(v - recorded) < 1e-9)
+    const k = same >= 0 ? same : pending.length - 1
+    c = pending[k]!
+    pending = pending.slice(k + 1)
     feed({ type: 'offset-applied', offsetUm: c }, true)
   }
 
@@ -192,7 +200,7 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     if (it.kind === 'offset-applied') {
       if (Math.abs(it.offsetUm - a) > 1e-12) actual.commands.push({ seq: it.seq, offsetUm: it.offsetUm, stepUm: it.offsetUm - a })
       a = it.offsetUm
-      deliverAck() // the candidate's acknowledgement comes where the recorded one came
+      deliverAck(it.offsetUm) // the candidate's acknowledgement comes where the recorded one came
       if (readingIndex >= 0) { afterA[readingIndex] = a; afterC[readingIndex] = c }
       continue
     }
@@ -200,7 +208,7 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
       if (it.type === 'dress') { actual.dresses++; dressAsked = false }
       // A machine that changes its offset at a dress does so whatever offset it had: the same for
       // the run as recorded and for the candidate's.
-      if (it.offsetUm !== undefined) { a = it.offsetUm; c = it.offsetUm; pendingAck = null }
+      if (it.offsetUm !== undefined) { a = it.offsetUm; c = it.offsetUm; pending = [] }
       feed(it.type === 'dress' || it.type === 'wheel-change' ? wheelEventInput(it.type, it, it.time) : { type: it.type, time: it.time }, true, it.seq)
       continue
     }
