@@ -108,15 +108,21 @@ export async function recordedSinceSnapshot(machineId: string, snapshotSeq: numb
   // the offset in force at the snapshot, as the machine last said it: its latest applied offset,
   // birth, or dress or wheel change that set one (a reading's offset is the one its part was ground
   // with, a pipeline behind)
-  const said = await db.select({ seq: mm.seq, payload: mm.payload }).from(mm)
+  const said = await db.select({ seq: mm.seq, time: mm.time, payload: mm.payload }).from(mm)
     .where(and(eq(mm.machineId, machineId), lt(mm.seq, snap.seq), or(inArray(mm.type, ['offset:applied', 'dress', 'wheel_change']), and(isNull(mm.type), eq(mm.kind, 'birth')))))
     .orderBy(desc(mm.seq)).limit(20)
   const ce = schema.cycleEvents
-  const [lastApplied] = await db.select({ seq: ce.seq, a: ce.a }).from(ce)
+  const [lastApplied] = await db.select({ seq: ce.seq, time: ce.time, a: ce.a }).from(ce)
     .where(and(lte(ce.time, snap.time), gte(ce.time, snap.time - 2 * 86_400_000), eq(ce.machineId, machineId), eq(ce.code, CYCLE_CODES.offset_applied), lt(ce.seq, snap.seq)))
     .orderBy(desc(ce.time), desc(ce.seq)).limit(1)
-  const candidates = [...said.map(x => ({ seq: x.seq, offsetUm: (x.payload as { offsetUm?: unknown }).offsetUm })), ...(lastApplied ? [{ seq: lastApplied.seq, offsetUm: lastApplied.a }] : [])]
-  const inForce = candidates.sort((x, y) => y.seq - x.seq).map(x => x.offsetUm).find((x): x is number => typeof x === 'number')
+  const candidates = [...said.map(x => ({ seq: x.seq, time: x.time, offsetUm: (x.payload as { offsetUm?: unknown }).offsetUm })), ...(lastApplied ? [{ seq: lastApplied.seq, time: lastApplied.time, offsetUm: lastApplied.a }] : [])]
+  const lastSaid = candidates.sort((x, y) => y.seq - x.seq).find((x): x is { seq: number, time: number, offsetUm: number } => typeof x.offsetUm === 'number')
+  // an offset applied before the snapshot whose answer retention folded (a pinned stretch that
+  // starts at the snapshot): the last one its summary hours keep, if nothing later says otherwise
+  const ah = schema.activityHours
+  const [folded] = await db.select({ time: ah.offsetLastTime, offsetUm: ah.offsetLastUm }).from(ah)
+    .where(and(eq(ah.machineId, machineId), lte(ah.hourStart, snap.time), isNotNull(ah.offsetLastTime), lte(ah.offsetLastTime, snap.time))).orderBy(desc(ah.hourStart)).limit(1)
+  const inForce = folded?.offsetUm != null && folded.time != null && (!lastSaid || folded.time > lastSaid.time) ? folded.offsetUm : lastSaid?.offsetUm
   const initialOffsetUm = inForce ?? at?.offsetUm ?? readings[0]?.offsetUm ?? 0
   return { state: restoreCompensationState(snap.state), snapshotSeq: snap.seq, initialOffsetUm, items: replayItemsOf(recordedMessages(readings, messages, applied), { executionBefore, offsetUm: initialOffsetUm }) }
 }
