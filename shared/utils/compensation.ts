@@ -1202,6 +1202,12 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       break
     }
     case 'dress': {
+      // A dress before the last one's step was seen (the level not re-learnt yet: the machine's own
+      // dress and one the engine asked for, back to back): the wheel still has that step ahead of
+      // the level the engine knows, so it adds to this one's. It was forgotten: the second
+      // pre-correction took the offset back and 10–15 parts went out after such dresses.
+      const stepNotSeenUm = st.relearnPending === 'dress' && st.stepPriorUm !== null ? st.stepPriorUm : 0
+      const wearNotSeenUm = stepNotSeenUm !== 0 ? st.dressWearPredictedUm ?? 0 : 0
       const offsetNote = offsetAfterWheelEvent(st, ev.offsetUm)
       const hold = Math.max(s.holdParts.dress, d)
       startHold('dress', hold, d, `dress: parts ground before it still in the pipeline (${hold} parts)`)
@@ -1220,11 +1226,11 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       // Pre-correct the predicted step (not for monitor-only or step), within every bound; what
       // max step cuts off follows on the next readings.
       if (offsetNote !== OFFSET_UNKNOWN) {
-        const pre = preCorrectStep(st, predicted.stepUm, predicted.sigmaUm)
+        const pre = preCorrectStep(st, predicted.stepUm + stepNotSeenUm, predicted.sigmaUm)
         if (pre.predicted) {
-          st.dressWearPredictedUm = predicted.wearUm
+          st.dressWearPredictedUm = predicted.wearUm + wearNotSeenUm
           command = pre.command
-          reason += `; predicted step ${fmt(predicted.stepUm)} µm (wear ${fmt(predicted.wearUm)} µm${predicted.learntUm !== 0 ? `, learnt ${fmt(predicted.learntUm)} µm` : ''})${pre.note}`
+          reason += `; predicted step ${fmt(predicted.stepUm + stepNotSeenUm)} µm (wear ${fmt(predicted.wearUm)} µm${predicted.learntUm !== 0 ? `, learnt ${fmt(predicted.learntUm)} µm` : ''}${stepNotSeenUm !== 0 ? `, the last dress's ${fmt(stepNotSeenUm)} µm not seen yet` : ''})${pre.note}`
         }
       }
       reason += `; the first part ground after it re-learns the level (slope kept)`
