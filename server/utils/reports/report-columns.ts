@@ -2,7 +2,6 @@
 // object per row costs more than the query when a night has 20,000 parts) and parses them here into
 // typed arrays; and the small counting helpers the report's parts share. Pure.
 
-
 /** One machine's readings of the range as columns, in (time, seq) order. */
 export interface ReadingColumns {
   n: number
@@ -68,7 +67,6 @@ function parseJobs(text: string, sep: string, n: number, c: ReadingColumns): voi
 
 const POW10 = Array.from({ length: 23 }, (_, k) => 10 ** k)
 
-/** Number of comma-separated fields in a non-empty text. */
 /** Applied offsets in time order (two sources are merged; the SQL orders them, this makes sure). */
 export function timeOrdered(a: { n: number; time: Float64Array; offsetUm: Float64Array }) {
   let sorted = true
@@ -78,6 +76,7 @@ export function timeOrdered(a: { n: number; time: Float64Array; offsetUm: Float6
   return { n: a.n, time: Float64Array.from(order, (i) => a.time[i]!), offsetUm: Float64Array.from(order, (i) => a.offsetUm[i]!) }
 }
 
+/** Number of comma-separated fields in a non-empty text. */
 export function countFields(text: string): number {
   let n = 1
   for (let i = text.indexOf(','); i >= 0; i = text.indexOf(',', i + 1)) n++

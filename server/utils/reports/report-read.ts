@@ -21,6 +21,7 @@ import { ReportInputError, type ReportScope, type ReportAlarms, type ReportCompl
 import { plantShifts } from '../calendar/plant-calendar'
 import { readingColumns, timeOrdered, countFields, reportParseNumberList, sortCounts, median } from './report-columns'
 
+/** The handle the report reads through, taken as a parameter (the same type as platform/db.ts's Db). */
 export type ReportDb = LibSQLDatabase<typeof schema>
 
 const FAULT_EVENT_TYPES = ['fault_raised', 'fault_cleared'] as const
