@@ -5,9 +5,10 @@
 // compiler erases it) — resolving relative paths and the `#shared/`, `~/` and `~~/` aliases.
 // What it cannot see: Nitro's and Nuxt's auto-imports (a name used in server/utils or shared/utils
 // without an import statement) and dynamic `import()`. That is why the domain files under
-// server/utils import one another explicitly; only the platform's services (useDb, useDbClient,
-// schema, log, publishLive, writeBatch), which every domain uses and which use no domain, stay
-// auto-imported — docs/architecture.md#folders.
+// server/utils import one another and shared/ explicitly; of our own code only the platform's
+// services (useDb, useDbClient, schema, log, publishLive, writeBatch), which every domain uses and
+// which use no domain, stay auto-imported, besides the framework's helpers (h3's createError,
+// nuxt-auth-utils' sessions) — docs/architecture.md#folders.
 import { readdirSync, readFileSync, statSync } from 'node:fs'
 import { dirname, join, relative } from 'node:path'
 import { fileURLToPath } from 'node:url'
