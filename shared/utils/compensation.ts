@@ -267,11 +267,14 @@ export function createCompensationState(settings: CompensationSettingsInput | Co
     warmupLearntUm: null,
     restartStepBase: null,
     restartFractionStep: null,
-    eventAtReading: null,
+    // A new engine's start is a step event with nothing of it in the pipeline: the machine's first
+    // parts were ground before any reading could steer them (a cold start walks them far off), so
+    // they are forgiven like the parts after a dress (docs/compensation.md, "The stop rule").
+    eventAtReading: -(s.pipelineParts + 1),
     graceFromReading: 0,
-    graceToReading: 0,
+    graceToReading: s.pipelineParts,
     graceFixed: false,
-    graceValid: false,
+    graceValid: true,
     levelAtDressUm: null,
     cycleTimeS: s.cycleTimeS,
     roundnessUm: null,
