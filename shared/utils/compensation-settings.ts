@@ -105,6 +105,10 @@ export const compensationSettingsSchema = z
         machineOffset: z.enum(DRESS_MACHINE_OFFSET).default('keeps'),
         /** learn how far each dress's predicted step was off and add it to the next prediction */
         learnStep: z.boolean().default(true),
+        /** largest single pre-correction of a predicted dress step (axis µm): beyond max step only
+         *  the part of the step the prediction is sure of (docs/compensation.md#through-a-dress);
+         *  keep it at or below the machine's own largest accepted step (docs/mqtt.md, "command") */
+        preCorrectionMaxUm: positive.default(6),
       })
       .prefault({}),
     /** a restart after a stop: the machine cooled while stopped, so the size steps by the warm-up it

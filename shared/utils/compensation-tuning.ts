@@ -69,6 +69,7 @@ export const TUNING_FIELDS = [
   { path: 'dress.policy', label: 'Dress', kind: 'choice', choices: ['fixed', 'adaptive'], help: 'fixed interval, or when the measured wear uses up its budget' },
   { path: 'dress.intervalParts', label: 'Dress every (parts)', kind: 'number', help: 'fixed policy' },
   { path: 'dress.wearBudgetUm', label: 'Wear budget (µm)', kind: 'number', help: 'adaptive policy' },
+  { path: 'dress.preCorrectionMaxUm', label: 'Largest pre-correction at a dress (axis µm)', kind: 'number', help: 'a learnt dress step is taken back at once up to this; no larger than the machine\'s own largest step' },
   { path: 'dress.machineOffset', label: 'What the machine does to its offset at a dress', kind: 'choice', choices: ['keeps', 'gives-back', 'resets'], help: 'keeps = leaves it; gives-back = undoes what was taken since the last dress; resets = sets a value it reports. A machine that reports its new offset is believed either way' },
   { path: 'restart.warmupUm', label: 'Size change cold to warm (µm)', kind: 'number', help: 'negative = warm parts come out smaller; from the machine builder or a cold start. Empty: learnt from long stops' },
   { path: 'stopAfterOutOfTolerance', label: 'Stop after rejects in a row', kind: 'number', help: '' },

@@ -47,7 +47,8 @@ export interface CompensationReading {
 }
 
 export type CompensationEvent =
-  | { type: 'offset-applied'; offsetUm: number; time?: number }
+  /** `refused`: the machine refused or let expire an offset command; `offsetUm` is still the offset in force */
+  | { type: 'offset-applied'; offsetUm: number; time?: number; refused?: boolean }
   | { type: 'dress'; offsetUm?: number; partsSinceDress?: number; time?: number }
   | { type: 'wheel-change'; offsetUm?: number; time?: number }
   | { type: 'job-change'; settings?: CompensationSettingsInput; offsetUm?: number; time?: number }
@@ -905,7 +906,7 @@ function desiredOffset(st: CompensationState, stepMean: number | null): { offset
  * Applies the bounds (allowed range, budget since dress, max step) and the minimum step.
  * Returns the command (null when nothing is to be sent) and the bounds that cut the wish short.
  */
-function boundedCommand(st: CompensationState, desiredUm: number): { command: CompensationCommand | null; limitedBy: CompensationCommand['limitedBy'] } {
+function boundedCommand(st: CompensationState, desiredUm: number, maxStepUm = st.settings.maxStepUm): { command: CompensationCommand | null; limitedBy: CompensationCommand['limitedBy'] } {
   const s = st.settings
   if (!Number.isFinite(desiredUm)) return { command: null, limitedBy: [] }
   const u = st.offsetUm
@@ -927,8 +928,8 @@ function boundedCommand(st: CompensationState, desiredUm: number): { command: Co
   if (u > hi && target > u) target = u
   if (u < lo && target < u) target = u
   let delta = target - u
-  if (Math.abs(delta) > s.maxStepUm) {
-    delta = Math.sign(delta) * s.maxStepUm
+  if (Math.abs(delta) > maxStepUm) {
+    delta = Math.sign(delta) * maxStepUm
     limitedBy.push('max-step')
   }
   if (!(Math.abs(delta) >= s.minStepUm) || delta === 0) return { command: null, limitedBy }
@@ -1199,7 +1200,9 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       }
       const expected = st.offsetUm
       st.offsetUm = ev.offsetUm
-      reason = Math.abs(expected - ev.offsetUm) > 1e-9
+      reason = ev.refused
+        ? `machine did not take the offset command: ${fmt(ev.offsetUm)} µm in force${Math.abs(expected - ev.offsetUm) > 1e-9 ? ` (engine expected ${fmt(expected)} µm)` : ''}`
+        : Math.abs(expected - ev.offsetUm) > 1e-9
         ? `machine applied ${fmt(ev.offsetUm)} µm (engine expected ${fmt(expected)} µm): using the machine's value`
         : `machine confirmed offset ${fmt(ev.offsetUm)} µm`
       break
@@ -1229,7 +1232,7 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       // Pre-correct the predicted step (not for monitor-only or step), within every bound; what
       // max step cuts off follows on the next readings.
       if (offsetNote !== OFFSET_UNKNOWN) {
-        const pre = preCorrectStep(st, predicted.stepUm + stepNotSeenUm, predicted.sigmaUm)
+        const pre = preCorrectStep(st, predicted.stepUm + stepNotSeenUm, predicted.sigmaUm, { budgetFromStep: true })
         if (pre.predicted) {
           st.dressWearPredictedUm = predicted.wearUm + wearNotSeenUm
           command = pre.command
@@ -1370,19 +1373,37 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
  * readings after the event and command the offset the strategy wants with it (drift and ewma; not
  * step or none), through every bound. Returns the command and a note for the reason.
  */
-function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number): { predicted: boolean; command: CompensationCommand | null; note: string } {
+function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number, opts: { budgetFromStep?: boolean } = {}): { predicted: boolean; command: CompensationCommand | null; note: string } {
   const s = st.settings
   if (!(s.strategy === 'ewma' || s.strategy === 'drift') || st.level === null) return { predicted: false, command: null, note: '' }
   st.stepPriorUm = stepUm
   st.stepPriorSigmaUm = sigmaUm
   const wish = preCorrectionOffset(st)
-  const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm)
+  // The budget since a dress is measured from the offset just after it: where the pre-correction
+  // takes it, not where the wear compensation before the dress had left it (measured from there,
+  // a step larger than the budget was cut by it, and the parts after the dress went out).
+  if (opts.budgetFromStep && wish !== null) st.offsetAtDressUm = Math.min(Math.max(wish.offsetUm, s.offsetRange.min), s.offsetRange.max)
+  const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm, preCorrectionStepUm(s, stepUm, sigmaUm, opts.budgetFromStep === true))
   const command = bounded?.command ?? null
   if (command) st.offsetUm = command.newOffsetUm
   if (bounded && (bounded.limitedBy.includes('budget-since-dress') || bounded.limitedBy.includes('offset-range'))) st.graceValid = false
   const note = command ? ` → pre-correct to offset ${fmt(command.newOffsetUm)} µm (Δ ${fmt(command.offsetDeltaUm)})${command.limitedBy.length ? ` limited by ${command.limitedBy.join(', ')}` : ''}` : ''
   return { predicted: true, command, note }
 }
+
+/**
+ * How far one pre-correction may move the axis: max step, or — when the predicted step is known
+ * well enough — the part of it the prediction is sure of (the step less PRE_CORRECTION_SIGMAS of
+ * its spread, on the axis). Max step bounds what a command from one noisy reading can do; a step
+ * learnt over earlier dresses is not one reading, and the part ground next takes all of it.
+ */
+function preCorrectionStepUm(s: CompensationSettings, stepUm: number, sigmaUm: number, dress: boolean): number {
+  if (!dress) return s.maxStepUm
+  const sure = (Math.abs(stepUm) - PRE_CORRECTION_SIGMAS * sigmaUm) / s.gain
+  return Math.max(s.maxStepUm, Math.min(sure, s.dress.preCorrectionMaxUm))
+}
+
+const PRE_CORRECTION_SIGMAS = 2
 
 /** The machine's thermal fraction while it runs: towards warm with the warm-up time constant. */
 function advanceThermal(st: CompensationState, time: number | undefined): void {

@@ -311,7 +311,11 @@ export function engineInputsOf(message: SequencedMessage, time: number, executio
     case 'state':
       return executionBefore && restartFromStates.has(executionBefore) && message.execution === 'ACTIVE' ? [{ type: 'restart', time }] : []
     case 'ack':
-      return message.result === 'applied' && message.command === 'offset' ? [{ type: 'offset-applied', offsetUm: message.offsetUm, time }] : []
+      // Every answer to an offset says the offset in force (docs/mqtt.md, "ack"): one the machine
+      // refused or let expire tells the engine it did not move, or it would steer from an offset
+      // the machine never took (and every later command be refused the same way).
+      if (message.command !== 'offset') return []
+      return [{ type: 'offset-applied', offsetUm: message.offsetUm, time, ...(message.result === 'applied' ? {} : { refused: true }) }]
     case 'event':
       if (message.type === 'dress') return [wheelEventInput('dress', message, time)]
       if (message.type === 'wheel_change') return [wheelEventInput('wheel-change', message, time)]

@@ -23,7 +23,7 @@ export type ReplayItem =
   | { kind: 'reading', seq: number, time: number, deviationUm: number | null, status: string, roundnessUm?: number | null, offsetUm: number }
   | { kind: 'event', seq: number, time: number, type: 'dress' | 'wheel-change' | 'mastered' | 'restart', offsetUm?: number, partsSinceDress?: number }
   /** the machine reports this offset in force after a command (its acknowledgement) */
-  | { kind: 'offset-applied', seq: number, time: number, offsetUm: number }
+  | { kind: 'offset-applied', seq: number, time: number, offsetUm: number, refused?: true }
 
 /** A recorded dress or wheel change as a replay item (what the engine is told: wheel-events.ts). */
 export function replayWheelEvent(seq: number, type: 'dress' | 'wheel-change', event: WheelEventFields, time: number): ReplayItem {
@@ -50,7 +50,7 @@ export function replayItemsOf(recorded: readonly { message: SequencedMessage, ti
     // at it; from an engine already running (`running`: a snapshot) it is a restart like any other.
     const inputs: CompensationInput[] = m.kind === 'birth' && !running && !items.some(i => i.kind === 'reading') ? [] : engineInputsOf(m, time, execution, offsetUm)
     for (const input of inputs) {
-      if (input.type === 'offset-applied') { items.push({ kind: 'offset-applied', seq: m.seq, time, offsetUm: input.offsetUm }); offsetUm = input.offsetUm }
+      if (input.type === 'offset-applied') { items.push({ kind: 'offset-applied', seq: m.seq, time, offsetUm: input.offsetUm, ...(input.refused ? { refused: true as const } : {}) }); offsetUm = input.offsetUm }
       else if (input.type === 'dress' || input.type === 'wheel-change') items.push(replayWheelEvent(m.seq, input.type, input, time))
       else if (input.type === 'restart' || input.type === 'mastered') items.push({ kind: 'event', seq: m.seq, time, type: input.type })
     }
@@ -122,7 +122,7 @@ export function replayMeasuredLag(items: readonly ReplayItem[]): number | null {
   const acks: { afterReading: number, offsetUm: number }[] = []
   for (const it of items) {
     if (it.kind === 'reading') readings.push({ index: ++readingIndex, offsetUm: it.offsetUm })
-    else if (it.kind === 'offset-applied') acks.push({ afterReading: readingIndex, offsetUm: it.offsetUm })
+    else if (it.kind === 'offset-applied' && !it.refused) acks.push({ afterReading: readingIndex, offsetUm: it.offsetUm })
   }
   let r = 0
   for (const a of acks) {
@@ -197,6 +197,15 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
 
   let readingIndex = -1
   for (const it of items) {
+    if (it.kind === 'offset-applied' && it.refused) {
+      // The machine refused (or let expire) the command it was sent: the candidate's latest is taken
+      // as refused too, and its engine hears the offset it still has in force, as ingest's heard the machine's.
+      a = it.offsetUm
+      pending = pending.slice(0, -1)
+      feed({ type: 'offset-applied', offsetUm: c, refused: true }, true)
+      if (readingIndex >= 0) { afterA[readingIndex] = a; afterC[readingIndex] = c }
+      continue
+    }
     if (it.kind === 'offset-applied') {
       if (Math.abs(it.offsetUm - a) > 1e-12) actual.commands.push({ seq: it.seq, offsetUm: it.offsetUm, stepUm: it.offsetUm - a })
       a = it.offsetUm
@@ -240,7 +249,8 @@ export function replayRun(settingsInput: CompensationSettingsInput, items: reado
     afterA[readingIndex] = a
     afterC[readingIndex] = c
   }
-  deliverAck()
+  // A command given on the last reading is not acknowledged in the recording either: the engine
+  // ends believing it, as ingest's did (acknowledging it here once made the two end apart).
 
   // Noise floor: short-term σ of the disturbance (moving range / d2, d2 = 1.128 for n = 2).
   const disturbance: number[] = []

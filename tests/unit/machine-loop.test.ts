@@ -104,14 +104,18 @@ describe('the machine loop', () => {
     expect(stopped(state(2))[0]![0]).toBe(false)
   })
 
-  it('reads restarts from the state a machine comes back from, and offsets only from applied offset answers', () => {
+  it('reads restarts from the state a machine comes back from, and the offset in force from every answer to an offset command', () => {
     const state = (execution: 'ACTIVE' | 'READY'): SequencedMessage => ({ kind: 'state', seq: 5, time: iso(5), execution, activeFaults: [] })
     for (const from of ['STOPPED', 'INTERRUPTED', 'FEED_HOLD', 'PROGRAM_STOPPED']) expect(engineInputsOf(state('ACTIVE'), T0, from, 0)).toEqual([{ type: 'restart', time: T0 }])
     expect(engineInputsOf(state('ACTIVE'), T0, 'READY', 0)).toEqual([])
     expect(engineInputsOf(state('READY'), T0, 'STOPPED', 0)).toEqual([])
-    const ack = (result: 'applied' | 'rejected'): SequencedMessage => ({ kind: 'ack', seq: 6, time: iso(6), commandId: 'x', command: 'offset', result, offsetUm: 1.5 })
+    const ack = (result: 'applied' | 'rejected' | 'expired', command: 'offset' | 'dress' = 'offset'): SequencedMessage => ({ kind: 'ack', seq: 6, time: iso(6), commandId: 'x', command, result, offsetUm: 1.5 })
     expect(engineInputsOf(ack('applied'), T0, null, 0)).toEqual([{ type: 'offset-applied', offsetUm: 1.5, time: T0 }])
-    expect(engineInputsOf(ack('rejected'), T0, null, 0)).toEqual([])
+    // A refused or expired offset: the machine did not move, and says what it has in force (docs/mqtt.md,
+    // "ack"). The engine hears it, or it steers on from an offset the machine never took.
+    expect(engineInputsOf(ack('rejected'), T0, null, 0)).toEqual([{ type: 'offset-applied', offsetUm: 1.5, time: T0, refused: true }])
+    expect(engineInputsOf(ack('expired'), T0, null, 0)).toEqual([{ type: 'offset-applied', offsetUm: 1.5, time: T0, refused: true }])
+    expect(engineInputsOf(ack('applied', 'dress'), T0, null, 0)).toEqual([])
     // A birth restarts the engine, and tells it the offset the machine came back with when it differs.
     expect(engineInputsOf(birth(7) as SequencedMessage, T0, 'STOPPED', 2)).toEqual([{ type: 'restart', time: T0 }, { type: 'offset-applied', offsetUm: 0, time: T0 }])
   })
