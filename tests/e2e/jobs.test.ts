@@ -165,6 +165,11 @@ describe('jobs', async () => {
     await page.goto(url(`/jobs/${jobId}`), { waitUntil: 'networkidle' })
     await page.click('[data-test="new-draft"]')
     const editor = page.locator('[data-test="settings-editor"]')
+    // Every empty field says the default it keeps, or that it is unset (it read "default undefined").
+    const placeholders = await editor.locator('input[placeholder]').evaluateAll(els => els.map(e => (e as HTMLInputElement).placeholder))
+    expect(placeholders.length).toBeGreaterThan(10)
+    expect(placeholders.filter(t => /undefined|null|NaN/.test(t))).toEqual([])
+    expect(placeholders).toContain('unset')
     await editor.getByLabel('Strategy').selectOption('ewma')
     await editor.getByLabel('Largest step (axis µm)').pressSequentially('0.8')
     await editor.getByLabel('EWMA weight λ').pressSequentially('0.25')
