@@ -1232,7 +1232,7 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
       // Pre-correct the predicted step (not for monitor-only or step), within every bound; what
       // max step cuts off follows on the next readings.
       if (offsetNote !== OFFSET_UNKNOWN) {
-        const pre = preCorrectStep(st, predicted.stepUm + stepNotSeenUm, predicted.sigmaUm, { budgetFromStep: true })
+        const pre = preCorrectStep(st, predicted.stepUm + stepNotSeenUm, predicted.sigmaUm, { atDress: true })
         if (pre.predicted) {
           st.dressWearPredictedUm = predicted.wearUm + wearNotSeenUm
           command = pre.command
@@ -1373,7 +1373,7 @@ function onEvent(st: CompensationState, ev: CompensationEvent): CompensationDeci
  * readings after the event and command the offset the strategy wants with it (drift and ewma; not
  * step or none), through every bound. Returns the command and a note for the reason.
  */
-function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number, opts: { budgetFromStep?: boolean } = {}): { predicted: boolean; command: CompensationCommand | null; note: string } {
+function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number, opts: { atDress?: boolean } = {}): { predicted: boolean; command: CompensationCommand | null; note: string } {
   const s = st.settings
   if (!(s.strategy === 'ewma' || s.strategy === 'drift') || st.level === null) return { predicted: false, command: null, note: '' }
   st.stepPriorUm = stepUm
@@ -1382,8 +1382,8 @@ function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number, 
   // The budget since a dress is measured from the offset just after it: where the pre-correction
   // takes it, not where the wear compensation before the dress had left it (measured from there,
   // a step larger than the budget was cut by it, and the parts after the dress went out).
-  if (opts.budgetFromStep && wish !== null) st.offsetAtDressUm = Math.min(Math.max(wish.offsetUm, s.offsetRange.min), s.offsetRange.max)
-  const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm, preCorrectionStepUm(s, stepUm, sigmaUm, opts.budgetFromStep === true))
+  if (opts.atDress && wish !== null) st.offsetAtDressUm = Math.min(Math.max(wish.offsetUm, s.offsetRange.min), s.offsetRange.max)
+  const bounded = wish === null ? null : boundedCommand(st, wish.offsetUm, preCorrectionStepUm(s, stepUm, sigmaUm, opts.atDress === true))
   const command = bounded?.command ?? null
   if (command) st.offsetUm = command.newOffsetUm
   if (bounded && (bounded.limitedBy.includes('budget-since-dress') || bounded.limitedBy.includes('offset-range'))) st.graceValid = false
@@ -1397,8 +1397,8 @@ function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number, 
  * its spread, on the axis). Max step bounds what a command from one noisy reading can do; a step
  * learnt over earlier dresses is not one reading, and the part ground next takes all of it.
  */
-function preCorrectionStepUm(s: CompensationSettings, stepUm: number, sigmaUm: number, dress: boolean): number {
-  if (!dress) return s.maxStepUm
+function preCorrectionStepUm(s: CompensationSettings, stepUm: number, sigmaUm: number, atDress: boolean): number {
+  if (!atDress) return s.maxStepUm // a restart's step is not learnt over earlier ones
   const sure = (Math.abs(stepUm) - PRE_CORRECTION_SIGMAS * sigmaUm) / s.gain
   return Math.max(s.maxStepUm, Math.min(sure, s.dress.preCorrectionMaxUm))
 }

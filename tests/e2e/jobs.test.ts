@@ -174,6 +174,7 @@ describe('jobs', async () => {
     await editor.getByLabel('Largest step (axis µm)').pressSequentially('0.8')
     await editor.getByLabel('EWMA weight λ').pressSequentially('0.25')
     await editor.getByLabel('What the machine does to its offset at a dress').selectOption('gives-back')
+    await editor.getByLabel('Largest pre-correction at a dress (axis µm)').pressSequentially('4.5')
     // A value the engine refuses is named at its field, and Save waits until it is put right.
     await editor.getByLabel('Stop after rejects in a row').pressSequentially('0')
     await expect.poll(() => editor.locator('.field-error').count()).toBeGreaterThan(0)
@@ -184,13 +185,14 @@ describe('jobs', async () => {
     await page.locator('[data-test="notice"]', { hasText: 'Draft saved' }).waitFor()
     // Read back: the saved version holds exactly what was typed, in the database and on the page.
     const stored = JSON.parse(String((await db.execute(`select settings from compensation_settings where job_id = ${jobId} order by version desc limit 1`)).rows[0]![0]))
-    expect(stored).toEqual({ strategy: 'ewma', maxStepUm: 0.8, ewma: { lambda: 0.25 }, dress: { machineOffset: 'gives-back' }, stopAfterOutOfTolerance: 4 })
+    expect(stored).toEqual({ strategy: 'ewma', maxStepUm: 0.8, ewma: { lambda: 0.25 }, dress: { machineOffset: 'gives-back', preCorrectionMaxUm: 4.5 }, stopAfterOutOfTolerance: 4 })
     const shown = await page.locator('[data-test="versions"] li[data-version="1"]').innerText()
     expect(shown).not.toMatch(/all defaults/i)
     // The version reads in labels, not the engine's keys or JSON.
     expect(shown).toMatch(/Strategy\s+ewma/)
     expect(shown).toMatch(/Largest step \(axis µm\)\s+0\.8/)
     expect(shown).toMatch(/EWMA weight λ\s+0\.25/)
+    expect(shown).toMatch(/Largest pre-correction at a dress \(axis µm\)\s+4\.5/)
     expect(shown).not.toMatch(/maxStepUm|[{}]/)
     expect(pageErrors).toEqual([])
     await page.screenshot({ path: `${artifactsDir}/job-draft-saved-desktop-dark.png`, fullPage: true })

@@ -131,6 +131,26 @@ function dressedState(settings: CompensationSettingsInput = SETTINGS): Compensat
 
 const firstStop = (decisions: CompensationDecision[]) => decisions.findIndex((d) => d.stop)
 
+/**
+ * Readings from..to of a machine that applies every command: each part carries the offset in force
+ * when it was ground (`inForce`: the pipeline's offsets at the start), its size from `sizeOf(part, offset)`.
+ */
+function applyingEveryCommand(start: CompensationState, from: number, to: number, inForce: number[], sizeOf: (k: number, u: number) => number): CompensationDecision[] {
+  let st = start
+  let offset = st.offsetUm
+  const pipeline = [...inForce]
+  const decisions: CompensationDecision[] = []
+  for (let k = from; k <= to; k++) {
+    const u = pipeline.shift()!
+    const r = stepCompensation(st, reading(k, sizeOf(k, u), u))
+    st = r.state
+    decisions.push(r.decision)
+    if (r.decision.command) offset = r.decision.command.newOffsetUm
+    pipeline.push(offset)
+  }
+  return decisions
+}
+
 describe('the error a dress leaves on the wheel', () => {
   it('is taken off again at the next dress: the predicted step carries half of what the last step was off by (docs/compensation.md#through-a-dress)', () => {
     // The plant (docs/plant-model.md): each dress leaves its own size error e ~ N(0, 0.6 µm) that stays
@@ -177,20 +197,8 @@ describe('a restart after a long stop (docs/compensation.md#restart-after-a-stop
 describe('the stop rule after an event', () => {
   it('rejects of parts ground before a correction could land do not stop the cell; they are said in the reason', () => {
     // The dress left the size 4 µm low; the machine applies every command (parts carry their offset).
-    let st = dressedState()
-    const decisions: CompensationDecision[] = []
-    let offset = st.offsetUm
-    const inForce: number[] = [0, 0, 0] // pre-dress parts in the pipeline were ground at 0
-    for (let k = 121; k <= 160; k++) {
-      const u = inForce.shift()!
-      const pre = k <= 123 // the three parts ground before the dress
-      const y = (pre ? 0 : -4) + 1.1 * (u - (pre ? 0 : 0))
-      const r = stepCompensation(st, reading(k, y, u))
-      st = r.state
-      decisions.push(r.decision)
-      if (r.decision.command) offset = r.decision.command.newOffsetUm
-      inForce.push(offset)
-    }
+    // pre-dress parts in the pipeline were ground at 0; the three parts ground before the dress are on size
+    const decisions = applyingEveryCommand(dressedState(), 121, 160, [0, 0, 0], (k, u) => (k <= 123 ? 0 : -4) + 1.1 * u)
     expect(firstStop(decisions)).toBe(-1)
     const rejects = decisions.filter((d) => d.inputs.outOfTolerance)
     expect(rejects.length).toBeGreaterThan(0)
@@ -234,18 +242,8 @@ describe('the stop rule after an event', () => {
   // start window, the third reading stopped the machine though the commands already sent brought
   // the size back two parts later (bench:scenarios, cold start: 26 parts in 8 h, every machine held).
   it('a new engine: the parts ground before its first reading\'s command could land do not stop the machine', () => {
-    let st = createCompensationState(SETTINGS)
-    const decisions: CompensationDecision[] = []
-    let offset = 0
-    const inForce: number[] = [0, 0, 0, 0] // parts 1–4 are ground before the first reading is in
-    for (let k = 1; k <= 30; k++) {
-      const u = inForce.shift()!
-      const r = stepCompensation(st, reading(k, 6 + 1.1 * u, u))
-      st = r.state
-      decisions.push(r.decision)
-      if (r.decision.command) offset = r.decision.command.newOffsetUm
-      inForce.push(offset)
-    }
+    // parts 1–4 are ground before the first reading is in
+    const decisions = applyingEveryCommand(createCompensationState(SETTINGS), 1, 30, [0, 0, 0, 0], (_k, u) => 6 + 1.1 * u)
     expect(firstStop(decisions)).toBe(-1)
     const rejects = decisions.filter((d) => d.inputs.outOfTolerance)
     expect(rejects.length).toBeGreaterThanOrEqual(4)
