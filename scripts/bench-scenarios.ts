@@ -59,5 +59,8 @@ steer them, counted toward the stop: a new engine's start now opens the event wi
 since dress counts from where the pre-correction takes the offset, a step learnt over two dresses is pre-corrected up
 to dress.preCorrectionMaxUm (6 µm of axis) at once instead of max step (2 µm), and a refused offset tells the engine
 the offset in force (docs/compensation.md, "Through a dress"). With preCorrectionMaxUm at 2 the fast-wheel-wear night
-had 53 / 53, at 8 (the simulated machines' own largest step) 18 / 21.
+had 53 / 53, at 8 (the simulated machines' own largest step) 18 / 21. At 58bdd9a (the pre-correction took the step less
+two of its σ, so a machine's first two dresses, before the spread was learnt, were held to max step): fast-wheel-wear
+23 / 26, gauge-going-bad 241 / 176, cold start 35 / 34, quiet 3 / 4, loader jams 10 / 10, fire 4 / 6. With half a σ
+(docs/compensation.md, "Pre-correcting"): the rows above.
 `)

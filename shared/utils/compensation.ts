@@ -1392,10 +1392,11 @@ function preCorrectStep(st: CompensationState, stepUm: number, sigmaUm: number, 
 }
 
 /**
- * How far one pre-correction may move the axis: max step, or — when the predicted step is known
- * well enough — the part of it the prediction is sure of (the step less PRE_CORRECTION_SIGMAS of
- * its spread, on the axis). Max step bounds what a command from one noisy reading can do; a step
- * learnt over earlier dresses is not one reading, and the part ground next takes all of it.
+ * How far one pre-correction may move the axis: the part of the predicted step the prediction is
+ * sure of (the step less PRE_CORRECTION_SIGMAS of its spread, on the axis), at least max step and
+ * at most dress.preCorrectionMaxUm. Max step bounds what a command from one noisy reading can do; a
+ * predicted step is drawn from the wear of many parts, and the part ground next takes all of it.
+ * Half a σ: the margin measured best on the shipped nights (docs/compensation.md, "Pre-correcting").
  */
 function preCorrectionStepUm(s: CompensationSettings, stepUm: number, sigmaUm: number, atDress: boolean): number {
   if (!atDress) return s.maxStepUm // a restart's step is not learnt over earlier ones
@@ -1403,7 +1404,7 @@ function preCorrectionStepUm(s: CompensationSettings, stepUm: number, sigmaUm: n
   return Math.max(s.maxStepUm, Math.min(sure, s.dress.preCorrectionMaxUm))
 }
 
-const PRE_CORRECTION_SIGMAS = 2
+const PRE_CORRECTION_SIGMAS = 0.5
 
 /** The machine's thermal fraction while it runs: towards warm with the warm-up time constant. */
 function advanceThermal(st: CompensationState, time: number | undefined): void {

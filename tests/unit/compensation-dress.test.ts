@@ -65,10 +65,15 @@ describe('through a dress, for each thing a machine does to its offset', () => {
     })
   }
 
-  it('keeps its offset: the pre-correction gives back the wear part of the offset taken since the last dress (the command is max step, 2 µm, then the rest)', () => {
+  it('keeps its offset: at the first dress the pre-correction gives back the part of the predicted step it is sure of (the step less half its σ), then the rest', () => {
     const { dresses } = throughDresses(behaviours[0]![1])
-    // Needed: 3.5 µm of diameter at gain 1.1 → 3.18 µm of axis; max step 2 µm → 2.2 µm of diameter first.
-    expect(dresses[0]!.preCorrectionUm).toBeCloseTo(2.2, 6)
+    // Needed: about 3.5 µm of diameter. Before any dress has taught the spread, σ is half the wear and
+    // a micron of dress error (docs/compensation.md, "Pre-correcting"): 3.5 − ½·hypot(1.75, 1) ≈ 2.49 µm
+    // of diameter, more than max step (2 µm of axis = 2.2 µm of diameter) and less than the whole step.
+    const p = Math.abs(dresses[0]!.predictedUm)
+    expect(dresses[0]!.preCorrectionUm).toBeCloseTo(p - 0.5 * Math.hypot(0.5 * p, 1), 1)
+    expect(dresses[0]!.preCorrectionUm!).toBeGreaterThan(2.2)
+    expect(dresses[0]!.preCorrectionUm!).toBeLessThan(p)
   })
 
   it('a dress right after a dress, before the first one\'s step was seen (the machine\'s own, then one the engine asked for): the second keeps the first one\'s step', () => {
@@ -85,7 +90,7 @@ describe('through a dress, for each thing a machine does to its offset', () => {
     expect(secondStep).toBeLessThan(firstStep + 0.5)
   })
 
-  it('a soft wheel (12 µm of wear a dress, over the 10 µm budget since dress): no stop, and once two dresses have taught the step, most of it is taken back at the dress', () => {
+  it('a soft wheel (12 µm of wear a dress, over the 10 µm budget since dress): no stop, and most of the step is taken back at every dress', () => {
     // The budget since dress counts from where the pre-correction takes the offset, and a learnt step
     // is pre-corrected up to dress.preCorrectionMaxUm at once. Before, with max step (2 µm) a command,
     // 4 parts went out at every dress here.
@@ -93,11 +98,12 @@ describe('through a dress, for each thing a machine does to its offset', () => {
     const { dresses, stops } = throughDresses(soft)
     expect(dresses.length).toBeGreaterThanOrEqual(4)
     expect(stops).toBe(0)
-    for (const d of dresses.slice(2)) {
-      expect(d.preCorrectionUm!).toBeCloseTo(6 * 1.1, 6) // dress.preCorrectionMaxUm of axis at gain 1.1
+    // Sure part of a 12 µm step: 12 − ½·hypot(6, 1) ≈ 9 µm of diameter, 8.2 of axis — over the cap
+    // from the first dress on, so each dress takes dress.preCorrectionMaxUm (6 µm of axis at gain 1.1).
+    for (const d of dresses) {
+      expect(d.preCorrectionUm!).toBeCloseTo(6 * 1.1, 6)
       expect(d.oot.length).toBeLessThanOrEqual(2)
     }
-    for (const d of dresses.slice(0, 2)) expect(d.preCorrectionUm!).toBeCloseTo(2 * 1.1, 6) // max step until the step is learnt
   })
 
   it('a cold start whose warm-up is larger than the tolerance, dressed soon after: no stop, and at most one reject a dress on average', () => {
