@@ -26,7 +26,7 @@ for (const name of SCENARIOS) {
     let worst = 0
     const controller = createEngineController({ allowance: defaultAllowanceSettings })
     const r = runHeadless({
-      scenario, seed, machines: 4, controller,
+      scenario, seed, machines: 4, controller, obeyAllowance: true,
       onPartGround(id, p) {
         parts++
         if (!p.outOfTolerance) return
@@ -36,19 +36,21 @@ for (const name of SCENARIOS) {
     })
     const total = [...out.values()].reduce((a, b) => a + b, 0)
     const byMachine = r.machineIds.map(id => `${id} ${out.get(id) ?? 0}`).join(', ')
-    rows.push(`| ${name} | ${seed} | ${r.simulatedHours.toFixed(0)} | ${parts} | ${total} | ${byMachine} | ${total ? `${worst.toFixed(1)} µm` : '—'} | ${((performance.now() - t0) / 1000).toFixed(1)} |`)
+    const holds = r.machineIds.map((id, i) => [id, r.summary.machines[i]!.allowanceHolds] as const).filter(([, n]) => n > 0).map(([id, n]) => `${id} ${n}`).join(', ') || '—'
+    rows.push(`| ${name} | ${seed} | ${r.simulatedHours.toFixed(0)} | ${parts} | ${total} | ${byMachine} | ${total ? `${worst.toFixed(1)} µm` : '—'} | ${holds} | ${((performance.now() - t0) / 1000).toFixed(1)} |`)
     console.log(rows.at(-1))
   }
 }
 writeBenchmarkSection('Shipped nights, closed loop (npm run bench:scenarios)', `
 Command: \`npm run bench:scenarios\` (scripts/bench-scenarios.ts) at ${commit}, ${new Date().toISOString().slice(0, 10)}, Node ${process.version}, load ${load}.
 Each shipped scenario's night, 4 machines, in process, the server's own machine loop answering the machines
-(simulator/engine-controller.ts, the loop ingest runs) with the default settings and the allowance. "Truly out"
+(simulator/engine-controller.ts, the loop ingest runs) with the default settings and the allowance, which the machines
+obey ("held for the allowance": the times a machine held for want of a grant). "Truly out"
 counts the parts whose true size (the plant model's, docs/plant-model.md) left the job's tolerance, whatever the
 gauge said; "worst" is the furthest of them from nominal, in µm of diameter.
 
-| scenario | seed | hours | parts | truly out | by machine | worst | real s |
-|---|---|---|---|---|---|---|---|
+| scenario | seed | hours | parts | truly out | by machine | worst | held for the allowance | real s |
+|---|---|---|---|---|---|---|---|---|
 ${rows.join('\n')}
 
 Before b418a55 (a dress right after a dress forgot the first one's step) the fast-wheel-wear night had 103 (seed 7)
@@ -62,5 +64,12 @@ the offset in force (docs/compensation.md, "Through a dress"). With preCorrectio
 had 53 / 53, at 8 (the simulated machines' own largest step) 18 / 21. At 58bdd9a (the pre-correction took the step less
 two of its σ, so a machine's first two dresses, before the spread was learnt, were held to max step): fast-wheel-wear
 23 / 26, gauge-going-bad 241 / 176, cold start 35 / 34, quiet 3 / 4, loader jams 10 / 10, fire 4 / 6. With half a σ
-(docs/compensation.md, "Pre-correcting"): the rows above.
+(docs/compensation.md, "Pre-correcting"): the same figures, with one exception. The machines then ignored the
+allowance (this benchmark did not ask them to obey it), and at e55f3d0 the gauge-going-bad night's Kite (cg-03)
+ground 355 parts unmeasured through its 90-minute gauge fault: 233 / 167 truly out on it. Now the machines obey the
+allowance as the contract says, and a blind gauge grants nothing beyond what was granted while it could see
+(docs/mqtt.md#the-allowance, "A blind gauge"). Kite holds at the fault and stays held until a person resumes it,
+which this benchmark does not do (hence fewer parts). What is still out on Kite was ground before the fault: the
+gauge's zero drifted, so it passed parts that were out, and only a mastering shows that. No other night holds a
+machine for its allowance.
 `)

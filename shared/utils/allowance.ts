@@ -35,9 +35,30 @@ export interface AllowanceState {
   lastPartGauged: number | null
   /** the last grant sent, with the parts it meant beyond the part in the wheel, why, and when (server's clock) */
   sent: (AllowanceGrant & { parts: number, reason: string, at: number }) | null
+  /**
+   * Unusable readings in a row since the gauge last saw a part (reset by a usable reading, the
+   * gauge's fault cleared, a mastering). Absent in states stored before it: none.
+   */
+  unusableReadings?: number
+  /** while the gauge is blind: the part in the wheel when it went blind, the last part granted until it sees again (gaugeBlindness) */
+  blindThroughPart?: number | null
 }
 
-export const emptyAllowanceState = (): AllowanceState => ({ lastPartGround: null, lastPartGauged: null, sent: null })
+export const emptyAllowanceState = (): AllowanceState => ({ lastPartGround: null, lastPartGauged: null, sent: null, unusableReadings: 0, blindThroughPart: null })
+
+/**
+ * Why the gauge cannot see the parts now (null: it can): the machine says its gauge is in fault, or
+ * the last `unusableRun` readings in a row were unusable (the run that raises the engine's
+ * gauge-suspect alert). "Zero beyond the part in the wheel", renewed as each part is ground, is safe
+ * because Owlshift watches every reading that follows; with the gauge blind it sees nothing, and a
+ * machine would grind unmeasured for as long as the fault lasts. So nothing is granted beyond the
+ * part in the wheel when the gauge went blind (docs/mqtt.md#the-allowance, "A blind gauge").
+ */
+export function gaugeBlindness(activeFaults: readonly string[], unusableReadings: number, unusableRun: number): string | null {
+  if (activeFaults.includes('gauge_fault')) return 'the gauge is in fault: no part is measured'
+  if (unusableReadings >= unusableRun) return `${unusableReadings} unusable readings in a row: the gauge cannot see the parts`
+  return null
+}
 
 export interface AllowanceInputs {
   engine: CompensationState | null
@@ -47,6 +68,10 @@ export interface AllowanceInputs {
   offsetsUm: readonly number[]
   /** the engine holds the machine's latest state: it is not catching up with messages that came late */
   current: boolean
+  /** why the gauge cannot see the parts (gaugeBlindness); null or absent: it can */
+  gaugeBlind?: string | null
+  /** with a blind gauge: the part in the wheel when it went blind (AllowanceState.blindThroughPart); null: it has just gone blind */
+  blindThroughPart?: number | null
   settings?: AllowanceSettings
 }
 
@@ -87,6 +112,11 @@ export function allowanceFor(x: AllowanceInputs): Allowance {
   const settings = x.settings ?? defaultAllowanceSettings
   const base = x.lastPartGround ?? (x.lastPartGauged !== null && x.engine ? x.lastPartGauged + x.engine.settings.pipelineParts : 0)
   const zero = (reason: string, guardUm: number | null = null): Allowance => ({ parts: 0, throughPart: base + 1, reason, guardUm })
+  if (x.gaugeBlind) {
+    // The part in the wheel when the gauge went blind, and no further: the grant does not move on with the parts ground blind.
+    const through = x.blindThroughPart ?? base + 1
+    return { parts: 0, throughPart: through, reason: `${x.gaugeBlind}; nothing is granted beyond part ${through}, in the wheel when it went blind: a person checks the gauge and resumes`, guardUm: null }
+  }
   if (!x.current) return zero('catching up with messages that arrived late: nothing is vouched for from them')
   const unsure = engineUnsure(x.engine)
   if (unsure) return zero(unsure)

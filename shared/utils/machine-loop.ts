@@ -17,7 +17,7 @@ import { wheelEventInput } from './wheel-events'
 import { commandClockOffsetMs, judgeMachineClock, trustedClock, type MachineClock } from './machine-clock'
 import { cycleEventRow, isCycleMessage, type CycleEventRow } from './cycle-events'
 import { alertTrendStep, alertTrendThreshold, type AlertRoutingRules } from './alert-routing'
-import { allowanceFor, allowanceRenewalDue, emptyAllowanceState, outageResumeRefusal, voidsAllowance, withAllowance, type AllowanceSettings, type AllowanceState } from './allowance'
+import { allowanceFor, allowanceRenewalDue, emptyAllowanceState, gaugeBlindness, outageResumeRefusal, voidsAllowance, withAllowance, type AllowanceSettings, type AllowanceState } from './allowance'
 
 /** The alarm "size will meet tolerance soon", raised from the engine's prediction (docs/alarms.md). */
 export const TREND_CONDITION = 'trend:nears-tolerance'
@@ -482,7 +482,12 @@ class Step<J extends MachineJobRecord> {
     const a = st.allowance ?? emptyAllowanceState()
     const eng = this.engine
     const offsetsUm = [st.appliedOffsetUm, eng?.offsetUm, st.requestedOffsetUm].filter((u): u is number => typeof u === 'number')
-    const next = allowanceFor({ engine: eng, lastPartGround: a.lastPartGround, lastPartGauged: a.lastPartGauged, offsetsUm, current: st.online && !this.catchingUp, settings: this.allowanceSettings })
+    const gaugeBlind = gaugeBlindness(st.activeFaults, a.unusableReadings ?? 0, eng?.settings.outliers.runForGaugeSuspect ?? GAUGE_UNUSABLE_RUN)
+    const next = allowanceFor({
+      engine: eng, lastPartGround: a.lastPartGround, lastPartGauged: a.lastPartGauged, offsetsUm, current: st.online && !this.catchingUp,
+      gaugeBlind, blindThroughPart: gaugeBlind ? a.blindThroughPart ?? null : null, settings: this.allowanceSettings,
+    })
+    st.allowance = { ...a, blindThroughPart: gaugeBlind ? next.throughPart : null }
     const grant = { throughPart: next.throughPart, basedOnSeq: st.lastSeq }
     const renew = st.online && !this.catchingUp && allowanceRenewalDue(a.sent, next, a.lastPartGround, voided)
     if (!this.commands.length && !renew) return
@@ -498,7 +503,14 @@ class Step<J extends MachineJobRecord> {
       this.commands.push(command)
       this.rows.commands.push({ id: command.id, machineId: this.m.id, type: 'allowance', origin: 'allowance', payload: command, issuedAt: this.now, expiresAt, status: 'sent', requestedOffsetUm: null })
     }
-    st.allowance = { ...a, sent: { ...grant, parts: next.parts, reason: next.reason, at: this.now } }
+    st.allowance = { ...st.allowance, sent: { ...grant, parts: next.parts, reason: next.reason, at: this.now } }
+  }
+
+  /** The gauge's sight, for the allowance (allowance.ts, gaugeBlindness): a reading usable or not; null: it sees again (fault cleared, mastered). */
+  noteGaugeSight(unusable: boolean | null) {
+    if (!this.allowanceSettings) return
+    const a = this.status.allowance ?? emptyAllowanceState()
+    this.status.allowance = { ...a, unusableReadings: unusable ? (a.unusableReadings ?? 0) + 1 : 0 }
   }
 
   /** "Size will meet tolerance soon": the routing rules' hysteresis over the prediction (alert-routing.ts). */
@@ -574,6 +586,10 @@ export function applyMachineMessage<J extends MachineJobRecord>(machine: Machine
   return s.result()
 }
 
+
+/** Unusable readings in a row that make a gauge blind for a machine without an engine: the engine's default run for its gauge-suspect alert (outliers.runForGaugeSuspect). */
+const GAUGE_UNUSABLE_RUN = 3
+
 /** How the server runs the loop. */
 export interface MachineLoopOptions {
   /** how far a machine's clock may be from the server's before it is doubted; null or absent: never (machine-clock.ts) */
@@ -625,6 +641,7 @@ function onReading<J extends MachineJobRecord>(s: Step<J>, message: ReadingMessa
     roundnessUm: message.roundnessUm ?? undefined, lengthUm: message.lengthUm ?? undefined, offsetInForceUm: message.offsetUm,
   })
   s.record(decision, message.seq)
+  s.noteGaugeSight(s.engine ? s.engine.invalidRun > 0 : message.status !== 'ok' || !Number.isFinite(message.diameterUm))
   Object.assign(row, engineFigures(decision))
   const engine = s.engine
   if (decision?.kind === 'reading' && engine && engine.readings % ENGINE_SNAPSHOT_EVERY_PARTS === 0) s.rows.snapshots.push({ machineId: s.m.id, seq: message.seq, at: s.now, time, state: engine })
@@ -695,7 +712,8 @@ function onEvent<J extends MachineJobRecord>(s: Step<J>, message: EventMessage) 
       delete s.outstanding.dress // whoever asked, the wheel is dressed
       s.feed(message, st.execution)
       break
-    case 'wheel_change': case 'mastering': s.feed(message, st.execution); break
+    case 'wheel_change': s.feed(message, st.execution); break
+    case 'mastering': s.feed(message, st.execution); s.noteGaugeSight(null); break
     case 'job_change': machineJobChange(s, message.job, message.seq); break
     case 'fault_raised':
       if (!st.activeFaults.includes(message.fault)) st.activeFaults = [...st.activeFaults, message.fault]
@@ -703,6 +721,7 @@ function onEvent<J extends MachineJobRecord>(s: Step<J>, message: EventMessage) 
       break
     case 'fault_cleared':
       st.activeFaults = st.activeFaults.filter(f => f !== message.fault)
+      if (message.fault === 'gauge_fault') s.noteGaugeSight(null)
       s.condition(`fault:${message.fault}`, false, '')
       break
   }

@@ -258,6 +258,24 @@ describe('the machine loop', () => {
     expect(sent.filter(s => s.atPart > dressAt + 20).some(s => s.command.allowance!.throughPart > s.atPart + 20)).toBe(true)
   })
 
+  // A blind gauge (docs/mqtt.md#the-allowance, "A blind gauge"): before it, "zero beyond the part in the
+  // wheel" was renewed with every part ground, so a machine whose gauge faulted ground on unmeasured for
+  // as long as the fault lasted (the shipped gauge-going-bad night: 355 parts on Kite in a 90-minute fault).
+  it('grants nothing beyond the part in the wheel when the gauge went blind (a gauge fault, or unusable readings in a row), so the machine holds; once the gauge sees again parts flow', () => {
+    for (const how of ['fault declared', 'unusable readings only'] as const) {
+      const r = blindNight(how)
+      expect(r.stoppedBlind, how).toBe(true) // it stood still before the 200 parts tried
+      // A declared fault: the part in the wheel then (151), no further. Unusable readings alone: the
+      // third in a row makes the gauge blind — the readings of parts 148–150 come as parts 151–153 are
+      // ground — so the part in the wheel then, 154, is the last.
+      expect(r.lastStartedBlind, how).toBe(how === 'fault declared' ? 151 : 154)
+      expect(r.blindThrough, how).toBe(r.lastStartedBlind)
+      expect(r.blindReason, how).toMatch(/gauge/)
+      // the gauge back (fault cleared, or mastered): part by part, then a grant that reaches further
+      expect(r.startedAfter, how).toBeGreaterThanOrEqual(40)
+    }
+  })
+
   it('grants nothing to a machine that is offline, and grants at its birth', () => {
     let m = machine()
     const r1 = applyMachineMessage(m, { kind: 'event', seq: 1, time: iso(1), type: 'part_ground', part: 7, offsetUm: 0, wheelDiameterMm: 300 }, T0, { allowance: defaultAllowanceSettings })
@@ -272,6 +290,55 @@ describe('the machine loop', () => {
     expect(applyMachineMessage(m, { ...r2.rows.messages[0]!.payload as SequencedMessage }, T0).commands).toEqual([])
   })
 })
+
+/**
+ * A machine that starts a part only within its grant (the machine's side of the rule), 150 parts seen,
+ * then its gauge goes blind at part 150 — a declared gauge fault with unusable readings, or unusable
+ * readings alone — for up to 200 parts it tries to grind, then sees again (fault cleared, or mastered).
+ */
+function blindNight(how: 'fault declared' | 'unusable readings only') {
+  let m = machine()
+  let seq = 0
+  let held: CommandMessage['allowance'] | null = null
+  let voidedAt = 0
+  let execution = 'ACTIVE'
+  const feed = (msg: SequencedMessage) => {
+    if (voidsAllowance(msg as never, execution)) voidedAt = msg.seq
+    if (msg.kind === 'state') execution = msg.execution
+    const r = applyMachineMessage(m, msg, T0 + msg.seq * 1000, { allowance: defaultAllowanceSettings })
+    m = r.machine
+    for (const c of r.commands) held = heldAllowanceAfter(held ?? null, c.allowance) ?? undefined
+  }
+  feed({
+    kind: 'birth', seq: ++seq, time: iso(0), session: 1, adapter: { name: 't', version: '1' }, machine: { name: 't', model: 't' },
+    job: { jobId: 'j1', partNumber: 'HX-410', nominalMm: 20, lowerToleranceUm: -4, upperToleranceUm: 4 }, execution: 'ACTIVE', offsetUm: 0, pipelineParts: 3, cycleTimeS: 20, wheelDiameterMm: 300, lastPart: 0,
+  })
+  let k = 0
+  const grind = (gaugeOk: boolean): boolean => {
+    if (!mayStartPart(held ?? null, k + 1, voidedAt)) return false
+    k++
+    feed({ kind: 'event', seq: ++seq, time: iso(k * 20), type: 'part_ground', part: k, offsetUm: 0, wheelDiameterMm: 300 })
+    if (k > 3) {
+      feed(gaugeOk
+        ? { kind: 'reading', seq: ++seq, time: iso(k * 20), part: k - 3, status: 'ok', diameterUm: -1 + 0.002 * (k - 3) + 0.1 * Math.sin(k), offsetUm: 0 }
+        : { kind: 'reading', seq: ++seq, time: iso(k * 20), part: k - 3, status: 'fault', diameterUm: null, offsetUm: 0 })
+    }
+    return true
+  }
+  while (k < 150) expect(grind(true)).toBe(true)
+  if (how === 'fault declared') feed({ kind: 'event', seq: ++seq, time: iso(k * 20 + 5), type: 'fault_raised', fault: 'gauge_fault', message: 'gauge head signal out of range' })
+  let stoppedBlind = false
+  for (let i = 0; i < 200; i++) if (!grind(false)) { stoppedBlind = true; break }
+  const lastStartedBlind = k
+  const blindThrough = m.status.allowance?.blindThroughPart ?? null
+  const blindReason = m.status.allowance?.sent?.reason ?? ''
+  if (how === 'fault declared') feed({ kind: 'event', seq: ++seq, time: iso(k * 20 + 5), type: 'fault_cleared', fault: 'gauge_fault' })
+  else feed({ kind: 'event', seq: ++seq, time: iso(k * 20 + 5), type: 'mastering', correctionUm: 0 })
+  let startedAfter = 0
+  for (let i = 0; i < 60; i++) if (grind(true)) startedAfter++
+  expect(m.status.allowance?.blindThroughPart ?? null).toBeNull() // it sees again
+  return { lastStartedBlind, stoppedBlind, blindThrough, blindReason, startedAfter }
+}
 
 describe('a machine never grinds past its allowance without a renewal (property)', () => {
   const scenarios = ['quiet-night.json', 'fast-wheel-wear.json', 'loader-jam-and-empty-pallet.json', 'gauge-going-bad.json'].map(f => loadScenarioFile(`simulator/scenarios/${f}`))
