@@ -689,7 +689,11 @@ function onState<J extends MachineJobRecord>(s: Step<J>, message: StateMessage) 
   // as by a fault, and nobody asked for it: the lead must hear. A hold by command is not: the
   // engine's stop request is its own alarm, and a person's hold was meant.
   const heldForAllowance = message.execution === 'FEED_HOLD' && !!message.holdCauses?.includes('allowance')
-  s.condition('machine:stopped', message.execution === 'STOPPED' || heldForAllowance, `${s.m.name} ${heldForAllowance ? 'held' : 'stopped'}${message.reason ? `: ${message.reason}` : ''}`)
+  // Held because the gauge is blind (allowance.ts, gaugeBlindness): the machine only knows its grant ran
+  // out, and may say "no word from the compensator"; the lead must read that the gauge is the cause.
+  const blind = heldForAllowance ? gaugeBlindness(st.activeFaults, st.allowance?.unusableReadings ?? 0, s.engine?.settings.outliers.runForGaugeSuspect ?? GAUGE_UNUSABLE_RUN) : null
+  const why = blind ? `: ${blind} — a person checks the gauge and resumes it` : message.reason ? `: ${message.reason}` : ''
+  s.condition('machine:stopped', message.execution === 'STOPPED' || heldForAllowance, `${s.m.name} ${heldForAllowance ? 'held' : 'stopped'}${why}`)
 }
 
 function onAck<J extends MachineJobRecord>(s: Step<J>, message: AckMessage) {

@@ -271,6 +271,7 @@ describe('the machine loop', () => {
       expect(r.lastStartedBlind, how).toBe(how === 'fault declared' ? 151 : 154)
       expect(r.blindThrough, how).toBe(r.lastStartedBlind)
       expect(r.blindReason, how).toMatch(/gauge/)
+      expect(r.heldAlarm, how).toMatchObject({ active: true, message: expect.stringMatching(/^M1 held: .*gauge.* a person checks the gauge and resumes it$/) })
       // the gauge back (fault cleared, or mastered): part by part, then a grant that reaches further
       expect(r.startedAfter, how).toBeGreaterThanOrEqual(40)
     }
@@ -329,6 +330,9 @@ function blindNight(how: 'fault declared' | 'unusable readings only') {
   if (how === 'fault declared') feed({ kind: 'event', seq: ++seq, time: iso(k * 20 + 5), type: 'fault_raised', fault: 'gauge_fault', message: 'gauge head signal out of range' })
   let stoppedBlind = false
   for (let i = 0; i < 200; i++) if (!grind(false)) { stoppedBlind = true; break }
+  // the machine holds for its allowance (it only knows its grant ran out): the alarm says the gauge is why
+  const hold = applyMachineMessage(m, { kind: 'state', seq: seq + 1, time: iso(k * 20 + 10), execution: 'FEED_HOLD', activeFaults: how === 'fault declared' ? ['gauge_fault'] : [], holdCauses: ['allowance'], reason: 'allowance used up: no word from the compensator' }, T0 + (seq + 1) * 1000, { allowance: defaultAllowanceSettings })
+  const heldAlarm = hold.conditions.find(c => c.condition === 'machine:stopped')
   const lastStartedBlind = k
   const blindThrough = m.status.allowance?.blindThroughPart ?? null
   const blindReason = m.status.allowance?.sent?.reason ?? ''
@@ -337,7 +341,7 @@ function blindNight(how: 'fault declared' | 'unusable readings only') {
   let startedAfter = 0
   for (let i = 0; i < 60; i++) if (grind(true)) startedAfter++
   expect(m.status.allowance?.blindThroughPart ?? null).toBeNull() // it sees again
-  return { lastStartedBlind, stoppedBlind, blindThrough, blindReason, startedAfter }
+  return { lastStartedBlind, stoppedBlind, blindThrough, blindReason, startedAfter, heldAlarm }
 }
 
 describe('a machine never grinds past its allowance without a renewal (property)', () => {
