@@ -53,6 +53,8 @@ export interface LoopOptions {
   onDecision?: (decision: CompensationDecision, input: CompensationInput, state: CompensationState) => void
   /** look at every dress or wheel change: the true size step at the same offset (tests) */
   onWheelEvent?: (kind: 'dress' | 'wheel-change', result: WheelEventResult, part: number) => void
+  /** look at every part ground: its index in the run and its true size (µm from nominal) */
+  onPartGround?: (k: number, trueUm: number, outOfTolerance: boolean) => void
 }
 
 export interface LoopMetrics {
@@ -171,7 +173,9 @@ export function runControlLoop(scenario: LoopScenario, options: LoopOptions, m: 
     const { ground, gauged } = plantCycle(plant, time)
     partsSinceDress++
     sinceDress++
-    if (ground.trueUm > spec.upperSpecUm || ground.trueUm < spec.lowerSpecUm) {
+    const out = ground.trueUm > spec.upperSpecUm || ground.trueUm < spec.lowerSpecUm
+    options.onPartGround?.(k, ground.trueUm, out)
+    if (out) {
       m.oot++
       if (sinceDress <= 20) m.ootAfterDress++
     }

@@ -841,7 +841,20 @@ function addWearFitPoint(st: CompensationState, disturbance: number): void {
   const l = 1 - 1 / WEAR_FIT_MEMORY
   const n = st.partsSinceDress
   const f = st.wearFit
-  st.wearFit = [f[0]! * l + 1, f[1]! * l + n, f[2]! * l + n * n, f[3]! * l + disturbance, f[4]! * l + n * disturbance]
+  const y = disturbance - thermalPartUm(st)
+  st.wearFit = [f[0]! * l + 1, f[1]! * l + n, f[2]! * l + n * n, f[3]! * l + y, f[4]! * l + n * y]
+}
+
+/**
+ * The part of the size the machine's temperature makes now, by the engine's thermal model: the
+ * warm-up (set or learnt, docs/compensation.md, "Restart after a stop") times the fraction of it
+ * still to come; 0 while the warm-up is not known. The wear fit takes it out: a machine re-warming
+ * after a stop moves the size by several µm within the dress interval, and read as wear that made
+ * the next dress's predicted step wrong by as much.
+ */
+function thermalPartUm(st: CompensationState): number {
+  const warmupUm = st.settings.restart.warmupUm ?? st.warmupLearntUm
+  return warmupUm === null ? 0 : warmupUm * (st.thermalFraction - 1)
 }
 
 export interface CompensationDressOutlook {
