@@ -74,7 +74,8 @@ async function startDemoCell() {
   for (let i = 0; i < 120 && !(existsSync(credsFile) && await listening()); i++) await new Promise(r => setTimeout(r, 500))
   const creds = JSON.parse(readFileSync(credsFile, 'utf8')) as Record<string, { username: string, password: string }>
   sim = await startSimulator({
-    scenario: loadScenarioFile('simulator/scenarios/quiet-night.json'),
+    // OWLSHIFT_DEMO_SCENARIO: another night of the shop (a scenario file, e.g. simulator/scenarios/gauge-going-bad.json)
+    scenario: loadScenarioFile(process.env.OWLSHIFT_DEMO_SCENARIO ?? 'simulator/scenarios/quiet-night.json'),
     seed: Date.now() % 100000, machines: demoShop.machines.length, speed, hours: 24 * 30,
     brokerUrl: `mqtt://127.0.0.1:${mqttPort}`, stateDir: join(dataDir, 'simulator'), startMs: Date.now(),
     credentials: id => creds[id],
